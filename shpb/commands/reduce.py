@@ -1,0 +1,62 @@
+"""``shpb reduce SHOT.toml``: one shot to curves, summary and figure sheet."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+
+def register(app: typer.Typer) -> None:
+    @app.command("reduce")
+    def reduce_cmd(
+        shot: Path = typer.Argument(..., help="Shot setup file (TOML)."),
+        out: Optional[Path] = typer.Option(None, "--out", "-o",
+                                           help="Output folder [default: results/<shot name> beside the shot file]."),
+        dispersion: Optional[bool] = typer.Option(None, "--dispersion/--no-dispersion",
+                                                  help="Pochhammer–Chree correction [default: the shot file's, on]."),
+        stress: Optional[str] = typer.Option(None, help="Reported stress: 1-wave, 2-wave or 3-wave."),
+        figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure sheet."),
+    ):
+        """Reduce one shot: bridge volts -> strains at the specimen faces -> stress, strain, strain rate,
+        equilibrium and yield checks. Writes curves.csv, summary.json and shot.png."""
+        from ..reduce import reduce_file
+        from ..setup import STRESS_CHOICES
+
+        changes = {}
+        if dispersion is not None:
+            changes["dispersion"] = dispersion
+        if stress is not None:
+            if stress not in STRESS_CHOICES:
+                raise typer.BadParameter(f"expected one of {', '.join(STRESS_CHOICES)}", param_hint="--stress")
+            changes["stress"] = stress
+        from ..setup import load_shot
+
+        name = load_shot(shot).name
+        out_dir = out or shot.parent / "results" / name
+        result = reduce_file(shot, out_dir, figure=figure, **changes)
+        typer.echo(format_result(result, out_dir))
+        raise typer.Exit(0 if result.valid else 1)
+
+
+def format_result(result, out_dir) -> str:
+    """A few lines a lab engineer reads after a shot."""
+    r = result.summary["results"]
+
+    def g(key, fmt):
+        v = r.get(key)
+        return format(v, fmt) if isinstance(v, (int, float)) else "n/a"
+
+    lines = [
+        f"shot {result.name}: {'VALID' if result.valid else 'NOT VALID'}",
+        f"  mean strain rate   {g('mean_strain_rate_per_s', '.0f')} 1/s (spread {g('strain_rate_cv', '.1%')})",
+        f"  peak stress        {g('peak_stress_MPa', '.1f')} MPa   max strain {g('max_strain', '.4f')}",
+        f"  yield (offset {g('yield_offset', '.1%')})  {g('yield_stress_MPa', '.1f')} MPa at strain "
+        f"{g('yield_strain', '.4f')}",
+        f"  equilibrium from   {g('equilibrium_from_time_us', '.1f')} us (strain {g('equilibrium_from_strain', '.4f')})",
+    ]
+    for f in result.flags:
+        lines.append(f"  {f.severity}: {f.message}")
+    lines.append(f"  written to {out_dir}")
+    return "\n".join(lines)

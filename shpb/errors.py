@@ -1,0 +1,27 @@
+"""Exception types. Every message is one line naming the file, field and what was expected."""
+
+
+class ShpbError(Exception):
+    """Base class of the errors the CLI reports as one line (no traceback)."""
+
+
+class InputError(ShpbError, ValueError):
+    """Bad input: a missing file, a wrong key or column, an impossible value.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong and what was expected.
+    source : str, optional
+        The file (and key, row or column) the problem was found in; prefixed
+        to the message as ``source: message``.
+    """
+
+    def __init__(self, message, source=None):
+        self.source = source
+        self.bare_message = message
+        super().__init__(f"{source}: {message}" if source else message)
+
+
+class AnalysisError(ShpbError):
+    """The data were read but cannot be reduced (e.g. no pulse found)."""

@@ -1,0 +1,330 @@
+"""Reading records and writing outputs.
+
+Records are delimited text as oscilloscopes and DAQ cards export it
+(metadata lines before the data, an optional header row, comma, tab,
+semicolon or white-space delimiters) or NumPy ``.npz`` archives. Every output
+is written atomically: to a temporary file in the target folder, then renamed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io as _io
+import json
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+TEXT_SUFFIXES = {".csv", ".txt", ".dat", ".tsv", ".asc", ".prn"}
+
+
+@dataclass
+class Record:
+    """A shot's raw record: a uniform time base and the two bar channels.
+
+    Attributes
+    ----------
+    time : ndarray
+        Record time [s] (uniform).
+    dt : float
+        Sample interval [s].
+    incident, transmitted : ndarray
+        Recorded voltages [V].
+    files : dict
+        File path -> SHA-256 of its content.
+    """
+
+    time: np.ndarray
+    dt: float
+    incident: np.ndarray
+    transmitted: np.ndarray
+    files: dict = field(default_factory=dict)
+
+
+# --------------------------------------------------------------------------- hashing
+def sha256_file(path, chunk=1 << 20) -> str:
+    """SHA-256 of a file's content (hex)."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while True:
+            b = fh.read(chunk)
+            if not b:
+                break
+            h.update(b)
+    return h.hexdigest()
+
+
+# --------------------------------------------------------------------------- delimited text
+def _is_number(tok: str) -> bool:
+    try:
+        float(tok)
+        return True
+    except ValueError:
+        return False
+
+
+def _split(line: str, delim):
+    return [c.strip().strip('"').strip("'") for c in (line.split(delim) if delim else line.split())]
+
+
+def _sniff(path: Path, n_lines=400):
+    """Find the delimiter, the header row (or None) and the first data row of a text record."""
+    lines = []
+    with open(path, "r", errors="replace") as fh:
+        for _ in range(n_lines):
+            ln = fh.readline()
+            if not ln:
+                break
+            lines.append(ln.rstrip("\r\n"))
+    if not lines:
+        raise InputError("the file is empty", str(path))
+    for delim in (",", "\t", ";", None):
+        # the first row from which the next rows are all numeric with one field count
+        for i, ln in enumerate(lines):
+            cells = _split(ln, delim)
+            if len(cells) < 1 or not all(_is_number(c) for c in cells if c != "") or not any(cells):
+                continue
+            ncol = len(cells)
+            if delim is not None and ncol < 2:
+                continue
+            tail = [_split(x, delim) for x in lines[i : i + 20] if x.strip()]
+            if all(len(t) == ncol and all(_is_number(c) for c in t) for t in tail):
+                header = None
+                if i > 0:
+                    prev = _split(lines[i - 1], delim)
+                    if len(prev) == ncol and not all(_is_number(c) for c in prev):
+                        header = i - 1
+                return delim, header, i, ncol
+    raise InputError("no block of numeric rows found (expected delimited numbers, optionally after header lines)",
+                     str(path))
+
+
+def read_table(path):
+    """Read a delimited numeric table from a scope/DAQ text export.
+
+    Parameters
+    ----------
+    path : str or Path
+        The text file.
+
+    Returns
+    -------
+    columns : list of str
+        Column names (from the header row, or ``"0"``, ``"1"``, ... if none).
+    data : ndarray, shape (n_samples, n_columns)
+        The numbers.
+
+    Raises
+    ------
+    InputError
+        Missing file, no numeric block, non-numeric cells or blanks inside the
+        data, NaN values.
+    """
+    import pandas as pd
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError("file not found", str(path))
+    delim, header, first, ncol = _sniff(path)
+    sep = delim if delim is not None else r"\s+"
+    try:
+        df = pd.read_csv(path, sep=sep, header=None, skiprows=first, engine="c", dtype=np.float64,
+                         skip_blank_lines=True, comment=None, names=list(range(ncol)), index_col=False)
+    except (ValueError, pd.errors.ParserError) as exc:
+        raise InputError(_bad_cell_message(path, sep, first, ncol) or f"cannot read the data rows ({exc})",
+                         str(path)) from None
+    data = df.to_numpy()
+    if header is not None:
+        with open(path, "r", errors="replace") as fh:
+            for _ in range(header):
+                fh.readline()
+            names = _split(fh.readline().rstrip("\r\n"), delim)
+    else:
+        names = [str(i) for i in range(ncol)]
+    bad = ~np.isfinite(data)
+    if bad.any():
+        r, c = np.argwhere(bad)[0]
+        raise InputError(f"column {names[c]!r} has a missing or non-finite value at data row {r + 1} "
+                         f"(line {first + r + 1})", str(path))
+    return names, data
+
+
+def _bad_cell_message(path, sep, first, ncol):
+    """Locate the first non-numeric cell, for a useful message."""
+    import re
+
+    splitter = re.compile(sep) if sep == r"\s+" else None
+    with open(path, "r", errors="replace") as fh:
+        for lineno, ln in enumerate(fh, start=1):
+            if lineno <= first or not ln.strip():
+                continue
+            cells = splitter.split(ln.strip()) if splitter else ln.rstrip("\r\n").split(sep)
+            if len(cells) != ncol:
+                return f"line {lineno} has {len(cells)} fields, expected {ncol}"
+            for j, c in enumerate(cells):
+                if not _is_number(c.strip().strip('"')):
+                    return f"line {lineno}, column {j + 1}: {c.strip()!r} is not a number"
+    return None
+
+
+def _column(names, data, column, path):
+    if isinstance(column, int) and not isinstance(column, bool):
+        if not 0 <= column < data.shape[1]:
+            raise InputError(f"column index {column} out of range (the file has {data.shape[1]} columns, 0-based)",
+                             str(path))
+        return data[:, column]
+    if column in names:
+        return data[:, names.index(column)]
+    raise InputError(f"no column {column!r} (columns: {', '.join(names)})", str(path))
+
+
+def _load_npz(path, key):
+    path = Path(path)
+    if not path.is_file():
+        raise InputError("file not found", str(path))
+    try:
+        with np.load(path, allow_pickle=False) as z:
+            if str(key) not in z.files:
+                raise InputError(f"no array {key!r} (arrays: {', '.join(z.files)})", str(path))
+            arr = np.asarray(z[str(key)], dtype=float).ravel()
+    except InputError:
+        raise
+    except Exception as exc:
+        raise InputError(f"not a readable .npz archive ({exc.__class__.__name__})", str(path)) from None
+    if not np.all(np.isfinite(arr)):
+        i = int(np.argmax(~np.isfinite(arr)))
+        raise InputError(f"array {key!r} has a non-finite value at sample {i}", str(path))
+    return arr
+
+
+class _Cache:
+    """Read each file once even when several channels come from it."""
+
+    def __init__(self):
+        self.tables = {}
+
+    def column(self, path: Path, column):
+        if path.suffix.lower() == ".npz":
+            return _load_npz(path, column)
+        if path not in self.tables:
+            if path.suffix.lower() not in TEXT_SUFFIXES and path.is_file():
+                raise InputError(f"unknown record format {path.suffix!r} (expected .npz or delimited text "
+                                 f"{', '.join(sorted(TEXT_SUFFIXES))})", str(path))
+            self.tables[path] = read_table(path)
+        names, data = self.tables[path]
+        return _column(names, data, column, path)
+
+
+def read_record(spec) -> Record:
+    """Read the channels named by a :class:`shpb.setup.RecordSpec`.
+
+    Raises
+    ------
+    InputError
+        Unreadable file, unknown column, channels of unequal length,
+        non-monotonic or non-uniform time, NaN.
+    """
+    cache = _Cache()
+    inc = cache.column(spec.incident.file, spec.incident.column)
+    tra = cache.column(spec.transmitted.file, spec.transmitted.column)
+    if inc.size != tra.size:
+        raise InputError(f"the incident channel has {inc.size} samples but the transmitted channel "
+                         f"({spec.transmitted.file}) has {tra.size}", str(spec.incident.file))
+    if inc.size < 16:
+        raise InputError(f"only {inc.size} samples: too short to be a bar record", str(spec.incident.file))
+    if spec.time is not None:
+        t = cache.column(spec.incident.file, spec.time) * spec.time_unit
+        if t.size != inc.size:
+            raise InputError(f"time has {t.size} samples, channels {inc.size}", str(spec.incident.file))
+        dt = _uniform_dt(t, str(spec.incident.file), spec.time)
+        time = t[0] + dt * np.arange(t.size)
+    else:
+        dt = spec.sample_interval
+        time = dt * np.arange(inc.size)
+    files = {}
+    for f in {spec.incident.file, spec.transmitted.file}:
+        files[str(f)] = sha256_file(f)
+    return Record(time=time, dt=dt, incident=inc, transmitted=tra, files=files)
+
+
+def _uniform_dt(t, where, column):
+    d = np.diff(t)
+    if np.any(d <= 0):
+        i = int(np.argmax(d <= 0))
+        raise InputError(f"time column {column!r} is not increasing at data row {i + 2}", where)
+    dt = (t[-1] - t[0]) / (t.size - 1)
+    if np.max(np.abs(d - dt)) > 0.05 * dt:
+        i = int(np.argmax(np.abs(d - dt)))
+        raise InputError(f"time column {column!r} is not uniformly sampled (step {d[i]:.4g} s at row {i + 2}, "
+                         f"mean {dt:.4g} s); missing samples?", where)
+    return dt
+
+
+# --------------------------------------------------------------------------- atomic writes
+def atomic_write_bytes(path, data: bytes) -> None:
+    """Write ``data`` to ``path`` atomically (temporary file in the same folder, then rename)."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def atomic_write_text(path, text: str) -> None:
+    """Write text (UTF-8) atomically."""
+    atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def atomic_write_json(path, obj) -> None:
+    """Write JSON atomically (indented, NaN written as null)."""
+    atomic_write_text(path, json.dumps(_jsonable(obj), indent=2, allow_nan=False) + "\n")
+
+
+def atomic_write_csv(path, df, float_format="%.6g") -> None:
+    """Write a DataFrame as CSV atomically."""
+    buf = _io.StringIO()
+    df.to_csv(buf, index=False, float_format=float_format)
+    atomic_write_text(path, buf.getvalue())
+
+
+def atomic_savefig(fig, path, **kwargs) -> None:
+    """Save a matplotlib figure atomically (format from the suffix)."""
+    buf = _io.BytesIO()
+    fmt = Path(path).suffix.lstrip(".") or "png"
+    fig.savefig(buf, format=fmt, **kwargs)
+    atomic_write_bytes(path, buf.getvalue())
+
+
+def _jsonable(obj):
+    """Make numpy scalars, paths and NaN JSON-friendly."""
+    if isinstance(obj, dict):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, Path):
+        return str(obj)
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        f = float(obj)
+        return f if np.isfinite(f) else None
+    if isinstance(obj, np.ndarray):
+        return _jsonable(obj.tolist())
+    return obj

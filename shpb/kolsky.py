@@ -1,0 +1,148 @@
+"""The Kolsky (split-Hopkinson pressure bar) equations.
+
+Inputs are the incident, reflected and transmitted bar strains already
+shifted to the specimen faces; compression is positive, so the reflected
+strain of a compression test is negative. Face 1 (front) touches the
+incident bar, face 2 (back) the transmitted bar. The incident and
+transmitted bars may differ (own modulus, area and wave speed).
+
+References
+----------
+.. [1] H. Kolsky, "An investigation of the mechanical properties of materials
+   at very high rates of loading," Proc. Phys. Soc. B 62, 676–700 (1949),
+   doi:10.1088/0370-1301/62/11/302.
+.. [2] G. T. Gray III, "Classic split-Hopkinson pressure bar testing," in
+   ASM Handbook Vol. 8, Mechanical Testing and Evaluation, ASM International,
+   2000, pp. 462–476.
+.. [3] W. Chen and B. Song, *Split Hopkinson (Kolsky) Bar: Design, Testing
+   and Applications*, Springer, 2011, ch. 1, doi:10.1007/978-1-4419-7982-7.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def face_forces(strain_incident, strain_reflected, strain_transmitted, incident_modulus, incident_area,
+                transmitted_modulus, transmitted_area):
+    """Forces on the specimen's front and back faces.
+
+    F1 = E_i A_i (ε_i + ε_r),  F2 = E_t A_t ε_t  (refs [1]–[3]).
+
+    Parameters
+    ----------
+    strain_incident, strain_reflected, strain_transmitted : array_like
+        Bar strains at the faces [1], compression positive.
+    incident_modulus, transmitted_modulus : float
+        Bar Young's moduli [Pa].
+    incident_area, transmitted_area : float
+        Bar cross-sections [m^2].
+
+    Returns
+    -------
+    force_front, force_back : ndarray
+        Compressive forces on faces 1 and 2 [N].
+    """
+    ei, er, et = (np.asarray(x, dtype=float) for x in (strain_incident, strain_reflected, strain_transmitted))
+    return incident_modulus * incident_area * (ei + er), transmitted_modulus * transmitted_area * et
+
+
+def face_velocities(strain_incident, strain_reflected, strain_transmitted, incident_wave_speed,
+                    transmitted_wave_speed):
+    """Particle velocities of the specimen faces, positive towards the transmitted bar.
+
+    v1 = c_i (ε_i − ε_r),  v2 = c_t ε_t  (refs [1]–[3]).
+
+    Returns
+    -------
+    velocity_front, velocity_back : ndarray
+        [m/s].
+    """
+    ei, er, et = (np.asarray(x, dtype=float) for x in (strain_incident, strain_reflected, strain_transmitted))
+    return incident_wave_speed * (ei - er), transmitted_wave_speed * et
+
+
+def strain_rate(velocity_front, velocity_back, specimen_length):
+    """Three-wave engineering strain rate (v1 − v2) / L_s [1/s], compression positive."""
+    return (np.asarray(velocity_front, dtype=float) - np.asarray(velocity_back, dtype=float)) / specimen_length
+
+
+def strain_rate_reflected(strain_reflected, bar_wave_speed, specimen_length):
+    """Classic strain rate from the reflected wave alone, −2 c0 ε_r / L_s [1/s].
+
+    Assumes force equilibrium (ε_i + ε_r = ε_t) and identical bars (refs [2], [3]).
+    """
+    return -2.0 * bar_wave_speed * np.asarray(strain_reflected, dtype=float) / specimen_length
+
+
+def integrate(rate, dt):
+    """Cumulative trapezoidal integral of a rate sampled at ``dt`` [s], starting at 0."""
+    r = np.asarray(rate, dtype=float)
+    out = np.zeros_like(r)
+    if r.size > 1:
+        out[1:] = np.cumsum(0.5 * (r[1:] + r[:-1])) * dt
+    return out
+
+
+def stresses(force_front, force_back, specimen_area):
+    """One-, two- and three-wave engineering stress [Pa].
+
+    one-wave = F2 / A_s (back face), two-wave = F1 / A_s (front face),
+    three-wave = (F1 + F2) / (2 A_s) (refs [2], [3]).
+
+    Returns
+    -------
+    dict
+        ``{"1-wave": ndarray, "2-wave": ndarray, "3-wave": ndarray}``.
+    """
+    f1 = np.asarray(force_front, dtype=float)
+    f2 = np.asarray(force_back, dtype=float)
+    return {"1-wave": f2 / specimen_area, "2-wave": f1 / specimen_area, "3-wave": 0.5 * (f1 + f2) / specimen_area}
+
+
+def true_stress_strain(strain, stress):
+    """True strain and stress from engineering values, compression positive, volume constant.
+
+    ε_T = −ln(1 − e),  σ_T = σ (1 − e)  (ref. [3], ch. 1).
+
+    Parameters
+    ----------
+    strain : array_like
+        Engineering strain e [1] (compression positive; must stay below 1).
+    stress : array_like
+        Engineering stress [Pa].
+
+    Returns
+    -------
+    true_strain, true_stress : ndarray
+    """
+    e = np.asarray(strain, dtype=float)
+    s = np.asarray(stress, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return -np.log1p(-e), s * (1.0 - e)
+
+
+def equilibrium_ratio(force_front, force_back, floor=0.0):
+    """Force-equilibrium factor R(t) = 2 (F1 − F2) / (F1 + F2).
+
+    Parameters
+    ----------
+    force_front, force_back : array_like
+        Face forces [N].
+    floor : float
+        Where |F1 + F2| / 2 is below ``floor`` [N], R is NaN (the ratio of two
+        noise values means nothing).
+
+    Returns
+    -------
+    ndarray
+        R [1]; |R| <= 0.05 is the usual equilibrium criterion (Ravichandran &
+        Subhash 1994, J. Am. Ceram. Soc. 77:263, doi:10.1111/j.1151-2916.1994.tb06987.x).
+    """
+    f1 = np.asarray(force_front, dtype=float)
+    f2 = np.asarray(force_back, dtype=float)
+    mean = 0.5 * (f1 + f2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = (f1 - f2) / mean
+    r[np.abs(mean) <= floor] = np.nan
+    return r

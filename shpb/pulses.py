@@ -1,0 +1,169 @@
+"""Baselines, pulse feet, windows and sub-sample time shifts of bar signals.
+
+Pure functions on numpy arrays. Signals are bar strains with the package's
+sign convention (compression positive) unless said otherwise.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def noise_floor(signal, n_baseline):
+    """Mean and standard deviation of the first ``n_baseline`` samples (the pre-trigger part).
+
+    Parameters
+    ----------
+    signal : array_like
+        Any record channel.
+    n_baseline : int
+        Number of leading samples that hold no pulse.
+
+    Returns
+    -------
+    mean, std : float
+        In the signal's unit.
+    """
+    s = np.asarray(signal, dtype=float)[: max(int(n_baseline), 2)]
+    return float(np.mean(s)), float(np.std(s))
+
+
+def find_foot(signal, n_baseline, *, k_sigma=8.0, min_fraction=0.05, foot_fraction=0.01):
+    """Sub-sample index of the foot of the first positive pulse.
+
+    The pulse is first detected where it exceeds a threshold relative to the
+    noise floor (``k_sigma`` standard deviations of the pre-trigger part, and
+    at least ``min_fraction`` of the peak); the foot is then found by walking
+    back to where the rise leaves the baseline, i.e. the last sample before
+    the detection at or below ``max(3 sigma, foot_fraction * peak)``, refined
+    by linear interpolation.
+
+    Parameters
+    ----------
+    signal : array_like
+        Baseline-free signal, pulse positive.
+    n_baseline : int
+        Leading samples that are pulse-free (noise estimate).
+    k_sigma : float
+        Detection threshold in noise standard deviations.
+    min_fraction, foot_fraction : float
+        Detection and foot levels as fractions of the peak.
+
+    Returns
+    -------
+    float or None
+        Fractional sample index of the foot; None when no pulse stands out of
+        the noise (peak below ``k_sigma`` sigma).
+    """
+    s = np.asarray(signal, dtype=float)
+    _, sigma = noise_floor(s, n_baseline)
+    peak = float(np.max(s[n_baseline:])) if s.size > n_baseline else 0.0
+    if peak <= 0 or peak < k_sigma * sigma:
+        return None
+    level = max(k_sigma * sigma, min_fraction * peak)
+    above = np.flatnonzero(s[n_baseline:] > level)
+    if above.size == 0:
+        return None
+    i1 = int(above[0]) + n_baseline
+    foot_level = max(3.0 * sigma, foot_fraction * peak)
+    below = np.flatnonzero(s[:i1] <= foot_level)
+    if below.size == 0:
+        return float(i1)
+    i0 = int(below[-1])
+    # linear interpolation of the foot-level crossing between i0 and i0 + 1
+    a, b = s[i0], s[i0 + 1]
+    frac = (foot_level - a) / (b - a) if b != a else 0.0
+    return i0 + float(np.clip(frac, 0.0, 1.0))
+
+
+def pulse_end(signal, i_start, *, fraction=0.1):
+    """Index where a positive pulse starting at ``i_start`` has fallen back below ``fraction`` of its peak.
+
+    The search starts at the pulse's peak (the largest value before the
+    signal first changes sign after ``i_start``).
+
+    Returns
+    -------
+    int or None
+        None when the pulse does not come down before the end of the record.
+    """
+    s = np.asarray(signal, dtype=float)
+    i0 = int(np.floor(i_start))
+    seg = s[i0:]
+    neg = np.flatnonzero(seg < 0)
+    stop = int(neg[0]) if neg.size else seg.size
+    if stop == 0:
+        return None
+    ipk = int(np.argmax(seg[:stop]))
+    pk = seg[ipk]
+    after = np.flatnonzero(seg[ipk:] < fraction * pk)
+    if after.size == 0:
+        return None
+    return i0 + ipk + int(after[0])
+
+
+def delay(signal, dt, shift_time):
+    """Delay a signal by ``shift_time`` with sub-sample (linear) interpolation.
+
+    ``out(t) = signal(t - shift_time)`` on the same time grid; samples that
+    would come from outside the record are zero.
+
+    Parameters
+    ----------
+    signal : array_like
+    dt : float
+        Sample interval [s].
+    shift_time : float
+        Delay [s]; negative advances the signal.
+
+    Returns
+    -------
+    ndarray
+    """
+    s = np.asarray(signal, dtype=float)
+    k = np.arange(s.size, dtype=float)
+    return np.interp(k - shift_time / dt, k, s, left=0.0, right=0.0)
+
+
+def taper_window(n, start, stop, ramp):
+    """A 0–1 mask of length ``n``: 1 on ``[start, stop)``, raised-cosine ramps of ``ramp`` samples just inside.
+
+    Tapering the window's edges keeps a cut-out pulse free of steps, so a
+    frequency-domain shift does not ring.
+    """
+    w = np.zeros(int(n))
+    start, stop = max(int(start), 0), min(int(stop), int(n))
+    if stop <= start:
+        return w
+    w[start:stop] = 1.0
+    ramp = int(min(ramp, (stop - start) // 2))
+    if ramp > 0:
+        r = 0.5 - 0.5 * np.cos(np.pi * (np.arange(ramp) + 0.5) / ramp)
+        w[start : start + ramp] = r
+        w[stop - ramp : stop] = r[::-1]
+    return w
+
+
+def flat_top_run(volts):
+    """Longest run of consecutive samples at the record's extreme value (max or min) and its level.
+
+    A recorder driven past its range writes its rail value sample after
+    sample; a long run at the extreme is the mark of a clipped channel.
+
+    Returns
+    -------
+    run : int
+        Longest run length [samples] at either extreme.
+    level : float
+        The extreme value of that run [V].
+    """
+    v = np.asarray(volts, dtype=float)
+    best, level = 0, float("nan")
+    for ext in (v.max(), v.min()):
+        at = np.concatenate(([0], (v == ext).astype(np.int8), [0]))
+        edges = np.flatnonzero(np.diff(at))
+        if edges.size:
+            run = int(np.max(edges[1::2] - edges[0::2]))
+            if run > best:
+                best, level = run, float(ext)
+    return best, level

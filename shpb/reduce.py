@@ -1,0 +1,452 @@
+"""Reduce one shot: raw record -> validated stress–strain curve.
+
+:func:`reduce_shot` passes the fields of a :class:`shpb.setup.Shot` to the
+physics functions (``bridge``, ``pulses``, ``dispersion``, ``kolsky``,
+``validity``) in the order of the data flow and gathers what they return in a
+:class:`ShotResult`. It computes no physics itself.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Optional
+
+import numpy as np
+import pandas as pd
+
+from . import __version__, bridge, kolsky, pulses, validity
+from .errors import AnalysisError, InputError
+from .io import Record, atomic_write_csv, atomic_write_json, read_record
+from .setup import Bar, Gauge, Shot
+from .validity import Flag
+
+CURVES_FILE = "curves.csv"
+SUMMARY_FILE = "summary.json"
+FIGURE_FILE = "shot.png"
+
+
+@dataclass
+class ShotResult:
+    """What the reduction of one shot gives.
+
+    Attributes
+    ----------
+    name : str
+    curves : pandas.DataFrame
+        One row per time sample of the analysis window; columns as in
+        ``docs/nomenclature.md`` (units in the names).
+    summary : dict
+        Scalar results (``results``), inputs, record hashes, provenance.
+    flags : list of Flag
+    traces : dict
+        Raw material for figures: record time [s], bar strains at the gauges,
+        windows (not written to disk).
+    """
+
+    name: str
+    curves: pd.DataFrame
+    summary: dict
+    flags: list = field(default_factory=list)
+    traces: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def valid(self) -> bool:
+        """True when no flag is an error."""
+        return not any(f.severity == "error" for f in self.flags)
+
+    def write(self, out_dir, figure=True) -> Path:
+        """Write ``curves.csv``, ``summary.json`` and (optionally) the figure sheet into ``out_dir``, atomically."""
+        out = Path(out_dir)
+        out.mkdir(parents=True, exist_ok=True)
+        atomic_write_csv(out / CURVES_FILE, self.curves)
+        if figure and self.traces:
+            from .report import shot_sheet
+
+            shot_sheet(self, out / FIGURE_FILE)
+        # the summary last: its presence marks a complete result folder
+        atomic_write_json(out / SUMMARY_FILE, self.summary)
+        return out
+
+    @classmethod
+    def read(cls, folder) -> "ShotResult":
+        """Read a result folder written by :meth:`write`."""
+        folder = Path(folder)
+        for f in (CURVES_FILE, SUMMARY_FILE):
+            if not (folder / f).is_file():
+                raise InputError(f"not a shot result folder (no {f})", str(folder))
+        summary = json.loads((folder / SUMMARY_FILE).read_text())
+        flags = [Flag(**f) for f in summary.get("flags", [])]
+        return cls(name=summary.get("shot", folder.name), curves=pd.read_csv(folder / CURVES_FILE),
+                   summary=summary, flags=flags)
+
+
+# --------------------------------------------------------------------------- wave transfer
+def _transfer(channel, dt, start, stop, distance, bar: Bar, use_dispersion, amplitude_factors, ramp):
+    """Cut a wave out of a channel and carry it ``distance`` along its bar.
+
+    ``start``/``stop`` are the wave's window at the gauge in (fractional)
+    sample indices; ``distance`` [m] is signed along the wave's travel. Returns
+    the face signal on the record's sample grid and the pure-delay version (for
+    the dispersion report), both zero outside the carried window. Samples
+    beyond the record end are zero.
+    """
+    n = channel.size
+    shift = distance / bar.wave_speed / dt  # samples
+    margin = int(0.1 * (stop - start)) + 8
+    a = int(math.floor(min(start, start + shift))) - margin
+    b = int(math.ceil(max(stop, stop + shift))) + margin
+    seg = np.zeros(b - a)
+    lo, hi = max(a, 0), min(b, n)
+    if hi > lo:
+        seg[lo - a : hi - a] = channel[lo:hi]
+    seg *= pulses.taper_window(seg.size, start - a, stop - a, ramp)
+    plain = pulses.delay(seg, dt, shift * dt)
+    moved = plain
+    if use_dispersion:
+        from . import dispersion
+
+        moved = dispersion.propagate(seg, dt, distance, bar.radius, bar.wave_speed, bar.poisson_ratio,
+                                     amplitude_factors=amplitude_factors)
+    full, full_plain = np.zeros(n), np.zeros(n)
+    full[lo:hi] = moved[lo - a : hi - a]
+    full_plain[lo:hi] = plain[lo - a : hi - a]
+    return full, full_plain
+
+
+def _strain(volts, gauge: Gauge, bar: Bar):
+    return bridge.bar_strain(volts, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor,
+                             excitation=gauge.excitation, gain=gauge.gain, polarity=gauge.polarity,
+                             scale=gauge.scale, poisson=bar.poisson_ratio)
+
+
+# --------------------------------------------------------------------------- the reduction
+def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
+    """Reduce one shot.
+
+    Parameters
+    ----------
+    shot : Shot
+        The setup (bar set, specimen, record mapping, analysis options).
+    record : Record, optional
+        An already-read record; read from ``shot.record`` when None.
+
+    Returns
+    -------
+    ShotResult
+
+    Raises
+    ------
+    InputError
+        Unreadable or inconsistent record.
+    AnalysisError
+        No incident pulse, or nothing to analyse.
+    """
+    opt, bs, sp = shot.analysis, shot.barset, shot.specimen
+    rec = record if record is not None else read_record(shot.record)
+    dt, n = rec.dt, rec.time.size
+    flags: list[Flag] = []
+    prov = []
+    where = str(shot.source or shot.name)
+
+    # 1. baseline and bridge conversion -------------------------------------------------
+    n_pre = int(opt.pre_trigger / dt) if opt.pre_trigger else max(16, n // 20)
+    n_pre = min(n_pre, n // 2)
+    raw_i, raw_t = rec.incident, rec.transmitted
+    vi = raw_i - pulses.noise_floor(raw_i, n_pre)[0]
+    si = _strain(vi, bs.incident_gauge, bs.incident)
+    if opt.incident_start is not None:
+        foot = (opt.incident_start - rec.time[0]) / dt
+        if not 0 <= foot < n:
+            raise InputError(f"incident_start {opt.incident_start * 1e6:g} us is outside the record "
+                             f"({rec.time[0] * 1e6:g} to {rec.time[-1] * 1e6:g} us)", where)
+    else:
+        foot = pulses.find_foot(si, n_pre)
+        if foot is None:
+            raise AnalysisError(f"{where}: no incident pulse found on the incident channel "
+                                f"(nothing rises above 8x the noise of the first {n_pre} samples)")
+    # second pass: the baseline is the whole quiet part before the foot, less a margin
+    n_base = max(16, int(0.9 * foot)) if opt.pre_trigger is None else n_pre
+    vi = raw_i - pulses.noise_floor(raw_i, n_base)[0]
+    vt = raw_t - pulses.noise_floor(raw_t, n_base)[0]
+    si = _strain(vi, bs.incident_gauge, bs.incident)
+    st = _strain(vt, bs.transmitted_gauge, bs.transmitted)
+    prov.append({"step": "bridge", "parameters": {"incident": bs.incident_gauge.bridge,
+                                                  "transmitted": bs.transmitted_gauge.bridge,
+                                                  "baseline_samples": n_base}})
+
+    # 2. windows --------------------------------------------------------------------------
+    ci, ct = bs.incident.wave_speed, bs.transmitted.wave_speed
+    di, dtr = bs.incident_gauge.distance, bs.transmitted_gauge.distance
+    if opt.window:
+        duration, duration_source = opt.window, "given"
+    elif bs.striker is not None:
+        duration, duration_source = bs.striker.pulse_duration, "striker 2L/c0"
+    else:
+        end = pulses.pulse_end(si, foot)
+        if end is None:
+            raise AnalysisError(f"{where}: the incident pulse does not end before the record does")
+        duration, duration_source = (end - foot) * dt, "measured"
+    f = validity.overlap_flag(duration, di, ci, "incident")
+    if f:
+        flags.append(f)
+    pre = 0.1 * duration
+    window = min(1.3 * duration, 2 * di / ci - pre) if not opt.window else opt.window
+    t_foot = rec.time[0] + foot * dt
+    t_face0 = t_foot + di / ci  # record time of the incident foot at the front face
+    k0 = int(math.ceil((t_face0 - pre - rec.time[0]) / dt))
+    k1 = int(math.floor((t_face0 + window - rec.time[0]) / dt)) + 1
+    ramp = max(2, int(0.02 * duration / dt))
+
+    # 3. each wave to its face ---------------------------------------------------------------
+    use_disp = bool(opt.dispersion)
+    waves = {}
+    gauge_windows = {}
+    for name, chan, dist, bar in (("incident", si, +di, bs.incident), ("reflected", si, -di, bs.incident),
+                                  ("transmitted", st, -dtr, bs.transmitted)):
+        shift = dist / bar.wave_speed / dt
+        # window at the gauge: the face window moved back by the travel time
+        g0, g1 = k0 - shift, k1 - shift
+        gauge_windows[name] = (rec.time[0] + g0 * dt, rec.time[0] + g1 * dt)
+        face, plain = _transfer(chan, dt, g0, g1, dist, bar, use_disp, opt.amplitude_factors, ramp)
+        waves[name] = (face[k0:k1], plain[k0:k1])
+    if k1 > n:
+        end_needed = rec.time[0] + (k1 - 1) * dt
+        flags.append(Flag("record_truncated", "error",
+                          f"the record ends at {rec.time[-1] * 1e6:.1f} us, before the analysis window does "
+                          f"({end_needed * 1e6:.1f} us)"))
+    if gauge_windows["transmitted"][1] > rec.time[-1] or gauge_windows["reflected"][1] > rec.time[-1]:
+        if not any(f.code == "record_truncated" for f in flags):
+            flags.append(Flag("record_truncated", "error",
+                              f"the record ends at {rec.time[-1] * 1e6:.1f} us, before the transmitted "
+                              f"(or reflected) pulse has passed its gauge "
+                              f"({max(gauge_windows['transmitted'][1], gauge_windows['reflected'][1]) * 1e6:.1f} us)"))
+    ei, er, et = (waves[k][0] for k in ("incident", "reflected", "transmitted"))
+    disp_info = {"applied": use_disp}
+    if use_disp:
+        from . import dispersion
+
+        if hasattr(dispersion, "dispersion_info"):
+            disp_info.update(dispersion.dispersion_info(bs.incident.radius, bs.incident.wave_speed,
+                                                        bs.incident.poisson_ratio,
+                                                        amplitude_factors=opt.amplitude_factors))
+        peak = max(np.max(np.abs(ei)), 1e-30)
+        for k, (face, plain) in waves.items():
+            disp_info[f"max_change_{k}_percent_of_incident_peak"] = float(100 * np.max(np.abs(face - plain)) / peak)
+    prov.append({"step": "shift", "parameters": {"incident_wave_speed_m_per_s": ci,
+                                                 "transmitted_wave_speed_m_per_s": ct,
+                                                 "dispersion": disp_info}})
+
+    # transmitted pulse present?
+    _, noise_t = pulses.noise_floor(st, n_base)
+    et_peak = float(np.max(et)) if et.size else 0.0
+    if et_peak < max(8 * noise_t * abs(bs.transmitted_gauge.scale), 0.01 * float(np.max(ei))):
+        flags.append(Flag("no_transmitted_pulse", "error",
+                          f"no transmitted pulse found (peak {et_peak:.3g} against noise {noise_t:.3g}): "
+                          f"check the transmitted channel and the specimen contact"))
+
+    # 4. Kolsky analysis -----------------------------------------------------------------------
+    tau = rec.time[0] + np.arange(k0, k1) * dt - t_face0
+    bi, bt = bs.incident, bs.transmitted
+    f1, f2 = kolsky.face_forces(ei, er, et, bi.modulus, bi.area, bt.modulus, bt.area)
+    v1, v2 = kolsky.face_velocities(ei, er, et, ci, ct)
+    rate = kolsky.strain_rate(v1, v2, sp.length)
+    rate_r = kolsky.strain_rate_reflected(er, ci, sp.length)
+    strain = kolsky.integrate(rate, dt)
+    strain_r = kolsky.integrate(rate_r, dt)
+    sig = kolsky.stresses(f1, f2, sp.area)
+    stress = sig[opt.stress]
+    if np.any(strain >= 1.0):
+        raise AnalysisError(f"{where}: the engineering strain reaches {np.max(strain):.2f} (>= 1): "
+                            f"check the specimen length and the bar setup")
+    true_strain, true_stress = kolsky.true_stress_strain(strain, stress)
+    fmean = 0.5 * (f1 + f2)
+    ratio = kolsky.equilibrium_ratio(f1, f2, floor=0.05 * max(float(np.max(fmean)), 1e-30))
+    prov.append({"step": "kolsky", "parameters": {"reported_stress": opt.stress, "strain_rate": "three-wave"}})
+
+    # 5. validity --------------------------------------------------------------------------------
+    results = {}
+    region = validity.loading_region(rate, fmean)
+    valid = np.zeros(tau.size, dtype=bool)
+    onset = None
+    if region is None:
+        flags.append(Flag("no_loading", "error", "no loading found (no positive strain rate and force)"))
+    else:
+        onset = validity.equilibrium_onset(ratio, region, opt.equilibrium_threshold)
+        if onset is None:
+            flags.append(Flag("no_equilibrium", "error",
+                              f"the face forces never settle within {100 * opt.equilibrium_threshold:.0f}% of each "
+                              f"other during loading (|R| at the end of loading "
+                              f"{abs(ratio[region[1] - 1]):.2f}): the specimen is not in equilibrium"))
+        else:
+            valid[onset:region[1]] = True
+            t_eq = tau[onset]
+            results["equilibrium_from_time_us"] = t_eq * 1e6
+            results["equilibrium_from_strain"] = float(strain[onset])
+            if sp.modulus and sp.density:
+                transit = sp.length / math.sqrt(sp.modulus / sp.density)
+                results["specimen_transit_time_us"] = transit * 1e6
+                results["equilibrium_transits"] = t_eq / transit
+            loading_span = tau[region[1] - 1] - tau[region[0]]
+            results["valid_fraction_of_loading"] = float((region[1] - onset) / max(region[1] - region[0], 1))
+            if results["valid_fraction_of_loading"] < 0.5:
+                flags.append(Flag("short_equilibrium", "warning",
+                                  f"equilibrium holds over only {100 * results['valid_fraction_of_loading']:.0f}% "
+                                  f"of the {loading_span * 1e6:.0f} us loading"))
+        results["loading_from_time_us"] = tau[region[0]] * 1e6
+        results["loading_to_time_us"] = tau[region[1] - 1] * 1e6
+    if valid.any():
+        plat = validity.rate_plateau(rate, valid)
+        results["mean_strain_rate_per_s"] = plat["mean_per_s"]
+        results["strain_rate_std_per_s"] = plat["std_per_s"]
+        results["strain_rate_cv"] = plat["cv"]
+        if plat["cv"] > validity.RATE_CV_LIMIT:
+            flags.append(Flag("rate_not_constant", "warning",
+                              f"the strain rate varies by {100 * plat['cv']:.0f}% (std/mean) over the valid part "
+                              f"(limit {100 * validity.RATE_CV_LIMIT:.0f}%): not a constant-rate test"))
+        results["valid_strain_from"] = float(strain[valid][0])
+        results["valid_strain_to"] = float(strain[valid][-1])
+        results["flow_stress_mean_MPa"] = float(np.mean(stress[valid]) / 1e6)
+    else:
+        results["mean_strain_rate_per_s"] = float(np.max(rate)) if rate.size else float("nan")
+    results["peak_stress_MPa"] = float(np.max(stress) / 1e6)
+    results["max_strain"] = float(np.max(strain))
+    results["peak_strain_rate_per_s"] = float(np.max(rate))
+    if region is not None:
+        a, b = region
+        y = validity.offset_yield(strain[a:b], stress[a:b], opt.yield_offset, sp.modulus)
+        if y is None:
+            flags.append(Flag("no_yield_point", "info", "no yield point found by the offset method"))
+        else:
+            results["yield_strain"] = y["yield_strain"]
+            results["yield_stress_MPa"] = y["yield_stress"] / 1e6
+            results["elastic_modulus_GPa"] = y["modulus"] / 1e9
+            results["elastic_modulus_source"] = y["modulus_source"]
+            results["yield_offset"] = opt.yield_offset
+            t_y = tau[a:b][int(np.searchsorted(strain[a:b], y["yield_strain"]))
+                           if np.all(np.diff(strain[a:b]) >= 0) else 0]
+            if onset is None or t_y < tau[onset]:
+                flags.append(Flag("yield_before_equilibrium", "warning",
+                                  "the yield point lies before force equilibrium: yield stress and modulus are "
+                                  "unreliable"))
+    # bars and record
+    for bar_name, chan, bar in (("incident", si, bi), ("transmitted", st, bt)):
+        pk = float(np.max(np.abs(chan[n_base:]))) if n > n_base else 0.0
+        results[f"peak_bar_stress_{bar_name}_MPa"] = bar.modulus * pk / 1e6
+        f = validity.bar_stress_flag(pk, bar.modulus, bar.material.yield_strength, bar_name)
+        if f:
+            flags.append(f)
+    for chan_name, raw, g in (("incident", raw_i, bs.incident_gauge), ("transmitted", raw_t, bs.transmitted_gauge)):
+        f = validity.clipping_flag(raw, chan_name, g.full_scale, duration / dt)
+        if f:
+            flags.append(f)
+    rt = 2 * (bt.length - dtr) / ct
+    if duration > rt:
+        flags.append(Flag("transmitted_overlap", "warning",
+                          f"the {duration * 1e6:.0f} us pulse is longer than the {rt * 1e6:.0f} us echo time from the "
+                          f"transmitted bar's far end to its gauge"))
+    results.update({
+        "incident_foot_time_us": t_foot * 1e6,
+        "pulse_duration_us": duration * 1e6,
+        "pulse_duration_source": duration_source,
+        "window_us": window * 1e6,
+        "incident_wave_speed_m_per_s": ci,
+        "incident_wave_speed_source": "measured" if bi.measured_wave_speed else "sqrt(E/rho)",
+        "transmitted_wave_speed_m_per_s": ct,
+        "transmitted_wave_speed_source": "measured" if bt.measured_wave_speed else "sqrt(E/rho)",
+        "peak_incident_strain": float(np.max(ei)),
+        "sample_interval_us": dt * 1e6,
+    })
+    prov.append({"step": "validity", "parameters": {"equilibrium_threshold": opt.equilibrium_threshold,
+                                                    "yield_offset": opt.yield_offset}})
+    for p in prov:
+        p["version"] = __version__
+
+    curves = pd.DataFrame({
+        "time_us": tau * 1e6,
+        "strain_incident": ei, "strain_reflected": er, "strain_transmitted": et,
+        "force_front_kN": f1 / 1e3, "force_back_kN": f2 / 1e3,
+        "velocity_front_m_per_s": v1, "velocity_back_m_per_s": v2,
+        "equilibrium_R": ratio,
+        "strain_rate_per_s": rate, "strain_rate_reflected_per_s": rate_r,
+        "strain": strain, "strain_from_reflected": strain_r,
+        "stress_1wave_MPa": sig["1-wave"] / 1e6, "stress_2wave_MPa": sig["2-wave"] / 1e6,
+        "stress_3wave_MPa": sig["3-wave"] / 1e6, "stress_MPa": stress / 1e6,
+        "true_strain": true_strain, "true_stress_MPa": true_stress / 1e6,
+        "valid": valid.astype(int),
+    })
+    summary = {
+        "shot": shot.name,
+        "package_version": __version__,
+        "valid": not any(f.severity == "error" for f in flags),
+        "results": results,
+        "flags": [f.as_dict() for f in flags],
+        "inputs": _inputs(shot),
+        "records": rec.files,
+        "provenance": prov,
+        "columns": COLUMN_NOTES,
+    }
+    traces = {"time": rec.time, "strain_incident_gauge": si, "strain_transmitted_gauge": st,
+              "volts_incident": raw_i, "volts_transmitted": raw_t, "gauge_windows": gauge_windows,
+              "t_face0": t_face0, "yield": (results.get("yield_strain"), results.get("yield_stress_MPa"))}
+    return ShotResult(name=shot.name, curves=curves, summary=summary, flags=flags, traces=traces)
+
+
+#: Which form each output column uses (written into every summary).
+COLUMN_NOTES = {
+    "strain_incident/reflected/transmitted": "bar strains moved to the specimen faces, compression positive",
+    "force_front_kN": "F1 = E_i A_i (eps_i + eps_r), incident-bar face",
+    "force_back_kN": "F2 = E_t A_t eps_t, transmitted-bar face",
+    "equilibrium_R": "2 (F1 - F2) / (F1 + F2)",
+    "strain_rate_per_s": "three-wave: (v1 - v2) / L_s with v1 = c_i (eps_i - eps_r), v2 = c_t eps_t",
+    "strain_rate_reflected_per_s": "classic: -2 c_i eps_r / L_s (assumes equilibrium)",
+    "strain": "time integral of strain_rate_per_s (engineering)",
+    "strain_from_reflected": "time integral of strain_rate_reflected_per_s",
+    "stress_1wave_MPa": "F2 / A_s (back face)",
+    "stress_2wave_MPa": "F1 / A_s (front face)",
+    "stress_3wave_MPa": "(F1 + F2) / (2 A_s)",
+    "stress_MPa": "the reported stress, per the analysis option 'stress'",
+    "true_strain": "-ln(1 - strain)",
+    "true_stress_MPa": "stress_MPa (1 - strain)",
+    "valid": "1 inside the loading part after force equilibrium",
+}
+
+
+def _inputs(shot: Shot) -> dict:
+    """The resolved setup, SI, for the summary."""
+    bs = shot.barset
+
+    def bar(b: Bar, g: Gauge):
+        d = {"material": asdict(b.material), "diameter_m": b.diameter, "length_m": b.length,
+             "measured_wave_speed_m_per_s": b.measured_wave_speed, "gauge": asdict(g)}
+        return d
+
+    sp = shot.specimen
+    return {
+        "barset": {"name": bs.name, "source": bs.source, "calibration": bs.calibration,
+                   "incident": bar(bs.incident, bs.incident_gauge),
+                   "transmitted": bar(bs.transmitted, bs.transmitted_gauge),
+                   "striker": (asdict(bs.striker) if bs.striker else None)},
+        "specimen": {"length_m": sp.length, "diameter_m": sp.diameter, "material": sp.material,
+                     "temperature_K": sp.temperature, "modulus_Pa": sp.modulus, "density_kg_per_m3": sp.density},
+        "record": {"incident": str(shot.record.incident.file), "incident_column": shot.record.incident.column,
+                   "transmitted": str(shot.record.transmitted.file),
+                   "transmitted_column": shot.record.transmitted.column},
+        "analysis": asdict(shot.analysis),
+        "source": shot.source,
+    }
+
+
+def reduce_file(shot_path, out_dir=None, figure=True, **analysis_changes) -> ShotResult:
+    """Load a shot file, reduce it and (if ``out_dir``) write the result folder."""
+    from .setup import load_shot, with_analysis
+
+    shot = load_shot(shot_path)
+    if analysis_changes:
+        shot = with_analysis(shot, **analysis_changes)
+    result = reduce_shot(shot)
+    if out_dir is not None:
+        result.write(out_dir, figure=figure)
+    return result

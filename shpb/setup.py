@@ -1,0 +1,583 @@
+"""The setup of a shot as plain dataclasses, and loading them from TOML.
+
+All fields are SI (m, s, Pa, kg/m^3, V). Quantities in the files may carry a
+unit as a string (``"19.05 mm"``); see ``docs/setup-files.md``. Every error
+names the file, the key and what was expected.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Optional, Union
+
+from .errors import InputError
+from .units import to_si
+
+try:  # Python >= 3.11
+    import tomllib
+except ModuleNotFoundError:  # pragma: no cover
+    import tomli as tomllib
+
+#: Bridge arrangements understood by :mod:`shpb.bridge`.
+from .bridge import BRIDGES  # noqa: E402
+#: Stress definitions that may be reported as ``stress_MPa``.
+STRESS_CHOICES = ("1-wave", "2-wave", "3-wave")
+
+
+# --------------------------------------------------------------------------- dataclasses
+@dataclass(frozen=True)
+class Material:
+    """An isotropic elastic material.
+
+    Attributes
+    ----------
+    name : str
+    modulus : float
+        Young's modulus E [Pa].
+    density : float
+        Density rho [kg/m^3].
+    poisson_ratio : float
+        Poisson ratio nu [1].
+    yield_strength : float or None
+        Yield strength [Pa]; the bar-stress check needs it.
+    """
+
+    name: str
+    modulus: float
+    density: float
+    poisson_ratio: float
+    yield_strength: Optional[float] = None
+
+    @property
+    def bar_wave_speed(self) -> float:
+        """Extensional (thin-bar) wave speed c0 = sqrt(E/rho) [m/s]."""
+        return math.sqrt(self.modulus / self.density)
+
+
+@dataclass(frozen=True)
+class Gauge:
+    """A strain-gauge station and its signal chain.
+
+    Attributes
+    ----------
+    distance : float
+        Distance from the gauge station to the specimen face of its bar [m].
+    bridge : str
+        One of :data:`BRIDGES`.
+    gauge_factor : float
+        Gauge factor GF [1].
+    excitation : float
+        Bridge excitation voltage [V].
+    gain : float
+        Amplifier gain [V/V].
+    polarity : int
+        +1 if a compressive pulse shows as a positive voltage on the record,
+        -1 if negative.
+    scale : float
+        Calibration multiplier applied to the strain [1] (from a calibration).
+    full_scale : float or None
+        Recorder input range (+/- this many volts at the record) [V]; used to
+        detect clipping. None: detect flat tops from the data alone.
+    """
+
+    distance: float
+    bridge: str = "half-bending"
+    gauge_factor: float = 2.0
+    excitation: float = 10.0
+    gain: float = 1.0
+    polarity: int = 1
+    scale: float = 1.0
+    full_scale: Optional[float] = None
+
+
+@dataclass(frozen=True)
+class Bar:
+    """An elastic pressure bar.
+
+    Attributes
+    ----------
+    material : Material
+    diameter : float
+        Bar diameter [m].
+    length : float
+        Bar length [m].
+    measured_wave_speed : float or None
+        Measured extensional wave speed [m/s]; overrides sqrt(E/rho) for all
+        time shifts and velocities when given.
+    """
+
+    material: Material
+    diameter: float
+    length: float
+    measured_wave_speed: Optional[float] = None
+
+    @property
+    def radius(self) -> float:
+        """Bar radius [m]."""
+        return 0.5 * self.diameter
+
+    @property
+    def area(self) -> float:
+        """Cross-section area [m^2]."""
+        return math.pi * self.diameter**2 / 4.0
+
+    @property
+    def modulus(self) -> float:
+        """Young's modulus [Pa]."""
+        return self.material.modulus
+
+    @property
+    def poisson_ratio(self) -> float:
+        """Poisson ratio [1]."""
+        return self.material.poisson_ratio
+
+    @property
+    def wave_speed(self) -> float:
+        """Bar wave speed used in the reduction [m/s]: measured if given, else sqrt(E/rho)."""
+        return self.measured_wave_speed or self.material.bar_wave_speed
+
+    @property
+    def impedance(self) -> float:
+        """Mechanical impedance rho c0 A [kg/s]."""
+        return self.material.density * self.wave_speed * self.area
+
+
+@dataclass(frozen=True)
+class Striker:
+    """The striker bar: length [m], diameter [m], material, optional speed [m/s]."""
+
+    length: float
+    diameter: float
+    material: Material
+    speed: Optional[float] = None
+
+    @property
+    def area(self) -> float:
+        """Cross-section area [m^2]."""
+        return math.pi * self.diameter**2 / 4.0
+
+    @property
+    def pulse_duration(self) -> float:
+        """Loading-pulse duration 2 L / c0 of the striker [s] (Kolsky 1949)."""
+        return 2.0 * self.length / self.material.bar_wave_speed
+
+
+@dataclass(frozen=True)
+class BarSet:
+    """The rig: incident and transmitted bars with their gauges, optional striker."""
+
+    name: str
+    incident: Bar
+    transmitted: Bar
+    incident_gauge: Gauge
+    transmitted_gauge: Gauge
+    striker: Optional[Striker] = None
+    source: Optional[str] = None
+    calibration: dict = field(default_factory=dict, compare=False)
+
+
+@dataclass(frozen=True)
+class Specimen:
+    """The specimen as measured before the shot.
+
+    Attributes
+    ----------
+    length : float
+        Initial length along the bar axis [m].
+    diameter : float
+        Initial diameter [m].
+    material : str
+        Free text.
+    temperature : float or None
+        Test temperature [K].
+    modulus : float or None
+        Elastic modulus for the yield offset line [Pa]; fitted when None.
+    density : float or None
+        Density [kg/m^3]; with the modulus, gives the specimen wave transit time.
+    """
+
+    length: float
+    diameter: float
+    material: str = ""
+    temperature: Optional[float] = None
+    modulus: Optional[float] = None
+    density: Optional[float] = None
+
+    @property
+    def area(self) -> float:
+        """Initial cross-section area [m^2]."""
+        return math.pi * self.diameter**2 / 4.0
+
+
+@dataclass(frozen=True)
+class Channel:
+    """Where a channel's samples are: a file and a column (name or 0-based index, or npz key)."""
+
+    file: Path
+    column: Union[str, int]
+
+
+@dataclass(frozen=True)
+class RecordSpec:
+    """How to read a shot's record.
+
+    Attributes
+    ----------
+    incident, transmitted : Channel
+    time : str, int or None
+        Time column (or npz key) in the incident channel's file; None if
+        ``sample_interval`` is given.
+    time_unit : float
+        Seconds per unit of the time column [s].
+    sample_interval : float or None
+        Sample interval [s] when there is no time column.
+    """
+
+    incident: Channel
+    transmitted: Channel
+    time: Union[str, int, None] = None
+    time_unit: float = 1.0
+    sample_interval: Optional[float] = None
+
+
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """Analysis choices for a shot (all have defaults).
+
+    Attributes
+    ----------
+    dispersion : bool
+        Pochhammer–Chree correction of each wave to its face (default on).
+    amplitude_factors : bool
+        Radial amplitude factors in the dispersion correction (default off).
+    stress : str
+        Stress reported as ``stress_MPa``: ``1-wave`` (back face, default),
+        ``2-wave`` (front face) or ``3-wave`` (mean).
+    equilibrium_threshold : float
+        Largest |R| counted as force equilibrium [1] (default 0.05).
+    yield_offset : float
+        Strain offset of the yield line [1] (default 0.002).
+    incident_start : float or None
+        Record time of the incident foot [s]; found automatically if None.
+    window : float or None
+        Length of every pulse window [s]; from the striker or the incident
+        pulse if None.
+    pre_trigger : float or None
+        Length of the quiet record start used as baseline [s]; default: the
+        part before the incident foot, less a margin.
+    """
+
+    dispersion: bool = True
+    amplitude_factors: bool = False
+    stress: str = "1-wave"
+    equilibrium_threshold: float = 0.05
+    yield_offset: float = 0.002
+    incident_start: Optional[float] = None
+    window: Optional[float] = None
+    pre_trigger: Optional[float] = None
+
+
+@dataclass(frozen=True)
+class Shot:
+    """Everything needed to reduce one shot."""
+
+    name: str
+    barset: BarSet
+    specimen: Specimen
+    record: RecordSpec
+    analysis: AnalysisOptions = AnalysisOptions()
+    source: Optional[str] = None
+
+
+# --------------------------------------------------------------------------- TOML reading
+class _Table:
+    """A TOML table that knows where it came from, for error messages."""
+
+    def __init__(self, data: dict, where: str):
+        self.data = data
+        self.where = where
+
+    def _key(self, key):
+        return f"{self.where}.{key}" if not self.where.endswith(":") else f"{self.where} {key}"
+
+    def check_keys(self, allowed):
+        for key in self.data:
+            if key not in allowed:
+                raise InputError(f"unknown key {key!r} (expected one of: {', '.join(sorted(allowed))})", self.where)
+
+    def has(self, key):
+        return key in self.data
+
+    def table(self, key, required=True) -> Optional["_Table"]:
+        if key not in self.data:
+            if required:
+                raise InputError(f"missing table [{key}]", self.where)
+            return None
+        val = self.data[key]
+        if not isinstance(val, dict):
+            raise InputError("expected a table", self._key(key))
+        return _Table(val, self._key(key))
+
+    def quantity(self, key, dimension, default=None, required=True, positive=True):
+        if key not in self.data:
+            if required and default is None:
+                raise InputError(f"missing key {key!r} (a {dimension}, e.g. with its unit)", self.where)
+            return default
+        val = to_si(self.data[key], dimension, self._key(key))
+        if positive and not val > 0:
+            raise InputError(f"expected a positive {dimension}, got {self.data[key]!r}", self._key(key))
+        return val
+
+    def string(self, key, default=None, choices=None):
+        if key not in self.data:
+            if default is None:
+                raise InputError(f"missing key {key!r}", self.where)
+            return default
+        val = self.data[key]
+        if not isinstance(val, str):
+            raise InputError(f"expected text, got {val!r}", self._key(key))
+        if choices and val not in choices:
+            raise InputError(f"expected one of {', '.join(choices)}; got {val!r}", self._key(key))
+        return val
+
+    def boolean(self, key, default):
+        val = self.data.get(key, default)
+        if not isinstance(val, bool):
+            raise InputError(f"expected true or false, got {val!r}", self._key(key))
+        return val
+
+
+def read_toml(path) -> dict:
+    """Read a TOML file; a missing or malformed file is an :class:`InputError`."""
+    path = Path(path)
+    if not path.is_file():
+        raise InputError("file not found", str(path))
+    try:
+        with open(path, "rb") as fh:
+            return tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"not valid TOML ({exc})", str(path)) from None
+
+
+_MATERIAL_KEYS = {"name", "modulus", "density", "poisson_ratio", "yield_strength"}
+
+
+def _material(t: _Table, default: Optional[Material]) -> Material:
+    """A material from a table; keys not given fall back on ``default``."""
+    d = default
+    name = str(t.data.get("name", d.name if d else "unnamed"))
+    modulus = t.quantity("modulus", "pressure", default=d.modulus if d else None)
+    density = t.quantity("density", "density", default=d.density if d else None)
+    if t.has("poisson_ratio"):
+        nu = to_si(t.data["poisson_ratio"], "dimensionless", t._key("poisson_ratio"))
+    elif d:
+        nu = d.poisson_ratio
+    else:
+        raise InputError("missing key 'poisson_ratio' (a number between 0 and 0.5)", t.where)
+    if not 0.0 < nu < 0.5:
+        raise InputError(f"expected a Poisson ratio between 0 and 0.5, got {nu}", t._key("poisson_ratio"))
+    ys = t.quantity("yield_strength", "pressure", required=False, default=d.yield_strength if d else None)
+    return Material(name=name, modulus=modulus, density=density, poisson_ratio=nu, yield_strength=ys)
+
+
+def _bar(t: _Table, default_material: Optional[Material]) -> Bar:
+    t.check_keys(_MATERIAL_KEYS | {"diameter", "length", "wave_speed", "gauge"})
+    sub = _Table({k: v for k, v in t.data.items() if k in _MATERIAL_KEYS}, t.where)
+    mat = _material(sub, default_material)
+    return Bar(
+        material=mat,
+        diameter=t.quantity("diameter", "length"),
+        length=t.quantity("length", "length"),
+        measured_wave_speed=t.quantity("wave_speed", "velocity", required=False),
+    )
+
+
+def _gauge(t: _Table, bar: Bar) -> Gauge:
+    t.check_keys({"distance", "bridge", "gauge_factor", "excitation", "gain", "polarity", "scale", "full_scale"})
+    distance = t.quantity("distance", "length")
+    if distance >= bar.length:
+        raise InputError(f"gauge distance {distance} m is not inside the bar (length {bar.length} m)", t._key("distance"))
+    polarity = t.data.get("polarity", 1)
+    if polarity not in (1, -1):
+        raise InputError(f"expected 1 or -1, got {polarity!r}", t._key("polarity"))
+    return Gauge(
+        distance=distance,
+        bridge=t.string("bridge", default="half-bending", choices=BRIDGES),
+        gauge_factor=t.quantity("gauge_factor", "dimensionless", default=2.0),
+        excitation=t.quantity("excitation", "voltage", default=None),
+        gain=t.quantity("gain", "dimensionless", default=1.0),
+        polarity=int(polarity),
+        scale=t.quantity("scale", "dimensionless", default=1.0),
+        full_scale=t.quantity("full_scale", "voltage", required=False),
+    )
+
+
+def barset_from_dict(data: dict, source: str) -> BarSet:
+    """Build a :class:`BarSet` from a parsed TOML mapping; ``source`` names the file in errors."""
+    top = _Table(data, f"{source}:")
+    top.check_keys({"name", "bar_material", "incident", "transmitted", "striker", "calibration"})
+    mt = top.table("bar_material", required=False)
+    default_mat = _material(mt, None) if mt else None
+    if mt:
+        mt.check_keys(_MATERIAL_KEYS)
+    bars, gauges = {}, {}
+    for which in ("incident", "transmitted"):
+        bt = top.table(which)
+        bars[which] = _bar(bt, default_mat)
+        gauges[which] = _gauge(bt.table("gauge"), bars[which])
+    striker = None
+    st = top.table("striker", required=False)
+    if st:
+        st.check_keys(_MATERIAL_KEYS | {"length", "diameter", "speed"})
+        sub = _Table({k: v for k, v in st.data.items() if k in _MATERIAL_KEYS}, st.where)
+        smat = _material(sub, default_mat or bars["incident"].material)
+        striker = Striker(
+            length=st.quantity("length", "length"),
+            diameter=st.quantity("diameter", "length", default=bars["incident"].diameter),
+            material=smat,
+            speed=st.quantity("speed", "velocity", required=False),
+        )
+    return BarSet(
+        name=str(data.get("name", Path(source).stem)),
+        incident=bars["incident"],
+        transmitted=bars["transmitted"],
+        incident_gauge=gauges["incident"],
+        transmitted_gauge=gauges["transmitted"],
+        striker=striker,
+        source=source,
+        calibration=dict(data.get("calibration", {})),
+    )
+
+
+def load_barset(path) -> BarSet:
+    """Load a bar set TOML file (see ``docs/setup-files.md``)."""
+    path = Path(path)
+    return barset_from_dict(read_toml(path), str(path))
+
+
+_ANALYSIS_KEYS = {
+    "dispersion", "amplitude_factors", "stress", "equilibrium_threshold", "yield_offset",
+    "incident_start", "window", "pre_trigger",
+}
+
+
+def analysis_from_dict(data: dict, where: str, base: AnalysisOptions = AnalysisOptions()) -> AnalysisOptions:
+    """Analysis options from a mapping, on top of ``base``."""
+    t = _Table(data, where)
+    t.check_keys(_ANALYSIS_KEYS)
+    thr = t.quantity("equilibrium_threshold", "dimensionless", default=base.equilibrium_threshold)
+    if not 0 < thr < 1:
+        raise InputError(f"expected a fraction between 0 and 1, got {thr}", t._key("equilibrium_threshold"))
+    return AnalysisOptions(
+        dispersion=t.boolean("dispersion", base.dispersion),
+        amplitude_factors=t.boolean("amplitude_factors", base.amplitude_factors),
+        stress=t.string("stress", default=base.stress, choices=STRESS_CHOICES),
+        equilibrium_threshold=thr,
+        yield_offset=t.quantity("yield_offset", "dimensionless", default=base.yield_offset),
+        incident_start=t.quantity("incident_start", "time", required=False, positive=False, default=base.incident_start),
+        window=t.quantity("window", "time", required=False, default=base.window),
+        pre_trigger=t.quantity("pre_trigger", "time", required=False, default=base.pre_trigger),
+    )
+
+
+def _channel(value, common_file, base_dir: Path, where: str) -> Channel:
+    if isinstance(value, dict):
+        t = _Table(value, where)
+        t.check_keys({"file", "column"})
+        file = t.string("file")
+        if "column" not in value:
+            raise InputError("missing key 'column' (a column name or 0-based index)", where)
+        return Channel(file=(base_dir / file), column=value["column"])
+    if isinstance(value, (str, int)) and not isinstance(value, bool):
+        if common_file is None:
+            raise InputError("a column is named but there is no [record] file (give file = ... or {file, column})", where)
+        return Channel(file=(base_dir / common_file), column=value)
+    raise InputError(f"expected a column name, an index or {{file, column}}, got {value!r}", where)
+
+
+def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
+    """A :class:`RecordSpec` from the ``[record]`` mapping; paths relative to ``base_dir``."""
+    t = _Table(data, where)
+    t.check_keys({"file", "incident", "transmitted", "time", "time_unit", "sample_interval"})
+    common = data.get("file")
+    for key in ("incident", "transmitted"):
+        if key not in data:
+            raise InputError(f"missing key {key!r} (the {key} channel's column)", where)
+    time = data.get("time")
+    dt = t.quantity("sample_interval", "time", required=False)
+    if time is None and dt is None:
+        raise InputError("give either 'time' (a time column) or 'sample_interval'", where)
+    unit = data.get("time_unit", "s")
+    time_unit = to_si(f"1 {unit}" if isinstance(unit, str) else unit, "time", f"{where}.time_unit")
+    return RecordSpec(
+        incident=_channel(data["incident"], common, base_dir, f"{where}.incident"),
+        transmitted=_channel(data["transmitted"], common, base_dir, f"{where}.transmitted"),
+        time=time,
+        time_unit=time_unit,
+        sample_interval=dt,
+    )
+
+
+def specimen_from_dict(data: dict, where: str) -> Specimen:
+    """A :class:`Specimen` from the ``[specimen]`` mapping."""
+    t = _Table(data, where)
+    t.check_keys({"length", "diameter", "material", "temperature", "modulus", "density"})
+    length = t.quantity("length", "length")
+    diameter = t.quantity("diameter", "length")
+    if length > 0.2 or diameter > 0.2:
+        raise InputError(f"specimen of {length*1e3:g} mm x {diameter*1e3:g} mm is implausible (units?)", where)
+    return Specimen(
+        length=length,
+        diameter=diameter,
+        material=str(data.get("material", "")),
+        temperature=t.quantity("temperature", "temperature", required=False),
+        modulus=t.quantity("modulus", "pressure", required=False),
+        density=t.quantity("density", "density", required=False),
+    )
+
+
+def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[BarSet] = None,
+                   analysis_base: AnalysisOptions = AnalysisOptions()) -> Shot:
+    """Build a :class:`Shot` from a parsed mapping.
+
+    Parameters
+    ----------
+    data : dict
+        Keys ``name``, ``barset`` (path), ``[specimen]``, ``[record]``, ``[analysis]``.
+    base_dir : Path
+        Folder that relative paths are taken from.
+    source : str
+        Name of the file (or row) in error messages.
+    barset : BarSet, optional
+        Used when ``data`` names no bar set.
+    """
+    top = _Table(data, f"{source}:")
+    top.check_keys({"name", "barset", "specimen", "record", "analysis"})
+    if "barset" in data:
+        bs_path = base_dir / top.string("barset")
+        barset = load_barset(bs_path)
+    elif barset is None:
+        raise InputError("missing key 'barset' (path of the bar set file)", source)
+    specimen = specimen_from_dict(top.table("specimen").data, f"{source}: specimen")
+    record = record_from_dict(top.table("record").data, base_dir, f"{source}: record")
+    at = top.table("analysis", required=False)
+    analysis = analysis_from_dict(at.data, f"{source}: analysis", analysis_base) if at else analysis_base
+    if specimen.diameter > barset.incident.diameter:
+        raise InputError(
+            f"specimen diameter {specimen.diameter*1e3:g} mm exceeds the bar diameter "
+            f"{barset.incident.diameter*1e3:g} mm", f"{source}: specimen.diameter")
+    return Shot(name=str(data.get("name", Path(source).stem)), barset=barset, specimen=specimen,
+                record=record, analysis=analysis, source=source)
+
+
+def load_shot(path) -> Shot:
+    """Load a shot TOML file (see ``docs/setup-files.md``)."""
+    path = Path(path)
+    return shot_from_dict(read_toml(path), path.parent, str(path))
+
+
+def with_analysis(shot: Shot, **changes: Any) -> Shot:
+    """A copy of ``shot`` with some analysis options changed."""
+    return replace(shot, analysis=replace(shot.analysis, **changes))

@@ -1,0 +1,234 @@
+"""Is the shot valid? Equilibrium, strain-rate plateau, yield point and bar/record checks.
+
+Each check is a small function on arrays; those that judge return
+:class:`Flag` objects (``code``, ``severity``, ``message``) or None. Severity
+``error`` means the curve must not be used; ``warning`` means use it with care;
+``info`` is for the record.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+#: Largest |R| counted as force equilibrium (Ravichandran & Subhash 1994).
+EQUILIBRIUM_THRESHOLD = 0.05
+#: Coefficient of variation of the strain rate above which it is not near-constant (common practice).
+RATE_CV_LIMIT = 0.10
+#: Peak bar stress, as a fraction of the bar's yield strength, that earns a warning (common practice).
+BAR_STRESS_WARNING = 0.90
+
+
+@dataclass(frozen=True)
+class Flag:
+    """A finding about a shot: ``code`` (stable identifier), ``severity`` and a one-line ``message``."""
+
+    code: str
+    severity: str  # "info" | "warning" | "error"
+    message: str
+
+    def as_dict(self):
+        return asdict(self)
+
+
+def loading_region(strain_rate, force_mean, *, force_fraction=0.1, rate_fraction=0.5):
+    """Index range of the loading part of a shot.
+
+    From where the mean face force first exceeds ``force_fraction`` of its
+    peak, to the last sample where the strain rate is at least
+    ``rate_fraction`` of its plateau (the median of the rates above half the
+    maximum rate) — after that the specimen is unloading.
+
+    Returns
+    -------
+    (start, stop) : tuple of int, or None
+        Half-open index range; None if there is no loading.
+    """
+    rate = np.asarray(strain_rate, dtype=float)
+    f = np.asarray(force_mean, dtype=float)
+    if not np.any(f > 0) or not np.any(rate > 0):
+        return None
+    start = int(np.argmax(f > force_fraction * np.nanmax(f)))
+    high = rate[rate >= 0.5 * np.nanmax(rate)]
+    plateau = float(np.median(high))
+    on = np.flatnonzero((rate >= rate_fraction * plateau) & (np.arange(rate.size) >= start))
+    if on.size == 0:
+        return None
+    return start, int(on[-1]) + 1
+
+
+def equilibrium_onset(ratio, region, threshold=EQUILIBRIUM_THRESHOLD):
+    """First index of ``region`` from which |R| stays at or below ``threshold`` to the region's end.
+
+    Parameters
+    ----------
+    ratio : array_like
+        Equilibrium factor R(t) [1] (NaN where the forces are too small).
+    region : (int, int)
+        Half-open index range (the loading part).
+    threshold : float
+        Largest |R| counted as equilibrium; 0.05 after Ravichandran &
+        Subhash (1994), J. Am. Ceram. Soc. 77:263–267.
+
+    Returns
+    -------
+    int or None
+        None if the shot is not in equilibrium at the end of the region.
+    """
+    a, b = region
+    r = np.asarray(ratio, dtype=float)[a:b]
+    bad = ~(np.abs(r) <= threshold)  # NaN counts as not in equilibrium
+    if bad.size == 0 or bad[-1]:
+        return None
+    idx = np.flatnonzero(bad)
+    return a + (int(idx[-1]) + 1 if idx.size else 0)
+
+
+def rate_plateau(strain_rate, mask):
+    """Mean, standard deviation and coefficient of variation of the strain rate over ``mask``.
+
+    Returns
+    -------
+    dict
+        ``mean_per_s``, ``std_per_s``, ``cv`` (NaN when the mask is empty).
+    """
+    r = np.asarray(strain_rate, dtype=float)[np.asarray(mask, dtype=bool)]
+    if r.size == 0:
+        return {"mean_per_s": float("nan"), "std_per_s": float("nan"), "cv": float("nan")}
+    m, s = float(np.mean(r)), float(np.std(r))
+    return {"mean_per_s": m, "std_per_s": s, "cv": s / m if m else float("nan")}
+
+
+def offset_yield(strain, stress, offset=0.002, modulus=None, fit_range=(0.1, 0.5)):
+    """Yield point by the offset method.
+
+    The elastic line σ = E (ε − ε0) is fitted by least squares on the loading
+    part where the stress lies between ``fit_range`` fractions of its peak
+    (before the peak), or, when ``modulus`` is given, only ε0 is fitted on that
+    part. The yield point is where the curve first falls below the line
+    σ = E (ε − ε0 − offset), interpolated between samples.
+
+    Parameters
+    ----------
+    strain : array_like
+        Engineering strain [1] (compression positive), loading part.
+    stress : array_like
+        Engineering stress [Pa].
+    offset : float
+        Strain offset [1] (0.002 is the usual 0.2 % offset; common practice,
+        as in ASTM E9 for quasi-static compression).
+    modulus : float, optional
+        Elastic modulus [Pa]; fitted when None. A Hopkinson-bar modulus is
+        unreliable (no equilibrium during the first transits, bar-end
+        indentation, seating and the bars' own compliance) — give the
+        handbook or ultrasonic value when it matters.
+    fit_range : (float, float)
+        Stress fractions of the peak bounding the elastic fit.
+
+    Returns
+    -------
+    dict or None
+        ``yield_strain``, ``yield_stress`` [Pa], ``modulus`` [Pa],
+        ``modulus_source`` ("fitted" or "given"), ``toe_strain`` ε0; None when
+        the curve has no elastic part or never crosses the offset line.
+    """
+    e = np.asarray(strain, dtype=float)
+    s = np.asarray(stress, dtype=float)
+    if e.size < 5:
+        return None
+    ipk = int(np.argmax(s))
+    pk = s[ipk]
+    if pk <= 0:
+        return None
+    pre = np.arange(ipk + 1)
+    sel = pre[(s[: ipk + 1] >= fit_range[0] * pk) & (s[: ipk + 1] <= fit_range[1] * pk)]
+    # keep the first contiguous run: the elastic rise, not a later dip
+    if sel.size:
+        breaks = np.flatnonzero(np.diff(sel) > 1)
+        sel = sel[: breaks[0] + 1] if breaks.size else sel
+    if sel.size < 3:
+        return None
+    if modulus is None:
+        E, c = np.polyfit(e[sel], s[sel], 1)
+        if E <= 0:
+            return None
+        e0, source = -c / E, "fitted"
+    else:
+        E, source = float(modulus), "given"
+        e0 = float(np.mean(e[sel] - s[sel] / E))
+    line = E * (e - e0 - offset)
+    d = s - line
+    after = np.flatnonzero(d[sel[-1]:] <= 0)
+    if after.size == 0:
+        return None
+    j = sel[-1] + int(after[0])
+    if j == 0:
+        return None
+    # interpolate the crossing between j-1 and j
+    f = d[j - 1] / (d[j - 1] - d[j]) if d[j - 1] != d[j] else 0.0
+    ey = e[j - 1] + f * (e[j] - e[j - 1])
+    sy = s[j - 1] + f * (s[j] - s[j - 1])
+    return {"yield_strain": float(ey), "yield_stress": float(sy), "modulus": float(E),
+            "modulus_source": source, "toe_strain": float(e0)}
+
+
+def bar_stress_flag(peak_strain, modulus, yield_strength, bar_name):
+    """Peak bar stress E·|ε|max against the bar's yield strength.
+
+    Returns
+    -------
+    Flag or None
+        ``error`` at or above yield (the data are invalid and the bar may be
+        damaged), ``warning`` above :data:`BAR_STRESS_WARNING` of yield, an
+        ``info`` if the yield strength is unknown.
+    """
+    stress = modulus * abs(peak_strain)
+    if yield_strength is None:
+        return Flag("bar_yield_unknown", "info",
+                    f"{bar_name} bar: no yield strength given, peak bar stress {stress / 1e6:.0f} MPa not checked")
+    ratio = stress / yield_strength
+    if ratio >= 1.0:
+        return Flag("bar_yielded", "error",
+                    f"{bar_name} bar peak stress {stress / 1e6:.0f} MPa reaches its yield strength "
+                    f"{yield_strength / 1e6:.0f} MPa: the data are invalid and the bar may be damaged; inspect it")
+    if ratio >= BAR_STRESS_WARNING:
+        return Flag("bar_stress_high", "warning",
+                    f"{bar_name} bar peak stress {stress / 1e6:.0f} MPa is {100 * ratio:.0f}% of its yield strength")
+    return None
+
+
+def clipping_flag(volts, channel, full_scale=None, pulse_samples=None):
+    """Flag a channel that sat at its recorder's rail.
+
+    With the recorder's range known (``full_scale`` [V]), any sample within
+    0.5 % of it is clipping (error). Without it, a run of identical samples at
+    the record's extreme longer than 10 samples and 2 % of the pulse is a flat
+    top, very likely clipping (warning).
+    """
+    from .pulses import flat_top_run
+
+    v = np.asarray(volts, dtype=float)
+    if full_scale is not None:
+        peak = float(np.max(np.abs(v)))
+        if peak >= 0.995 * full_scale:
+            return Flag("clipped", "error",
+                        f"{channel} channel reaches {peak:.4g} V of its {full_scale:.4g} V range: clipped")
+        return None
+    run, level = flat_top_run(v)
+    limit = max(10, int(0.02 * (pulse_samples or 0)))
+    if run > limit:
+        return Flag("clipped", "warning",
+                    f"{channel} channel holds its extreme value {level:.4g} V for {run} samples: "
+                    f"probably clipped (give the recorder's full_scale to check)")
+    return None
+
+
+def overlap_flag(pulse_duration, gauge_distance, wave_speed, bar_name):
+    """Incident and reflected waves overlap at the gauge if the pulse lasts longer than 2 d / c0."""
+    transit = 2.0 * gauge_distance / wave_speed
+    if pulse_duration > transit:
+        return Flag("waves_overlap", "error",
+                    f"the {pulse_duration * 1e6:.0f} us pulse is longer than the {transit * 1e6:.0f} us the wave "
+                    f"needs from the {bar_name} gauge to the specimen and back: the waves overlap at the gauge")
+    return None
