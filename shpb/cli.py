@@ -47,7 +47,9 @@ def _root(version: bool = typer.Option(False, "--version", help="Print the packa
 def main(argv=None) -> int:
     """Run the CLI; known input/analysis errors become ``error: ...`` and exit 2."""
     try:
-        app(args=argv, standalone_mode=False)
+        rv = app(args=argv, standalone_mode=False)
+        if isinstance(rv, int):  # click returns typer.Exit's code when not standalone
+            return rv
     except ShpbError as exc:
         typer.echo(f"error: {exc}", err=True)
         return 2

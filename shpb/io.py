@@ -92,7 +92,7 @@ def _sniff(path: Path, n_lines=400):
             ncol = len(cells)
             if delim is not None and ncol < 2:
                 continue
-            tail = [_split(x, delim) for x in lines[i : i + 20] if x.strip()]
+            tail = [_split(x, delim) for x in lines[i : i + 3] if x.strip()]
             if all(len(t) == ncol and all(_is_number(c) for c in t) for t in tail):
                 header = None
                 if i > 0:

@@ -634,8 +634,9 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
                 v_front = 0.5 * (v_old[spec_rod.node0] + v[spec_rod.node0])
                 v_back = 0.5 * (v_old[spec_rod.last_node] + v[spec_rod.last_node])
                 row[5] = (v_front - v_back) / spec_rod.spec.length
-            row[8] = 0.5 * float(np.dot(mass * v_old, v))
-            row[9] = 0.5 * float(np.dot(F * F, dx_over_EA))
+            # explicit multiply-and-sum: BLAS dot spawns threads that stall on small shared machines
+            row[8] = 0.5 * float(np.multiply(np.multiply(mass, v_old, out=v_old), v, out=v_old).sum())
+            row[9] = 0.5 * float(np.multiply(np.multiply(F, F, out=dv), dx_over_EA, out=dv).sum())
             row[10] = sum(p.work for p in plastic)
         if n == n_steps:
             break
@@ -683,7 +684,7 @@ class _PlasticState:
             self.eps_p += np.sign(trial) * inc
             self.p += inc
             # dissipated work: stress at the end of the step times plastic increment (first order)
-            self.work += float(np.dot(np.abs(stress), inc)) * self.vol
+            self.work += float((np.abs(stress) * inc).sum()) * self.vol
         F[self.sl] = stress * self.A
 
 

@@ -37,6 +37,8 @@ def _registry():
     # Strain units common on bar rigs.
     ureg.define("microstrain = 1e-6 = ue = µε = microepsilon")
     ureg.define("strain = 1")
+    # Handbook moduli are often quoted in Msi (10^6 psi).
+    ureg.define("Msi = 1e6 * psi")
     return ureg
 
 

@@ -97,7 +97,7 @@ def make_shot(folder, *, law, name="synthetic", amplitude=8e-4, duration=100e-6,
               bar_d=0.02, bar_len=1.5, d_inc=0.75, d_tra=0.5, spec_d=0.01, spec_l=0.005,
               dt=0.1e-6, t_record=1.0e-3, t_trigger=100e-6, noise=2e-6, offset=0.0023,
               bridge_type="half-bending", gf=2.1, exc=10.0, gain=100.0, polarity=-1, seed=1,
-              fmt="csv", analysis="", extra_bar=""):
+              fmt="csv", analysis="", extra_bar="", bar_yield=1500e6, kill_transmitted=False, clip_volts=None):
     """Write an ideal shot (record + bar set + shot file) and return (shot path, truth dict)."""
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -124,6 +124,10 @@ def make_shot(folder, *, law, name="synthetic", amplitude=8e-4, duration=100e-6,
               poisson=STEEL["poisson_ratio"])
     v_inc = bridge.bar_volts(inc + refl, **kw) + offset + noise * gain * exc * rng.standard_normal(time.size) / 4
     v_tra = bridge.bar_volts(tra, **kw) - offset + noise * gain * exc * rng.standard_normal(time.size) / 4
+    if kill_transmitted:
+        v_tra = noise * gain * exc * rng.standard_normal(time.size) / 4
+    if clip_volts is not None:
+        v_inc = np.clip(v_inc, -clip_volts, clip_volts)
     if fmt == "csv":
         rec = folder / f"{name}.csv"
         with open(rec, "w") as fh:
@@ -140,7 +144,7 @@ def make_shot(folder, *, law, name="synthetic", amplitude=8e-4, duration=100e-6,
     (folder / "bars.toml").write_text(
         f'name = "synthetic test rig"\n[bar_material]\nname = "steel"\nmodulus = "{E / 1e9} GPa"\n'
         f'density = "{rho} kg/m^3"\npoisson_ratio = {STEEL["poisson_ratio"]}\n'
-        f'yield_strength = "{STEEL["yield_strength"] / 1e6} MPa"\n'
+        f'yield_strength = "{bar_yield / 1e6} MPa"\n'
         f'[incident]\ndiameter = "{bar_d * 1e3} mm"\nlength = "{bar_len} m"\n{extra_bar}'
         f'[incident.gauge]\ndistance = "{d_inc * 1e3} mm"\n{gauge}'
         f'[transmitted]\ndiameter = "{bar_d * 1e3} mm"\nlength = "{bar_len} m"\n'

@@ -1,0 +1,86 @@
+"""``shpb fit RESULTS...``: fit a constitutive model to reduced shots."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+
+
+def _list(text: Optional[str]):
+    """``"1e-3, 1 1/s, 1000"`` -> ["1e-3", "1 1/s", "1000"] (None stays None)."""
+    if text is None:
+        return None
+    items = [t.strip() for t in text.split(",") if t.strip()]
+    return items or None
+
+
+def register(app: typer.Typer) -> None:
+    @app.command("fit")
+    def fit_cmd(
+        results: List[Path] = typer.Argument(
+            ..., help="Campaign output folders (shots/<id>/), shot result folders or curves.csv files."),
+        model: str = typer.Option("johnson-cook", "--model", "-m",
+                                  help="johnson-cook, cowper-symonds, zerilli-armstrong-fcc, "
+                                       "zerilli-armstrong-bcc or power-law."),
+        reference_rate: str = typer.Option("1 1/s", help="Reference strain rate of the log-rate term."),
+        quasi_static: List[Path] = typer.Option(
+            [], "--quasi-static", help="Reference curve CSV (header '# strain_rate = 0.001 1/s'); repeatable."),
+        quasi_static_rate: Optional[str] = typer.Option(None, help="Rate for --quasi-static files without one."),
+        melt_temperature: Optional[str] = typer.Option(None, help="Melting temperature, e.g. '1356 K'."),
+        room_temperature: str = typer.Option("293.15 K", help="Room temperature (Johnson-Cook T_r and the "
+                                                                "default for shots without a temperature)."),
+        modulus: Optional[str] = typer.Option(None, help="Specimen modulus for shots whose summary has none "
+                                                         "[default: fitted from each curve's elastic part]."),
+        fix: List[str] = typer.Option([], "--fix", help="Hold a parameter: NAME=VALUE, e.g. 'C=0.014' or "
+                                                        "'A=90 MPa'; repeatable."),
+        vary: List[str] = typer.Option([], "--vary", help="Parameter that must be fitted (fail rather than fix "
+                                                          "it when the data cannot identify it); repeatable."),
+        staged: bool = typer.Option(False, "--staged", help="Johnson-Cook: also the staged route, for comparison."),
+        weighting: str = typer.Option("points", help="'points' (equal per grid point) or 'curves'."),
+        grid_step: float = typer.Option(0.005, help="Plastic-strain grid step."),
+        adiabatic: bool = typer.Option(False, "--adiabatic", help="Add the adiabatic temperature rise to shots."),
+        density: Optional[str] = typer.Option(None, help="Specimen density for --adiabatic [default: summary]."),
+        specific_heat: Optional[str] = typer.Option(None, help="Specific heat for --adiabatic, e.g. "
+                                                               "'385 J/(kg*K)'."),
+        taylor_quinney: float = typer.Option(0.9, help="Taylor-Quinney coefficient for --adiabatic."),
+        rates: Optional[str] = typer.Option(None, help="Tabulate at these rates, comma-separated "
+                                                       "[default: the tested ones]."),
+        temperatures: Optional[str] = typer.Option(None, help="Tabulate at these temperatures, comma-separated."),
+        max_plastic_strain: Optional[float] = typer.Option(None, help="Tabulate up to this plastic strain."),
+        flow_strain: Optional[float] = typer.Option(None, help="Plastic strain of the rate-sensitivity plot."),
+        include_invalid: bool = typer.Option(False, help="Also use shots whose summary says not valid."),
+        mixed_materials: bool = typer.Option(False, help="Allow curves of different materials."),
+        out: Optional[Path] = typer.Option(None, "--out", "-o", help="Output folder [default: fit-<model>]."),
+    ):
+        """Fit a constitutive model to the valid part of every curve at once. Writes parameters
+        (JSON, TOML), model curves for simulation codes (CSV), fitted data with residuals and a
+        figure sheet."""
+        import numpy as np
+
+        from .. import fit as F
+        from ..errors import InputError
+
+        curves = F.load_curves(
+            results, quasi_static=quasi_static, modulus=modulus, room_temperature=room_temperature,
+            quasi_static_rate=quasi_static_rate, grid_step=grid_step, include_invalid_shots=include_invalid,
+            allow_mixed_materials=mixed_materials,
+        )
+        if adiabatic:
+            if specific_heat is None:
+                raise InputError("--adiabatic needs --specific-heat", "--specific-heat")
+            curves = F.with_adiabatic_heating(curves, specific_heat, density=density, beta=taylor_quinney)
+        result = F.fit_curves(
+            curves, model, reference_rate=reference_rate, room_temperature=room_temperature,
+            melt_temperature=melt_temperature, fixed=F.parse_fixed(model, fix), vary=vary,
+            weighting=weighting, staged=staged,
+        )
+        eps = None
+        if max_plastic_strain is not None:
+            eps = np.round(np.arange(0.0, max_plastic_strain + 1e-9, grid_step), 9)
+        out_dir = out or Path(f"fit-{result.model}")
+        paths = F.write_fit(result, out_dir, strain_rates=_list(rates), temperatures=_list(temperatures),
+                            plastic_strain=eps, flow_strain=flow_strain)
+        typer.echo(F.fit_report(result))
+        typer.echo(f"written to {out_dir}: {', '.join(p.name for p in paths.values())}")

@@ -1,0 +1,125 @@
+"""Record readers: oscilloscope/DAQ text exports and .npz; bad records give one-line errors.
+
+Reference for the numbers read: numpy.loadtxt on the same data block (an
+independent parser). Atomic writes: POSIX rename semantics (os.replace).
+"""
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from shpb.errors import InputError
+from shpb.io import atomic_write_text, read_record, read_table, sha256_file
+from shpb.setup import Channel, RecordSpec
+
+DATA = np.column_stack([np.arange(50) * 1e-7, np.sin(np.arange(50) / 7.0), np.cos(np.arange(50) / 5.0)])
+
+
+def _write(path, header_lines, delim, names=None, data=DATA):
+    with open(path, "w") as fh:
+        for ln in header_lines:
+            fh.write(ln + "\n")
+        if names:
+            fh.write(delim.join(names) + "\n")
+        for row in data:
+            fh.write(delim.join(f"{v:.9e}" for v in row) + "\n")
+    return path
+
+
+@pytest.mark.parametrize("delim", [",", "\t", ";", "  "])
+def test_delimiters_headers_and_metadata(tmp_path, delim):
+    meta = ["Model,Fictional DSO", "Record Length,50", "", "Sample Interval,1e-07"]
+    p = _write(tmp_path / "r.csv", meta, delim, ["TIME", "CH1", "CH2"])
+    names, data = read_table(p)
+    assert names == ["TIME", "CH1", "CH2"]
+    block = np.loadtxt(p, delimiter=None if delim.strip() == "" else delim, skiprows=5)
+    np.testing.assert_array_equal(data, block)
+
+
+def test_no_header_columns_by_index(tmp_path):
+    p = _write(tmp_path / "r.txt", [], " ")
+    names, data = read_table(p)
+    assert names == ["0", "1", "2"]
+    np.testing.assert_allclose(data, DATA, rtol=1e-9)
+
+
+def _spec(p, **kw):
+    return RecordSpec(incident=Channel(p, kw.get("inc", "CH1")), transmitted=Channel(p, kw.get("tra", "CH2")),
+                      time=kw.get("time", "TIME"), sample_interval=kw.get("dt"))
+
+
+def test_read_record_time_column(tmp_path):
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"])
+    rec = read_record(_spec(p))
+    assert rec.dt == pytest.approx(1e-7)
+    np.testing.assert_allclose(rec.incident, DATA[:, 1], rtol=1e-9)
+    assert rec.files[str(p)] == sha256_file(p)
+
+
+def test_npz_and_sample_interval(tmp_path):
+    p = tmp_path / "r.npz"
+    np.savez(p, a=DATA[:, 1], b=DATA[:, 2])
+    rec = read_record(RecordSpec(Channel(p, "a"), Channel(p, "b"), time=None, sample_interval=2e-7))
+    assert rec.time[-1] == pytest.approx(49 * 2e-7)
+
+
+def test_per_channel_files_of_unequal_length(tmp_path):
+    a = _write(tmp_path / "a.csv", [], ",", ["t", "v"], DATA[:, :2])
+    b = _write(tmp_path / "b.csv", [], ",", ["t", "v"], DATA[:40, :2])
+    with pytest.raises(InputError, match="has 40"):
+        read_record(RecordSpec(Channel(a, "v"), Channel(b, "v"), time="t"))
+
+
+@pytest.mark.parametrize("mutate, fragment", [
+    (lambda lines: lines[:10] + ["1e-6,abc,0.2"] + lines[11:], "'abc' is not a number"),
+    (lambda lines: lines[:10] + ["1e-6,nan,0.2"] + lines[11:], "non-finite"),
+    (lambda lines: lines[:10] + ["1e-6,0.1"] + lines[11:], "missing or non-finite value at data row 10 (line 11)"),
+])
+def test_bad_cells(tmp_path, mutate, fragment):
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"])
+    lines = p.read_text().splitlines()
+    p.write_text("\n".join(mutate(lines)) + "\n")
+    with pytest.raises(InputError) as exc:
+        read_record(_spec(p))
+    assert str(p) in str(exc.value) and fragment in str(exc.value)
+
+
+def test_non_monotonic_time(tmp_path):
+    d = DATA.copy()
+    d[20, 0] = d[18, 0]
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"], d)
+    with pytest.raises(InputError, match="not increasing at data row"):
+        read_record(_spec(p))
+
+
+def test_missing_samples_detected(tmp_path):
+    d = np.delete(DATA, 25, axis=0)
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"], d)
+    with pytest.raises(InputError, match="not uniformly sampled"):
+        read_record(_spec(p))
+
+
+def test_wrong_column_lists_the_columns(tmp_path):
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"])
+    with pytest.raises(InputError, match=r"no column 'CH3' \(columns: TIME, CH1, CH2\)"):
+        read_record(_spec(p, tra="CH3"))
+
+
+def test_missing_file(tmp_path):
+    with pytest.raises(InputError, match="file not found"):
+        read_record(_spec(tmp_path / "nope.csv"))
+
+
+def test_text_without_numbers(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("just,a,header\nand,more,words\n")
+    with pytest.raises(InputError, match="no block of numeric rows"):
+        read_table(p)
+
+
+def test_atomic_write_leaves_no_temporary(tmp_path):
+    target = tmp_path / "out" / "x.txt"
+    atomic_write_text(target, "hello")
+    assert target.read_text() == "hello"
+    assert [f.name for f in target.parent.iterdir()] == ["x.txt"]
