@@ -254,11 +254,12 @@ def read_record(spec) -> Record:
 
 def _uniform_dt(t, where, column):
     d = np.diff(t)
-    if np.any(d <= 0):
-        i = int(np.argmax(d <= 0))
-        raise InputError(f"time column {column!r} is not increasing at data row {i + 2}", where)
     dt = (t[-1] - t[0]) / (t.size - 1)
-    if np.max(np.abs(d - dt)) > 0.05 * dt:
+    # one pass decides; the detailed checks run only on failure
+    if not dt > 0 or np.max(np.abs(d - dt)) > 0.05 * dt:
+        if np.any(d <= 0):
+            i = int(np.argmax(d <= 0))
+            raise InputError(f"time column {column!r} is not increasing at data row {i + 2}", where)
         i = int(np.argmax(np.abs(d - dt)))
         raise InputError(f"time column {column!r} is not uniformly sampled (step {d[i]:.4g} s at row {i + 2}, "
                          f"mean {dt:.4g} s); missing samples?", where)

@@ -152,23 +152,29 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     where = str(shot.source or shot.name)
 
     # 1. baseline and bridge conversion -------------------------------------------------
-    n_pre = int(opt.pre_trigger / dt) if opt.pre_trigger else max(16, n // 20)
-    n_pre = min(n_pre, n // 2)
     raw_i, raw_t = rec.incident, rec.transmitted
-    vi = raw_i - pulses.noise_floor(raw_i, n_pre)[0]
-    si = _strain(vi, bs.incident_gauge, bs.incident)
+    if opt.pre_trigger:
+        n_pre = min(int(opt.pre_trigger / dt), n // 2)
+        vi = raw_i - pulses.noise_floor(raw_i, n_pre)[0]
+    else:  # first pass: level and noise from the whole record
+        n_pre = None
+        vi = raw_i - pulses.robust_noise(raw_i)[0]
     if opt.incident_start is not None:
         foot = (opt.incident_start - rec.time[0]) / dt
         if not 0 <= foot < n:
             raise InputError(f"incident_start {opt.incident_start * 1e6:g} us is outside the record "
                              f"({rec.time[0] * 1e6:g} to {rec.time[-1] * 1e6:g} us)", where)
     else:
-        foot = pulses.find_foot(si, n_pre)
+        # the bridge is monotonic: the foot can be found on the sign-corrected volts
+        foot = pulses.find_foot(bs.incident_gauge.polarity * vi, n_pre)
         if foot is None:
             raise AnalysisError(f"{where}: no incident pulse found on the incident channel "
-                                f"(nothing rises above 8x the noise of the first {n_pre} samples)")
+                                f"(nothing rises above 8x its noise)")
+    if foot < 16:
+        raise AnalysisError(f"{where}: the incident pulse starts {foot:.0f} samples into the record: "
+                            f"no pre-trigger baseline (record at least 16 samples before the pulse)")
     # second pass: the baseline is the whole quiet part before the foot, less a margin
-    n_base = max(16, int(0.9 * foot)) if opt.pre_trigger is None else n_pre
+    n_base = max(16, int(0.9 * foot)) if n_pre is None else n_pre
     vi = raw_i - pulses.noise_floor(raw_i, n_base)[0]
     vt = raw_t - pulses.noise_floor(raw_t, n_base)[0]
     si = _strain(vi, bs.incident_gauge, bs.incident)
@@ -338,8 +344,11 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         f = validity.bar_stress_flag(pk, bar.modulus, bar.material.yield_strength, bar_name)
         if f:
             flags.append(f)
+    # a channel can only hit its rail while a pulse passes: check the pulse windows
+    w0 = max(int(gauge_windows["incident"][0] / dt - rec.time[0] / dt), 0)
+    w1 = min(int(max(w[1] for w in gauge_windows.values()) / dt - rec.time[0] / dt) + 1, n)
     for chan_name, raw, g in (("incident", raw_i, bs.incident_gauge), ("transmitted", raw_t, bs.transmitted_gauge)):
-        f = validity.clipping_flag(raw, chan_name, g.full_scale, duration / dt)
+        f = validity.clipping_flag(raw[w0:w1], chan_name, g.full_scale, duration / dt)
         if f:
             flags.append(f)
     rt = 2 * (bt.length - dtr) / ct
