@@ -26,7 +26,6 @@ import io
 import json
 import math
 import os
-import tempfile
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -36,7 +35,8 @@ import pandas as pd
 from . import __version__
 from .errors import AnalysisError, InputError
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
-from .units import to_si as _to_si
+from .io import atomic_write_bytes
+from .units import to_si
 
 __all__ = [
     "ROOM_TEMPERATURE",
@@ -70,17 +70,10 @@ GRID_STEP = 0.005
 # 1e3); real rate and temperature effects stay well below it.
 _MIXED_UNIT_RATIO = 200.0
 
-
-
-
-def to_si(value, dimension, where=""):
-    """:func:`shpb.units.to_si`, also taking a bare number written as a string ("1e-3") as SI."""
-    if isinstance(value, str):
-        try:
-            return _to_si(float(value), dimension, where)
-        except ValueError:
-            pass
-    return _to_si(value, dimension, where)
+# MINPACK stopping tolerances, tighter than lmfit's 1.5e-8 defaults: poorly
+# determined parameters sit on a flat minimum and would otherwise stop early
+# (costs a few more evaluations on these small problems).
+_TOLERANCES = {"xtol": 1e-11, "ftol": 1e-11}
 
 
 # --------------------------------------------------------------------------
@@ -153,7 +146,7 @@ class CurveList(list):
         self.notes = list(notes)
 
 
-def apparent_modulus(strain, stress, window_fraction=0.1):
+def apparent_modulus(strain, stress, window_fraction=0.03):
     """Elastic slope of a loading curve: the steepest windowed regression before the peak.
 
     Parameters
@@ -163,8 +156,8 @@ def apparent_modulus(strain, stress, window_fraction=0.1):
     stress : array_like
         Stress at the same samples [Pa].
     window_fraction : float
-        Window length as a fraction of the samples up to peak stress [1]
-        (at least 5 samples).
+        Window length as a fraction of the samples from 5 % of peak stress
+        up to the peak [1] (at least 5 samples).
 
     Returns
     -------
@@ -174,8 +167,9 @@ def apparent_modulus(strain, stress, window_fraction=0.1):
     Notes
     -----
     The elastic part is the steepest part of a loading curve, so the largest
-    least-squares slope over sliding windows up to the peak picks it even
-    when yield comes early (common practice). In a bar test the specimen is
+    least-squares slope over sliding windows, from the first sample above 5 %
+    of the peak stress up to the peak, picks it even when yield comes early
+    (common practice). In a bar test the specimen is
     not yet in equilibrium there, so this is an *apparent* modulus, usually
     below the material's; it is consistent with the measured curve, which is
     what the plastic-strain offset needs.
@@ -187,7 +181,10 @@ def apparent_modulus(strain, stress, window_fraction=0.1):
     if eps.size < 5:
         return float("nan")
     upto = int(np.argmax(sig)) + 1
-    eps, sig = eps[:upto], sig[:upto]
+    # From the first sample above 5 % of the peak: before it, strain and
+    # stress are both noise about zero and their ratio means nothing.
+    start = int(np.argmax(sig[:upto] > 0.05 * sig[upto - 1]))
+    eps, sig = eps[start:upto], sig[start:upto]
     w = max(5, int(round(window_fraction * eps.size)))
     if eps.size < w:
         return float("nan")
@@ -219,28 +216,43 @@ def plastic_strain_from_total(true_strain, true_stress, modulus):
     numpy.ndarray
         Plastic strain [1].
 
-    References
-    ----------
-    .. [1] Additive split of small elastic and plastic strains, common
-       practice for metals (elastic strains ≪ 1).
+    Notes
+    -----
+    Additive split of elastic and plastic strain, common practice for metals
+    whose elastic strains are ≪ 1.
     """
     return np.asarray(true_strain, float) - np.asarray(true_stress, float) / modulus
 
 
 def _resample_one(eps, sig, step):
-    """Bin-average (ε_p, σ) in bins of width ``step`` centred on k·step, then
-    interpolate the bin means onto the nodes they span (no extrapolation)."""
+    """Stress at the nodes k·step inside the data's plastic-strain range.
+
+    Each node's value is the intercept of a least-squares quadratic through
+    the samples of its bin (|ε_p − node| ≤ step/2): it averages noise like a
+    bin mean but, unlike a mean, has no bias from the curve's curvature (a
+    mean is off by σ''·step²/24, which pulls a fitted yield stress). Bins
+    with fewer than 6 samples, or not spanning the node, take linear
+    interpolation between neighbouring samples.
+    """
     order = np.argsort(eps, kind="stable")
     eps, sig = eps[order], sig[order]
-    k = np.rint(eps / step).astype(int)
-    keys, idx, counts = np.unique(k, return_index=True, return_counts=True)
-    e_mean = np.add.reduceat(eps, idx) / counts
-    s_mean = np.add.reduceat(sig, idx) / counts
-    lo, hi = math.ceil(e_mean[0] / step - 1e-9), math.floor(e_mean[-1] / step + 1e-9)
+    lo, hi = math.ceil(eps[0] / step - 1e-9), math.floor(eps[-1] / step + 1e-9)
     nodes = np.arange(max(lo, 1), hi + 1) * step
     if nodes.size == 0:
         return nodes, nodes.copy()
-    return nodes, np.interp(nodes, e_mean, s_mean)
+    out = np.interp(nodes, eps, sig)
+    bins = np.rint(eps / step).astype(int)
+    first = np.searchsorted(bins, np.rint(nodes / step).astype(int), side="left")
+    last = np.searchsorted(bins, np.rint(nodes / step).astype(int), side="right")
+    for i, (a, b) in enumerate(zip(first, last)):
+        if b - a < 6:
+            continue
+        x = (eps[a:b] - nodes[i]) / step
+        if x.min() > -0.25 or x.max() < 0.25:  # samples on one side only: do not extrapolate
+            continue
+        coef, *_ = np.linalg.lstsq(np.column_stack([np.ones_like(x), x, x * x]), sig[a:b], rcond=None)
+        out[i] = coef[0]
+    return nodes, out
 
 
 def resample_curves(curves, step=GRID_STEP):
@@ -258,8 +270,9 @@ def resample_curves(curves, step=GRID_STEP):
     CurveList
         Curves sampled at the grid nodes each one covers, so every curve
         weighs by the plastic-strain range it spans, not by its sample count.
-        Samples are averaged in bins of one step first (noise down, no
-        extrapolation). Curves with fewer than 3 nodes are dropped with a note.
+        Each node takes a local quadratic fit to the samples within half a
+        step (noise down, no curvature bias, no extrapolation). Curves with
+        fewer than 3 nodes are dropped with a note.
     """
     if not step > 0:
         raise InputError(f"grid step must be > 0, got {step!r}", "grid_step")
@@ -371,10 +384,12 @@ def _finish_curve(name, source, kind, strain, sig, valid, rate, temperature, mat
                   notes, elastic=None, density=None):
     """Common part of shot and quasi-static reading: checks, modulus, plastic strain."""
     if strain.size == 0 or not np.any(valid):
-        return None, f"{name}: no rows with valid == 1 in {source}; curve skipped"
+        return None, f"{name}: no rows with valid == 1 in {source}; curve skipped", None
     if np.nanmedian(sig[valid]) < 0:  # tension-negative file: work with magnitudes
         strain, sig = -strain, -sig
+        elastic = None if elastic is None else (-elastic[0], -elastic[1])
         notes.append("stress was negative (tension); magnitudes used")
+    level = (name, str(source), float(np.median(sig[valid])))
     if np.nanmax(np.abs(strain[valid])) > 2.0:
         raise InputError(
             f"strain reaches {np.nanmax(np.abs(strain[valid])):.3g}; expected a fraction (is it in percent?)", source
@@ -393,7 +408,9 @@ def _finish_curve(name, source, kind, strain, sig, valid, rate, temperature, mat
     eps_p = plastic_strain_from_total(strain[valid], sig[valid], modulus)
     keep = np.isfinite(eps_p) & np.isfinite(sig[valid]) & (eps_p > 0)
     if np.count_nonzero(keep) < 3:
-        return None, f"{name}: fewer than 3 valid rows with plastic strain > 0 in {source}; curve skipped"
+        return None, (f"{name}: fewer than 3 valid rows with plastic strain > 0 in {source} (stress/modulus "
+                      f"exceeds the strain: check the modulus {modulus / 1e9:.4g} GPa and the stress units); "
+                      "curve skipped"), level
     curve = Curve(
         name=name,
         plastic_strain=eps_p[keep],
@@ -408,11 +425,18 @@ def _finish_curve(name, source, kind, strain, sig, valid, rate, temperature, mat
         density=density,
         notes=tuple(notes),
     )
-    return curve, None
+    return curve, None, level
+
+
+def _read_csv(path, **kw):
+    try:
+        return pd.read_csv(path, **kw)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read as CSV ({str(exc).splitlines()[0]})", str(path)) from None
 
 
 def _read_shot(folder: Path, modulus, room_temperature):
-    """One shot folder -> (Curve or None, note or None)."""
+    """One shot folder -> (Curve or None, note or None, stress level or None)."""
     csv_path, js_path = folder / "curves.csv", folder / "summary.json"
     if not js_path.is_file():
         raise InputError("summary.json not found next to curves.csv", str(folder))
@@ -420,7 +444,7 @@ def _read_shot(folder: Path, modulus, room_temperature):
         summary = json.loads(js_path.read_text(encoding="utf-8"))
     except json.JSONDecodeError as exc:
         raise InputError(f"not valid JSON ({exc.msg}, line {exc.lineno})", str(js_path)) from None
-    df = pd.read_csv(csv_path)
+    df = _read_csv(csv_path)
     src = str(csv_path)
     for col in ("true_strain", "valid"):
         if col not in df.columns:
@@ -515,13 +539,13 @@ def read_quasi_static(path, *, strain_rate=None, temperature=None, modulus=None,
         raise InputError("quasi-static file not found", str(path))
     meta = _header(path)
     src = str(path)
-    df = pd.read_csv(path, comment="#")
+    df = _read_csv(path, comment="#")
     notes = []
-    rate_v = meta.get("strain_rate", strain_rate)
+    rate_v = meta.get("strain_rate", meta.get("strain_rate_per_s", strain_rate))
     if rate_v is None:
         raise InputError("no strain rate; add a header line '# strain_rate = 0.001 1/s'", src)
     rate = to_si(rate_v, "strain_rate", f"{src}: strain_rate")
-    temp_v = meta.get("temperature", temperature)
+    temp_v = meta.get("temperature", meta.get("temperature_k", temperature))
     if temp_v is None:
         temp = room_temperature
         notes.append(f"no temperature; room temperature {room_temperature:g} K assumed")
@@ -563,7 +587,7 @@ def read_quasi_static(path, *, strain_rate=None, temperature=None, modulus=None,
             raise InputError("fewer than 3 valid rows with plastic strain > 0", src)
         return Curve(name, eps[keep], sig[keep], rate, temp, material=meta.get("material", ""), source=src,
                      modulus=None, modulus_source="plastic strain given", kind="quasi-static", notes=tuple(notes))
-    curve, note = _finish_curve(
+    curve, note, _ = _finish_curve(
         name, src, "quasi-static", eps, sig, valid & ok, rate, temp, meta.get("material", ""), mod, mod_src, notes,
         elastic=(eps[ok], sig[ok]),
     )
@@ -588,17 +612,22 @@ def _shot_folders(path: Path):
     )
 
 
-def _check_consistency(curves, allow_mixed_materials):
-    """Mixed units and mixed materials across curves -> InputError."""
-    if len(curves) >= 2:
-        level = np.array([np.median(c.stress) for c in curves])
-        i, j = int(np.argmax(level)), int(np.argmin(level))
-        if level[j] <= 0 or level[i] / level[j] > _MIXED_UNIT_RATIO:
+def _check_consistency(curves, levels, allow_mixed_materials):
+    """Mixed units and mixed materials across curves -> InputError.
+
+    ``levels``: (name, source, median valid stress [Pa]) of every file with
+    valid rows, including those later skipped (a file in the wrong unit is
+    often skipped for having no positive plastic strain).
+    """
+    if len(levels) >= 2:
+        vals = np.array([lv[2] for lv in levels])
+        i, j = int(np.argmax(vals)), int(np.argmin(vals))
+        if vals[j] <= 0 or vals[i] / vals[j] > _MIXED_UNIT_RATIO:
             raise InputError(
-                f"flow stresses differ by a factor {level[i] / max(level[j], 1e-300):.3g}: {curves[i].name} "
-                f"{level[i] / 1e6:.4g} MPa vs {curves[j].name} {level[j] / 1e6:.4g} MPa; mixed units "
+                f"flow stresses differ by a factor {vals[i] / max(vals[j], 1e-300):.3g}: {levels[i][0]} "
+                f"{vals[i] / 1e6:.4g} MPa vs {levels[j][0]} {vals[j] / 1e6:.4g} MPa; mixed units "
                 "(Pa/MPa/GPa) in the stress columns?",
-                f"{curves[j].source}",
+                levels[i][1],
             )
     mats = sorted({c.material.strip() for c in curves if c.material.strip()})
     if len(mats) > 1 and not allow_mixed_materials:
@@ -632,8 +661,9 @@ def load_curves(
         Reference CSV files, see :func:`read_quasi_static`.
     modulus : float or str, optional
         Specimen modulus [Pa] (or ``"70 GPa"``) for shots whose summary has
-        none (``inputs.specimen.modulus_Pa``); with neither, the modulus is
-        fitted from each curve's elastic part (:func:`apparent_modulus`).
+        none (``inputs.specimen.modulus_Pa``) and reference files whose header
+        has none; with neither, the modulus is fitted from each curve's
+        elastic part (:func:`apparent_modulus`). Each curve records which.
     room_temperature : float or str
         Temperature for shots without one [K].
     quasi_static_rate, quasi_static_temperature : float or str, optional
@@ -665,7 +695,7 @@ def load_curves(
         quasi_static = [quasi_static]
     mod = None if modulus is None else to_si(modulus, "pressure", "modulus")
     room = to_si(room_temperature, "temperature", "room_temperature")
-    curves, notes, seen = [], [], {}
+    curves, notes, seen, levels = [], [], {}, []
     for p in paths:
         for folder in _shot_folders(Path(p)):
             if not (folder / "curves.csv").is_file():
@@ -680,7 +710,9 @@ def load_curves(
                 if flag is False:
                     notes.append(f"{folder.name}: summary says the shot is not valid; skipped")
                     continue
-            curve, note = _read_shot(folder, mod, room)
+            curve, note, level = _read_shot(folder, mod, room)
+            if level is not None:
+                levels.append(level)
             if curve is None:
                 notes.append(note)
                 continue
@@ -689,14 +721,17 @@ def load_curves(
             seen[curve.name] = str(folder)
             curves.append(curve)
     for q in quasi_static:
-        curves.append(
-            read_quasi_static(q, strain_rate=quasi_static_rate, temperature=quasi_static_temperature,
+        c = read_quasi_static(q, strain_rate=quasi_static_rate, temperature=quasi_static_temperature,
                               modulus=modulus, room_temperature=room)
-        )
+        if c.name in seen:
+            raise InputError(f"curve name {c.name!r} used twice (also {seen[c.name]}); set '# name = ...'", c.source)
+        seen[c.name] = c.source
+        curves.append(c)
+        levels.append((c.name, c.source, float(np.median(c.stress))))
+    _check_consistency(curves, levels, allow_mixed_materials)
     if not curves:
         why = "; ".join(notes) if notes else "no shot folders found"
         raise AnalysisError(f"no curve with a usable valid region ({why})")
-    _check_consistency(curves, allow_mixed_materials)
     out = CurveList(curves, notes)
     if grid_step is not None:
         out = resample_curves(out, grid_step)
@@ -776,7 +811,9 @@ class FitResult:
     parameters : dict of ParameterResult
         By parameter name.
     correlations : dict
-        ``{(name_a, name_b): r}`` for varied parameters, |r| from lmfit.
+        ``{(name_a, name_b): r}``, correlation coefficients of the varied
+        parameters from the fit covariance (lmfit); ``log10_D`` for
+        parameters fitted on a log scale.
     settings : dict
         Model settings used (``reference_rate`` [1/s], temperatures [K]).
     curves : list of Curve
@@ -795,6 +832,8 @@ class FitResult:
         Optimiser convergence.
     staged : FitResult or None
         The staged Johnson–Cook route, when asked for.
+    model_spec : ModelSpec or None
+        The model's spec (for models not in the registry).
     """
 
     model: str
@@ -811,6 +850,7 @@ class FitResult:
     success: bool = True
     message: str = ""
     staged: "FitResult | None" = None
+    model_spec: "ModelSpec | None" = None
 
     @property
     def values(self) -> dict:
@@ -819,7 +859,8 @@ class FitResult:
 
     @property
     def spec(self) -> ModelSpec:
-        return get_model(self.model)
+        """The model's :class:`~shpb.models.ModelSpec`."""
+        return self.model_spec if self.model_spec is not None else get_model(self.model)
 
     def predict(self, plastic_strain, strain_rate, temperature=ROOM_TEMPERATURE):
         """Model flow stress [Pa] at plastic strain [1], strain rate [1/s], temperature [K]."""
@@ -1045,7 +1086,7 @@ def _run_lmfit(spec, curves, settings, fixed, weighting, starts):
         params = _make_params(spec, start, fixed, scale)
         try:
             with np.errstate(all="ignore"):
-                res = model.fit(sig, params, weights=weights, method="leastsq", **kws)
+                res = model.fit(sig, params, weights=weights, method="leastsq", fit_kws=_TOLERANCES, **kws)
         except ValueError:  # NaN from a start far off; try the next one
             continue
         if best is None or res.chisqr < best.chisqr:
@@ -1111,8 +1152,8 @@ def _starts(spec, curves, settings, fixed):
             with np.errstate(all="ignore"):
                 g = spec.guess(groups, **{k: settings[k] for k in spec.settings if k in settings})
             starts.append({k: v for k, v in g.items() if np.isfinite(v)})
-        except (ValueError, np.linalg.LinAlgError, FloatingPointError):
-            pass
+        except (ValueError, ArithmeticError, IndexError, np.linalg.LinAlgError):
+            pass  # a failed guess only costs the start; the registry hints remain
     starts.append({})  # registry hints
     return starts
 
@@ -1177,8 +1218,9 @@ def fit_curves(
     -----
     Residuals are weighted to MPa, so χ² is in MPa²; standard errors come
     from the covariance scaled by the reduced χ² (lmfit's default), i.e. they
-    assume independent residuals of equal variance. Neighbouring grid points
-    of one bar test are correlated, so treat them as lower bounds.
+    assume independent residuals of equal variance. Residuals of real bar
+    tests are correlated along a curve (wave oscillations, model misfit), so
+    treat the standard errors as lower bounds.
     """
     spec = get_model(model)
     load_notes = list(getattr(curves, "notes", []))
@@ -1191,6 +1233,9 @@ def fit_curves(
         raise AnalysisError(f"{n_pts} data points cannot fit {n_free} parameters")
     for name in list(fixed or {}) + list(vary):
         spec.parameter(name)  # unknown names -> InputError
+    both = sorted(set(fixed or {}) & set(vary))
+    if both:
+        raise InputError(f"{', '.join(both)} both fixed and asked to vary", "fixed/vary")
     settings = _model_settings(spec, reference_rate, room_temperature, melt_temperature, curves, temperature_tolerance)
     fixed_all, id_notes = _identify(spec, curves, settings, fixed or {}, set(vary), rate_tolerance,
                                     temperature_tolerance)
@@ -1209,7 +1254,7 @@ def fit_curves(
     result = FitResult(
         model=spec.name, method="global", parameters=params, correlations=corr, settings=settings,
         curves=curves, curve_stats=per, rms=rms, r_squared=r2, n_points=int(n_pts), notes=notes,
-        success=bool(res.success), message=str(res.message),
+        success=bool(res.success), message=str(res.message), model_spec=spec,
     )
     if staged:
         if spec.name != "johnson-cook":
@@ -1276,7 +1321,7 @@ def _staged_johnson_cook(spec, curves, settings, fixed, weighting, rate_tol, tem
     return FitResult(
         model=spec.name, method="staged", parameters=params, correlations=corr, settings=settings, curves=curves,
         curve_stats=per, rms=rms, r_squared=r2, n_points=int(sum(c.plastic_strain.size for c in curves)),
-        notes=notes,
+        notes=notes, model_spec=spec,
     )
 
 
@@ -1402,21 +1447,6 @@ def _toml_dict(result):
     return out
 
 
-def _atomic_write(path: Path, data: bytes):
-    """Write to a temporary file in the same folder, then os.replace (readers never see half a file)."""
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-
-
 def _default_flow_strain(result):
     """A plastic strain most curves reach: the median of the curves' mid-range strains."""
     mids = [0.5 * (c.plastic_strain.min() + c.plastic_strain.max()) for c in result.curves]
@@ -1425,7 +1455,7 @@ def _default_flow_strain(result):
 
 def _figure(result, flow_strain):
     """Figure sheet: data + fit per rate, residuals, rate sensitivity, parameters."""
-    from matplotlib import colormaps, colors
+    from matplotlib import colormaps, colors, ticker
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(12, 9), layout="constrained")
@@ -1462,6 +1492,7 @@ def _figure(result, flow_strain):
             col = tmap(0.8 * tnorm(c.temperature))
             ax_rate.plot(c.strain_rate, np.interp(flow_strain, c.plastic_strain, c.stress) / 1e6, "o", color=col)
     ax_rate.set_xscale("log")
+    ax_rate.xaxis.set_minor_formatter(ticker.NullFormatter())  # minor labels collide on short spans
     ax_rate.set(xlabel="strain rate [1/s]", ylabel="true stress [MPa]",
                 title=f"rate sensitivity at plastic strain {flow_strain:.3g} (dots: data)")
     ax_rate.legend(fontsize=7)
@@ -1521,15 +1552,15 @@ def write_fit(result, out_dir, *, strain_rates=None, temperatures=None, plastic_
     out.mkdir(parents=True, exist_ok=True)
     paths = {"json": out / "fit_parameters.json", "toml": out / "fit_parameters.toml",
              "curves": out / "model_curves.csv", "data": out / "fit_data.csv"}
-    _atomic_write(paths["json"], (json.dumps(fit_to_dict(result), indent=2, ensure_ascii=False) + "\n").encode())
-    _atomic_write(paths["toml"], tomli_w.dumps(_toml_dict(result)).encode())
+    atomic_write_bytes(paths["json"], (json.dumps(fit_to_dict(result), indent=2, ensure_ascii=False) + "\n").encode())
+    atomic_write_bytes(paths["toml"], tomli_w.dumps(_toml_dict(result)).encode())
     table = tabulate(result, strain_rates, temperatures, plastic_strain)
-    _atomic_write(paths["curves"], table.to_csv(index=False, float_format="%.8g").encode())
-    _atomic_write(paths["data"], _residual_table(result).to_csv(index=False, float_format="%.8g").encode())
+    atomic_write_bytes(paths["curves"], table.to_csv(index=False, float_format="%.8g").encode())
+    atomic_write_bytes(paths["data"], _residual_table(result).to_csv(index=False, float_format="%.8g").encode())
     if figure:
         fs = _default_flow_strain(result) if flow_strain is None else float(flow_strain)
         paths["figure"] = out / "fit_sheet.png"
-        _atomic_write(paths["figure"], _figure(result, fs))
+        atomic_write_bytes(paths["figure"], _figure(result, fs))
     return paths
 
 

@@ -93,6 +93,8 @@ def _parse(text: str, dimension: str, si_unit: str, where: str) -> float:
         raise InputError(f"cannot read {text!r} as a {dimension} (e.g. '19.05 mm', '200 GPa')", where) from None
     if not isinstance(q, ureg.Quantity):  # plain number in a string
         return float(q)
+    if str(q.units) == "dimensionless":  # "1e-3" with no unit: SI, like a bare number
+        return float(q.magnitude)
     try:
         if si_unit == "":
             return float(q.to("dimensionless").magnitude)

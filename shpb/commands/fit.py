@@ -28,6 +28,8 @@ def register(app: typer.Typer) -> None:
         quasi_static: List[Path] = typer.Option(
             [], "--quasi-static", help="Reference curve CSV (header '# strain_rate = 0.001 1/s'); repeatable."),
         quasi_static_rate: Optional[str] = typer.Option(None, help="Rate for --quasi-static files without one."),
+        quasi_static_temperature: Optional[str] = typer.Option(
+            None, help="Temperature for --quasi-static files without one [default: room temperature]."),
         melt_temperature: Optional[str] = typer.Option(None, help="Melting temperature, e.g. '1356 K'."),
         room_temperature: str = typer.Option("293.15 K", help="Room temperature (Johnson-Cook T_r and the "
                                                                 "default for shots without a temperature)."),
@@ -54,9 +56,7 @@ def register(app: typer.Typer) -> None:
         mixed_materials: bool = typer.Option(False, help="Allow curves of different materials."),
         out: Optional[Path] = typer.Option(None, "--out", "-o", help="Output folder [default: fit-<model>]."),
     ):
-        """Fit a constitutive model to the valid part of every curve at once. Writes parameters
-        (JSON, TOML), model curves for simulation codes (CSV), fitted data with residuals and a
-        figure sheet."""
+        """Fit a constitutive model to the valid part of all curves at once; write parameters, model curves, figure."""
         import numpy as np
 
         from .. import fit as F
@@ -64,7 +64,8 @@ def register(app: typer.Typer) -> None:
 
         curves = F.load_curves(
             results, quasi_static=quasi_static, modulus=modulus, room_temperature=room_temperature,
-            quasi_static_rate=quasi_static_rate, grid_step=grid_step, include_invalid_shots=include_invalid,
+            quasi_static_rate=quasi_static_rate, quasi_static_temperature=quasi_static_temperature,
+            grid_step=grid_step, include_invalid_shots=include_invalid,
             allow_mixed_materials=mixed_materials,
         )
         if adiabatic:
