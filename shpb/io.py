@@ -20,6 +20,9 @@ import numpy as np
 
 from .errors import InputError
 
+_UMASK = os.umask(0)
+os.umask(_UMASK)
+
 TEXT_SUFFIXES = {".csv", ".txt", ".dat", ".tsv", ".asc", ".prn"}
 
 
@@ -277,6 +280,7 @@ def atomic_write_bytes(path, data: bytes) -> None:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes files private (0600); give the usual mode
         os.replace(tmp, path)
     except BaseException:
         try:

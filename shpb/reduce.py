@@ -184,7 +184,8 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
                                                   "baseline_samples": n_base}})
 
     # 2. windows --------------------------------------------------------------------------
-    ci, ct = bs.incident.wave_speed, bs.transmitted.wave_speed
+    bi, bt = bs.incident, bs.transmitted
+    ci, ct = bi.wave_speed, bt.wave_speed
     di, dtr = bs.incident_gauge.distance, bs.transmitted_gauge.distance
     if opt.window:
         duration, duration_source = opt.window, "given"
@@ -234,10 +235,12 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     if use_disp:
         from . import dispersion
 
-        if hasattr(dispersion, "dispersion_info"):
-            disp_info.update(dispersion.dispersion_info(bs.incident.radius, bs.incident.wave_speed,
-                                                        bs.incident.poisson_ratio,
-                                                        amplitude_factors=opt.amplitude_factors))
+        disp_info.update(dispersion.dispersion_info(bi.radius, ci, bi.poisson_ratio, dt=dt,
+                                                    amplitude_factors=opt.amplitude_factors))
+        disp_info["distances_m"] = {"incident": di, "reflected": -di, "transmitted": -dtr}
+        if (bt.radius, ct, bt.poisson_ratio) != (bi.radius, ci, bi.poisson_ratio):
+            disp_info["transmitted_bar"] = dispersion.dispersion_info(
+                bt.radius, ct, bt.poisson_ratio, dt=dt, amplitude_factors=opt.amplitude_factors)
         peak = max(np.max(np.abs(ei)), 1e-30)
         for k, (face, plain) in waves.items():
             disp_info[f"max_change_{k}_percent_of_incident_peak"] = float(100 * np.max(np.abs(face - plain)) / peak)
@@ -255,7 +258,6 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
 
     # 4. Kolsky analysis -----------------------------------------------------------------------
     tau = rec.time[0] + np.arange(k0, k1) * dt - t_face0
-    bi, bt = bs.incident, bs.transmitted
     f1, f2 = kolsky.face_forces(ei, er, et, bi.modulus, bi.area, bt.modulus, bt.area)
     v1, v2 = kolsky.face_velocities(ei, er, et, ci, ct)
     rate = kolsky.strain_rate(v1, v2, sp.length)

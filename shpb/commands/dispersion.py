@@ -1,0 +1,142 @@
+"""``shpb dispersion``: phase and group velocity of a bar against frequency.
+
+Thin: parse the bar (from a bar-set file or explicit options), call
+:func:`shpb.dispersion.dispersion_table`, print a table, optionally write a
+CSV and a PNG figure (both written atomically).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import numpy as np
+import pandas as pd
+import typer
+
+from .. import dispersion as _disp
+from ..errors import InputError
+from ..io import atomic_savefig, atomic_write_csv
+from ..units import to_si
+
+#: Rows of the CSV file and points of the figure.
+FILE_ROWS = 501
+
+
+_quantity = to_si  # an option string: "20 mm" or a bare SI number
+
+
+def _bar_from_options(barset, bar, diameter, poisson, wave_speed):
+    """Radius [m], Poisson ratio [1], wave speed [m/s]; explicit options win over the bar set."""
+    radius = nu = c0 = None
+    if barset is not None:
+        try:
+            from ..setup import load_barset
+        except ImportError:
+            raise InputError("reading bar-set files is not available in this version; "
+                             "give --diameter, --poisson and --wave-speed", "--barset") from None
+        rig = load_barset(barset)
+        if bar not in ("incident", "transmitted"):
+            raise InputError(f"expected 'incident' or 'transmitted', got {bar!r}", "--bar")
+        b = getattr(rig, bar)
+        radius, nu, c0 = 0.5 * b.diameter, b.poisson_ratio, b.wave_speed
+    if diameter is not None:
+        radius = 0.5 * _quantity(diameter, "length", "--diameter")
+    if poisson is not None:
+        nu = _quantity(poisson, "dimensionless", "--poisson")
+    if wave_speed is not None:
+        c0 = _quantity(wave_speed, "velocity", "--wave-speed")
+    missing = [name for name, v in (("--diameter", radius), ("--poisson", nu), ("--wave-speed", c0)) if v is None]
+    if missing:
+        raise InputError(f"missing {', '.join(missing)} (or give --barset FILE.toml)", "dispersion")
+    checks = (("diameter", 2.0 * radius, diameter, "--diameter", "m"),
+              ("wave_speed", c0, wave_speed, "--wave-speed", "m/s"))
+    for key, value, option_value, option, unit in checks:
+        if not value > 0.0:
+            where = option if option_value is not None else f"{barset}: {bar}.{key}"
+            raise InputError(f"expected a positive value, got {value:g} {unit}", where)
+    source = "--poisson" if poisson is not None else f"{barset}: {bar}.poisson_ratio"
+    if not 0.0 < nu < 0.5:
+        raise InputError(f"expected a Poisson ratio in (0, 0.5), got {nu:g}", source)
+    return radius, nu, c0
+
+
+def _columns(table):
+    return {
+        "frequency_kHz": table["frequency_Hz"] / 1e3,
+        "a_over_wavelength": table["a_over_wavelength"],
+        "phase_velocity_m_per_s": table["phase_velocity_m_per_s"],
+        "group_velocity_m_per_s": table["group_velocity_m_per_s"],
+    }
+
+
+def _write_csv(path, table):
+    atomic_write_csv(path, pd.DataFrame(_columns(table)), float_format="%.10g")
+
+
+def _write_plot(path, table, title, onset_Hz):
+    from matplotlib.figure import Figure  # no pyplot: no global state, Agg canvas
+
+    fig = Figure(figsize=(6.4, 4.2), layout="constrained")
+    ax = fig.add_subplot()
+    f_kHz = table["frequency_Hz"] / 1e3
+    ax.plot(f_kHz, table["phase_velocity_m_per_s"], label="phase velocity")
+    ax.plot(f_kHz, table["group_velocity_m_per_s"], label="group velocity")
+    if onset_Hz <= table["frequency_Hz"][-1]:
+        ax.axvline(onset_Hz / 1e3, color="0.5", ls=":", label="second mode onset")
+    ax.set_xlabel("frequency [kHz]")
+    ax.set_ylabel("velocity [m/s]")
+    ax.set_title(title, fontsize="medium")
+    ax.legend()
+    atomic_savefig(fig, path, dpi=120)
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``dispersion`` command to ``app``."""
+
+    @app.command("dispersion")
+    def dispersion_command(
+        barset: Optional[Path] = typer.Option(None, "--barset", help="Bar-set TOML file to take the bar from."),
+        bar: str = typer.Option("incident", "--bar", help="Which bar of the bar set: incident or transmitted."),
+        diameter: Optional[str] = typer.Option(None, "--diameter", help="Bar diameter, e.g. '20 mm'."),
+        poisson: Optional[str] = typer.Option(None, "--poisson", help="Poisson ratio of the bar, e.g. 0.29."),
+        wave_speed: Optional[str] = typer.Option(None, "--wave-speed",
+                                                 help="Bar wave speed c0, e.g. '5000 m/s' (measured if known)."),
+        max_frequency: Optional[str] = typer.Option(
+            None, "--max-frequency", help="Highest frequency, e.g. '300 kHz' (default: where a/wavelength = 1)."),
+        rows: int = typer.Option(21, "--rows", help="Rows of the printed table."),
+        csv: Optional[Path] = typer.Option(None, "--csv", help=f"Write a {FILE_ROWS}-row table to this CSV file."),
+        plot: Optional[Path] = typer.Option(None, "--plot", help="Write a figure to this PNG file."),
+    ):
+        """Pochhammer-Chree phase and group velocity of the fundamental mode against frequency."""
+        radius, nu, c0 = _bar_from_options(barset, bar, diameter, poisson, wave_speed)
+        curve = _disp.normalized_curve(nu)
+        if max_frequency is None:
+            fmax = float(np.interp(1.0, curve.a_over_lambda, curve.frequency)) * c0 / radius
+        else:
+            fmax = _quantity(max_frequency, "frequency", "--max-frequency")
+        ftop = curve.max_frequency * c0 / radius
+        if fmax > ftop:
+            raise InputError(f"{fmax / 1e3:g} kHz is above the tabulated range for this bar "
+                             f"({ftop / 1e3:.1f} kHz, a/wavelength = {curve.a_over_lambda[-1]:g})",
+                             "--max-frequency")
+        if rows < 2:
+            raise InputError(f"expected at least 2 rows, got {rows}", "--rows")
+        table = _disp.dispersion_table(radius, c0, nu, fmax, n=rows)
+        onset = _disp.second_mode_onset(radius, c0, nu)
+        typer.echo(f"# bar diameter {2e3 * radius:.3f} mm, wave speed {c0:.1f} m/s, Poisson ratio {nu:g}")
+        typer.echo(f"# fundamental longitudinal mode (Pochhammer-Chree); Rayleigh-speed limit "
+                   f"{curve.rayleigh_ratio * c0:.1f} m/s; second mode propagates from {onset / 1e3:.1f} kHz")
+        cols = _columns(table)
+        typer.echo("  ".join(f"{name:>22}" for name in cols))
+        for i in range(rows):
+            typer.echo("  ".join(f"{cols[name][i]:>22.6g}" for name in cols))
+        if csv is not None or plot is not None:
+            full = _disp.dispersion_table(radius, c0, nu, fmax, n=FILE_ROWS)
+            if csv is not None:
+                _write_csv(csv, full)
+                typer.echo(f"wrote {csv}")
+            if plot is not None:
+                title = f"bar d = {2e3 * radius:.2f} mm, c0 = {c0:.0f} m/s, ν = {nu:g}"
+                _write_plot(plot, full, title, onset)
+                typer.echo(f"wrote {plot}")
