@@ -1,19 +1,16 @@
 """Figures: the one-page sheet of a reduced shot.
 
 Plotting lives at the edge: it reads a :class:`shpb.reduce.ShotResult` and
-writes a PNG atomically. Matplotlib's non-interactive Agg backend is used so
-it runs on machines without a screen.
+writes a PNG atomically. Figures are built on ``matplotlib.figure.Figure``
+(not pyplot), so they need no screen and are safe in threaded workers.
 """
 
 from __future__ import annotations
 
-import matplotlib
+import numpy as np
+from matplotlib.figure import Figure  # no pyplot: no global state, thread-safe, no screen needed
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from .io import atomic_savefig  # noqa: E402
+from .io import atomic_savefig
 
 _SEVERITY_MARK = {"error": "ERROR", "warning": "warning", "info": "note"}
 
@@ -27,7 +24,7 @@ def shot_sheet(result, path):
     the valid part marked. Flags are listed at the foot of the sheet.
     """
     tr, c = result.traces, result.curves
-    fig = plt.figure(figsize=(11.7, 8.3), constrained_layout=True)
+    fig = Figure(figsize=(11.7, 8.3), layout="constrained")
     gs = fig.add_gridspec(3, 2)
     t_us = tr["time"] * 1e6
 
@@ -98,4 +95,3 @@ def shot_sheet(result, path):
     ax.text(0, 1, "\n".join(lines), va="top", family="monospace", fontsize=8)
     fig.suptitle(f"shpb — shot {result.name} (curves for design need independent validation)", fontsize=10)
     atomic_savefig(fig, path, dpi=110)
-    plt.close(fig)

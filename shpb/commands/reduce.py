@@ -13,9 +13,9 @@ def register(app: typer.Typer) -> None:
     def reduce_cmd(
         shot: Path = typer.Argument(..., help="Shot setup file (TOML)."),
         out: Optional[Path] = typer.Option(None, "--out", "-o",
-                                           help="Output folder [default: results/<shot name> beside the shot file]."),
+                                           help="Output folder (default: results/<shot name> beside the shot file)."),
         dispersion: Optional[bool] = typer.Option(None, "--dispersion/--no-dispersion",
-                                                  help="Pochhammer–Chree correction [default: the shot file's, on]."),
+                                                  help="Pochhammer–Chree correction (default: as the shot file says; on)."),
         stress: Optional[str] = typer.Option(None, help="Reported stress: 1-wave, 2-wave or 3-wave."),
         figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure sheet."),
     ):

@@ -1,0 +1,1290 @@
+"""Campaigns: many shots through the same reduction, in parallel and resumable.
+
+A campaign is a TOML file (name, the table of shots, the default bar set,
+``[record]``, ``[specimen]`` and ``[analysis]`` defaults, ``[output]``
+options) and a CSV table with one row per shot (``docs/campaigns.md``). Each
+row is turned into a :class:`shpb.setup.Shot` by :func:`shpb.setup.shot_from_dict`,
+so a campaign row means exactly what a shot file means.
+
+:func:`run_campaign` reduces every shot with :func:`shpb.reduce.reduce_shot`
+on a local process pool or on a Dask cluster, writes each shot's folder
+(``shots/<id>/``), then the campaign table, the failure list and overlay
+figures. It computes no physics itself: the only number it makes is the
+flow stress at chosen strains, a linear interpolation of the reduced curve.
+
+Nothing is lost and nothing is half written:
+
+* a shot that cannot be read or reduced is recorded with its stage and
+  reason, and the rest go on; a reduced shot with error flags is kept and
+  recorded as ``invalid`` with its flags as the reason;
+* only the coordinating process writes into the output folder, every file
+  atomically (temporary file, then rename), and each shot's key file
+  ``inputs.sha256`` last, so a folder with a matching key is complete;
+* SIGINT/SIGTERM stop the campaign between shots (the running ones finish,
+  unwritten results are dropped); a second signal stops at once;
+* a rerun skips shots whose key (SHA-256 of the record files, the resolved
+  setup and the package version) is unchanged.
+"""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import hashlib
+import io as _io
+import json
+import math
+import os
+import re
+import signal
+import tempfile
+import threading
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Iterable, Optional
+
+import numpy as np
+import pandas as pd
+
+from .errors import InputError, ShpbError
+from .io import atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
+from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
+                    shot_from_dict)
+from .units import to_si
+
+#: Files of a campaign output folder.
+SUMMARY_TABLE = "campaign_summary.csv"
+SUMMARY_PARQUET = "campaign_summary.parquet"
+FAILURES_TABLE = "failures.csv"
+REPEATABILITY_TABLE = "repeatability.csv"
+FIGURES_DIR = "figures"
+CAMPAIGN_FIGURES = ("stress_strain.png", "rate_sensitivity.png", "repeatability.png")
+SHOTS_DIR = "shots"
+#: Per-shot key file, written last: a folder whose key matches the inputs is complete.
+KEY_FILE = "inputs.sha256"
+#: Files a shot folder may hold (anything else there is left alone).
+_SHOT_FILES = ("curves.csv", "shot.png", "summary.json", KEY_FILE)
+
+#: Result statuses.
+OK, INVALID, FAILED = "ok", "invalid", "failed"
+
+#: Relative spread of strain rate within which shots count as repeats of one rate
+#: (a group spans at most this factor above its slowest shot). Common practice in
+#: reporting bar campaigns is to quote "nominal" rates; 15 % is our choice.
+RATE_GROUP_TOLERANCE = 0.15
+
+# --------------------------------------------------------------------------- the campaign description
+#: Columns of the shots table with a physical dimension: column -> (shot-dict path, dimension).
+_QUANTITY_COLUMNS = {
+    "specimen_length": (("specimen", "length"), "length"),
+    "specimen_diameter": (("specimen", "diameter"), "length"),
+    "specimen_modulus": (("specimen", "modulus"), "pressure"),
+    "specimen_density": (("specimen", "density"), "density"),
+    "temperature": (("specimen", "temperature"), "temperature"),
+    "sample_interval": (("record", "sample_interval"), "time"),
+    "equilibrium_threshold": (("analysis", "equilibrium_threshold"), "dimensionless"),
+    "yield_offset": (("analysis", "yield_offset"), "dimensionless"),
+    "incident_start": (("analysis", "incident_start"), "time"),
+    "window": (("analysis", "window"), "time"),
+    "pre_trigger": (("analysis", "pre_trigger"), "time"),
+}
+_BOOL_COLUMNS = {"dispersion": ("analysis", "dispersion"), "amplitude_factors": ("analysis", "amplitude_factors")}
+_TEXT_COLUMNS = {"material": ("specimen", "material"), "stress": ("analysis", "stress")}
+_FILE_COLUMNS = ("record", "record_incident", "record_transmitted", "barset")
+_KNOWN_COLUMNS = set(_QUANTITY_COLUMNS) | set(_BOOL_COLUMNS) | set(_TEXT_COLUMNS) | set(_FILE_COLUMNS) | {"id"}
+_TRUE = {"true", "yes", "on", "1"}
+_FALSE = {"false", "no", "off", "0"}
+_HEADER_UNIT = re.compile(r"^(.*?)\s*\[(.*)\]\s*$")
+_SPECIMEN_DEFAULTS = {"length": "length", "diameter": "length", "modulus": "pressure", "density": "density",
+                      "temperature": "temperature"}
+
+
+@dataclass(frozen=True)
+class CampaignRow:
+    """One row of the shots table.
+
+    Attributes
+    ----------
+    id : str
+        Shot id (also its output folder name).
+    line : int
+        Line of the row in the shots table (1 = header).
+    shot : Shot or None
+        The shot, or None when the row could not be built (see ``error``).
+    tags : dict
+        Free tag columns of the row: column header -> cell text.
+    error : str or None
+        Why the row could not be built (names the row and the column).
+    """
+
+    id: str
+    line: int
+    shot: Optional[Shot]
+    tags: dict = field(default_factory=dict)
+    error: Optional[str] = None
+
+
+@dataclass(frozen=True)
+class Campaign:
+    """A campaign: shared defaults and the shots built from the table.
+
+    Attributes
+    ----------
+    name : str
+    path : Path
+        The campaign TOML file; relative paths are taken from its folder.
+    shots_path : Path
+        The shots table (CSV).
+    rows : tuple of CampaignRow
+        In table order.
+    tag_columns : tuple of str
+        Free tag columns, in table order.
+    flow_strains : tuple of float
+        Engineering strains [1] at which the flow stress is reported.
+    rate_plot_strain : float
+        Strain [1] of the rate-sensitivity and repeatability figures.
+    rate_group_tolerance : float
+        Relative rate spread [1] within which shots are repeats of one rate.
+    """
+
+    name: str
+    path: Path
+    shots_path: Path
+    rows: tuple
+    tag_columns: tuple = ()
+    flow_strains: tuple = (0.05,)
+    rate_plot_strain: float = 0.05
+    rate_group_tolerance: float = RATE_GROUP_TOLERANCE
+
+    @property
+    def base_dir(self) -> Path:
+        """Folder of the campaign file."""
+        return self.path.parent
+
+    @property
+    def default_out(self) -> Path:
+        """Default output folder: ``results/<campaign name>`` beside the campaign file."""
+        return self.base_dir / "results" / _slug(self.name)
+
+    @property
+    def row_errors(self) -> list:
+        """Rows that could not be built, as ``(id, line, message)``."""
+        return [(r.id, r.line, r.error) for r in self.rows if r.error]
+
+
+def _slug(text: str) -> str:
+    """A folder name from free text: runs of characters other than letters, digits, ``._-`` become ``-``."""
+    s = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-.")
+    return s or "campaign"
+
+
+def _check_id(shot_id: str, where: str) -> None:
+    if not shot_id:
+        raise InputError("empty shot id", where)
+    if shot_id.startswith(".") or any(c in shot_id for c in '/\\:*?"<>|') or any(ord(c) < 32 for c in shot_id):
+        raise InputError(f"shot id {shot_id!r} cannot be a folder name (no leading dot, no / \\ : * ? \" < > |)",
+                         where)
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+        return True
+    except ValueError:
+        return False
+
+
+def _quantity_cell(text: str, unit: Optional[str], dimension: str, where: str) -> float:
+    """A cell of a quantity column -> SI float; the header unit applies to bare numbers."""
+    if unit:
+        if not _is_number(text):
+            raise InputError(f"expected a number in {unit} (the unit is in the header), got {text!r}", where)
+        return to_si(f"{text} {unit}", dimension, where)
+    if _is_number(text):  # a bare number is SI, as everywhere in shpb
+        return to_si(float(text), dimension, where)
+    return to_si(text, dimension, where)
+
+
+def _set(d: dict, path: tuple, value) -> None:
+    d.setdefault(path[0], {})[path[1]] = value
+
+
+def _read_shots_table(path: Path):
+    """Header (name, unit) pairs and data rows ``(line, cells)`` of the shots CSV."""
+    if not path.is_file():
+        raise InputError("file not found (the shots table)", str(path))
+    try:
+        text = path.read_text(encoding="utf-8-sig")  # a BOM from spreadsheet exports is dropped
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", str(path)) from None
+    reader = csv.reader(_io.StringIO(text))
+    header, rows = None, []
+    for cells in reader:
+        if not any(c.strip() for c in cells) or cells[0].strip().startswith("#"):
+            continue
+        if header is None:
+            header = [c.strip() for c in cells]
+            header_line = reader.line_num
+            continue
+        rows.append((reader.line_num, [c.strip() for c in cells]))
+    if header is None:
+        raise InputError("no header row (expected columns id, record, specimen_length, specimen_diameter, ...)",
+                         str(path))
+    cols = []
+    for h in header:
+        m = _HEADER_UNIT.match(h)
+        name, unit = (m.group(1).strip(), m.group(2).strip()) if m else (h, None)
+        cols.append((name, unit, h))
+    names = [c[0] for c in cols]
+    for name in set(names):
+        if names.count(name) > 1:
+            raise InputError(f"column {name!r} appears {names.count(name)} times", f"{path} line {header_line}")
+    return cols, rows, header_line
+
+
+def _row_dict(cols, cells, where_row: str, barsets: Callable[[str, str], BarSet], record_defaults: dict,
+              specimen_defaults: dict):
+    """The shot mapping for :func:`shot_from_dict` from one row, its bar set and its tags."""
+    data = {"specimen": dict(specimen_defaults), "record": dict(record_defaults)}
+    tags, files, barset_cell = {}, {}, None
+    for (name, unit, header), text in zip(cols, cells):
+        where = f"{where_row}, column {header!r}"
+        if name == "id":
+            continue
+        if name not in _KNOWN_COLUMNS:
+            tags[header] = text
+            continue
+        if unit and name not in _QUANTITY_COLUMNS:
+            raise InputError(f"column {name!r} takes no unit in its header", where)
+        if text == "":
+            continue  # empty cell: the campaign default
+        if name in _QUANTITY_COLUMNS:
+            path, dim = _QUANTITY_COLUMNS[name]
+            _set(data, path, _quantity_cell(text, unit, dim, where))
+        elif name in _BOOL_COLUMNS:
+            low = text.lower()
+            if low not in _TRUE | _FALSE:
+                raise InputError(f"expected true or false, got {text!r}", where)
+            _set(data, _BOOL_COLUMNS[name], low in _TRUE)
+        elif name in _TEXT_COLUMNS:
+            _set(data, _TEXT_COLUMNS[name], text)
+        elif name == "barset":
+            barset_cell = (text, where)
+        else:
+            files[name] = text
+    rec = data["record"]
+    if "record" in files:
+        if "record_incident" in files or "record_transmitted" in files:
+            raise InputError("give either 'record' (one file) or 'record_incident' and 'record_transmitted'",
+                             where_row)
+        rec["file"] = files["record"]
+    elif "record_incident" in files and "record_transmitted" in files:
+        rec.pop("file", None)
+        for ch in ("incident", "transmitted"):
+            column = rec.get(ch)
+            if isinstance(column, dict):
+                column = column.get("column")
+            if column is None:
+                raise InputError(f"no {ch} column in the campaign's [record] table", where_row)
+            rec[ch] = {"file": files[f"record_{ch}"], "column": column}
+    elif "file" not in rec:
+        raise InputError("empty 'record' cell (the record file of the shot)", where_row)
+    barset = barsets(*barset_cell) if barset_cell else barsets(None, where_row)
+    if not data.get("analysis"):
+        data.pop("analysis", None)
+    return data, barset, tags
+
+
+def load_campaign(path, strict: bool = False) -> Campaign:
+    """Load a campaign TOML file and build every row of its shots table into a shot.
+
+    Parameters
+    ----------
+    path : str or Path
+        The campaign TOML file (see ``docs/campaigns.md``).
+    strict : bool
+        Raise on the first row that cannot be built instead of keeping it as
+        a failed row (``CampaignRow.error``).
+
+    Returns
+    -------
+    Campaign
+
+    Raises
+    ------
+    InputError
+        A campaign-level problem: the campaign file, its default bar set or
+        the shots table is missing or malformed, a required column is
+        missing, shot ids repeat. Row problems raise only when ``strict``.
+    """
+    path = Path(path)
+    data = read_toml(path)
+    src = str(path)  # messages name the file as the user gave it
+    path = path.absolute()  # shots carry absolute paths: workers may run elsewhere
+    allowed = {"name", "shots", "barset", "tags", "record", "specimen", "analysis", "output"}
+    for key in data:
+        if key not in allowed:
+            raise InputError(f"unknown key {key!r} (expected one of: {', '.join(sorted(allowed))})", src)
+    base = path.parent
+    if not isinstance(data.get("shots"), str):
+        raise InputError("missing key 'shots' (path of the shots table, CSV)", src)
+    name = str(data.get("name", path.stem))
+    for key in ("record", "specimen", "analysis", "output"):
+        if key in data and not isinstance(data[key], dict):
+            raise InputError("expected a table", f"{src}: {key}")
+    analysis_base = analysis_from_dict(data.get("analysis", {}), f"{src}: analysis", AnalysisOptions())
+    record_defaults = dict(data.get("record", {}))
+    specimen_defaults = {}
+    for key, val in data.get("specimen", {}).items():
+        where = f"{src}: specimen.{key}"
+        if key == "material":
+            specimen_defaults[key] = str(val)
+        elif key in _SPECIMEN_DEFAULTS:
+            specimen_defaults[key] = to_si(val, _SPECIMEN_DEFAULTS[key], where)
+        else:
+            raise InputError(f"unknown key (expected one of: material, {', '.join(_SPECIMEN_DEFAULTS)})", where)
+    flow_strains, plot_strain, tol = _output_options(data.get("output", {}), f"{src}: output")
+
+    # bar sets: the default once, each override once
+    cache: dict = {}
+    default_bs = None
+    if "barset" in data:
+        if not isinstance(data["barset"], str):
+            raise InputError("expected a path", f"{src}: barset")
+        default_bs = load_barset(base / data["barset"])
+
+    def barsets(cell: Optional[str], where: str) -> BarSet:
+        if cell is None:
+            if default_bs is None:
+                raise InputError("no bar set: give 'barset' in the campaign file or a 'barset' column", where)
+            return default_bs
+        p = (base / cell).resolve()
+        if p not in cache:
+            try:
+                cache[p] = load_barset(p)
+            except InputError as exc:
+                cache[p] = exc
+        if isinstance(cache[p], InputError):
+            raise InputError(f"bar set {cell!r}: {cache[p]}", where)
+        return cache[p]
+
+    shots_path = base / data["shots"]
+    cols, raw_rows, header_line = _read_shots_table(shots_path)
+    names = [c[0] for c in cols]
+    where_header = f"{shots_path.name} line {header_line}"
+    for required in ("id", "specimen_length", "specimen_diameter"):
+        if required not in names and not (required != "id" and required.split("_", 1)[1] in specimen_defaults):
+            raise InputError(f"missing column {required!r}", where_header)
+    if "record" not in names and not {"record_incident", "record_transmitted"} <= set(names) \
+            and "file" not in record_defaults:
+        raise InputError("missing column 'record' (or 'record_incident' and 'record_transmitted')", where_header)
+    declared_tags = data.get("tags")
+    tag_columns = tuple(h for n, _, h in cols if n not in _KNOWN_COLUMNS)
+    if declared_tags is not None:
+        if not isinstance(declared_tags, list) or not all(isinstance(t, str) for t in declared_tags):
+            raise InputError("expected a list of column names", f"{src}: tags")
+        extra = [h for h in tag_columns if h not in declared_tags]
+        if extra:  # with declared tags, an unknown column is a typo, not a tag
+            raise InputError(f"unknown column {extra[0]!r} (not a shot column and not in the campaign's tags "
+                             f"list)", where_header)
+    id_index = names.index("id")
+    rows, seen = [], {}
+    for line, cells in raw_rows:
+        if len(cells) > len(cols) and any(cells[len(cols):]):
+            err = InputError(f"{len(cells)} cells but {len(cols)} columns in the header", f"{shots_path.name} "
+                             f"line {line}")
+            if strict:
+                raise err
+            rows.append(CampaignRow(id=f"line-{line}", line=line, shot=None, error=str(err)))
+            continue
+        cells = cells + [""] * (len(cols) - len(cells))
+        shot_id = cells[id_index]
+        where_row = f"{shots_path.name} line {line} (shot {shot_id or '?'})"
+        try:
+            _check_id(shot_id, f"{where_row}, column 'id'")
+            key = shot_id.casefold()  # case-insensitive: folders must not collide on any file system
+            if key in seen:
+                raise InputError(f"shot id {shot_id!r} repeats line {seen[key]}", f"{shots_path.name} line {line}")
+            seen[key] = line
+        except InputError:
+            if strict or shot_id:
+                raise  # a campaign cannot hold two shots with one folder
+            rows.append(CampaignRow(id=f"line-{line}", line=line, shot=None,
+                                    error=f"{shots_path.name} line {line}, column 'id': empty shot id"))
+            continue
+        tags = {}
+        try:
+            shot_data, barset, tags = _row_dict(cols, cells, where_row, barsets, record_defaults, specimen_defaults)
+            shot_data["name"] = shot_id
+            shot = shot_from_dict(shot_data, base, where_row, barset=barset, analysis_base=analysis_base)
+        except InputError as exc:
+            if strict:
+                raise InputError(_name_column(str(exc), where_row, cols)) from None
+            tags = tags or {h: c for (n, _, h), c in zip(cols, cells) if n not in _KNOWN_COLUMNS}
+            rows.append(CampaignRow(id=shot_id, line=line, shot=None, tags=tags,
+                                    error=_name_column(str(exc), where_row, cols)))
+            continue
+        rows.append(CampaignRow(id=shot_id, line=line, shot=shot, tags=tags))
+    if not rows:
+        raise InputError("no shots (the table has a header but no rows)", str(shots_path))
+    return Campaign(name=name, path=path, shots_path=shots_path, rows=tuple(rows), tag_columns=tag_columns,
+                    flow_strains=flow_strains, rate_plot_strain=plot_strain, rate_group_tolerance=tol)
+
+
+def _name_column(message: str, where_row: str, cols) -> str:
+    """Say which table column a key in a shot-file message came from (``specimen.diameter`` -> the column)."""
+    for name, _, header in cols:
+        path = (_QUANTITY_COLUMNS.get(name, (None,))[0] or _BOOL_COLUMNS.get(name) or _TEXT_COLUMNS.get(name))
+        if path:
+            message = message.replace(f"{where_row}: {path[0]}.{path[1]}:", f"{where_row}, column {header!r}:")
+    return message
+
+
+def _output_options(out: dict, where: str):
+    allowed = {"flow_strains", "rate_plot_strain", "rate_group_tolerance"}
+    for key in out:
+        if key not in allowed:
+            raise InputError(f"unknown key {key!r} (expected one of: {', '.join(sorted(allowed))})", where)
+    raw = out.get("flow_strains", [0.05])
+    if not isinstance(raw, list) or not raw:
+        raise InputError("expected a list of strains, e.g. [0.02, 0.05, 0.1]", f"{where}.flow_strains")
+    strains = tuple(to_si(v, "dimensionless", f"{where}.flow_strains") for v in raw)
+    if any(not 0 < s < 1 for s in strains):
+        raise InputError(f"expected engineering strains between 0 and 1, got {raw}", f"{where}.flow_strains")
+    plot = to_si(out.get("rate_plot_strain", strains[0]), "dimensionless", f"{where}.rate_plot_strain")
+    if plot not in strains:
+        strains = strains + (plot,)
+    tol = to_si(out.get("rate_group_tolerance", RATE_GROUP_TOLERANCE), "dimensionless",
+                f"{where}.rate_group_tolerance")
+    if not 0 < tol < 1:
+        raise InputError(f"expected a fraction between 0 and 1, got {tol}", f"{where}.rate_group_tolerance")
+    return strains, plot, tol
+
+
+# --------------------------------------------------------------------------- numbers for the table
+def flow_stress_at(strain, stress, valid, at: float) -> float:
+    """Flow stress at a given strain, interpolated linearly on the valid part of a curve.
+
+    Parameters
+    ----------
+    strain : array_like
+        Engineering strain [1].
+    stress : array_like
+        Engineering stress (any unit; the result has the same one).
+    valid : array_like of bool
+        Samples inside the valid (equilibrium, loading) part.
+    at : float
+        Strain [1] at which to read the stress.
+
+    Returns
+    -------
+    float
+        The stress at ``at``; NaN when ``at`` is outside the strain range of
+        the valid part (no extrapolation).
+    """
+    strain = np.asarray(strain, dtype=float)
+    stress = np.asarray(stress, dtype=float)
+    v = np.asarray(valid, dtype=bool) & np.isfinite(strain) & np.isfinite(stress)
+    if not v.any():
+        return float("nan")
+    x, y = strain[v], stress[v]
+    if not x.min() <= at <= x.max():
+        return float("nan")
+    order = np.argsort(x, kind="stable")  # strain rises while loading; sorting guards a noisy wobble
+    return float(np.interp(at, x[order], y[order]))
+
+
+def rate_groups(rates, tolerance: float = RATE_GROUP_TOLERANCE) -> np.ndarray:
+    """Group strain rates into repeats of one nominal rate.
+
+    Sorted rates are scanned from the slowest; a group takes every rate at
+    most ``(1 + tolerance)`` times its slowest member.
+
+    Parameters
+    ----------
+    rates : array_like
+        Strain rates [1/s]; NaN rates get group -1.
+    tolerance : float
+        Relative spread allowed in one group [1].
+
+    Returns
+    -------
+    ndarray of int
+        Group number of each rate (0 = slowest group).
+    """
+    rates = np.asarray(rates, dtype=float)
+    out = np.full(rates.shape, -1, dtype=int)
+    ok = np.flatnonzero(np.isfinite(rates))
+    group, lo = -1, None
+    for i in ok[np.argsort(rates[ok], kind="stable")]:
+        if lo is None or rates[i] > lo * (1 + tolerance):
+            group, lo = group + 1, rates[i]
+        out[i] = group
+    return out
+
+
+def _flow_column(strain: float) -> str:
+    return f"flow_stress_MPa_at_{strain:g}"
+
+
+def shot_row(summary: dict, curves: pd.DataFrame, flow_strains: Iterable[float]) -> dict:
+    """The campaign-table fields of one reduced shot, from its summary and curves.
+
+    Parameters
+    ----------
+    summary : dict
+        The shot's ``summary.json`` content.
+    curves : pandas.DataFrame
+        The shot's ``curves.csv`` (columns ``strain``, ``stress_MPa``, ``valid``).
+    flow_strains : iterable of float
+        Strains [1] for the ``flow_stress_MPa_at_<strain>`` columns.
+    """
+    r = summary.get("results", {})
+    inputs = summary.get("inputs", {})
+    sp = inputs.get("specimen", {})
+    cal = (inputs.get("barset") or {}).get("calibration") or {}
+
+    def num(key):
+        v = r.get(key)
+        return float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) else float("nan")
+
+    row = {
+        "material": sp.get("material", ""),
+        "temperature_K": sp.get("temperature_K") if sp.get("temperature_K") is not None else float("nan"),
+        "specimen_length_mm": sp["length_m"] * 1e3 if "length_m" in sp else float("nan"),
+        "specimen_diameter_mm": sp["diameter_m"] * 1e3 if "diameter_m" in sp else float("nan"),
+        "mean_strain_rate_per_s": num("mean_strain_rate_per_s"),
+        "strain_rate_cv": num("strain_rate_cv"),
+        "peak_stress_MPa": num("peak_stress_MPa"),
+    }
+    strain, stress, valid = (curves[c].to_numpy() for c in ("strain", "stress_MPa", "valid"))
+    for e in flow_strains:
+        row[_flow_column(e)] = flow_stress_at(strain, stress, valid.astype(bool), e)
+    row.update({
+        "yield_strain": num("yield_strain"),
+        "yield_stress_MPa": num("yield_stress_MPa"),
+        "valid_fraction_of_loading": num("valid_fraction_of_loading"),
+        "equilibrium_from_strain": num("equilibrium_from_strain"),
+        "max_strain": num("max_strain"),
+        "flags": ";".join(f["code"] for f in summary.get("flags", [])),
+        "valid": bool(summary.get("valid", False)),
+        "calibration": json.dumps(cal, sort_keys=True, separators=(",", ":")) if cal else "",
+    })
+    return row
+
+
+#: Columns of curves.csv the campaign table and overlays read.
+_ROW_COLUMNS = ("strain", "stress_MPa", "valid")
+
+
+def _overlay_curve(curves: pd.DataFrame, max_points: int = 400):
+    """The valid part of a curve, thinned for overlay figures: (strain [1], stress [MPa])."""
+    v = curves["valid"].to_numpy().astype(bool)
+    x, y = curves["strain"].to_numpy()[v], curves["stress_MPa"].to_numpy()[v]
+    step = max(1, int(math.ceil(x.size / max_points)))
+    return x[::step], y[::step]
+
+
+# --------------------------------------------------------------------------- the key of a shot's inputs
+def _package_version() -> str:
+    import shpb
+
+    return shpb.__version__
+
+
+def _plain(obj, base_dir: Path):
+    """Dataclasses, paths and tuples as JSON-ready values; paths relative to ``base_dir``."""
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {f.name: _plain(getattr(obj, f.name), base_dir) for f in dataclasses.fields(obj)
+                if f.name != "source"}  # where the setup was read from does not change the result
+    if isinstance(obj, dict):
+        return {str(k): _plain(v, base_dir) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_plain(v, base_dir) for v in obj]
+    if isinstance(obj, Path):
+        return _rel(obj, base_dir)
+    return obj
+
+
+def _rel(path, base_dir: Path) -> str:
+    try:
+        return Path(os.path.relpath(Path(path), base_dir)).as_posix()
+    except ValueError:  # another drive (Windows)
+        return Path(path).as_posix()
+
+
+def record_files(shot: Shot) -> list:
+    """The record files a shot reads (one, or one per channel)."""
+    return sorted({shot.record.incident.file, shot.record.transmitted.file}, key=str)
+
+
+def shot_key(shot: Shot, record_hashes: dict, base_dir) -> str:
+    """SHA-256 over what a shot's result depends on.
+
+    Parameters
+    ----------
+    shot : Shot
+        The resolved setup (bar set, specimen, record mapping, analysis).
+    record_hashes : dict
+        Record file path -> SHA-256 of its content.
+    base_dir : str or Path
+        Campaign folder; paths enter the key relative to it, so a moved
+        campaign folder keeps its keys.
+
+    Returns
+    -------
+    str
+        Hex digest. It changes with any record byte, any setup value and the
+        package version.
+    """
+    base_dir = Path(base_dir)
+    payload = {
+        "package_version": _package_version(),
+        "setup": _plain(shot, base_dir),
+        "records": {_rel(p, base_dir): h for p, h in sorted(record_hashes.items())},
+    }
+    text = json.dumps(payload, sort_keys=True, separators=(",", ":"), default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+# --------------------------------------------------------------------------- one shot (runs on a worker)
+def _scratch_dir() -> Optional[str]:
+    """A memory-backed folder for a worker's private copy of a result (fsync costs nothing there)."""
+    shm = "/dev/shm"
+    return shm if os.path.isdir(shm) and os.access(shm, os.W_OK) else None
+
+
+def _failed(shot_id, stage, reason):
+    return {"id": shot_id, "status": FAILED, "stage": stage, "reason": reason, "files": {}, "key": None,
+            "row": None, "curve": None}
+
+
+def _one_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    msg = text[0] if text else ""
+    if isinstance(exc, ShpbError):
+        return msg
+    return f"unexpected {type(exc).__name__}: {msg}"  # a bug, but the campaign goes on
+
+
+def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple) -> dict:
+    """Reduce one shot and return its output files as bytes, never raising.
+
+    The same function runs in a local process pool, in the coordinating
+    process (``jobs=1``) and on Dask workers, so every path gives the same
+    bytes. The result folder is written by :meth:`shpb.reduce.ShotResult.write`
+    into a private temporary folder and read back, so a campaign's files are
+    exactly those of ``shpb reduce``.
+
+    Returns
+    -------
+    dict
+        ``id``, ``status`` (ok / invalid / failed), ``stage`` (read, reduce,
+        write, validity or empty), ``reason``, ``files`` (name -> bytes),
+        ``key`` (see :func:`shot_key`), ``row`` (see :func:`shot_row`),
+        ``curve`` (valid part for overlays).
+    """
+    global _in_task
+    _in_task = True
+    try:
+        return _reduce_task(shot, figures, base_dir, flow_strains)
+    finally:
+        _in_task = False
+
+
+def _reduce_task(shot, figures, base_dir, flow_strains):
+    from .io import read_record
+    from .reduce import CURVES_FILE, SUMMARY_FILE, reduce_shot
+
+    try:
+        rec = read_record(shot.record)
+    except (ShpbError, OSError, ValueError) as exc:
+        return _failed(shot.name, "read", _one_line(exc))
+    except Exception as exc:  # noqa: BLE001 - nothing lost: any failure is recorded
+        return _failed(shot.name, "read", _one_line(exc))
+    key = shot_key(shot, rec.files, base_dir)
+    try:
+        result = reduce_shot(shot, rec)
+    except Exception as exc:  # noqa: BLE001
+        return _failed(shot.name, "reduce", _one_line(exc))
+    try:
+        with tempfile.TemporaryDirectory(prefix="shpb-shot-", dir=_scratch_dir()) as tmp:
+            result.write(tmp, figure=figures)  # the figure sheet uses no pyplot: thread-safe
+            files = {p.name: p.read_bytes() for p in Path(tmp).iterdir() if p.name in _SHOT_FILES}
+        # the table row is made from the written bytes, exactly as a rerun reads them back from disk
+        summary = json.loads(files[SUMMARY_FILE])
+        curves = pd.read_csv(_io.BytesIO(files[CURVES_FILE]), usecols=list(_ROW_COLUMNS))
+        row = shot_row(summary, curves, flow_strains)
+        curve = _overlay_curve(curves)
+    except Exception as exc:  # noqa: BLE001
+        return _failed(shot.name, "write", _one_line(exc))
+    errors = [f for f in result.flags if f.severity == "error"]
+    status = OK if result.valid else INVALID
+    reason = "; ".join(f"{f.code}: {f.message}" for f in errors)
+    return {"id": shot.name, "status": status, "stage": "validity" if errors else "", "reason": reason,
+            "files": files, "key": key, "row": row, "curve": curve}
+
+
+class _WorkerTerminated(ShpbError):
+    """A pool worker got SIGTERM during a shot: the shot stops (its temporary folder is cleaned) and fails."""
+
+
+_in_task = False  # True while a pool worker is inside reduce_task
+
+
+def _worker_terminated(signum, frame):
+    if _in_task:
+        raise _WorkerTerminated("the worker process was terminated during this shot")
+    os._exit(128 + signum)  # idle: nothing to clean up
+
+
+def _worker_init():
+    """Pool workers leave Ctrl-C to the coordinator (it stops the campaign between shots)."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, _worker_terminated)
+
+
+# --------------------------------------------------------------------------- the campaign run
+@dataclass
+class ShotOutcome:
+    """What happened to one shot of a campaign run.
+
+    Attributes
+    ----------
+    id : str
+    line : int
+        Line in the shots table.
+    status : str
+        ``ok`` (reduced, valid), ``invalid`` (reduced, error flags) or
+        ``failed`` (no result).
+    stage : str
+        Where a failure happened: ``setup`` (the row), ``read`` (the
+        record), ``reduce``, ``write``; ``validity`` for invalid shots.
+    reason : str
+        One line (the error, or the error flags).
+    skipped : bool
+        True when the shot's outputs were up to date and were kept.
+    """
+
+    id: str
+    line: int
+    status: str
+    stage: str = ""
+    reason: str = ""
+    skipped: bool = False
+
+
+@dataclass
+class CampaignReport:
+    """The result of :func:`run_campaign`.
+
+    Attributes
+    ----------
+    campaign : Campaign
+    out_dir : Path
+    outcomes : list of ShotOutcome
+        In table order.
+    table : pandas.DataFrame
+        The campaign summary table (also written as CSV).
+    files : dict
+        Campaign-level output name -> path.
+    """
+
+    campaign: Campaign
+    out_dir: Path
+    outcomes: list
+    table: pd.DataFrame
+    files: dict = field(default_factory=dict)
+
+    def _ids(self, pred):
+        return [o.id for o in self.outcomes if pred(o)]
+
+    @property
+    def ok(self) -> list:
+        """Ids of valid shots."""
+        return self._ids(lambda o: o.status == OK)
+
+    @property
+    def invalid(self) -> list:
+        """Ids of reduced shots with error flags."""
+        return self._ids(lambda o: o.status == INVALID)
+
+    @property
+    def failed(self) -> list:
+        """Ids of shots without a result."""
+        return self._ids(lambda o: o.status == FAILED)
+
+    @property
+    def skipped(self) -> list:
+        """Ids of shots whose up-to-date outputs were kept."""
+        return self._ids(lambda o: o.skipped)
+
+    @property
+    def redone(self) -> list:
+        """Ids of shots reduced (or attempted) in this run."""
+        return self._ids(lambda o: not o.skipped)
+
+    @property
+    def exit_code(self) -> int:
+        """0 when every shot is valid, else 1."""
+        return 0 if all(o.status == OK for o in self.outcomes) else 1
+
+
+class _StopFlag:
+    """SIGINT/SIGTERM -> stop between shots; a second signal stops at once."""
+
+    def __init__(self):
+        self.set = False
+        self._old = {}
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread():
+            for sig in (signal.SIGINT, signal.SIGTERM):
+                self._old[sig] = signal.signal(sig, self._handler)
+        return self
+
+    def _handler(self, signum, frame):
+        if self.set:
+            raise KeyboardInterrupt
+        self.set = True
+
+    def __exit__(self, *exc):
+        for sig, old in self._old.items():
+            signal.signal(sig, old)
+        return False
+
+    def check(self):
+        if self.set:
+            raise KeyboardInterrupt("campaign interrupted")
+
+
+def _remove_temporaries(out: Path) -> None:
+    """Remove temporary files of an earlier run that was killed outright (SIGKILL, power loss)."""
+    if not out.is_dir():
+        return
+    for p in out.rglob(".*.tmp"):
+        try:
+            p.unlink()
+        except OSError:
+            pass
+
+
+def _stored_key(folder: Path, figures: bool) -> Optional[str]:
+    """The key of a complete shot folder, or None when the folder is not complete."""
+    need = ["curves.csv", "summary.json", KEY_FILE] + (["shot.png"] if figures else [])
+    if not all((folder / f).is_file() for f in need):
+        return None
+    return (folder / KEY_FILE).read_text().strip() or None
+
+
+def _current_key(shot: Shot, base_dir: Path) -> Optional[str]:
+    try:
+        hashes = {str(f): sha256_file(f) for f in record_files(shot)}
+    except OSError:
+        return None  # a record is gone: the shot is redone (and fails there with the reader's message)
+    return shot_key(shot, hashes, base_dir)
+
+
+def _store(folder: Path, res: dict) -> None:
+    """Write one shot's folder: the key goes first (removed) and last (written)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    key = folder / KEY_FILE
+    if key.exists():
+        key.unlink()  # from here the folder is "being redone" until the new key is in place
+    for name in _SHOT_FILES:
+        if name not in res["files"] and name != KEY_FILE and (folder / name).exists():
+            (folder / name).unlink()  # e.g. an old figure that no longer matches
+    for name in ("curves.csv", "shot.png", "summary.json"):  # summary.json last, as ShotResult.write
+        if name in res["files"]:
+            atomic_write_bytes(folder / name, res["files"][name])
+    atomic_write_text(key, res["key"] + "\n")
+
+
+def _discard(folder: Path) -> None:
+    """Remove a shot folder of ours whose result no longer stands (the shot now fails)."""
+    if folder.is_dir():
+        if (folder / KEY_FILE).exists():
+            (folder / KEY_FILE).unlink()
+        for name in _SHOT_FILES:
+            if (folder / name).exists():
+                (folder / name).unlink()
+        try:
+            folder.rmdir()
+        except OSError:
+            pass  # the user put other files there: leave them
+
+
+def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: _StopFlag):
+    """Yield task results as they complete, from a process pool (or in this process when jobs = 1)."""
+    if jobs <= 1 or len(tasks) <= 1:
+        for shot in tasks:
+            stop.check()
+            yield reduce_task(shot, figures, base_dir, flow_strains)
+        return
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+    from concurrent.futures.process import BrokenProcessPool
+
+    ex = ProcessPoolExecutor(max_workers=min(jobs, len(tasks)), initializer=_worker_init)
+    try:
+        pending = {ex.submit(reduce_task, shot, figures, base_dir, flow_strains): shot for shot in tasks}
+        while pending:
+            stop.check()
+            done, _ = wait(pending, timeout=0.2, return_when=FIRST_COMPLETED)
+            for fut in done:
+                shot = pending.pop(fut)
+                try:
+                    yield fut.result()
+                except BrokenProcessPool as exc:
+                    yield _failed(shot.name, "reduce", f"the worker process died ({exc})")
+    finally:
+        ex.shutdown(wait=True, cancel_futures=True)
+
+
+def _dask_client(scheduler):
+    try:
+        from dask.distributed import Client
+    except ImportError:
+        raise InputError("a scheduler address needs Dask: pip install 'dask[distributed]' (or 'shpb[cluster]')",
+                         "--scheduler") from None
+    if isinstance(scheduler, Client):
+        return scheduler, False
+    try:
+        return Client(str(scheduler), timeout="20s"), True
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise InputError(f"cannot connect to the Dask scheduler ({type(exc).__name__}: {exc})",
+                         str(scheduler)) from None
+
+
+def _dask_results(tasks, client, figures, base_dir, flow_strains, stop: _StopFlag):
+    """Yield task results from an existing Dask cluster (same task function as the local pool)."""
+    from dask.distributed import as_completed
+
+    futures = {}
+    try:
+        for shot in tasks:
+            fut = client.submit(reduce_task, shot, figures, str(base_dir), flow_strains, pure=False,
+                                key=f"shpb-shot-{shot.name}-{os.urandom(6).hex()}")
+            futures[fut] = shot
+        for fut in as_completed(list(futures)):
+            stop.check()
+            shot = futures.pop(fut)
+            try:
+                yield fut.result()
+            except Exception as exc:  # noqa: BLE001 - e.g. a worker lost: recorded, the rest go on
+                yield _failed(shot.name, "reduce", f"the Dask task failed: {_one_line(exc)}")
+    finally:
+        if futures:
+            client.cancel(list(futures))
+
+
+def run_campaign(campaign: Campaign, out_dir=None, jobs: Optional[int] = None, force: bool = False,
+                 scheduler: Any = None, figures: bool = True,
+                 progress: Optional[Callable[[int, int, ShotOutcome], None]] = None) -> CampaignReport:
+    """Reduce every shot of a campaign and write the campaign outputs.
+
+    Parameters
+    ----------
+    campaign : Campaign
+        From :func:`load_campaign`.
+    out_dir : str or Path, optional
+        Output folder [default: ``campaign.default_out``].
+    jobs : int, optional
+        Local worker processes [default: ``os.cpu_count()``]; 1 runs in this
+        process. Ignored with ``scheduler``.
+    force : bool
+        Redo every shot, even those whose outputs are up to date.
+    scheduler : str or dask.distributed.Client, optional
+        Address of a Dask scheduler (``"tcp://10.0.0.5:8786"``) or a client;
+        the shots run there instead of a local pool. The workers must see
+        the record files at the same paths; they send the outputs back, and
+        only this process writes them.
+    figures : bool
+        Write each shot's figure sheet and the campaign figures.
+    progress : callable, optional
+        ``progress(done, total, outcome)`` after each shot (skipped ones
+        first).
+
+    Returns
+    -------
+    CampaignReport
+
+    Raises
+    ------
+    KeyboardInterrupt
+        On SIGINT or SIGTERM, after the running shots finish; shots written
+        so far are complete and a rerun keeps them.
+    """
+    out = Path(out_dir) if out_dir is not None else campaign.default_out
+    jobs = max(1, int(jobs or os.cpu_count() or 1))
+    client, own_client = _dask_client(scheduler) if scheduler is not None else (None, False)
+    try:
+        return _run(campaign, out, jobs, force, client, figures, progress)
+    finally:
+        if own_client:
+            client.close()
+
+
+def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignReport:
+    """:func:`run_campaign` once the scheduler (if any) is connected."""
+    shots_dir = out / SHOTS_DIR
+    base_dir = campaign.base_dir.resolve()
+    out.mkdir(parents=True, exist_ok=True)
+    _remove_temporaries(out)
+    # campaign-level files are rewritten at the end; their presence means a finished run
+    for name in (SUMMARY_TABLE, SUMMARY_PARQUET, FAILURES_TABLE, REPEATABILITY_TABLE,
+                 *(f"{FIGURES_DIR}/{f}" for f in CAMPAIGN_FIGURES)):
+        if (out / name).exists():
+            (out / name).unlink()
+
+    total = len(campaign.rows)
+    outcomes: dict = {}
+    rows: dict = {}
+    curves: dict = {}
+    todo = []
+    done = 0
+
+    def report(outcome):
+        nonlocal done
+        done += 1
+        if progress is not None:
+            progress(done, total, outcome)
+
+    for row in campaign.rows:
+        folder = shots_dir / row.id
+        if row.error:
+            if not row.id.startswith("line-"):
+                _discard(folder)  # an old result of this id no longer matches its row
+            outcomes[row.id] = ShotOutcome(row.id, row.line, FAILED, "setup", row.error)
+            report(outcomes[row.id])
+            continue
+        stored = None if force else _stored_key(folder, figures)
+        if stored is not None and stored == _current_key(row.shot, base_dir):
+            try:
+                summary = json.loads((folder / "summary.json").read_text())
+                cdf = pd.read_csv(folder / "curves.csv", usecols=list(_ROW_COLUMNS))
+            except (OSError, ValueError):
+                todo.append(row)  # unreadable despite the key: redo it
+                continue
+            rows[row.id] = shot_row(summary, cdf, campaign.flow_strains)
+            curves[row.id] = _overlay_curve(cdf)
+            status = OK if summary.get("valid") else INVALID
+            reason = "; ".join(f"{f['code']}: {f['message']}" for f in summary.get("flags", [])
+                               if f.get("severity") == "error")
+            outcomes[row.id] = ShotOutcome(row.id, row.line, status, "validity" if reason else "", reason,
+                                           skipped=True)
+            report(outcomes[row.id])
+            continue
+        todo.append(row)
+
+    by_id = {r.id: r for r in todo}
+    flow = tuple(campaign.flow_strains)
+    with _StopFlag() as stop:
+        shots = [r.shot for r in todo]
+        if client is not None:
+            results = _dask_results(shots, client, figures, str(base_dir), flow, stop)
+        else:
+            results = _local_results(shots, jobs, figures, str(base_dir), flow, stop)
+        try:
+            for res in results:
+                stop.check()  # after a signal, results still coming in are dropped, not written
+                row = by_id[res["id"]]
+                folder = shots_dir / row.id
+                if res["status"] == FAILED:
+                    _discard(folder)
+                else:
+                    _store(folder, res)
+                    rows[row.id] = res["row"]
+                    curves[row.id] = res["curve"]
+                outcomes[row.id] = ShotOutcome(row.id, row.line, res["status"], res["stage"], res["reason"])
+                report(outcomes[row.id])
+        finally:
+            results.close()
+
+    ordered = [outcomes[r.id] for r in campaign.rows]
+    table = _campaign_table(campaign, ordered, rows)
+    files = _write_tables(out, table, ordered, campaign)
+    if figures:
+        files.update(campaign_figures(campaign, table, curves, out / FIGURES_DIR))
+    return CampaignReport(campaign=campaign, out_dir=out, outcomes=ordered, table=table, files=files)
+
+
+# --------------------------------------------------------------------------- campaign outputs
+def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
+    flow_cols = [_flow_column(e) for e in campaign.flow_strains]
+    num_cols = ["temperature_K", "specimen_length_mm", "specimen_diameter_mm", "mean_strain_rate_per_s",
+                "strain_rate_cv", "peak_stress_MPa", *flow_cols, "yield_strain", "yield_stress_MPa",
+                "valid_fraction_of_loading", "equilibrium_from_strain", "max_strain"]
+    records = []
+    by_row = {r.id: r for r in campaign.rows}
+    for o in outcomes:
+        crow = by_row[o.id]
+        rec = {"id": o.id, "status": o.status}
+        data = rows.get(o.id)
+        if data is None:  # failed: what the setup says, NaN for results
+            sp = crow.shot.specimen if crow.shot else None
+            data = {c: float("nan") for c in num_cols}
+            data.update({"material": sp.material if sp else "", "flags": "", "valid": False, "calibration": "",
+                         "temperature_K": sp.temperature if sp and sp.temperature is not None else float("nan"),
+                         "specimen_length_mm": sp.length * 1e3 if sp else float("nan"),
+                         "specimen_diameter_mm": sp.diameter * 1e3 if sp else float("nan")})
+            if crow.shot:
+                cal = crow.shot.barset.calibration
+                data["calibration"] = json.dumps(cal, sort_keys=True, separators=(",", ":"), default=str) \
+                    if cal else ""
+        rec["material"] = data["material"]
+        rec["temperature_K"] = data["temperature_K"]
+        for t in campaign.tag_columns:
+            rec[t] = crow.tags.get(t, "")
+        for c in num_cols:
+            if c != "temperature_K":
+                rec[c] = data.get(c, float("nan"))
+        rec.update({"flags": data["flags"], "valid": bool(data["valid"]) and o.status == OK,
+                    "calibration": data["calibration"], "stage": o.stage, "reason": o.reason})
+        records.append(rec)
+    table = pd.DataFrame.from_records(records)
+    table["rate_group"] = rate_groups(table["mean_strain_rate_per_s"].where(table["status"] == OK),
+                                      campaign.rate_group_tolerance)
+    return table
+
+
+def _write_tables(out: Path, table: pd.DataFrame, outcomes, campaign: Campaign) -> dict:
+    files = {}
+    atomic_write_csv(out / SUMMARY_TABLE, table)
+    files["summary_csv"] = out / SUMMARY_TABLE
+    try:
+        import pyarrow  # noqa: F401
+    except ImportError:
+        pass
+    else:
+        buf = _io.BytesIO()
+        t = table.copy()
+        for c in campaign.tag_columns:
+            t[c] = t[c].astype(str)
+        t.to_parquet(buf, index=False)
+        atomic_write_bytes(out / SUMMARY_PARQUET, buf.getvalue())
+        files["summary_parquet"] = out / SUMMARY_PARQUET
+    fails = pd.DataFrame([{"id": o.id, "line": o.line, "status": o.status, "stage": o.stage, "reason": o.reason}
+                          for o in outcomes if o.status != OK], columns=["id", "line", "status", "stage", "reason"])
+    atomic_write_csv(out / FAILURES_TABLE, fails)
+    files["failures_csv"] = out / FAILURES_TABLE
+    rep = repeatability_table(table, campaign.rate_plot_strain)
+    atomic_write_csv(out / REPEATABILITY_TABLE, rep)
+    files["repeatability_csv"] = out / REPEATABILITY_TABLE
+    return files
+
+
+def repeatability_table(table: pd.DataFrame, strain: float) -> pd.DataFrame:
+    """Spread among repeats: per material and rate group, the flow stress at ``strain``.
+
+    Columns: ``material``, ``rate_group``, ``n``, ``mean_strain_rate_per_s``,
+    ``flow_stress_MPa_mean``, ``flow_stress_MPa_std`` (sample standard
+    deviation, ddof = 1), ``flow_stress_cv`` (std / mean), ``ids``. Only
+    valid shots with a flow stress at ``strain`` count.
+    """
+    col = _flow_column(strain)
+    cols = ["material", "rate_group", "n", "mean_strain_rate_per_s", "strain", "flow_stress_MPa_mean",
+            "flow_stress_MPa_std", "flow_stress_cv", "ids"]
+    ok = table[(table["status"] == OK) & table[col].notna() & (table["rate_group"] >= 0)]
+    out = []
+    for (mat, grp), g in ok.groupby(["material", "rate_group"], sort=True):
+        vals = g[col].to_numpy(float)
+        std = float(np.std(vals, ddof=1)) if vals.size > 1 else float("nan")
+        mean = float(np.mean(vals))
+        out.append({"material": mat, "rate_group": int(grp), "n": int(vals.size),
+                    "mean_strain_rate_per_s": float(g["mean_strain_rate_per_s"].mean()), "strain": strain,
+                    "flow_stress_MPa_mean": mean, "flow_stress_MPa_std": std,
+                    "flow_stress_cv": std / mean if mean else float("nan"), "ids": ";".join(g["id"])})
+    return pd.DataFrame(out, columns=cols)
+
+
+def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, folder) -> dict:
+    """Overlay figures of a campaign (PNG, written atomically).
+
+    ``stress_strain.png``: valid parts of the valid shots, one panel per
+    material, coloured by mean strain rate (log colour scale, colour bar).
+    ``rate_sensitivity.png``: flow stress at ``campaign.rate_plot_strain``
+    against mean strain rate on a log axis; each repeat a point, each rate
+    group its mean with +/- one standard deviation. ``repeatability.png``:
+    per material and rate group, each repeat's deviation from the group mean
+    [%].
+    """
+    import matplotlib
+    from matplotlib import cm, colors
+    from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    folder = Path(folder)
+    ok = table[table["status"] == OK]
+    mats = sorted(ok["material"].astype(str).unique()) or [""]
+    rates = ok["mean_strain_rate_per_s"].to_numpy(float)
+    finite = rates[np.isfinite(rates) & (rates > 0)]
+    lo, hi = (finite.min(), finite.max()) if finite.size else (1.0, 10.0)
+    if hi <= lo:
+        lo, hi = lo / 1.2, hi * 1.2
+    norm = colors.LogNorm(vmin=lo, vmax=hi)
+    cmap = matplotlib.colormaps["viridis"]
+    files = {}
+
+    # 1. stress-strain overlays
+    ncol = min(len(mats), 3)
+    nrow = int(math.ceil(len(mats) / ncol))
+    fig = Figure(figsize=(5.0 * ncol + 1.2, 4.0 * nrow), constrained_layout=True)
+    axes = fig.subplots(nrow, ncol, squeeze=False)
+    for ax, mat in zip(axes.flat, mats):
+        for _, r in ok[ok["material"].astype(str) == mat].iterrows():
+            if r["id"] in curves:
+                x, y = curves[r["id"]]
+                rate = r["mean_strain_rate_per_s"]
+                color = cmap(norm(rate)) if np.isfinite(rate) and rate > 0 else "0.5"
+                ax.plot(x, y, color=color, lw=1.0)
+        ax.set(xlabel="engineering strain [1]", ylabel="engineering stress [MPa]", title=mat or "(no material)")
+        ax.grid(alpha=0.3)
+    for ax in list(axes.flat)[len(mats):]:
+        ax.axis("off")
+    sm = cm.ScalarMappable(norm=norm, cmap=cmap)
+    fig.colorbar(sm, ax=axes, label="mean strain rate [1/s]")
+    fig.suptitle(f"{campaign.name}: valid parts of the valid shots")
+    files["stress_strain_png"] = folder / "stress_strain.png"
+    atomic_savefig(fig, files["stress_strain_png"], dpi=110)
+
+    # 2. rate sensitivity
+    col = _flow_column(campaign.rate_plot_strain)
+    rep = repeatability_table(table, campaign.rate_plot_strain)
+    fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
+    ax = fig.subplots()
+    for i, mat in enumerate(mats):
+        g = ok[(ok["material"].astype(str) == mat) & ok[col].notna()]
+        ax.plot(g["mean_strain_rate_per_s"], g[col], "o", color=f"C{i}", alpha=0.6, label=f"{mat or '-'} shots")
+        gr = rep[rep["material"].astype(str) == mat]
+        if len(gr):
+            ax.errorbar(gr["mean_strain_rate_per_s"], gr["flow_stress_MPa_mean"],
+                        yerr=gr["flow_stress_MPa_std"].fillna(0.0), fmt="s", color=f"C{i}", mfc="none",
+                        capsize=4, label=f"{mat or '-'} group mean ± 1 std")
+    ax.set_xscale("log")
+    ax.set(xlabel="mean strain rate [1/s]", ylabel=f"flow stress at strain {campaign.rate_plot_strain:g} [MPa]",
+           title=f"{campaign.name}: rate sensitivity")
+    ax.grid(alpha=0.3, which="both")
+    if len(ok):
+        ax.legend(fontsize=8)
+    files["rate_sensitivity_png"] = folder / "rate_sensitivity.png"
+    atomic_savefig(fig, files["rate_sensitivity_png"], dpi=110)
+
+    # 3. repeatability: deviation of each repeat from its group mean
+    fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
+    ax = fig.subplots()
+    labels = []
+    for k, (_, gr) in enumerate(rep.iterrows()):
+        members = ok[ok["id"].isin(gr["ids"].split(";"))]
+        dev = 100 * (members[col].to_numpy(float) / gr["flow_stress_MPa_mean"] - 1)
+        ax.plot(np.full(dev.size, k), dev, "o", color="C0", alpha=0.7)
+        if np.isfinite(gr["flow_stress_cv"]):
+            ax.errorbar([k], [0.0], yerr=[100 * gr["flow_stress_cv"]], fmt="_", color="k", capsize=6)
+        labels.append(f"{gr['material'] or '-'}\n{gr['mean_strain_rate_per_s']:.0f} 1/s\nn={gr['n']}")
+    ax.axhline(0.0, color="0.5", lw=0.8)
+    ax.set_xticks(range(len(labels)))
+    ax.set_xticklabels(labels, fontsize=7)
+    ax.set(ylabel=f"deviation from group mean [%] (flow stress at {campaign.rate_plot_strain:g})",
+           title=f"{campaign.name}: repeatability (bars: ± 1 std)")
+    ax.grid(alpha=0.3, axis="y")
+    files["repeatability_png"] = folder / "repeatability.png"
+    atomic_savefig(fig, files["repeatability_png"], dpi=110)
+    return files
