@@ -364,9 +364,9 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         "pulse_duration_source": duration_source,
         "window_us": window * 1e6,
         "incident_wave_speed_m_per_s": ci,
-        "incident_wave_speed_source": "measured" if bi.measured_wave_speed else "sqrt(E/rho)",
+        "incident_wave_speed_source": _speed_source(bs, "incident"),
         "transmitted_wave_speed_m_per_s": ct,
-        "transmitted_wave_speed_source": "measured" if bt.measured_wave_speed else "sqrt(E/rho)",
+        "transmitted_wave_speed_source": _speed_source(bs, "transmitted"),
         "peak_incident_strain": float(np.max(ei)),
         "sample_interval_us": dt * 1e6,
     })
@@ -423,6 +423,13 @@ COLUMN_NOTES = {
     "true_stress_MPa": "stress_MPa (1 - strain)",
     "valid": "1 inside the loading part after force equilibrium",
 }
+
+
+def _speed_source(barset, which) -> str:
+    """Where a bar's wave speed came from: its calibration file, the bar set, or sqrt(E/rho)."""
+    if f"{which}.wave_speed_m_per_s" in barset.calibration.get("applied", {}):
+        return f"calibration ({barset.calibration.get('file')})"
+    return "measured (bar set)" if getattr(barset, which).measured_wave_speed else "sqrt(E/rho)"
 
 
 def _inputs(shot: Shot) -> dict:

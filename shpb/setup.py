@@ -414,10 +414,15 @@ def _gauge(t: _Table, bar: Bar) -> Gauge:
     )
 
 
-def barset_from_dict(data: dict, source: str) -> BarSet:
-    """Build a :class:`BarSet` from a parsed TOML mapping; ``source`` names the file in errors."""
+def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: bool = True) -> BarSet:
+    """Build a :class:`BarSet` from a parsed TOML mapping; ``source`` names the file in errors.
+
+    With a ``calibration_file`` key (a path relative to ``base_dir``, by
+    default the folder of ``source``) and ``apply_calibration``, the latest
+    calibration in that file is applied (see :func:`apply_calibration_file`).
+    """
     top = _Table(data, f"{source}:")
-    top.check_keys({"name", "bar_material", "incident", "transmitted", "striker", "calibration"})
+    top.check_keys({"name", "bar_material", "incident", "transmitted", "striker", "calibration", "calibration_file"})
     mt = top.table("bar_material", required=False)
     default_mat = _material(mt, None) if mt else None
     if mt:
@@ -439,7 +444,8 @@ def barset_from_dict(data: dict, source: str) -> BarSet:
             material=smat,
             speed=st.quantity("speed", "velocity", required=False),
         )
-    return BarSet(
+    cal = top.table("calibration", required=False)
+    barset = BarSet(
         name=str(data.get("name", Path(source).stem)),
         incident=bars["incident"],
         transmitted=bars["transmitted"],
@@ -447,14 +453,110 @@ def barset_from_dict(data: dict, source: str) -> BarSet:
         transmitted_gauge=gauges["transmitted"],
         striker=striker,
         source=source,
-        calibration=dict(data.get("calibration", {})),
+        calibration=dict(cal.data) if cal else {},
     )
+    if "calibration_file" in data:
+        cal_path = Path(base_dir if base_dir is not None else Path(source).parent) / top.string("calibration_file")
+        if apply_calibration:
+            explicit = {(b, k): k2 in data[b] if k == "wave_speed_m_per_s" else k2 in data[b].get("gauge", {})
+                        for b in ("incident", "transmitted")
+                        for k, k2 in (("wave_speed_m_per_s", "wave_speed"), ("scale", "scale"))}
+            barset = apply_calibration_file(barset, cal_path, explicit)
+        else:
+            barset = replace(barset, calibration={**barset.calibration, "file": str(cal_path), "applied": {}})
+    return barset
 
 
-def load_barset(path) -> BarSet:
-    """Load a bar set TOML file (see ``docs/setup-files.md``)."""
+#: Per-bar quantities a calibration entry may apply (``[calibration.apply.<bar>]``).
+_CAL_KEYS = ("wave_speed_m_per_s", "scale", "scale_relative_to_incident")
+
+
+def apply_calibration_file(barset: BarSet, path, explicit: Optional[dict] = None) -> BarSet:
+    """Apply the latest calibration of a calibration file to a bar set.
+
+    The file (written by ``shpb calibrate``, format in ``docs/calibration.md``)
+    holds ``[[calibration]]`` entries, oldest first. For each quantity — each
+    bar's wave speed and each gauge's scale — the last entry that gives it
+    wins. A transmitted scale given relative to the incident one (bars-together
+    shot) is multiplied by the incident scale in effect. A value written in the
+    bar set itself (``wave_speed`` of a bar, ``scale`` of a gauge; flagged in
+    ``explicit`` as ``{(bar, "wave_speed_m_per_s" | "scale"): bool}``) wins
+    over the calibration, which is then noted as overridden.
+
+    Returns
+    -------
+    BarSet
+        With ``measured_wave_speed`` and gauge ``scale`` set, and
+        ``calibration`` recording the file, its SHA-256 and, per applied
+        quantity, the value with the entry's date, kind and input hashes.
+    """
+    from .io import sha256_file
+
     path = Path(path)
-    return barset_from_dict(read_toml(path), str(path))
+    where = str(path)
+    entries = read_toml(path).get("calibration", [])
+    if not isinstance(entries, list):
+        raise InputError("expected [[calibration]] entries", where)
+    explicit = explicit or {}
+    latest = {}
+    for i, e in enumerate(entries):
+        if not isinstance(e, dict) or not isinstance(e.get("apply", {}), dict):
+            raise InputError("expected a table with an 'apply' table", f"{where}: calibration[{i}]")
+        for bar_name, table in e.get("apply", {}).items():
+            if bar_name not in ("incident", "transmitted") or not isinstance(table, dict):
+                raise InputError(f"expected [calibration.apply.incident] or .transmitted, got {bar_name!r}",
+                                 f"{where}: calibration[{i}].apply")
+            for key, value in table.items():
+                if key not in _CAL_KEYS:
+                    raise InputError(f"unknown key {key!r} (expected one of: {', '.join(_CAL_KEYS)})",
+                                     f"{where}: calibration[{i}].apply.{bar_name}")
+                if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0 \
+                        or not math.isfinite(value):
+                    raise InputError(f"expected a positive number, got {value!r}",
+                                     f"{where}: calibration[{i}].apply.{bar_name}.{key}")
+                quantity = "scale" if key.startswith("scale") else key
+                latest[(bar_name, quantity)] = (key, float(value), i)
+
+    def record(i, value, **extra):
+        e = entries[i]
+        date = e.get("date")  # a hand-edited file may hold a TOML datetime: keep the summary JSON-able
+        return {"value": value, "entry": i, "date": None if date is None else str(date), "kind": e.get("kind"),
+                "inputs": e.get("inputs", []), **extra}
+
+    applied, overridden = {}, {}
+    bars = {"incident": barset.incident, "transmitted": barset.transmitted}
+    gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
+    for bar_name in ("incident", "transmitted"):  # incident first: a relative transmitted scale needs it
+        for quantity in ("wave_speed_m_per_s", "scale"):
+            if (bar_name, quantity) not in latest:
+                continue
+            key, value, i = latest[(bar_name, quantity)]
+            name = f"{bar_name}.{quantity}"
+            extra = {}
+            if key == "scale_relative_to_incident":
+                extra = {"relative_to_incident": value}
+                value = value * gauges["incident"].scale
+            if explicit.get((bar_name, quantity)):
+                used = bars[bar_name].measured_wave_speed if quantity != "scale" else gauges[bar_name].scale
+                overridden[name] = {**record(i, value, **extra), "used": used,
+                                    "reason": "the bar set gives this value explicitly"}
+                continue
+            if quantity == "scale":
+                gauges[bar_name] = replace(gauges[bar_name], scale=value)
+            else:
+                bars[bar_name] = replace(bars[bar_name], measured_wave_speed=value)
+            applied[name] = record(i, value, **extra)
+    info = {**barset.calibration, "file": where, "file_sha256": sha256_file(path), "applied": applied}
+    if overridden:
+        info["overridden"] = overridden
+    return replace(barset, incident=bars["incident"], transmitted=bars["transmitted"],
+                   incident_gauge=gauges["incident"], transmitted_gauge=gauges["transmitted"], calibration=info)
+
+
+def load_barset(path, apply_calibration: bool = True) -> BarSet:
+    """Load a bar set TOML file (see ``docs/setup-files.md``), with its calibration file applied if it names one."""
+    path = Path(path)
+    return barset_from_dict(read_toml(path), str(path), path.parent, apply_calibration)
 
 
 _ANALYSIS_KEYS = {
