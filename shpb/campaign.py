@@ -47,7 +47,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, ShpbError
-from .io import atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
+from .io import _is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
 from .units import to_si
@@ -184,14 +184,6 @@ def _check_id(shot_id: str, where: str) -> None:
     if shot_id.startswith(".") or any(c in shot_id for c in '/\\:*?"<>|') or any(ord(c) < 32 for c in shot_id):
         raise InputError(f"shot id {shot_id!r} cannot be a folder name (no leading dot, no / \\ : * ? \" < > |)",
                          where)
-
-
-def _is_number(text: str) -> bool:
-    try:
-        float(text)
-        return True
-    except ValueError:
-        return False
 
 
 def _quantity_cell(text: str, unit: Optional[str], dimension: str, where: str) -> float:

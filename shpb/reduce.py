@@ -213,11 +213,15 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     gauge_windows = {}
     for name, chan, dist, bar in (("incident", si, +di, bs.incident), ("reflected", si, -di, bs.incident),
                                   ("transmitted", st, -dtr, bs.transmitted)):
-        shift = dist / bar.wave_speed / dt
+        # a hand adjustment of the alignment: the wave is taken `adjust` seconds later at its gauge
+        adjust = {"reflected": opt.reflected_adjust, "transmitted": opt.transmitted_adjust}.get(name) or 0.0
+        shift = dist / bar.wave_speed / dt - adjust / dt
         # window at the gauge: the face window moved back by the travel time
         g0, g1 = k0 - shift, k1 - shift
         gauge_windows[name] = (rec.time[0] + g0 * dt, rec.time[0] + g1 * dt)
         face, plain = _transfer(chan, dt, g0, g1, dist, bar, use_disp, opt.amplitude_factors, ramp)
+        if adjust:
+            face, plain = pulses.delay(face, dt, -adjust), pulses.delay(plain, dt, -adjust)
         waves[name] = (face[k0:k1], plain[k0:k1])
     if k1 > n:
         end_needed = rec.time[0] + (k1 - 1) * dt

@@ -267,6 +267,9 @@ class AnalysisOptions:
     pre_trigger : float or None
         Length of the quiet record start used as baseline [s]; default: the
         part before the incident foot, less a margin.
+    reflected_adjust, transmitted_adjust : float
+        Hand adjustment of the alignment [s]: the wave is taken this much
+        later at its gauge than the geometry and wave speed say (default 0).
     """
 
     dispersion: bool = True
@@ -277,6 +280,8 @@ class AnalysisOptions:
     incident_start: Optional[float] = None
     window: Optional[float] = None
     pre_trigger: Optional[float] = None
+    reflected_adjust: float = 0.0
+    transmitted_adjust: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -561,7 +566,7 @@ def load_barset(path, apply_calibration: bool = True) -> BarSet:
 
 _ANALYSIS_KEYS = {
     "dispersion", "amplitude_factors", "stress", "equilibrium_threshold", "yield_offset",
-    "incident_start", "window", "pre_trigger",
+    "incident_start", "window", "pre_trigger", "reflected_adjust", "transmitted_adjust",
 }
 
 
@@ -581,6 +586,9 @@ def analysis_from_dict(data: dict, where: str, base: AnalysisOptions = AnalysisO
         incident_start=t.quantity("incident_start", "time", required=False, positive=False, default=base.incident_start),
         window=t.quantity("window", "time", required=False, default=base.window),
         pre_trigger=t.quantity("pre_trigger", "time", required=False, default=base.pre_trigger),
+        reflected_adjust=t.quantity("reflected_adjust", "time", positive=False, default=base.reflected_adjust),
+        transmitted_adjust=t.quantity("transmitted_adjust", "time", positive=False,
+                                      default=base.transmitted_adjust),
     )
 
 

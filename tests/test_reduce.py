@@ -166,3 +166,24 @@ def test_cli_bad_input_is_one_line_no_traceback(tmp_path):
 def test_cli_invalid_shot_exit_status(tmp_path):
     shot, _ = make_shot(tmp_path, law=elastic_perfectly_plastic(E_SPEC, SY), kill_transmitted=True)
     assert main(["reduce", str(shot), "--no-figure"]) == 1
+
+
+def test_hand_alignment_adjustment(tmp_path):
+    # The bar set places the transmitted gauge 20 mm too near the specimen, so the geometric
+    # alignment takes the transmitted wave 20 mm / c0 = 3.96 us too early (common practice:
+    # a mis-measured gauge station shows as a time offset). transmitted_adjust puts it back;
+    # the answer is the ideal specimen response (Kolsky 1949; Gray 2000).
+    law = elastic_perfectly_plastic(E_SPEC, SY)
+    shot, truth = make_shot(tmp_path, law=law)
+    bars = tmp_path / "bars.toml"
+    bars.write_text(bars.read_text().replace('distance = "500.0 mm"', 'distance = "480.0 mm"'))
+    off = reduce_file(shot)
+    lag = 0.020 / truth["c0"]
+    shot.write_text(shot.read_text() + f'transmitted_adjust = "{lag * 1e6:.4f} us"\n')
+    fixed = reduce_file(shot)
+    for res in (off, fixed):
+        c = res.curves
+        ideal = np.interp(c["time_us"] * 1e-6 + 0.51e-6, truth["tau"], truth["stress"])
+        res.err = np.max(np.abs(c["stress_1wave_MPa"] * 1e6 - ideal)[c["time_us"] < 20]) / SY
+    assert off.err > 0.3          # a 4 us misalignment on an 8 us rise
+    assert fixed.err < 0.05
