@@ -107,6 +107,40 @@ def _sniff(path: Path, n_lines=400):
                      str(path))
 
 
+def _read_columns(path):
+    """Parse a text record: (column names, list of 1-D float arrays, line index of the first data row)."""
+    import pandas as pd
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError("file not found", str(path))
+    delim, header, first, ncol = _sniff(path)
+    sep = delim if delim is not None else r"\s+"
+    try:
+        df = pd.read_csv(path, sep=sep, header=None, skiprows=first, engine="c", dtype=np.float64,
+                         skip_blank_lines=True, comment=None, names=list(range(ncol)), index_col=False)
+    except (ValueError, pd.errors.ParserError) as exc:
+        raise InputError(_bad_cell_message(path, sep, first, ncol) or f"cannot read the data rows ({exc})",
+                         str(path)) from None
+    if header is not None:
+        with open(path, "r", errors="replace") as fh:
+            for _ in range(header):
+                fh.readline()
+            names = _split(fh.readline().rstrip("\r\n"), delim)
+    else:
+        names = [str(i) for i in range(ncol)]
+    # column by column: no interleaved copy of the whole table
+    return names, [df[i].to_numpy() for i in range(ncol)], first
+
+
+def _check_finite(values, name, first, path):
+    if not np.isfinite(values).all():
+        r = int(np.argmax(~np.isfinite(values)))
+        raise InputError(f"column {name!r} has a missing or non-finite value at data row {r + 1} "
+                         f"(line {first + r + 1})", str(path))
+    return values
+
+
 def read_table(path):
     """Read a delimited numeric table from a scope/DAQ text export.
 
@@ -128,33 +162,10 @@ def read_table(path):
         Missing file, no numeric block, non-numeric cells or blanks inside the
         data, NaN values.
     """
-    import pandas as pd
-
-    path = Path(path)
-    if not path.is_file():
-        raise InputError("file not found", str(path))
-    delim, header, first, ncol = _sniff(path)
-    sep = delim if delim is not None else r"\s+"
-    try:
-        df = pd.read_csv(path, sep=sep, header=None, skiprows=first, engine="c", dtype=np.float64,
-                         skip_blank_lines=True, comment=None, names=list(range(ncol)), index_col=False)
-    except (ValueError, pd.errors.ParserError) as exc:
-        raise InputError(_bad_cell_message(path, sep, first, ncol) or f"cannot read the data rows ({exc})",
-                         str(path)) from None
-    data = df.to_numpy()
-    if header is not None:
-        with open(path, "r", errors="replace") as fh:
-            for _ in range(header):
-                fh.readline()
-            names = _split(fh.readline().rstrip("\r\n"), delim)
-    else:
-        names = [str(i) for i in range(ncol)]
-    bad = ~np.isfinite(data)
-    if bad.any():
-        r, c = np.argwhere(bad)[0]
-        raise InputError(f"column {names[c]!r} has a missing or non-finite value at data row {r + 1} "
-                         f"(line {first + r + 1})", str(path))
-    return names, data
+    names, cols, first = _read_columns(path)
+    for name, c in zip(names, cols):
+        _check_finite(c, name, first, path)
+    return names, np.column_stack(cols)
 
 
 def _bad_cell_message(path, sep, first, ncol):
@@ -175,14 +186,13 @@ def _bad_cell_message(path, sep, first, ncol):
     return None
 
 
-def _column(names, data, column, path):
+def _column_index(names, ncol, column, path):
     if isinstance(column, int) and not isinstance(column, bool):
-        if not 0 <= column < data.shape[1]:
-            raise InputError(f"column index {column} out of range (the file has {data.shape[1]} columns, 0-based)",
-                             str(path))
-        return data[:, column]
+        if not 0 <= column < ncol:
+            raise InputError(f"column index {column} out of range (the file has {ncol} columns, 0-based)", str(path))
+        return column
     if column in names:
-        return data[:, names.index(column)]
+        return names.index(column)
     raise InputError(f"no column {column!r} (columns: {', '.join(names)})", str(path))
 
 
@@ -218,9 +228,11 @@ class _Cache:
             if path.suffix.lower() not in TEXT_SUFFIXES and path.is_file():
                 raise InputError(f"unknown record format {path.suffix!r} (expected .npz or delimited text "
                                  f"{', '.join(sorted(TEXT_SUFFIXES))})", str(path))
-            self.tables[path] = read_table(path)
-        names, data = self.tables[path]
-        return _column(names, data, column, path)
+            self.tables[path] = _read_columns(path)
+        names, cols, first = self.tables[path]
+        i = _column_index(names, len(cols), column, path)
+        # only the columns used must be finite: an unused dead channel does not matter
+        return _check_finite(cols[i], names[i], first, path)
 
 
 def read_record(spec) -> Record:
@@ -232,6 +244,13 @@ def read_record(spec) -> Record:
         Unreadable file, unknown column, channels of unequal length,
         non-monotonic or non-uniform time, NaN.
     """
+    from concurrent.futures import ThreadPoolExecutor
+
+    # hash the files on a second thread while they are parsed (hashlib releases the GIL)
+    paths = sorted({spec.incident.file, spec.transmitted.file}, key=str)
+    pool = ThreadPoolExecutor(max_workers=1)
+    hashes = {str(p): pool.submit(sha256_file, p) for p in paths if Path(p).is_file()}
+    pool.shutdown(wait=False)
     cache = _Cache()
     inc = cache.column(spec.incident.file, spec.incident.column)
     tra = cache.column(spec.transmitted.file, spec.transmitted.column)
@@ -249,9 +268,7 @@ def read_record(spec) -> Record:
     else:
         dt = spec.sample_interval
         time = dt * np.arange(inc.size)
-    files = {}
-    for f in {spec.incident.file, spec.transmitted.file}:
-        files[str(f)] = sha256_file(f)
+    files = {name: fut.result() for name, fut in hashes.items()}
     return Record(time=time, dt=dt, incident=inc, transmitted=tra, files=files)
 
 
