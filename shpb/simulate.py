@@ -6,7 +6,9 @@ The rig is a chain of 1-D rods in compression-only contact::
 
 The pulse shaper sits on the impact face of the incident bar, where shapers
 are placed in practice (Frew, Forrestal & Chen 2002); without a specimen the
-bars touch (a bars-together shot).
+bars touch (a bars-together shot); without a transmitted bar the incident
+bar's far end is free (a free-end shot). A prescribed pulse may drive the
+incident bar's impact face instead of the striker (:class:`IncidentPulse`).
 
 Each rod has its own modulus, density and cross-section, so impedance changes
 at the interfaces follow from force continuity. The specimen and the pulse
@@ -92,6 +94,23 @@ and forces in elements at whole steps; lumped nodal masses.
 Signs: inside the model tension is positive and x runs from the striker to
 the transmitted bar; every output is compression positive.
 
+From the model to a record
+--------------------------
+The later sections turn a model run into what a scope records
+(:func:`virtual_record`: bridge volts, noise, offset, quantisation, clipping)
+and add the Pochhammer–Chree dispersion the model's 1-D bars lack. The bar
+strain at each gauge is split exactly into its two travelling waves
+(``VirtualShotResult.gauge_waves``), and each wave is given the dispersion of
+its own path (:func:`dispersed_gauge_strains`). For a specimen shot the
+striker's pulse is first dispersed over the incident bar and sent in as a
+prescribed pulse (:func:`dispersed_drive`), so that the specimen responds to
+the dispersed incident wave a real bar would deliver and the model's truth
+belongs to it; the recorded waves then carry their dispersion from the
+specimen faces (incident wave: over the impact-face-to-gauge distance).
+Finally, at the edge of the module, a simulation setup file is read
+(:func:`load_simulation`), simulated (:func:`simulate_setup`) and written
+(:func:`write_virtual_shot`); see ``docs/simulation.md``.
+
 References
 ----------
 .. [1] H. Kolsky, "An investigation of the mechanical properties of materials
@@ -111,30 +130,65 @@ References
 .. [6] D. J. Frew, M. J. Forrestal, W. Chen, "Pulse shaping techniques for
    testing brittle materials with a split Hopkinson pressure bar", Exp.
    Mech. 42 (2002) 93-106.
+.. [7] P. S. Follansbee, C. Frantz, "Wave propagation in the split Hopkinson
+   pressure bar", J. Eng. Mater. Technol. 105 (1983) 61-66,
+   doi:10.1115/1.3225620.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import numbers
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Callable, Optional
 
 import numpy as np
 import pandas as pd
 
 from .errors import AnalysisError, InputError
+from .units import to_si
 
 __all__ = [
     "PerfectlyPlastic",
     "JohnsonCookLaw",
     "FlowStressLaw",
+    "TrueStressLaw",
     "johnson_cook_flow_stress",
     "radial_return",
     "RodSpec",
     "VirtualShotSpec",
     "VirtualShotResult",
     "simulate_shot",
+    "RecorderSpec",
+    "VirtualRecord",
+    "TRIGGERS",
+    "trigger_time",
+    "model_duration",
+    "incident_bar_stress",
+    "plan_shot",
+    "check_plan",
+    "digitise",
+    "excess_dispersion",
+    "dispersed_gauge_strains",
+    "virtual_record",
+    "IncidentPulse",
+    "incident_pulse",
+    "dispersed_drive",
+    "SETUP_LAWS",
+    "SHOT_KINDS",
+    "SimulationSetup",
+    "VirtualShot",
+    "load_simulation",
+    "simulate_setup",
+    "truth_table",
+    "analysis_window",
+    "record_csv_text",
+    "record_metadata",
+    "shot_toml_text",
+    "write_virtual_shot",
+    "plot_virtual_shot",
 ]
 
 
@@ -236,6 +290,60 @@ class FlowStressLaw:
         """Flow stress [Pa] from the user function."""
         out = np.asarray(self.function(plastic_strain, strain_rate), dtype=float)
         return np.broadcast_to(out, np.shape(plastic_strain))
+
+
+@dataclass(frozen=True)
+class TrueStressLaw:
+    """A law written in true stress and true plastic strain, applied to the model's engineering quantities.
+
+    Constitutive laws (Johnson-Cook among them) are fitted to true stress
+    against true plastic strain. The model's specimen works in engineering
+    stress and strain (force over the initial area, change of length over the
+    initial length), which in uniaxial compression is exact as a momentum
+    balance in the initial configuration. This wrapper turns the true law into
+    the engineering flow stress the return mapping needs.
+
+    Attributes
+    ----------
+    law : object
+        The true-stress law, with ``flow_stress(true_plastic_strain [1],
+        true_plastic_strain_rate [1/s]) -> Pa``.
+    modulus : float
+        Young's modulus E of the specimen [Pa].
+
+    Notes
+    -----
+    Volume constancy in compression (common practice; the same assumption as
+    the reduction's true stress): ``sigma_true = sigma_eng (1 - e)`` with
+    ``e`` the total engineering strain. With the model's additive split
+    ``e = e_p + sigma_eng / E`` this is a quadratic in ``sigma_eng`` whose
+    root continuous with ``sigma_true`` at small strain is
+
+        sigma_eng = 2 sigma_true / ((1 - e_p) + sqrt((1 - e_p)**2 - 4 sigma_true / E)).
+
+    The true plastic strain passed to the law is ``-ln(1 - e_p)`` and the
+    true plastic rate ``rate / (1 - e_p)``. The true plastic strain a
+    reduction computes (``-ln(1 - e) - sigma_true / E``) differs from it by
+    about ``2 e sigma / E`` (0.4 % of strain at e = 0.3 for a metal), which
+    shifts the stress by well under 1 %.
+
+    References
+    ----------
+    .. [1] W. Chen, B. Song, Split Hopkinson (Kolsky) Bar, Springer, 2011,
+       ch. 1 (true stress and strain from engineering values, volume constant).
+    """
+
+    law: object
+    modulus: float
+
+    def flow_stress(self, plastic_strain, strain_rate):
+        """Engineering flow stress [Pa] at engineering plastic strain [1] and rate [1/s]."""
+        p = np.clip(np.asarray(plastic_strain, dtype=float), 0.0, 0.999)
+        stretch = 1.0 - p
+        true = np.asarray(self.law.flow_stress(-np.log(stretch), np.asarray(strain_rate, dtype=float) / stretch),
+                          dtype=float)
+        root = np.sqrt(np.maximum(stretch * stretch - 4.0 * true / self.modulus, 0.0))
+        return 2.0 * true / (stretch + root)
 
 
 def _as_law(law, where):
@@ -381,12 +489,18 @@ class VirtualShotSpec:
 
     Attributes
     ----------
-    striker, incident, transmitted : RodSpec
-        Striker bar, incident bar and transmitted bar (elastic).
+    striker : RodSpec or None
+        Striker bar (elastic); None when ``incident_pulse`` drives the
+        incident bar instead.
+    incident : RodSpec
+        Incident bar (elastic).
+    transmitted : RodSpec or None
+        Transmitted bar (elastic); None for a free-end shot (the incident
+        bar alone, its specimen-side end free; needs ``specimen=None``).
     specimen : RodSpec or None
         Specimen between the bars; None for a bars-together shot.
     striker_speed : float
-        Impact speed of the striker [m/s] (> 0).
+        Impact speed of the striker [m/s] (> 0; not used with ``incident_pulse``).
     gauge_incident_distance : float
         Gauge station on the incident bar, distance from its specimen face [m].
     gauge_transmitted_distance : float
@@ -408,12 +522,19 @@ class VirtualShotSpec:
     foot_fraction : float
         The incident foot enters the incident bar at the first step where the
         force it receives exceeds this fraction of its maximum [1]; matters
-        only with a shaper (without one the force jumps at the impact).
+        only with a shaper or a prescribed pulse (without one the force jumps
+        at the impact).
+    incident_pulse : IncidentPulse or None
+        A prescribed wave entering the incident bar at its impact face, in
+        place of the striker and shaper (which must then be None): the face
+        is driven by the force ``E A eps(t)`` and is free once the pulse has
+        passed. Used to send a dispersed pulse into the non-dispersive model
+        bar (see :func:`incident_pulse`).
     """
 
-    striker: RodSpec
+    striker: Optional[RodSpec]
     incident: RodSpec
-    transmitted: RodSpec
+    transmitted: Optional[RodSpec]
     specimen: Optional[RodSpec]
     striker_speed: float
     gauge_incident_distance: float
@@ -425,6 +546,34 @@ class VirtualShotSpec:
     shaper_elements: int = 10
     max_time_step: float = 0.1e-6
     foot_fraction: float = 1e-3
+    incident_pulse: Optional["IncidentPulse"] = None
+
+
+@dataclass(frozen=True, eq=False)
+class IncidentPulse:
+    """A strain wave entering the incident bar at its impact face.
+
+    The face is driven by the force ``E A eps(t)`` (a whole element's mass on
+    the end node, which makes a force-driven Courant-1 end exact); the work
+    this force does is not part of ``VirtualShotResult.energies``, whose
+    total then grows while the pulse enters.
+
+    Attributes
+    ----------
+    dt : float
+        Sample interval [s].
+    strain : ndarray
+        Bar strain of the wave [1], compression positive, sample k at model
+        time ``k dt``; zero after the last sample.
+    impact_time : float
+        Model time at which the striker would have struck [s]: the pulse may
+        start with a lead of zeros (room for a dispersed front), which delays
+        the whole shot by this much.
+    """
+
+    dt: float
+    strain: np.ndarray
+    impact_time: float = 0.0
 
 
 @dataclass
@@ -436,7 +585,8 @@ class VirtualShotResult:
     time : ndarray
         Record time [s], t = 0 at impact.
     strain_incident_gauge, strain_transmitted_gauge : ndarray
-        Bar strain at the two gauge stations [1], compression positive.
+        Bar strain at the two gauge stations [1], compression positive
+        (the transmitted one NaN in a free-end shot).
     foot_arrival_time : float
         Record time at which the incident wave's foot reaches the specimen
         front face (the incident bar's specimen-side end) [s]: the time it
@@ -464,6 +614,14 @@ class VirtualShotResult:
         mean engineering compression) and ``peak_element_strain``.
     spec : VirtualShotSpec
         The input.
+    gauge_waves : dict
+        The bar strain at each gauge station split into the two waves that
+        cross it [1], compression positive, on ``time``:
+        ``incident_toward_specimen`` and ``incident_away_from_specimen``
+        (incident bar), ``transmitted_away_from_specimen`` and
+        ``transmitted_toward_specimen`` (transmitted bar; NaN without one).
+        Each pair sums to the strain at the station; see
+        :func:`_directional_weights` for the exact discrete split.
     """
 
     time: np.ndarray
@@ -474,6 +632,7 @@ class VirtualShotResult:
     energies: pd.DataFrame
     grid: dict
     spec: VirtualShotSpec = field(repr=False)
+    gauge_waves: dict = field(default_factory=dict, repr=False)
 
 
 # --------------------------------------------------------------------------- validation & grid
@@ -493,16 +652,37 @@ def _check_rod(rod, name):
 
 def _check_spec(spec):
     laws = {}
-    for name in ("striker", "incident", "transmitted"):
-        laws[name] = _check_rod(getattr(spec, name), name)
-    for name in ("specimen", "shaper"):
+    driven = spec.incident_pulse is not None
+    if driven:
+        if spec.striker is not None or spec.shaper is not None:
+            raise InputError("a prescribed incident pulse replaces the striker and the shaper: set both to None",
+                             "VirtualShotSpec.incident_pulse")
+        pulse = spec.incident_pulse
+        strain = np.asarray(getattr(pulse, "strain", None), dtype=float)
+        if not (_is_number(getattr(pulse, "dt", None)) and pulse.dt > 0 and strain.ndim == 1 and strain.size > 1
+                and np.all(np.isfinite(strain))):
+            raise InputError("expected an IncidentPulse with dt > 0 and a finite 1-D strain array",
+                             "VirtualShotSpec.incident_pulse")
+    elif spec.striker is None:
+        raise InputError("expected a striker (or an incident_pulse)", "VirtualShotSpec.striker")
+    for name in ("striker", "incident"):
+        if getattr(spec, name) is not None:
+            laws[name] = _check_rod(getattr(spec, name), name)
+    if spec.transmitted is None and spec.specimen is not None:
+        raise InputError("a specimen needs a transmitted bar (transmitted=None is a free-end shot)",
+                         "VirtualShotSpec.transmitted")
+    for name in ("transmitted", "specimen", "shaper"):
         if getattr(spec, name) is not None:
             laws[name] = _check_rod(getattr(spec, name), name)
     for name in ("striker_speed", "duration", "sample_rate", "max_time_step"):
+        if name == "striker_speed" and driven:
+            continue
         value = getattr(spec, name)
         if not (_is_number(value) and math.isfinite(value) and value > 0):
             raise InputError(f"expected a positive finite number, got {value!r}", f"VirtualShotSpec.{name}")
     for name, bar in (("gauge_incident_distance", spec.incident), ("gauge_transmitted_distance", spec.transmitted)):
+        if bar is None:
+            continue
         d = getattr(spec, name)
         if not (_is_number(d) and 0 <= d <= bar.length):
             raise InputError(f"expected a distance from the specimen face within the bar (0 to {bar.length} m), "
@@ -570,17 +750,19 @@ class _Rod:
 
 
 def _build_rods(spec, laws, dt):
-    chain = [("striker", spec.striker, None)]
+    chain = [] if spec.striker is None else [("striker", spec.striker, None)]
     if spec.shaper is not None:
         chain.append(("shaper", spec.shaper, int(spec.shaper_elements)))
     chain.append(("incident", spec.incident, None))
     if spec.specimen is not None:
         chain.append(("specimen", spec.specimen, int(spec.specimen_elements)))
-    chain.append(("transmitted", spec.transmitted, None))
+    if spec.transmitted is not None:
+        chain.append(("transmitted", spec.transmitted, None))
     resolved = [n is not None for _, _, n in chain]
     rods, node0 = [], 0
     for k, (name, rod, n) in enumerate(chain):
-        cap_start = n is None and k > 0 and resolved[k - 1]
+        # a bar end driven by a force carries a whole element: the resolved neighbour's, or the prescribed pulse
+        cap_start = n is None and (resolved[k - 1] if k > 0 else spec.incident_pulse is not None)
         cap_end = n is None and k + 1 < len(chain) and resolved[k + 1]
         if n is None:  # bar or striker: Courant exactly 1, length rounded to whole elements
             dx = rod.wave_speed * dt
@@ -672,9 +854,17 @@ def _run(spec, rods, dt, kept_steps):
 
     # state: tension positive, x from the striker towards the transmitted bar
     v = np.zeros(n_nodes)
-    striker = by_name["striker"]
-    v[striker.node0:striker.last_node + 1] = spec.striker_speed
+    striker = by_name.get("striker")
+    if striker is not None:
+        v[striker.node0:striker.last_node + 1] = spec.striker_speed
     e0 = 0.5 * float(np.sum(mass * v * v))
+    incident = by_name["incident"]
+    drive = None
+    if spec.incident_pulse is not None:  # force on the impact face, compression pushing +x, per step
+        p = spec.incident_pulse
+        strain = np.asarray(p.strain, dtype=float)
+        drive = incident.spec.modulus * incident.spec.area * np.interp(
+            np.arange(n_steps + 1) * dt, np.arange(strain.size) * p.dt, strain, left=0.0, right=0.0)
     eps = np.zeros(n_nodes - 1)
     F_pad = np.zeros(n_nodes + 1)  # element forces with a zero beyond each end of the chain
     F = F_pad[1:-1]
@@ -682,23 +872,28 @@ def _run(spec, rods, dt, kept_steps):
     plastic = [_PlasticState(r) for r in rods if r.law is not None]
 
     # contacts between consecutive rods: (left rod's last node, right rod's first node)
-    a_idx = np.array([r.last_node for r in rods[:-1]])
-    b_idx = np.array([r.node0 for r in rods[1:]])
+    a_idx = np.array([r.last_node for r in rods[:-1]], dtype=np.int64)
+    b_idx = np.array([r.node0 for r in rods[1:]], dtype=np.int64)
     inv_ma, inv_mb = 1.0 / mass[a_idx], 1.0 / mass[b_idx]
     inv_w = 1.0 / (dt * (inv_ma + inv_mb))
     gap = np.zeros(a_idx.size)
     left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
-    i_impact = left_of["incident"]
-    i_front = left_of["specimen"] if "specimen" in by_name else left_of["transmitted"]
-    i_back = left_of["transmitted"]
+    i_impact = left_of.get("incident")  # None when a prescribed pulse drives the incident bar
+    # a free-end shot (no transmitted bar) has no contact beyond the incident bar
+    i_front = left_of.get("specimen", left_of.get("transmitted"))
+    i_back = left_of.get("transmitted")
     impact_force = np.zeros(n_steps + 1)
 
     gauge_inc = _gauge_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
-    gauge_tra = _gauge_weights(by_name["transmitted"], spec.gauge_transmitted_distance, from_end=False)
+    waves_inc = _directional_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
+    transmitted = by_name.get("transmitted")
+    if transmitted is not None:
+        gauge_tra = _gauge_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
+        waves_tra = _directional_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
     specimen = by_name.get("specimen")
     resolved = [r for r in rods if r.name in ("specimen", "shaper")]
     peak = {r.name: (0.0, 0.0) for r in resolved}
-    rec = np.full((kept_steps.size, 11), np.nan)
+    rec = np.full((kept_steps.size, 15), np.nan)
 
     for n in range(n_steps + 1):
         i_row = row_of_step[n]
@@ -706,6 +901,8 @@ def _run(spec, rods, dt, kept_steps):
             v_old[:] = v
         # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
         np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
+        if drive is not None:
+            node_force[incident.node0] += drive[n]
         node_force *= dt_over_m
         v += node_force
         # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
@@ -715,13 +912,16 @@ def _run(spec, rods, dt, kept_steps):
         v[a_idx] = va - impulse * inv_ma
         v[b_idx] = vb + impulse * inv_mb
         np.maximum(g, 0.0, out=gap)
-        impact_force[n] = impulse[i_impact] / dt
+        impact_force[n] = impulse[i_impact] / dt if drive is None else drive[n]
         if i_row >= 0:
             row = rec[i_row]
             row[0] = n * dt
             row[1] = -(gauge_inc[2] * eps[gauge_inc[0]] + gauge_inc[3] * eps[gauge_inc[1]])
-            row[2] = -(gauge_tra[2] * eps[gauge_tra[0]] + gauge_tra[3] * eps[gauge_tra[1]])
-            row[6:8] = impulse[[i_front, i_back]] / dt
+            row[11:13] = _directional_waves(eps, v, waves_inc)
+            if transmitted is not None:
+                row[2] = -(gauge_tra[2] * eps[gauge_tra[0]] + gauge_tra[3] * eps[gauge_tra[1]])
+                row[6:8] = impulse[[i_front, i_back]] / dt
+                row[13:15] = _directional_waves(eps, v, waves_tra)
             if specimen is not None:
                 sl = specimen.links
                 row[3] = -F[sl].mean() / specimen.spec.area
@@ -748,6 +948,51 @@ def _run(spec, rods, dt, kept_steps):
         for p in plastic:
             p.update(eps, dt, F)
     return rec, impact_force, e0, peak
+
+
+def _directional_weights(rod, distance, from_end):
+    """Two interior nodes around a station ``distance`` [m] from the specimen face, their weights, c0.
+
+    The split of the bar strain into its two travelling waves is exact at a
+    node of a Courant-1 bar (see :func:`_directional_waves`); between the two
+    nodes it is interpolated linearly, like the gauge strain.
+    """
+    if from_end:
+        pos = (rod.n + 0.5 * rod.cap_end) * rod.dx - distance
+    else:
+        pos = distance - 0.5 * rod.cap_start * rod.dx
+    x = min(max(pos / rod.dx, 1.0), rod.n - 1.0)  # interior nodes only: both neighbour elements exist
+    j = min(int(math.floor(x)), rod.n - 2)
+    w = x - j
+    return rod.node0 + j, rod.node0 + j + 1, 1.0 - w, w, rod.spec.wave_speed
+
+
+def _directional_waves(eps, v, weights):
+    """Strain of the wave travelling +x and of the wave travelling -x at a station, compression positive.
+
+    At Courant 1 in a uniform bar, node velocities v_j(n+1/2) and element
+    strains eps_j(n) (element j right of node j) satisfy, for a wave R
+    travelling +x and a wave L travelling -x (d'Alembert; tension positive),
+    ``v_j = c0 (L_j - R_(j-1))``, so that
+
+        R at node j = (eps_j - v_j / c0) / 2,   L at node j = (eps_(j-1) + v_j / c0) / 2,
+
+    each the mean of the wave over the two elements beside the node, and
+    R + L the mean strain there. This follows from the update itself
+    (``v`` gains ``c0 (eps_j - eps_(j-1))`` per step at Courant 1, and
+    ``R_j(n) = R_(j-1)(n-1)``, ``L_j(n) = L_(j+1)(n-1)``), so the split is
+    exact on the grid, not an approximation of it. Called when ``v`` holds
+    v(n+1/2) and ``eps`` holds eps(n).
+
+    References
+    ----------
+    .. [1] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2
+       (d'Alembert solution; v = -c0 eps for a wave travelling +x).
+    """
+    j0, j1, w0, w1, c = weights
+    plus = w0 * (eps[j0] - v[j0] / c) + w1 * (eps[j1] - v[j1] / c)
+    minus = w0 * (eps[j0 - 1] + v[j0] / c) + w1 * (eps[j1 - 1] + v[j1] / c)
+    return -0.5 * plus, -0.5 * minus
 
 
 def _gauge_weights(rod, distance, from_end):
@@ -835,6 +1080,1095 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak):
             for r in rods
         },
     }
+    gauge_waves = {name: rec[:, k].copy() for k, name in enumerate(
+        ("incident_toward_specimen", "incident_away_from_specimen",
+         "transmitted_away_from_specimen", "transmitted_toward_specimen"), start=11)}
     return VirtualShotResult(time=time, strain_incident_gauge=rec[:, 1].copy(),
                              strain_transmitted_gauge=rec[:, 2].copy(), foot_arrival_time=foot,
-                             truth=truth, energies=energies, grid=grid, spec=spec)
+                             truth=truth, energies=energies, grid=grid, spec=spec, gauge_waves=gauge_waves)
+
+
+# =========================================================================== from the model to a record
+#: Where the recorder's clock starts: the incident foot at the incident gauge, or the impact.
+TRIGGERS = ("incident-gauge", "impact")
+
+
+@dataclass(frozen=True)
+class RecorderSpec:
+    """How the virtual recorder digitises the gauge channels (SI units).
+
+    Attributes
+    ----------
+    sample_rate : float
+        Sample rate [Hz].
+    duration : float
+        Record length [s].
+    pre_trigger : float
+        Record kept before the trigger [s] (>= 0).
+    trigger : str
+        ``incident-gauge``: t = 0 of the record when the incident foot
+        reaches the incident gauge (what a scope triggered on the incident
+        channel shows; rounded to a whole sample); ``impact``: t = 0 at impact.
+    bits : int or None
+        Resolution of the converter [bit]; None: no quantisation.
+    full_scale : tuple of (float or None)
+        Input range of each channel (incident, transmitted): +/- this many
+        volts [V]; samples beyond the rails are clipped. None: no rails.
+    noise_volts : tuple of float
+        Standard deviation of white noise added to each channel [V].
+    noise_strain : tuple of float
+        Standard deviation of white noise in strain units [1], turned into
+        volts through each gauge's bridge (added in quadrature to ``noise_volts``).
+    offset : tuple of float
+        Baseline offset of each channel [V].
+    seed : int or None
+        Seed of the noise generator (numpy ``default_rng``).
+    """
+
+    sample_rate: float = 10e6
+    duration: float = 0.8e-3
+    pre_trigger: float = 100e-6
+    trigger: str = "incident-gauge"
+    bits: Optional[int] = 12
+    full_scale: tuple = (5.0, 5.0)
+    noise_volts: tuple = (0.0, 0.0)
+    noise_strain: tuple = (0.0, 0.0)
+    offset: tuple = (0.0, 0.0)
+    seed: Optional[int] = None
+
+
+@dataclass
+class VirtualRecord:
+    """A digitised virtual record.
+
+    Attributes
+    ----------
+    time : ndarray
+        Record time [s] (t = 0 at the trigger).
+    volts_incident, volts_transmitted : ndarray
+        Recorded channels [V] (transmitted None in a free-end shot).
+    strain_incident, strain_transmitted : ndarray
+        The bar strains at the gauges that the channels carry, before noise,
+        offset and quantisation [1], compression positive.
+    trigger_time : float
+        Time after impact of the record's t = 0 [s].
+    info : dict
+        ``quantisation_step_V``, ``noise_std_V``, ``offset_V``,
+        ``clipped_samples`` (per channel), ``dispersion`` (None or the plane
+        at which the model's waves are taken as undispersed), ``trigger_time_s``.
+    """
+
+    time: np.ndarray
+    volts_incident: np.ndarray
+    volts_transmitted: Optional[np.ndarray]
+    strain_incident: np.ndarray
+    strain_transmitted: Optional[np.ndarray]
+    trigger_time: float
+    info: dict = field(default_factory=dict)
+
+
+def trigger_time(spec: VirtualShotSpec, recorder: RecorderSpec) -> float:
+    """Time after impact of the record's t = 0 [s], on the sample grid.
+
+    For ``trigger = "incident-gauge"`` it is the transit of the incident foot
+    from the impact face to the gauge, ``(L_i - d_i) / c0`` (Kolsky 1949),
+    plus the elastic transit of the pulse shaper if there is one, rounded to
+    a whole sample as a scope's trigger is.
+    """
+    if recorder.trigger not in TRIGGERS:
+        raise InputError(f"expected one of {', '.join(TRIGGERS)}, got {recorder.trigger!r}", "RecorderSpec.trigger")
+    t = 0.0 if spec.incident_pulse is None else spec.incident_pulse.impact_time
+    if recorder.trigger == "incident-gauge":
+        t += (spec.incident.length - spec.gauge_incident_distance) / spec.incident.wave_speed
+        if spec.shaper is not None:
+            t += spec.shaper.length / spec.shaper.wave_speed
+    return round(t * recorder.sample_rate) / recorder.sample_rate
+
+
+def model_duration(trigger: float, recorder: RecorderSpec) -> float:
+    """How long after impact the model must run for a record starting ``pre_trigger`` before ``trigger`` [s]."""
+    fs = recorder.sample_rate
+    n = int(round(recorder.duration * fs))
+    last = n - 1 - int(round(recorder.pre_trigger * fs)) + int(round(trigger * fs))
+    if last < 1:
+        raise InputError("the record ends before the impact: lengthen duration or shorten pre_trigger",
+                         "RecorderSpec.duration")
+    return last / fs
+
+
+def incident_bar_stress(striker_speed, striker: RodSpec, bar: RodSpec) -> float:
+    """Peak stress of the incident pulse [Pa], compression positive, for a striker hitting a bar.
+
+    ``sigma = rho_b c_b v Z_s / (Z_s + Z_b)`` with ``Z = rho c0 A``; for a
+    striker of the bar's material and diameter ``sigma = rho c0 v / 2``. A
+    pulse shaper lowers or delays the peak, never raises it; at the specimen
+    face the bar stress may reach up to twice this if the specimen does not
+    yield (a stiff specimen reflects the pulse in compression).
+
+    Parameters
+    ----------
+    striker_speed : float
+        Impact speed v [m/s].
+    striker, bar : RodSpec
+        The striker and the incident bar.
+
+    References
+    ----------
+    .. [1] H. Kolsky, Stress Waves in Solids, Clarendon Press, 1953 (Dover 1963),
+       ch. 3 (impact of bars).
+    .. [2] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2 (impact of rods).
+    """
+    zs, zb = striker.impedance, bar.impedance
+    return bar.density * bar.wave_speed * float(striker_speed) * zs / (zs + zb)
+
+
+def plan_shot(spec: VirtualShotSpec, bar_yield_strength=None, striker_yield_strength=None) -> dict:
+    """Planning numbers for a shot: striker speed and energy, pulse length, incident bar stress against yield.
+
+    Parameters
+    ----------
+    spec : VirtualShotSpec
+    bar_yield_strength, striker_yield_strength : float or None
+        Yield strengths of the incident bar and the striker [Pa].
+
+    Returns
+    -------
+    dict
+        ``striker_speed_m_per_s``, ``striker_length_m``, ``striker_kinetic_energy_J``,
+        ``pulse_duration_us`` (2 L / c0 of the striker), ``incident_bar_stress_MPa``
+        (:func:`incident_bar_stress`), ``matched_striker_stress_MPa``
+        (rho c0 v / 2 of the bar), ``yield_strength_MPa`` (the lower of the
+        two given, or None), ``fraction_of_yield`` and ``yields`` (bar stress
+        at or above it).
+    """
+    s, b, v = spec.striker, spec.incident, float(spec.striker_speed)
+    sigma = incident_bar_stress(v, s, b)
+    limits = [y for y in (bar_yield_strength, striker_yield_strength) if y]
+    limit = min(limits) if limits else None
+    return {
+        "striker_speed_m_per_s": v,
+        "striker_length_m": s.length,
+        "striker_kinetic_energy_J": 0.5 * s.density * s.area * s.length * v * v,
+        "pulse_duration_us": 2.0 * s.length / s.wave_speed * 1e6,
+        "incident_bar_stress_MPa": sigma / 1e6,
+        "matched_striker_stress_MPa": 0.5 * b.density * b.wave_speed * v / 1e6,
+        "yield_strength_MPa": None if limit is None else limit / 1e6,
+        "fraction_of_yield": None if limit is None else sigma / limit,
+        "yields": bool(limit is not None and sigma >= limit),
+    }
+
+
+def check_plan(plan: dict, allow_bar_yield: bool = False, where: str = "striker.speed") -> None:
+    """Refuse a plan whose incident bar stress reaches the yield strength (InputError) unless allowed."""
+    if plan["yields"] and not allow_bar_yield:
+        raise InputError(
+            f"a striker speed of {plan['striker_speed_m_per_s']:.3g} m/s gives a peak incident bar stress of "
+            f"{plan['incident_bar_stress_MPa']:.0f} MPa, at or above the yield strength "
+            f"({plan['yield_strength_MPa']:.0f} MPa): lower the speed (or pass --allow-bar-yield to simulate it "
+            f"anyway)",
+            where)
+
+
+def digitise(volts, bits=None, full_scale=None):
+    """Quantise a channel to a converter's codes and clip it at the rails.
+
+    A ``bits``-bit converter over +/- ``full_scale`` has codes
+    ``-2**(bits-1) .. 2**(bits-1) - 1`` of width ``2 full_scale / 2**bits``;
+    each sample becomes the nearest code (values beyond the rails take the
+    end codes).
+
+    Parameters
+    ----------
+    volts : array_like
+        Channel [V].
+    bits : int or None
+        Converter resolution [bit]; None: no quantisation (only clipping).
+    full_scale : float or None
+        Input range +/- [V]; None: no rails (then ``bits`` must be None).
+
+    Returns
+    -------
+    ndarray
+        The recorded channel [V].
+    """
+    v = np.asarray(volts, dtype=float)
+    if full_scale is None:
+        if bits is not None:
+            raise InputError("quantisation needs the recorder's range", "RecorderSpec.full_scale")
+        return v.copy()
+    if bits is None:
+        return np.clip(v, -full_scale, full_scale)
+    step = 2.0 * full_scale / 2**int(bits)
+    half = 2 ** (int(bits) - 1)
+    return np.clip(np.round(v / step), -half, half - 1) * step
+
+
+def _fourier_delay(x, dt, delay):
+    """Delay a sampled signal by ``delay`` [s] (any fraction of a sample) by the Fourier shift theorem.
+
+    The record is extended as in :func:`shpb.dispersion.propagate` (last
+    value held, raised-cosine bridge, first value held) so that nothing wraps
+    round and the periodic signal has no jump.
+    """
+    from scipy import fft as sfft
+
+    x = np.asarray(x, dtype=float)
+    n = x.size
+    hold = int(math.ceil(abs(delay) / dt)) + 32
+    bridge = 32
+    total = sfft.next_fast_len(n + 2 * hold + bridge, real=True)
+    bridge = total - n - 2 * hold
+    y = np.empty(total)
+    y[:n] = x
+    y[n:n + hold] = x[-1]
+    w = 0.5 - 0.5 * np.cos(np.pi * np.arange(1, bridge + 1) / (bridge + 1))
+    y[n + hold:n + hold + bridge] = x[-1] + (x[0] - x[-1]) * w
+    y[n + hold + bridge:] = x[0]
+    spectrum = sfft.rfft(y)
+    spectrum *= np.exp(-2j * np.pi * sfft.rfftfreq(total, dt) * delay)
+    return sfft.irfft(spectrum, total)[:n]
+
+
+def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson):
+    """Pochhammer–Chree dispersion over a distance, without the bulk delay ``distance / c0``.
+
+    ``propagate`` (Follansbee & Frantz 1983) delays each harmonic by
+    ``distance / c(f)``; this returns that, advanced again by
+    ``distance / c0``, so a wave keeps its place on the time axis and only
+    its shape changes: each harmonic is delayed by
+    ``distance (1/c(f) - 1/c0)``. A negative distance undoes a positive one.
+
+    Parameters
+    ----------
+    strain : array_like
+        Strain history [1], uniformly sampled.
+    dt : float
+        Sample interval [s].
+    distance : float
+        Signed path length [m].
+    bar_radius : float
+        Bar radius a [m].
+    bar_wave_speed : float
+        Bar wave speed c0 [m/s].
+    poisson : float
+        Poisson ratio of the bar [1].
+
+    Returns
+    -------
+    ndarray
+        Dispersed strain [1] on the same time axis.
+
+    References
+    ----------
+    .. [1] P. S. Follansbee, C. Frantz, J. Eng. Mater. Technol. 105 (1983) 61-66,
+       doi:10.1115/1.3225620.
+    .. [2] D. Bancroft, Phys. Rev. 59 (1941) 588-593, doi:10.1103/PhysRev.59.588.
+    """
+    from . import dispersion
+
+    x = np.asarray(strain, dtype=float)
+    if distance == 0.0:
+        return x.copy()
+    # held edges, long enough for the slowest harmonics (>= 0.55 c0 in the fundamental mode)
+    pad = int(math.ceil(2.0 * abs(distance) / bar_wave_speed / dt)) + 64
+    padded = np.concatenate([np.full(pad, x[0]), x, np.full(pad, x[-1])])
+    moved = dispersion.propagate(padded, dt, distance, bar_radius, bar_wave_speed, poisson)
+    return _fourier_delay(moved, dt, -distance / bar_wave_speed)[pad:pad + x.size]
+
+
+#: Directional waves at the gauges: (name, bar, first-pass path from the impact face as a function of
+#: (incident length, transmitted length, incident gauge distance, transmitted gauge distance)).
+_WAVE_PATHS = (
+    ("incident_toward_specimen", "incident", lambda li, lt, di, dt_: li - di),
+    ("incident_away_from_specimen", "incident", lambda li, lt, di, dt_: li + di),
+    ("transmitted_away_from_specimen", "transmitted", lambda li, lt, di, dt_: li + dt_),
+    ("transmitted_toward_specimen", "transmitted", lambda li, lt, di, dt_: li + 2 * lt - dt_),
+)
+
+
+def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson, transmitted_poisson=None,
+                            undispersed_at="specimen"):
+    """Gauge strains of a virtual shot with Pochhammer–Chree dispersion added over each wave's path.
+
+    The model's bars are non-dispersive. This takes the two waves crossing
+    each gauge (``result.gauge_waves``, an exact split of the model's bar
+    strain), cuts each into its successive passes (the pulse, then its echo
+    from the bar's far end, ...), and adds to each pass the dispersion it
+    would have gathered over its path from a reference plane at which the
+    model's waves are taken as the truth (:func:`excess_dispersion`):
+
+    ``undispersed_at="specimen"`` (a specimen shot): the waves at the
+    specimen faces are the model's (what the specimen received and gave, so
+    the model's specimen truth belongs to them). The reflected and
+    transmitted waves then disperse forward over the gauge distances
+    (+d_i, +d_t) as in a real bar; the incident wave is carried backwards
+    (-d_i) from the face to its gauge, so its dispersion shows as a precursor
+    before the rise rather than as a trailing ripple. A perfect correction
+    therefore recovers the model's face waves exactly.
+
+    ``undispersed_at="impact"`` (calibration shots without a specimen): the
+    pulse leaves the impact face undispersed and every pass disperses over
+    its whole path from there, as in a real bar (exact for linear elastic
+    bars of one material and diameter).
+
+    Parameters
+    ----------
+    result : VirtualShotResult
+    incident_poisson, transmitted_poisson : float
+        Poisson ratios of the bars [1].
+    undispersed_at : {"specimen", "impact"}
+
+    Returns
+    -------
+    incident, transmitted : ndarray
+        Bar strains at the gauges [1], compression positive, on
+        ``result.time`` (transmitted NaN in a free-end shot).
+
+    Notes
+    -----
+    The k-th pass of a wave reaches its gauge at ``t_face + (p_k - L_i) / c``
+    with ``p_k = p_1 + 2 (k - 1) L`` its path from the impact face. A pass is
+    the part of the wave from one tenth of the bar's round-trip time before
+    its arrival to the same before the next pass (raised-cosine hand-over,
+    the windows summing to one), so the round trip must exceed the pulse
+    length by that margin. The transit through the specimen and waves that
+    cross the specimen or an open contact more than once are given the path
+    of the bar they are in only; beyond the first passes the dispersion is
+    therefore approximate (later passes are not used by a reduction).
+
+    References
+    ----------
+    .. [1] P. S. Follansbee, C. Frantz, J. Eng. Mater. Technol. 105 (1983) 61-66,
+       doi:10.1115/1.3225620.
+    .. [2] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2 and §8.2.
+    """
+    if undispersed_at not in ("specimen", "impact"):
+        raise InputError(f"expected 'specimen' or 'impact', got {undispersed_at!r}", "undispersed_at")
+    spec, rods = result.spec, result.grid["rods"]
+    if spec.specimen is None and undispersed_at == "specimen":
+        raise InputError("a shot without a specimen has no specimen faces: use undispersed_at='impact'",
+                         "undispersed_at")
+    dt = 1.0 / spec.sample_rate
+    t = result.time
+    li = rods["incident"]["length_m"]
+    lt = rods["transmitted"]["length_m"] if "transmitted" in rods else 0.0
+    bars = {"incident": (spec.incident, incident_poisson, li)}
+    if spec.transmitted is not None:
+        if transmitted_poisson is None:
+            raise InputError("the transmitted bar's Poisson ratio is needed", "transmitted_poisson")
+        bars["transmitted"] = (spec.transmitted, transmitted_poisson, lt)
+    t_face = result.foot_arrival_time
+    out = {"incident": np.zeros_like(t), "transmitted": np.zeros_like(t) if "transmitted" in bars else None}
+    for name, bar_name, first in _WAVE_PATHS:
+        if bar_name not in bars:
+            continue
+        rod, _, length = bars[bar_name]
+        c = rod.wave_speed
+        wave = result.gauge_waves[name]
+        p1 = first(li, lt, spec.gauge_incident_distance, spec.gauge_transmitted_distance)
+        margin = 0.1 * 2 * length / c
+        arrivals = []
+        k = 0
+        while True:  # the passes that reach the gauge within the record
+            arrival = t_face + (p1 + 2 * k * length - li) / c
+            if k > 0 and arrival - 1.5 * margin > t[-1]:
+                break
+            arrivals.append(arrival)
+            k += 1
+        for k, arrival in enumerate(arrivals):
+            weight = _step(t, arrival - 1.5 * margin, margin) if k > 0 else np.ones_like(t)
+            if k + 1 < len(arrivals):
+                weight = weight - _step(t, arrivals[k + 1] - 1.5 * margin, margin)
+            part = wave * weight
+            if not np.any(part):
+                continue
+            path = p1 + 2 * k * length
+            for seg_bar, distance in _segments(bar_name, path, li, undispersed_at):
+                seg_rod, seg_nu, _ = bars[seg_bar]
+                part = excess_dispersion(part, dt, distance, 0.5 * seg_rod.diameter, seg_rod.wave_speed, seg_nu)
+            out[bar_name] += part
+    if out["transmitted"] is None:
+        out["transmitted"] = np.full_like(t, np.nan)
+    return out["incident"], out["transmitted"]
+
+
+def _step(t, start, width):
+    """0 before ``start``, raised-cosine rise to 1 over ``width`` [s]."""
+    u = np.clip((t - start) / width, 0.0, 1.0)
+    return 0.5 - 0.5 * np.cos(np.pi * u)
+
+
+def _segments(bar_name, path, incident_length, undispersed_at):
+    """(bar, signed distance) pieces of a pass's path from the reference plane."""
+    if undispersed_at == "specimen":
+        return [(bar_name, path - incident_length)]
+    if bar_name == "incident":
+        return [("incident", path)]
+    return [("incident", incident_length), ("transmitted", path - incident_length)]
+
+
+def _channel_volts(strain, gauge, poisson):
+    from .bridge import bar_volts
+
+    return bar_volts(strain, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor, excitation=gauge.excitation,
+                     gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson=poisson)
+
+
+def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_gauge, transmitted_gauge=None, *,
+                   incident_poisson, transmitted_poisson=None, dispersion=None, trigger=None) -> VirtualRecord:
+    """Turn a virtual shot's gauge strains into a digitised record.
+
+    Steps: (1) the bar strain at each gauge, with Pochhammer–Chree
+    dispersion added if asked (:func:`dispersed_gauge_strains`); (2) the
+    recorder's time window (``pre_trigger`` before the trigger,
+    ``duration`` long; zero strain before the impact); (3) volts through each
+    gauge's bridge, gauge factor, excitation, gain, polarity and calibration
+    scale (:func:`shpb.bridge.bar_volts`, the exact inverse of the
+    reduction's conversion); (4) white noise, baseline offset; (5)
+    quantisation and clipping (:func:`digitise`).
+
+    Parameters
+    ----------
+    result : VirtualShotResult
+        Run at the recorder's sample rate, long enough for the record
+        (:func:`model_duration`).
+    recorder : RecorderSpec
+    incident_gauge, transmitted_gauge : shpb.setup.Gauge
+        Bridge settings of each channel (transmitted None in a free-end shot).
+    incident_poisson, transmitted_poisson : float
+        Poisson ratios of the bars [1] (bridge transverse gauges, dispersion).
+    dispersion : None, "specimen" or "impact"
+        None: the model's non-dispersive strains; otherwise the plane at which
+        the model's waves are taken as undispersed.
+    trigger : float, optional
+        Time after impact of the record's t = 0 [s]; default
+        :func:`trigger_time`.
+
+    Returns
+    -------
+    VirtualRecord
+    """
+    spec = result.spec
+    fs = recorder.sample_rate
+    if abs(spec.sample_rate - fs) > 1e-9 * fs:
+        raise InputError(f"the model ran at {spec.sample_rate:g} Hz but the recorder samples at {fs:g} Hz",
+                         "RecorderSpec.sample_rate")
+    if dispersion is None:
+        strains = [result.strain_incident_gauge, result.strain_transmitted_gauge]
+    else:
+        strains = list(dispersed_gauge_strains(result, incident_poisson=incident_poisson,
+                                               transmitted_poisson=transmitted_poisson,
+                                               undispersed_at=dispersion))
+    trig = trigger_time(spec, recorder) if trigger is None else trigger
+    n = int(round(recorder.duration * fs))
+    k = np.arange(n) - int(round(recorder.pre_trigger * fs)) + int(round(trig * fs))
+    if k[-1] >= result.time.size:
+        raise InputError(f"the model ran to {result.time[-1] * 1e6:.1f} us after impact, the record needs "
+                         f"{k[-1] / fs * 1e6:.1f} us (see model_duration)", "VirtualShotSpec.duration")
+    before = k < 0  # the bars are at rest before the impact
+    kk = np.maximum(k, 0)
+    rng = np.random.default_rng(recorder.seed)
+    channels = [("incident", incident_gauge, incident_poisson), ("transmitted", transmitted_gauge, transmitted_poisson)]
+    volts, clean, info = {}, {}, {"noise_std_V": {}, "offset_V": {}, "clipped_samples": {}}
+    for i, (name, gauge, nu) in enumerate(channels):
+        if gauge is None or spec.transmitted is None and name == "transmitted":
+            volts[name] = clean[name] = None
+            continue
+        strain = np.where(before, 0.0, strains[i][kk])
+        v = _channel_volts(strain, gauge, nu)
+        slope = abs(float(_channel_volts(1e-6, gauge, nu) - _channel_volts(0.0, gauge, nu))) / 1e-6  # V per strain
+        std = math.hypot(recorder.noise_volts[i], recorder.noise_strain[i] * slope)
+        v = v + recorder.offset[i] + std * rng.standard_normal(n)
+        fsc = recorder.full_scale[i]
+        if fsc is not None:
+            info["clipped_samples"][name] = int(np.count_nonzero(np.abs(v) >= fsc))
+        volts[name] = digitise(v, recorder.bits, fsc)
+        clean[name] = strain
+        info["noise_std_V"][name] = std
+        info["offset_V"][name] = recorder.offset[i]
+    info["quantisation_step_V"] = [None if (recorder.bits is None or f is None) else 2 * f / 2**recorder.bits
+                                   for f in recorder.full_scale]
+    info["dispersion"] = dispersion
+    info["trigger_time_s"] = trig
+    time = (np.arange(n) - int(round(recorder.pre_trigger * fs))) / fs
+    return VirtualRecord(time=time, volts_incident=volts["incident"], volts_transmitted=volts["transmitted"],
+                         strain_incident=clean["incident"], strain_transmitted=clean["transmitted"],
+                         trigger_time=trig, info=info)
+
+
+def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> IncidentPulse:
+    """The pulse a striker (through its shaper) sends into the incident bar, at the impact face, undispersed.
+
+    Runs the striker, shaper and incident bar alone (a free-end shot) at the
+    time step the full shot would use, and reads the wave travelling away
+    from the impact at a station ``station`` [m] before the far end (the
+    exact split of :func:`_directional_waves`), moved back to the impact
+    face by its transit ``(L - station) / c0``. Until the echo of the far end
+    returns to it (2 L / c0 after the impact) the impact face does not feel
+    what lies beyond it, so this is the pulse the full shot receives too.
+
+    Parameters
+    ----------
+    spec : VirtualShotSpec
+        A shot with a striker.
+    station : float
+        Distance of the reading station from the incident bar's far end [m].
+    lead : float
+        Zeros kept before the impact [s] (``IncidentPulse.impact_time``),
+        rounded up to whole recorder samples.
+
+    Returns
+    -------
+    IncidentPulse
+        Sampled at the full shot's model time step, from ``lead`` before the
+        impact until the pulse has died away (below 1e-4 of its peak for 5 us).
+
+    Raises
+    ------
+    AnalysisError
+        The pulse has not ended before the echo of the bar's far end returns.
+    """
+    if spec.striker is None:
+        raise InputError("expected a shot with a striker", "VirtualShotSpec.striker")
+    dt = _time_step(spec)
+    lead = math.ceil(lead * spec.sample_rate - 1e-9) / spec.sample_rate  # whole samples: the record grid stays
+    bar = spec.incident
+    transit = (bar.length - station) / bar.wave_speed
+    limit = transit + 2 * bar.length / bar.wave_speed - 5e-6  # before the far end's echo comes back round
+    estimate = 2 * spec.striker.length / spec.striker.wave_speed
+    if spec.shaper is not None:
+        estimate += 20 * spec.shaper.length / spec.shaper.wave_speed
+    span = 2 * estimate + 30e-6
+    base = dataclasses.replace(spec, transmitted=None, specimen=None, gauge_incident_distance=station,
+                               sample_rate=1.0 / dt, max_time_step=dt)
+    while True:
+        duration = min(transit + span, limit)
+        run = simulate_shot(dataclasses.replace(base, duration=duration))
+        shift = (run.grid["rods"]["incident"]["length_m"] - station) / bar.wave_speed
+        t = np.arange(int(math.floor((run.time[-1] - shift + lead) / dt)) + 1) * dt - lead  # from the impact
+        strain = np.interp(t + shift, run.time, run.gauge_waves["incident_toward_specimen"], left=0.0)
+        tail = np.abs(strain[t > t[-1] - 5e-6])
+        if tail.max() <= 1e-4 * np.abs(strain).max():
+            return IncidentPulse(dt=dt, strain=strain, impact_time=lead)
+        if duration >= limit:
+            raise AnalysisError(f"the incident pulse lasts longer than the incident bar's round trip "
+                                f"({2 * bar.length / bar.wave_speed * 1e6:.0f} us): use a longer bar or a shorter "
+                                f"striker")
+        span *= 2
+
+
+def dispersed_drive(spec: VirtualShotSpec, incident_poisson) -> VirtualShotSpec:
+    """The shot with its striker and shaper replaced by their pulse, dispersed over the incident bar.
+
+    The striker's pulse (:func:`incident_pulse`) is given the
+    Pochhammer–Chree dispersion of the incident bar's length
+    (:func:`excess_dispersion`) and drives the bar's impact face: it reaches
+    the specimen as it would through a real bar, so the model's specimen
+    responds to a physically dispersed incident wave. Every recorded wave
+    then gets the dispersion of its path from the specimen faces
+    (:func:`dispersed_gauge_strains` with ``undispersed_at="specimen"``),
+    which for the incident wave at its gauge amounts to dispersion over the
+    impact-face-to-gauge distance, with the ripples trailing as in a real bar.
+
+    Parameters
+    ----------
+    spec : VirtualShotSpec
+        A shot with a striker.
+    incident_poisson : float
+        Poisson ratio of the incident bar [1].
+
+    Returns
+    -------
+    VirtualShotSpec
+        With ``striker=None``, ``shaper=None`` and ``incident_pulse`` set;
+        the impact happens at ``incident_pulse.impact_time`` (model time), and
+        ``duration`` is kept (lengthen it by that much for the same record).
+
+    References
+    ----------
+    .. [1] P. S. Follansbee, C. Frantz, J. Eng. Mater. Technol. 105 (1983) 61-66,
+       doi:10.1115/1.3225620.
+    """
+    pulse = incident_pulse(spec)
+    bar = spec.incident
+    # room for the trailing ripples: the slowest harmonics (~0.58 c0) lag by up to ~0.72 L / c0
+    extra = int(math.ceil(bar.length / bar.wave_speed / pulse.dt)) + 64
+    strain = np.concatenate([pulse.strain, np.zeros(extra)])
+    dispersed = excess_dispersion(strain, pulse.dt, bar.length, 0.5 * bar.diameter, bar.wave_speed, incident_poisson)
+    return dataclasses.replace(spec, striker=None, shaper=None,
+                               incident_pulse=IncidentPulse(pulse.dt, dispersed, pulse.impact_time))
+
+
+# =========================================================================== the edge: setup file, outputs, figure
+#: Specimen and shaper laws a simulation setup file may name.
+SETUP_LAWS = ("elastic", "perfectly-plastic", "johnson-cook")
+#: Kinds of virtual shot a setup file may describe.
+SHOT_KINDS = ("specimen", "bars-together", "free-end")
+#: Names of the files ``write_virtual_shot`` writes (``{name}`` is the setup's name).
+OUTPUT_FILES = {"record": "{name}.csv", "shot": "{name}.toml", "truth": "{name}_truth.csv", "figure": "{name}.png"}
+#: Channel columns of a virtual record.
+RECORD_COLUMNS = ("TIME", "CH1", "CH2")
+#: How the dispersion of a record is described in its metadata and figure.
+DISPERSION_LABELS = {None: "none (non-dispersive bars)",
+                     "specimen": "Pochhammer-Chree, each wave over its path from the specimen faces",
+                     "impact": "Pochhammer-Chree, each wave over its path from the impact face"}
+
+
+@dataclass(frozen=True)
+class SimulationSetup:
+    """A virtual shot as described by a simulation setup file (all SI).
+
+    Attributes
+    ----------
+    name : str
+    kind : str
+        ``specimen``, ``bars-together`` or ``free-end`` (one of :data:`SHOT_KINDS`).
+    spec : VirtualShotSpec
+        The model input (striker, shaper, bars, specimen; duration set for the record).
+    recorder : RecorderSpec
+    barset : shpb.setup.BarSet
+        The bar set the bars, gauges and striker come from.
+    barset_path : Path
+        Its file.
+    dispersion : bool
+        Pochhammer–Chree dispersion in the records.
+    specimen : dict
+        What the shot file needs about the specimen: ``material``,
+        ``temperature`` [K] (or None), ``modulus`` [Pa], ``density`` [kg/m^3],
+        and ``law`` (a description with its parameters, SI).
+    yield_strength : float or None
+        The lower of the incident bar's and the striker's yield strengths [Pa].
+    source : str
+        The setup file.
+    """
+
+    name: str
+    kind: str
+    spec: VirtualShotSpec
+    recorder: RecorderSpec
+    barset: object
+    barset_path: Path
+    dispersion: bool
+    specimen: dict
+    yield_strength: Optional[float]
+    source: str
+
+
+@dataclass
+class VirtualShot:
+    """A simulated shot ready to be written: setup, planning numbers, model result and record."""
+
+    setup: SimulationSetup
+    plan: dict
+    result: VirtualShotResult
+    record: VirtualRecord
+
+
+def _law(t, modulus):
+    """The constitutive law of a [specimen] or [shaper] table, and its description."""
+    name = t.string("law", default="elastic", choices=SETUP_LAWS)
+    measure = t.string("stress_measure", default="true", choices=("true", "engineering"))
+    if name == "elastic":
+        for key in ("yield_stress", "A", "B", "n", "C", "reference_rate"):
+            if t.has(key):
+                raise InputError(f"key {key!r} needs a plastic law (law = 'perfectly-plastic' or 'johnson-cook')",
+                                 t._key(key))
+        return None, {"law": "elastic"}
+    if name == "perfectly-plastic":
+        y = t.quantity("yield_stress", "pressure")
+        law, desc = PerfectlyPlastic(y), {"law": name, "yield_stress_Pa": y}
+    else:
+        A = t.quantity("A", "pressure")
+        B = t.quantity("B", "pressure", positive=False)
+        n = t.quantity("n", "dimensionless")
+        C = t.quantity("C", "dimensionless", positive=False)
+        rate0 = t.quantity("reference_rate", "strain_rate", default=1.0)
+        for key, val in (("B", B), ("C", C)):
+            if val < 0:
+                raise InputError(f"expected a value >= 0, got {t.data[key]!r}", t._key(key))
+        law = JohnsonCookLaw(A, B, n, C, rate0)
+        desc = {"law": name, "A_Pa": A, "B_Pa": B, "n": n, "C": C, "reference_rate_per_s": rate0}
+    desc["stress_measure"] = measure
+    if measure == "true":
+        law = TrueStressLaw(law, modulus)
+    return law, desc
+
+
+_ROD_KEYS = {"diameter", "modulus", "density", "material", "law", "stress_measure", "yield_stress", "A", "B", "n",
+             "C", "reference_rate", "elements"}
+
+
+def _elements(t, default, minimum):
+    value = t.data.get("elements", default)
+    if isinstance(value, bool) or not isinstance(value, int) or value < minimum:
+        raise InputError(f"expected a whole number of elements >= {minimum}, got {value!r}", t._key("elements"))
+    return value
+
+
+def _pair(t, key, parse, default):
+    """A value for both channels, or a [incident, transmitted] list."""
+    if not t.has(key):
+        return (default, default)
+    raw = t.data[key]
+    if isinstance(raw, list):
+        if len(raw) != 2:
+            raise InputError(f"expected one value or a list of two (incident, transmitted), got {raw!r}", t._key(key))
+        return tuple(parse(v, f"{t._key(key)}[{i}]") for i, v in enumerate(raw))
+    value = parse(raw, t._key(key))
+    return (value, value)
+
+
+def _noise(value, where):
+    """Noise std: ``"2 mV"`` -> (volts, 0); ``"3 microstrain"`` -> (0, strain); 0 -> (0, 0)."""
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and value == 0:
+        return (0.0, 0.0)
+    if not isinstance(value, str):
+        raise InputError(f"expected a noise level with its unit ('2 mV' or '3 microstrain'), got {value!r}", where)
+    try:
+        out = (to_si(value, "voltage", where), 0.0)
+    except InputError:
+        try:
+            out = (0.0, to_si(value, "dimensionless", where))
+        except InputError:
+            raise InputError(f"expected volts ('2 mV') or strain ('3 microstrain'), got {value!r}", where) from None
+    if min(out) < 0:
+        raise InputError(f"expected a noise level >= 0, got {value!r}", where)
+    return out
+
+
+def load_simulation(path) -> SimulationSetup:
+    """Load a simulation setup file (format in ``docs/simulation.md``).
+
+    Every error names the file and the key. The bars, gauges and (by default)
+    the striker come from the bar set the file names (:func:`shpb.setup.load_barset`).
+    The model bars take the bar set's modulus and wave speed (the measured
+    one when the bar set or its calibration gives one; density E / c0**2).
+    """
+    from .setup import _Table, load_barset, read_toml
+
+    path = Path(path)
+    src = str(path)
+    data = read_toml(path)
+    top = _Table(data, f"{src}:")
+    top.check_keys({"name", "kind", "barset", "dispersion", "striker", "specimen", "shaper", "recorder"})
+    name = str(data.get("name", path.stem))
+    if not name or any(c in name for c in '/\\:*?"<>|'):
+        raise InputError(f"name {name!r} cannot be a file name", f"{src}: name")
+    kind = top.string("kind", default="specimen" if "specimen" in data else "bars-together", choices=SHOT_KINDS)
+    barset_path = path.parent / top.string("barset")
+    bs = load_barset(barset_path)
+
+    def bar_rod(bar):
+        c = bar.wave_speed
+        return RodSpec(bar.length, bar.diameter, bar.modulus, bar.modulus / c**2)
+
+    # striker: the bar set's, with overrides
+    st = top.table("striker", required=False) or _Table({}, f"{src}: striker")
+    st.check_keys({"speed", "length", "diameter", "modulus", "density"})
+    base = bs.striker
+    mat = base.material if base else bs.incident.material
+    speed = st.quantity("speed", "velocity", required=False, default=base.speed if base else None)
+    if speed is None:
+        raise InputError("missing key 'speed' (the striker speed, e.g. '15 m/s'; or give it in the bar set)", st.where)
+    if base is None and not st.has("length"):
+        raise InputError("missing key 'length' (the bar set describes no striker)", st.where)
+    s_modulus = st.quantity("modulus", "pressure", default=mat.modulus)
+    striker = RodSpec(st.quantity("length", "length", default=base.length if base else None),
+                      st.quantity("diameter", "length", default=base.diameter if base else bs.incident.diameter),
+                      s_modulus, st.quantity("density", "density", default=mat.density))
+    yields = [y for y in (bs.incident.material.yield_strength, mat.yield_strength if not st.has("modulus") else None)
+              if y]
+
+    specimen, info = None, {}
+    sp = top.table("specimen", required=False)
+    if kind == "specimen":
+        if sp is None:
+            raise InputError("missing table [specimen] (or set kind = 'bars-together' / 'free-end')", f"{src}:")
+        sp.check_keys(_ROD_KEYS | {"length", "temperature"})
+        modulus = sp.quantity("modulus", "pressure")
+        law, desc = _law(sp, modulus)
+        specimen = RodSpec(sp.quantity("length", "length"), sp.quantity("diameter", "length"), modulus,
+                           sp.quantity("density", "density"), law)
+        if specimen.diameter > bs.incident.diameter:
+            raise InputError(f"specimen diameter {specimen.diameter * 1e3:g} mm exceeds the bar diameter "
+                             f"{bs.incident.diameter * 1e3:g} mm", sp._key("diameter"))
+        info = {"material": str(sp.data.get("material", "")),
+                "temperature": sp.quantity("temperature", "temperature", required=False),
+                "modulus": modulus, "density": specimen.density, "law": desc}
+        elements = _elements(sp, 20, 20)
+    elif sp is not None:
+        raise InputError(f"a {kind} shot has no specimen: remove [specimen] or set kind = 'specimen'", sp.where)
+    else:
+        elements = 20
+
+    shaper = None
+    sh = top.table("shaper", required=False)
+    shaper_elements = 10
+    if sh is not None:
+        sh.check_keys(_ROD_KEYS | {"thickness"})
+        modulus = sh.quantity("modulus", "pressure")
+        law, _ = _law(sh, modulus)
+        shaper = RodSpec(sh.quantity("thickness", "length"), sh.quantity("diameter", "length"), modulus,
+                         sh.quantity("density", "density"), law)
+        shaper_elements = _elements(sh, 10, 4)
+
+    rt = top.table("recorder", required=False) or _Table({}, f"{src}: recorder")
+    rt.check_keys({"sample_rate", "duration", "pre_trigger", "trigger", "bits", "range", "noise", "offset", "seed"})
+    bits = rt.data.get("bits", 12)
+    if bits is not None and (isinstance(bits, bool) or not isinstance(bits, int) or not 2 <= bits <= 24):
+        raise InputError(f"expected a whole number of bits from 2 to 24, got {bits!r}", rt._key("bits"))
+    seed = rt.data.get("seed")
+    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, int) or seed < 0):
+        raise InputError(f"expected a whole number >= 0, got {seed!r}", rt._key("seed"))
+    noise = _pair(rt, "noise", _noise, (0.0, 0.0))
+    recorder = RecorderSpec(
+        sample_rate=rt.quantity("sample_rate", "frequency", default=10e6),
+        duration=rt.quantity("duration", "time", default=0.8e-3),
+        pre_trigger=rt.quantity("pre_trigger", "time", default=100e-6, positive=False),
+        trigger=rt.string("trigger", default="incident-gauge", choices=TRIGGERS),
+        bits=bits,
+        full_scale=_pair(rt, "range", lambda v, w: _positive(to_si(v, "voltage", w), v, w), 5.0),
+        noise_volts=(noise[0][0], noise[1][0]),
+        noise_strain=(noise[0][1], noise[1][1]),
+        offset=_pair(rt, "offset", lambda v, w: to_si(v, "voltage", w), 0.0),
+        seed=seed,
+    )
+    if recorder.pre_trigger < 0:
+        raise InputError("expected a time >= 0", rt._key("pre_trigger"))
+
+    transmitted = None if kind == "free-end" else bar_rod(bs.transmitted)
+    spec = VirtualShotSpec(striker=striker, incident=bar_rod(bs.incident), transmitted=transmitted,
+                           specimen=specimen, striker_speed=speed,
+                           gauge_incident_distance=bs.incident_gauge.distance,
+                           gauge_transmitted_distance=bs.transmitted_gauge.distance,
+                           duration=1.0, sample_rate=recorder.sample_rate, shaper=shaper,
+                           specimen_elements=elements, shaper_elements=shaper_elements)
+    spec = dataclasses.replace(spec, duration=model_duration(trigger_time(spec, recorder), recorder))
+    return SimulationSetup(name=name, kind=kind, spec=spec, recorder=recorder, barset=bs, barset_path=barset_path,
+                           dispersion=top.boolean("dispersion", True), specimen=info,
+                           yield_strength=min(yields) if yields else None, source=src)
+
+
+def _positive(value, raw, where):
+    if not value > 0:
+        raise InputError(f"expected a positive value, got {raw!r}", where)
+    return value
+
+
+def simulate_setup(setup: SimulationSetup, *, allow_bar_yield=False) -> VirtualShot:
+    """Plan, simulate and record the virtual shot a setup describes.
+
+    Refuses (InputError naming the file and ``striker.speed``) a striker speed
+    whose incident bar stress reaches the yield strength, unless
+    ``allow_bar_yield``. With dispersion, a specimen shot is driven by the
+    striker's pulse dispersed over the incident bar (:func:`dispersed_drive`)
+    and recorded with each wave dispersed over its path from the specimen
+    faces; a calibration shot (no specimen) is recorded with each wave
+    dispersed over its whole path from the impact face.
+    """
+    spec, rec, bs = setup.spec, setup.recorder, setup.barset
+    plan = plan_shot(spec, setup.yield_strength)
+    check_plan(plan, allow_bar_yield, f"{setup.source}: striker.speed")
+    trigger = trigger_time(spec, rec)
+    nu_i, nu_t = bs.incident.poisson_ratio, bs.transmitted.poisson_ratio
+    mode = None
+    if setup.dispersion and setup.kind == "specimen":
+        run = dispersed_drive(spec, nu_i)
+        lead = run.incident_pulse.impact_time
+        run = dataclasses.replace(run, duration=spec.duration + lead)
+        trigger += lead
+        mode = "specimen"
+    else:
+        run = spec
+        if setup.dispersion:
+            mode = "impact"
+    result = simulate_shot(run)
+    record = virtual_record(result, rec, bs.incident_gauge,
+                            None if setup.kind == "free-end" else bs.transmitted_gauge,
+                            incident_poisson=nu_i, transmitted_poisson=nu_t, dispersion=mode, trigger=trigger)
+    return VirtualShot(setup=setup, plan=plan, result=result, record=record)
+
+
+def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = None, *, before=20e-6, after=20e-6):
+    """The specimen truth over its loading: from ``before`` [s] ahead of the incident foot's arrival to
+    ``after`` [s] past the last time a face force exceeds 1 % of its peak (within the record).
+
+    Columns (units in the names, reduction time origin): ``time_us``,
+    ``stress_MPa``, ``strain``, ``strain_rate_per_s``, ``force_front_kN``,
+    ``force_back_kN``; engineering values, compression positive.
+    """
+    truth = result.truth
+    force = np.maximum(np.abs(truth.force_front_kN.to_numpy()), np.abs(truth.force_back_kN.to_numpy()))
+    loaded = np.flatnonzero(force > 0.01 * np.nanmax(force))
+    t = truth.time_us.to_numpy()
+    end = t[loaded[-1]] + after * 1e6 if loaded.size else t[-1]
+    if record is not None:  # the record's last sample on the reduction's time origin
+        end = min(end, (record.time[-1] + record.trigger_time - result.foot_arrival_time) * 1e6)
+    keep = (t >= -before * 1e6) & (t <= end)
+    return truth.loc[keep, ["time_us", "stress_MPa", "strain", "strain_rate_per_s", "force_front_kN",
+                            "force_back_kN"]].reset_index(drop=True)
+
+
+def analysis_window(shot: VirtualShot) -> float:
+    """A pulse window [s] for the reduction that holds the whole pulse at the specimen faces.
+
+    From the incident foot to 1.25 times the last time a face force exceeds
+    2 % of its peak, and at least the reduction's default 1.3 x 2 L / c0 of
+    the striker (a dispersed or shaped pulse outlasts 2 L / c0, and cutting
+    a dispersed wave makes the correction ring back over the cut); at most
+    85 % of 2 d / c0 of the incident gauge (beyond, the incident and reflected
+    windows overlap at the gauge).
+    """
+    truth = shot.result.truth
+    force = np.maximum(np.abs(truth.force_front_kN.to_numpy()), np.abs(truth.force_back_kN.to_numpy()))
+    loaded = np.flatnonzero(force > 0.02 * np.nanmax(force))
+    last = truth.time_us.to_numpy()[loaded[-1]] * 1e-6
+    spec = shot.setup.spec
+    striker = 2.6 * spec.striker.length / spec.striker.wave_speed if spec.striker is not None else 0.0
+    return min(max(1.25 * last, striker), 0.85 * 2 * spec.gauge_incident_distance / spec.incident.wave_speed)
+
+
+def record_csv_text(record: VirtualRecord, metadata=()) -> str:
+    """A record as a scope would export it: ``key,value`` metadata lines, then ``TIME,CH1[,CH2]`` and the samples.
+
+    Time in seconds (``%.6e``), volts with five significant digits (below
+    the converter's step).
+    """
+    import io as _io
+
+    cols = [record.time, record.volts_incident]
+    names = list(RECORD_COLUMNS[:2])
+    if record.volts_transmitted is not None:
+        cols.append(record.volts_transmitted)
+        names.append(RECORD_COLUMNS[2])
+    buf = _io.StringIO()
+    for key, value in metadata:
+        buf.write(f"{key},{value}\n")
+    buf.write(",".join(names) + "\n")
+    np.savetxt(buf, np.column_stack(cols), delimiter=",", fmt=["%.6e"] + ["%.5g"] * (len(cols) - 1))
+    return buf.getvalue()
+
+
+def _q(value, unit, scale, fmt=".6g"):
+    return f'"{format(value / scale, fmt)} {unit}"'
+
+
+def shot_toml_text(shot: VirtualShot, record_file: str, barset_file: str, window: Optional[float] = None) -> str:
+    """A ready-to-reduce shot file (``docs/setup-files.md``) for a virtual specimen shot."""
+    s = shot.setup
+    sp, info = s.spec.specimen, s.specimen
+    law = ", ".join(f"{k} = {v:.6g}" if isinstance(v, float) else f"{k} = {v}" for k, v in info["law"].items())
+    lines = [
+        f"# Virtual shot written by `shpb simulate` from {Path(s.source).name} - SYNTHETIC DATA.",
+        f"# Specimen law put in: {law}.",
+        f"# Striker {s.spec.striker.length:.4g} m at {s.spec.striker_speed:.4g} m/s; dispersion in the record: "
+        f"{'on' if s.dispersion else 'off'}. The truth table is beside the record.",
+        f'name = "{s.name}"',
+        f'barset = "{barset_file}"',
+        "",
+        "[specimen]",
+        f"length = {_q(sp.length, 'mm', 1e-3)}",
+        f"diameter = {_q(sp.diameter, 'mm', 1e-3)}",
+        f'material = "{info["material"]}"',
+    ]
+    if info.get("temperature") is not None:
+        lines.append(f"temperature = {_q(info['temperature'], 'K', 1.0)}")
+    lines += [f"modulus = {_q(info['modulus'], 'GPa', 1e9)}", f"density = {_q(info['density'], 'kg/m^3', 1.0)}",
+              "", "[record]", f'file = "{record_file}"', 'incident = "CH1"', 'transmitted = "CH2"', 'time = "TIME"',
+              "", "[analysis]", "dispersion = true"]
+    if window is not None:
+        lines.append(f"window = {_q(window, 'us', 1e-6, '.1f')}")
+    return "\n".join(lines) + "\n"
+
+
+def record_metadata(shot: VirtualShot) -> list:
+    """``(key, value)`` metadata lines of a virtual record: instrument, setup, sample interval, trigger, ..."""
+    s, rec = shot.setup, shot.record
+    r = s.recorder
+    return [("Instrument", "shpb virtual recorder - SYNTHETIC DATA (not a measurement)"),
+            ("Setup", Path(s.source).name),
+            ("Sample interval", f"{1 / r.sample_rate:.6g} s"),
+            ("Trigger", f"{r.trigger}; record starts {r.pre_trigger * 1e6:.6g} us before it"),
+            ("Vertical", f"{r.bits} bit over +/-{r.full_scale[0]:.6g} V" if r.bits else "not quantised"),
+            ("Dispersion", DISPERSION_LABELS[rec.info["dispersion"]])]
+
+
+def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
+    """Write a virtual shot into ``out_dir``, atomically.
+
+    Files (``{name}`` the setup's name): the record ``{name}.csv`` (scope
+    style: metadata lines, then ``TIME,CH1,CH2``); for a specimen shot, the
+    ready-to-reduce shot file ``{name}.toml`` (bar set by relative path,
+    ``window`` from :func:`analysis_window`) and the truth table
+    ``{name}_truth.csv`` (:func:`truth_table`); the figure ``{name}.png``
+    (gauge strains, face forces, specimen stress) if ``figure``.
+
+    Returns
+    -------
+    dict
+        ``record``, ``shot``, ``truth``, ``figure`` -> Path (those written).
+    """
+    import os
+
+    from .io import atomic_savefig, atomic_write_csv, atomic_write_text
+
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    name = shot.setup.name
+    paths = {k: out / v.format(name=name) for k, v in OUTPUT_FILES.items()}
+    written = {}
+    atomic_write_text(paths["record"], record_csv_text(shot.record, record_metadata(shot)))
+    written["record"] = paths["record"]
+    if shot.setup.kind == "specimen":
+        atomic_write_csv(paths["truth"], truth_table(shot.result, shot.record), float_format="%.6g")
+        written["truth"] = paths["truth"]
+        rel = Path(os.path.relpath(Path(shot.setup.barset_path).resolve(), out.resolve())).as_posix()
+        atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel, analysis_window(shot)))
+        written["shot"] = paths["shot"]
+    if figure:
+        fig = plot_virtual_shot(shot)
+        atomic_savefig(fig, paths["figure"], dpi=100)
+        import matplotlib.pyplot as plt
+
+        plt.close(fig)
+        written["figure"] = paths["figure"]
+    return written
+
+
+def plot_virtual_shot(shot: VirtualShot):
+    """Figure of a virtual shot: bar strains at the gauges, face forces, specimen stress (a matplotlib Figure)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    rec, res, s = shot.record, shot.result, shot.setup
+    has_specimen = s.kind == "specimen"
+    fig, axes = plt.subplots(3 if has_specimen else 1, 1, figsize=(8.3, 9.5 if has_specimen else 3.8),
+                             constrained_layout=True, squeeze=False)
+    ax = axes[0, 0]
+    ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, label="incident-bar gauge")
+    if rec.strain_transmitted is not None:
+        ax.plot(rec.time * 1e6, rec.strain_transmitted * 1e6, lw=0.8, label="transmitted-bar gauge")
+    ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)",
+           title="Gauge strains in the record (before noise and quantisation)")
+    ax.text(0.01, 0.02, f"dispersion: {DISPERSION_LABELS[rec.info['dispersion']]}", transform=ax.transAxes,
+            fontsize=7, color="0.3")
+    ax.legend(fontsize=7)
+    if has_specimen:
+        tt = truth_table(res, rec)
+        ax = axes[1, 0]
+        ax.plot(tt.time_us, tt.force_front_kN, label="front face F1 (incident bar)")
+        ax.plot(tt.time_us, tt.force_back_kN, "--", label="back face F2 (transmitted bar)")
+        ax.set(xlabel="time from the incident foot at the specimen [µs]", ylabel="force [kN]",
+               title="Face forces (model truth)")
+        ax.legend(fontsize=7)
+        ax = axes[2, 0]
+        loading = tt.loc[: int(tt.strain.to_numpy().argmax())]
+        ax.plot(loading.strain, loading.stress_MPa, "k", label="engineering (model truth)")
+        true_strain = -np.log1p(-loading.strain.to_numpy())
+        ax.plot(true_strain, loading.stress_MPa * (1 - loading.strain), "C3", lw=0.8, label="true (volume constant)")
+        ax.set(xlabel="strain [1]", ylabel="stress [MPa]", title="Specimen stress (model truth)")
+        ax.legend(fontsize=7)
+    fig.suptitle(f"Virtual shot {s.name} - SYNTHETIC (shpb simulate)", fontsize=10)
+    return fig
