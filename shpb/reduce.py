@@ -23,6 +23,9 @@ from .io import Record, atomic_write_csv, atomic_write_json, read_record
 from .setup import Bar, Gauge, Shot
 from .validity import Flag
 
+#: Time over which R(t) is averaged before the equilibrium test [s].
+EQUILIBRIUM_AVERAGING = 0.25e-6
+
 CURVES_FILE = "curves.csv"
 SUMMARY_FILE = "summary.json"
 FIGURE_FILE = "shot.png"
@@ -116,6 +119,11 @@ def _transfer(channel, dt, start, stop, distance, bar: Bar, use_dispersion, ampl
     return full, full_plain
 
 
+def ramp_time(duration, dt):
+    """Length of the raised-cosine taper at each end of a wave's window [s]: 2 % of the pulse."""
+    return max(2 * dt, 0.02 * duration)
+
+
 def _strain(volts, gauge: Gauge, bar: Bar):
     return bridge.bar_strain(volts, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor,
                              excitation=gauge.excitation, gain=gauge.gain, polarity=gauge.polarity,
@@ -187,25 +195,37 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     bi, bt = bs.incident, bs.transmitted
     ci, ct = bi.wave_speed, bt.wave_speed
     di, dtr = bs.incident_gauge.distance, bs.transmitted_gauge.distance
-    if opt.window:
-        duration, duration_source = opt.window, "given"
+    end = pulses.pulse_end(si, foot, fraction=0.05)
+    if end is not None:
+        duration, duration_source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
     elif bs.striker is not None:
         duration, duration_source = bs.striker.pulse_duration, "striker 2L/c0"
     else:
-        end = pulses.pulse_end(si, foot)
-        if end is None:
-            raise AnalysisError(f"{where}: the incident pulse does not end before the record does")
-        duration, duration_source = (end - foot) * dt, "measured"
+        raise AnalysisError(f"{where}: the incident pulse does not end before the record does")
     f = validity.overlap_flag(duration, di, ci, "incident")
     if f:
         flags.append(f)
-    pre = 0.1 * duration
-    window = min(1.3 * duration, 2 * di / ci - pre) if not opt.window else opt.window
+    # The longest window free of other waves: the reflected wave reaches the incident gauge 2 d/c0
+    # after the incident foot; echoes from the bars' far ends come back after 2 (L - d)/c0.
+    w_free = min(2 * di / ci, 2 * (bi.length - di) / ci, 2 * (bt.length - dtr) / ct)
+    pre = min(0.1 * duration, 0.1 * w_free)
     t_foot = rec.time[0] + foot * dt
     t_face0 = t_foot + di / ci  # record time of the incident foot at the front face
+    if opt.window:
+        window, window_source = opt.window, "given"
+    else:
+        # As long as the bars allow (up to 3 pulse lengths): a cut through a pulse's tail would ring
+        # through the dispersion correction and hide the specimen's unloading.
+        window, window_source = max(min(3 * duration, 0.97 * w_free - pre), duration), "automatic"
+        # ... and no longer than the record holds (the reflected and transmitted waves pass their
+        # gauges last)
+        w_rec = rec.time[-1] - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
+        if w_rec < window:
+            window = max(w_rec, 0.5 * duration)
+            window_source = "automatic, cut by the record's end"
     k0 = int(math.ceil((t_face0 - pre - rec.time[0]) / dt))
     k1 = int(math.floor((t_face0 + window - rec.time[0]) / dt)) + 1
-    ramp = max(2, int(0.02 * duration / dt))
+    ramp = max(2, int(ramp_time(duration, dt) / dt))
 
     # 3. each wave to its face ---------------------------------------------------------------
     use_disp = bool(opt.dispersion)
@@ -222,18 +242,22 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         face, plain = _transfer(chan, dt, g0, g1, dist, bar, use_disp, opt.amplitude_factors, ramp)
         if adjust:
             face, plain = pulses.delay(face, dt, -adjust), pulses.delay(plain, dt, -adjust)
+        if k1 > n:  # the window runs past the record's end: zeros there (flagged below)
+            face, plain = np.pad(face, (0, k1 - n)), np.pad(plain, (0, k1 - n))
         waves[name] = (face[k0:k1], plain[k0:k1])
     if k1 > n:
         end_needed = rec.time[0] + (k1 - 1) * dt
         flags.append(Flag("record_truncated", "error",
                           f"the record ends at {rec.time[-1] * 1e6:.1f} us, before the analysis window does "
                           f"({end_needed * 1e6:.1f} us)"))
-    if gauge_windows["transmitted"][1] > rec.time[-1] or gauge_windows["reflected"][1] > rec.time[-1]:
+    passed = max(gauge_windows["transmitted"][1], gauge_windows["reflected"][1])
+    if passed > rec.time[-1] or window < duration:
         if not any(f.code == "record_truncated" for f in flags):
             flags.append(Flag("record_truncated", "error",
                               f"the record ends at {rec.time[-1] * 1e6:.1f} us, before the transmitted "
                               f"(or reflected) pulse has passed its gauge "
-                              f"({max(gauge_windows['transmitted'][1], gauge_windows['reflected'][1]) * 1e6:.1f} us)"))
+                              f"(the {duration * 1e6:.0f} us pulse needs the record to "
+                              f"{(passed + max(duration - window, 0)) * 1e6:.1f} us)"))
     ei, er, et = (waves[k][0] for k in ("incident", "reflected", "transmitted"))
     disp_info = {"applied": use_disp}
     if use_disp:
@@ -286,12 +310,15 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     if region is None:
         flags.append(Flag("no_loading", "error", "no loading found (no positive strain rate and force)"))
     else:
-        onset = validity.equilibrium_onset(ratio, region, opt.equilibrium_threshold)
+        # R averaged over 0.25 us: single-sample recorder noise must not break equilibrium, while the
+        # ring-up of a specimen transit (~1 us and more) is not smoothed away
+        ratio_avg = validity.moving_average(ratio, max(1, round(EQUILIBRIUM_AVERAGING / dt)))
+        onset = validity.equilibrium_onset(ratio_avg, region, opt.equilibrium_threshold)
         if onset is None:
             flags.append(Flag("no_equilibrium", "error",
                               f"the face forces never settle within {100 * opt.equilibrium_threshold:.0f}% of each "
                               f"other during loading (|R| at the end of loading "
-                              f"{abs(ratio[region[1] - 1]):.2f}): the specimen is not in equilibrium"))
+                              f"{abs(ratio_avg[region[1] - 1]):.2f}): the specimen is not in equilibrium"))
         else:
             valid[onset:region[1]] = True
             t_eq = tau[onset]
@@ -367,6 +394,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         "pulse_duration_us": duration * 1e6,
         "pulse_duration_source": duration_source,
         "window_us": window * 1e6,
+        "window_source": window_source,
         "incident_wave_speed_m_per_s": ci,
         "incident_wave_speed_source": _speed_source(bs, "incident"),
         "transmitted_wave_speed_m_per_s": ct,

@@ -58,6 +58,22 @@ def loading_region(strain_rate, force_mean, *, force_fraction=0.1, rate_fraction
     return start, int(on[-1]) + 1
 
 
+def moving_average(values, n):
+    """Centred moving average over ``n`` samples, NaN-aware (NaN where the window holds no number)."""
+    x = np.asarray(values, dtype=float)
+    n = int(n)
+    if n <= 1:
+        return x.copy()
+    ok = np.isfinite(x)
+    kernel = np.ones(n)
+    num = np.convolve(np.where(ok, x, 0.0), kernel, mode="same")
+    cnt = np.convolve(ok.astype(float), kernel, mode="same")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = num / cnt
+    out[cnt == 0] = np.nan
+    return out
+
+
 def equilibrium_onset(ratio, region, threshold=EQUILIBRIUM_THRESHOLD):
     """First index of ``region`` from which |R| stays at or below ``threshold`` to the region's end.
 

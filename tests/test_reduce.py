@@ -24,10 +24,12 @@ E_SPEC, SY = 70e9, 300e6
 
 
 def _valid_error(result, law):
+    """Largest stress error over the valid part, relative to the local stress (to the yield
+    stress on the elastic rise, where a few MPa of recorder noise is a large fraction)."""
     c = result.curves
     v = c["valid"].to_numpy(bool)
     truth = law.loading_curve(c["strain"].to_numpy()[v])
-    return np.max(np.abs(c["stress_MPa"].to_numpy()[v] * 1e6 - truth) / truth), v
+    return np.max(np.abs(c["stress_MPa"].to_numpy()[v] * 1e6 - truth) / np.maximum(truth, SY)), v
 
 
 @pytest.mark.parametrize("law, yield_stress", [

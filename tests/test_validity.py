@@ -74,3 +74,9 @@ def test_clipping_flags():
     assert validity.clipping_flag(v, "incident", full_scale=2.0).severity == "error"
     assert validity.clipping_flag(v, "incident", full_scale=5.0) is None
     assert validity.clipping_flag(v, "incident", pulse_samples=500).severity == "warning"
+
+
+def test_moving_average_skips_nan():
+    # centred 3-sample means worked by hand; the NaN is left out of each mean
+    out = validity.moving_average([1.0, 2.0, 3.0, np.nan, 5.0], 3)
+    np.testing.assert_allclose(out, [1.5, 2.0, 2.5, 4.0, 5.0])
