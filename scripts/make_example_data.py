@@ -30,8 +30,8 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from shpb.io import atomic_write_csv, atomic_write_text  # noqa: E402
-from shpb.simulate import (analysis_window, load_simulation, record_csv_text, record_metadata,  # noqa: E402
-                           shot_toml_text, simulate_setup, truth_table)
+from shpb.virtual import (analysis_window, load_simulation, record_csv_text, record_metadata,  # noqa: E402
+                          shot_toml_text, simulate_setup, truth_table)
 
 CONFIGS = ROOT / "configs"
 DATA = ROOT / "example_data"

@@ -19,6 +19,7 @@ from typer.testing import CliRunner
 
 from shpb import bridge
 from shpb import calibrate as C
+from shpb import calibration_files as CF
 from shpb.errors import AnalysisError, InputError
 from shpb.io import sha256_file
 
@@ -447,7 +448,7 @@ def test_calibrated_barset_reduces_with_measured_speed(tmp_path):
     assert res.exit_code == 0, res.output
     assert "free-end shot, incident bar: c0 = " in res.output
     cal = tmp_path / "bars.calibration.toml"
-    entries = C.read_calibration(cal)
+    entries = CF.read_calibration(cal)
     assert len(entries) == 1 and entries[0]["kind"] == "free-end"
     assert (tmp_path / entries[0]["figure"]).is_file()
     assert {"file": "free_end.csv", "sha256": sha256_file(rec)} in entries[0]["inputs"]
@@ -481,13 +482,13 @@ def test_explicit_wave_speed_wins_and_scales_apply(tmp_path):
     bars = tmp_path / "bars.toml"
     bars.write_text('calibration_file = "rig.cal.toml"\n' + bars.read_text())
     cal = tmp_path / "rig.cal.toml"
-    C.append_calibration(cal, C.calibration_entry("free-end", {"wave_speed_m_per_s": 5050.0}, bar="incident",
-                                                  apply={"incident": {"wave_speed_m_per_s": 5050.0}},
-                                                  date="2024-03-01T10:00:00+00:00"))
-    C.append_calibration(cal, C.calibration_entry("shunt", {}, bar="incident", apply={"incident": {"scale": 0.98}},
-                                                  date="2024-03-02T10:00:00+00:00"))
-    C.append_calibration(cal, C.calibration_entry("bars-together", {}, date="2024-03-03T10:00:00+00:00",
-                                                  apply={"transmitted": {"scale_relative_to_incident": 1.03}}))
+    CF.append_calibration(cal, CF.calibration_entry("free-end", {"wave_speed_m_per_s": 5050.0}, bar="incident",
+                                                    apply={"incident": {"wave_speed_m_per_s": 5050.0}},
+                                                    date="2024-03-01T10:00:00+00:00"))
+    CF.append_calibration(cal, CF.calibration_entry("shunt", {}, bar="incident", apply={"incident": {"scale": 0.98}},
+                                                    date="2024-03-02T10:00:00+00:00"))
+    CF.append_calibration(cal, CF.calibration_entry("bars-together", {}, date="2024-03-03T10:00:00+00:00",
+                                                    apply={"transmitted": {"scale_relative_to_incident": 1.03}}))
     bs = load_barset(bars)
     assert bs.incident.wave_speed == 5010.0  # explicit in the bar set: wins
     o = bs.calibration["overridden"]["incident.wave_speed_m_per_s"]
@@ -496,8 +497,8 @@ def test_explicit_wave_speed_wins_and_scales_apply(tmp_path):
     assert bs.transmitted_gauge.scale == pytest.approx(0.98 * 1.03)
     assert bs.calibration["applied"]["transmitted.scale"]["kind"] == "bars-together"
     # a later entry replaces an earlier one for the same quantity
-    C.append_calibration(cal, C.calibration_entry("striker", {}, bar="incident", apply={"incident": {"scale": 1.01}},
-                                                  date="2024-03-04T10:00:00+00:00"))
+    CF.append_calibration(cal, CF.calibration_entry("striker", {}, bar="incident", apply={"incident": {"scale": 1.01}},
+                                                    date="2024-03-04T10:00:00+00:00"))
     bs = load_barset(bars)
     assert bs.incident_gauge.scale == 1.01 and bs.transmitted_gauge.scale == pytest.approx(1.01 * 1.03)
     # the calibration file named but missing: an error naming it
@@ -548,7 +549,7 @@ def test_cli_flight_bars_together_shunt_striker(tmp_path):
     assert res.exit_code == 0, res.output
     assert "recorded as a check" in res.output
 
-    entries = C.read_calibration(tmp_path / "bars.calibration.toml")
+    entries = CF.read_calibration(tmp_path / "bars.calibration.toml")
     assert [e["kind"] for e in entries] == ["flight", "bars-together", "shunt", "striker"]
     assert entries[3]["results"]["scale"] == pytest.approx(1.0, abs=2e-3)
     bs = load_barset(bars)

@@ -4,7 +4,6 @@ Reference for the numbers read: numpy.loadtxt on the same data block (an
 independent parser). Atomic writes: POSIX rename semantics (os.replace).
 """
 
-from pathlib import Path
 
 import numpy as np
 import pytest

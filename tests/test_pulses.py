@@ -1,7 +1,6 @@
 """Pulse feet, sub-sample delays and windows, against analytic signals."""
 
 import numpy as np
-import pytest
 
 from shpb import pulses
 

@@ -31,8 +31,9 @@ from shpb.setup import (AnalysisOptions, Bar, BarSet, Channel, Gauge, Material, 
                         Striker, load_shot, with_analysis)
 from shpb.simulate import (IncidentPulse, JohnsonCookLaw, PerfectlyPlastic, RecorderSpec, RodSpec, TrueStressLaw,
                            VirtualShotSpec, digitise, dispersed_drive, excess_dispersion, incident_pulse,
-                           load_simulation, model_duration, plan_shot, simulate_shot, trigger_time, virtual_record)
+                           model_duration, plan_shot, simulate_shot, trigger_time, virtual_record)
 from shpb.simulate import _fourier_delay
+from shpb.virtual import load_simulation
 
 REPO = Path(__file__).resolve().parents[1]
 E_BAR, RHO_BAR, NU_BAR, YIELD_BAR, D_BAR = 190e9, 8000.0, 0.30, 1900e6, 0.01905

@@ -2,7 +2,8 @@
 
 Each subcommand reads a record, calls one function of :mod:`shpb.calibrate`,
 prints the result and appends an entry (with a figure) to the bar set's
-calibration file, from which ``load_barset`` applies the latest values.
+calibration file (:mod:`shpb.calibration_files`), from which ``load_barset``
+applies the latest values.
 """
 
 from __future__ import annotations
@@ -98,28 +99,28 @@ def _strain(volts, barset, bar):
 
 def _save(cal_file: Path, kind, bar, results, apply, inputs, settings, fig, figure: bool):
     """Write the figure and append the entry; return the figure path (or None)."""
-    from .. import calibrate as C
+    from .. import calibration_files as CF
     from ..io import atomic_savefig
 
-    entry = C.calibration_entry(kind, results, inputs=inputs, base_dir=cal_file.parent, bar=bar, apply=apply,
-                                settings=settings)
+    entry = CF.calibration_entry(kind, results, inputs=inputs, base_dir=cal_file.parent, bar=bar, apply=apply,
+                                 settings=settings)
     fig_path = None
     if figure and fig is not None:
-        fig_path = cal_file.parent / C.figure_name(cal_file, kind, bar, entry["date"])
+        fig_path = cal_file.parent / CF.figure_name(cal_file, kind, bar, entry["date"])
         k = 2
         while fig_path.exists():  # two calibrations within one second
-            fig_path = fig_path.with_name(C.figure_name(cal_file, kind, bar, entry["date"])[:-4] + f"-{k}.png")
+            fig_path = fig_path.with_name(CF.figure_name(cal_file, kind, bar, entry["date"])[:-4] + f"-{k}.png")
             k += 1
         atomic_savefig(fig, fig_path, dpi=110)
         entry["figure"] = fig_path.name
-    C.append_calibration(cal_file, entry)
+    CF.append_calibration(cal_file, entry)
     return fig_path
 
 
 def _where(barset_path: Path, calibration_file: Optional[Path]):
-    from .. import calibrate as C
+    from .. import calibration_files as CF
 
-    return calibration_file or C.calibration_path(barset_path)
+    return calibration_file or CF.calibration_path(barset_path)
 
 
 def _report(lines, cal_file, fig_path, apply, barset_path=None):
@@ -166,6 +167,7 @@ def free_end_cmd(
 ):
     """Bar wave speed c0 (and E = rho c0^2) from a free-end shot: the pulse and its echoes at one gauge."""
     from .. import calibrate as C
+    from .. import calibration_files as CF
 
     bar = _bar_choice(bar)
     bs = _load_barset(barset)
@@ -203,7 +205,7 @@ def free_end_cmd(
                 "max_frequency_Hz": res["max_frequency_Hz"], "sample_interval_s": dt,
                 "method": "cross-correlation, low-band phase slope; c0 = sum P^2 / sum P D"}
     apply_t = {bar: {"wave_speed_m_per_s": res["wave_speed_m_per_s"]}} if apply else {}
-    fig = C.plot_free_end(time, strain, res) if figure else None
+    fig = CF.plot_free_end(time, strain, res) if figure else None
     fig_path = _save(cal_file, "free-end", bar, results, apply_t, [record, barset], settings, fig, figure)
     lines = [f"free-end shot, {bar} bar: c0 = {res['wave_speed_m_per_s']:.1f} +/- "
              f"{res['wave_speed_uncertainty_m_per_s']:.1f} m/s ({len(res['echoes'])} echo(es)); "
@@ -229,6 +231,7 @@ def flight_cmd(
 ):
     """Time-of-flight regression t = L/c + t0: wave speed, and a check that no fixed delay hides in the data."""
     from .. import calibrate as C
+    from .. import calibration_files as CF
     from ..errors import InputError
 
     lengths, delays = _flight_table(data, length_column, delay_column)
@@ -237,15 +240,15 @@ def flight_cmd(
         _bar_choice(bar)
         if barset is None and calibration_file is None:
             raise InputError("--bar needs --barset (or --calibration-file) to apply the speed to", "--bar")
-    cal_file = calibration_file or (C.calibration_path(barset) if barset else
-                                    data.with_name(data.stem + C.CALIBRATION_SUFFIX))
+    cal_file = calibration_file or (CF.calibration_path(barset) if barset else
+                                    data.with_name(data.stem + CF.CALIBRATION_SUFFIX))
     results = {"wave_speed_m_per_s": res["wave_speed_m_per_s"], "wave_speed_se_m_per_s": res["wave_speed_se_m_per_s"],
                "intercept_us": res["intercept_s"] * 1e6, "intercept_se_us": res["intercept_se_s"] * 1e6,
                "intercept_significant": res["intercept_significant"], "n_points": res["n_points"],
                "path_lengths_m": list(lengths), "delays_us": [d * 1e6 for d in delays],
                "residuals_us": [r * 1e6 for r in res["residuals_s"]], "notes": res["notes"]}
     apply_t = {bar: {"wave_speed_m_per_s": res["wave_speed_m_per_s"]}} if bar else {}
-    fig = C.plot_flight(lengths, delays, res) if figure else None
+    fig = CF.plot_flight(lengths, delays, res) if figure else None
     inputs = [data] + ([barset] if barset else [])
     fig_path = _save(cal_file, "flight", bar, results, apply_t, inputs,
                      {"method": "ordinary least squares t = L/c + t0"}, fig, figure)
@@ -301,6 +304,7 @@ def bars_together_cmd(
 ):
     """Bars together (no specimen): transmitted/incident ratio, residual reflected wave, gauge-to-gauge speed."""
     from .. import calibrate as C
+    from .. import calibration_files as CF
 
     bs = _load_barset(barset)
     time, dt, (vi, vt) = _read(record, [incident_column, transmitted_column], time_column, time_unit, sample_interval)
@@ -318,7 +322,7 @@ def bars_together_cmd(
     results["transit_us"] = res["transit_time_s"] * 1e6
     apply_t = ({"transmitted": {"scale_relative_to_incident": res["transmitted_scale_relative_to_incident"]}}
                if apply else {})
-    fig = C.plot_bars_together(time, si, st, res) if figure else None
+    fig = CF.plot_bars_together(time, si, st, res) if figure else None
     fig_path = _save(_where(barset, calibration_file), "bars-together", None, results, apply_t, [record, barset],
                      {"max_frequency_Hz": res["max_frequency_Hz"], "sample_interval_s": dt,
                       "ratio": "time integrals of the pulses (zero-frequency amplitudes), raw strain (scale 1)"},
@@ -350,6 +354,7 @@ def striker_cmd(
 ):
     """Striker check: measured incident plateau against (v / c_b) Z_s / (Z_s + Z_b)."""
     from .. import calibrate as C
+    from .. import calibration_files as CF
     from ..errors import InputError
 
     bs = _load_barset(barset)
@@ -374,7 +379,7 @@ def striker_cmd(
                "expected_duration_us": res["expected_duration_s"] * 1e6,
                "measured_duration_us": res["measured_duration_s"] * 1e6, "cautions": res["cautions"]}
     apply_t = {"incident": {"scale": res["scale"]}} if apply else {}
-    fig = C.plot_striker(time, strain, res) if figure else None
+    fig = CF.plot_striker(time, strain, res) if figure else None
     cal_file = _where(barset, calibration_file)
     fig_path = _save(cal_file, "striker", "incident", results, apply_t, [record, barset],
                      {"bar_wave_speed_m_per_s": b.wave_speed, "striker_impedance_kg_per_s": zs,
@@ -405,6 +410,7 @@ def shunt_cmd(
 ):
     """Shunt calibration: the recorded step against the strain the shunt simulates, -Rg / (GF (Rg + Rs))."""
     from .. import calibrate as C
+    from .. import calibration_files as CF
 
     bar = _bar_choice(bar)
     bs = _load_barset(barset)
@@ -417,7 +423,7 @@ def shunt_cmd(
                "measured_strain": res["measured_strain"], "scale": res["scale"],
                "shunt_resistance_ohm": rs, "gauge_resistance_ohm": rg}
     apply_t = {bar: {"scale": res["scale"]}} if apply else {}
-    fig = C.plot_shunt(time, volts, res) if figure else None
+    fig = CF.plot_shunt(time, volts, res) if figure else None
     cal_file = _where(barset, calibration_file)
     fig_path = _save(cal_file, "shunt", bar, results, apply_t, [record, barset],
                      {"gauge_factor": g.gauge_factor, "excitation_V": g.excitation, "gain": g.gain,

@@ -24,8 +24,8 @@ def register(app: typer.Typer) -> None:
     ):
         """Simulate a shot with the 1-D wave model and record it as a scope would: writes <name>.csv (record),
         <name>.toml (ready-to-reduce shot file), <name>_truth.csv (specimen truth) and <name>.png."""
-        from ..simulate import (DISPERSION_LABELS, check_plan, load_simulation, plan_shot, simulate_setup,
-                                write_virtual_shot)
+        from ..simulate import check_plan, plan_shot
+        from ..virtual import DISPERSION_LABELS, load_simulation, simulate_setup, write_virtual_shot
 
         sim = load_simulation(setup)
         plan = plan_shot(sim.spec, sim.yield_strength)

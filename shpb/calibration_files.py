@@ -1,0 +1,241 @@
+"""Calibration files and figures: the file and figure edge of :mod:`shpb.calibrate`.
+
+:mod:`shpb.calibrate` holds the pure calibration methods (wave speed, bars
+together, striker check, shunt calibration). This module holds what touches
+files or draws: where a bar set's calibration file lies
+(:func:`calibration_path`), reading it (:func:`read_calibration`), building
+and appending entries (:func:`calibration_entry`,
+:func:`append_calibration`), naming an entry's figure (:func:`figure_name`)
+and the figures of each calibration (``plot_*``). :func:`shpb.setup.load_barset`
+applies the latest entries (format in ``docs/calibration.md``).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+# =========================================================================== calibration file
+#: Suffix of a calibration file next to its bar set: ``<bar set stem>.calibration.toml``.
+CALIBRATION_SUFFIX = ".calibration.toml"
+#: Quantities a calibration entry may apply, per bar, in its ``apply`` table.
+APPLY_KEYS = ("wave_speed_m_per_s", "scale", "scale_relative_to_incident")
+
+
+def calibration_path(barset_path) -> Path:
+    """The calibration file of a bar set: its ``calibration_file`` key, else ``<stem>.calibration.toml`` beside it."""
+    from .setup import read_toml
+
+    barset_path = Path(barset_path)
+    data = read_toml(barset_path)
+    name = data.get("calibration_file")
+    if name is not None:
+        if not isinstance(name, str):
+            raise InputError(f"expected a file name, got {name!r}", f"{barset_path}: calibration_file")
+        return barset_path.parent / name
+    return barset_path.with_name(barset_path.stem + CALIBRATION_SUFFIX)
+
+
+def read_calibration(path) -> list:
+    """The entries of a calibration file, oldest first (empty when the file does not exist)."""
+    from .setup import read_toml
+
+    path = Path(path)
+    if not path.is_file():
+        return []
+    entries = read_toml(path).get("calibration", [])
+    if not isinstance(entries, list):
+        raise InputError("expected [[calibration]] entries", str(path))
+    return entries
+
+
+def _toml_clean(obj):
+    """Numpy scalars/arrays to plain values; None dropped (TOML has no null)."""
+    if isinstance(obj, dict):
+        return {str(k): _toml_clean(v) for k, v in obj.items() if v is not None}
+    if isinstance(obj, (list, tuple, np.ndarray)):
+        return [_toml_clean(v) for v in (obj.tolist() if isinstance(obj, np.ndarray) else obj) if v is not None]
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (np.floating, float)):
+        return float(obj)
+    return obj
+
+
+def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, apply=None, settings=None,
+                      figure=None, date=None) -> dict:
+    """One calibration entry (a mapping ready for TOML).
+
+    Parameters
+    ----------
+    kind : str
+        ``free-end``, ``flight``, ``bars-together``, ``striker`` or ``shunt``.
+    results : dict
+        Results with units in the key names.
+    inputs : sequence of path
+        Input files; each is stored with its SHA-256 (relative to ``base_dir`` when inside it).
+    bar : str or None
+        ``incident`` or ``transmitted`` when the entry is about one bar.
+    apply : dict or None
+        ``{bar: {key: value}}`` with keys from :data:`APPLY_KEYS`: what
+        :func:`shpb.setup.load_barset` applies; empty for a check only.
+    settings : dict or None
+        Method parameters used.
+    figure : str or None
+        File name of the entry's figure.
+    date : str or None
+        ISO 8601 date and time (default now, UTC).
+    """
+    import datetime
+
+    from .io import sha256_file
+
+    if date is None:
+        date = datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
+    files = []
+    for f in inputs:
+        f = Path(f)
+        name = str(f)
+        if base_dir is not None:
+            try:
+                name = str(f.resolve().relative_to(Path(base_dir).resolve()))
+            except ValueError:
+                name = str(f.resolve())
+        files.append({"file": name, "sha256": sha256_file(f)})
+    for b, table in (apply or {}).items():
+        if b not in ("incident", "transmitted"):
+            raise ValueError(f"unknown bar {b!r} in apply")
+        for k in table:
+            if k not in APPLY_KEYS:
+                raise ValueError(f"unknown apply key {k!r}")
+    entry = {"date": date, "kind": kind, "bar": bar, "inputs": files, "figure": figure,
+             "apply": apply or {}, "results": results, "settings": settings or {}}
+    return _toml_clean(entry)
+
+
+def append_calibration(path, entry) -> None:
+    """Append an entry to a calibration file (created if missing), atomically."""
+    import tomli_w
+
+    from .io import atomic_write_text
+
+    path = Path(path)
+    entries = read_calibration(path)
+    entries.append(entry)
+    head = ("# Bar-set calibration written by `shpb calibrate`; newest entry last.\n"
+            "# load_barset applies, per quantity, the latest entry's [calibration.apply] values.\n\n")
+    atomic_write_text(path, head + tomli_w.dumps({"calibration": entries}))
+
+
+def figure_name(calibration_file, kind, bar=None, date=None) -> str:
+    """File name of an entry's figure: ``<calibration stem>.<kind>[-<bar>].<YYYYmmddTHHMMSS>.png``."""
+    import datetime
+
+    stamp = (datetime.datetime.fromisoformat(date) if date else datetime.datetime.now(datetime.timezone.utc))
+    stem = Path(calibration_file).name
+    stem = stem[: -len(".toml")] if stem.endswith(".toml") else stem
+    tag = f"{kind}-{bar}" if bar else kind
+    return f"{stem}.{tag}.{stamp.strftime('%Y%m%dT%H%M%S')}.png"
+
+
+# =========================================================================== figures
+def _figure(nrows=2):
+    from matplotlib.figure import Figure  # no pyplot: no global state, no screen needed
+
+    fig = Figure(figsize=(8, 3.2 * nrows), layout="constrained")
+    axes = fig.subplots(nrows, 1)
+    return fig, np.atleast_1d(axes)
+
+
+def plot_free_end(time, signal, result):
+    """Figure of a free-end calibration: the record with its passes, and the aligned pulse and echoes."""
+    fig, (ax1, ax2) = _figure(2)
+    y = np.asarray(signal, float) * result["first_pulse_sign"]
+    dt = time[1] - time[0]
+    ax1.plot(time * 1e6, y * 1e6, lw=0.7, color="0.3")
+    a, b = result["window"]
+    ax1.axvspan(time[a] * 1e6, time[b - 1] * 1e6, color="C0", alpha=0.15, label="pulse window")
+    tau = (np.arange(a, b) - a) * dt * 1e6
+    ax2.plot(tau, y[a:b] * 1e6, color="k", lw=1.2, label="pulse")
+    for e in result["echoes"]:
+        k = int(round(e["delay_s"] / dt))
+        ax1.axvspan(time[a + k] * 1e6, time[min(b + k, time.size) - 1] * 1e6, color="C1", alpha=0.12)
+        seg = e["sign"] * y[a + k : b + k]
+        ax2.plot(tau[: seg.size], seg * 1e6, lw=0.8, label=f"pass {e['pass']} ({e['path_m']:.3f} m)")
+    ax1.set(xlabel="record time [us]", ylabel="signal (first pulse positive)",
+            title=f"free-end shot: c0 = {result['wave_speed_m_per_s']:.1f} "
+                  f"+/- {result['wave_speed_uncertainty_m_per_s']:.1f} m/s")
+    ax1.legend(loc="upper right", fontsize=8)
+    ax2.set(xlabel="time in window [us]", ylabel="aligned, sign-corrected")
+    ax2.legend(fontsize=8)
+    return fig
+
+
+def plot_flight(lengths, delays, result):
+    """Figure of a time-of-flight regression: delays against path length, and residuals."""
+    fig, (ax1, ax2) = _figure(2)
+    L = np.asarray(lengths, float)
+    x = np.linspace(0, L.max() * 1.05, 50)
+    ax1.plot(L, np.asarray(delays) * 1e6, "o", label="measured")
+    ax1.plot(x, (x / result["wave_speed_m_per_s"] + result["intercept_s"]) * 1e6, "-",
+             label=f"t = L/c + t0: c = {result['wave_speed_m_per_s']:.1f} m/s, t0 = {result['intercept_s'] * 1e6:.3f} us")
+    ax1.set(xlabel="path length [m]", ylabel="delay [us]", title="time-of-flight regression")
+    ax1.legend(fontsize=8)
+    ax2.axhline(0, color="0.5", lw=0.8)
+    ax2.plot(L, np.asarray(result["residuals_s"]) * 1e6, "o")
+    ax2.set(xlabel="path length [m]", ylabel="residual [us]")
+    return fig
+
+
+def plot_bars_together(time, strain_incident, strain_transmitted, result):
+    """Figure of a bars-together shot: the two channels, and the pulses aligned."""
+    fig, (ax1, ax2) = _figure(2)
+    ax1.plot(time * 1e6, np.asarray(strain_incident) * 1e6, lw=0.7, label="incident gauge")
+    ax1.plot(time * 1e6, np.asarray(strain_transmitted) * 1e6, lw=0.7, label="transmitted gauge")
+    ax1.set(xlabel="record time [us]", ylabel="raw strain [ue]",
+            title=f"bars together: ratio {result['transmitted_to_incident_ratio']:.4f}, residual reflected "
+                  f"{100 * result['reflected_peak_fraction']:.1f} %, c = {result['wave_speed_m_per_s']:.1f} m/s")
+    ax1.legend(fontsize=8)
+    a, b = result["window"]
+    dt = time[1] - time[0]
+    tau = np.arange(b - a) * dt * 1e6
+    kt, kr = result["transmitted_lag_samples"], result["reflected_lag_samples"]
+    si, stt = np.asarray(strain_incident), np.asarray(strain_transmitted)
+    ax2.plot(tau, si[a:b] * 1e6, color="k", label="incident")
+    ax2.plot(tau, stt[a + kt : b + kt] * 1e6, label="transmitted (aligned)")
+    ax2.plot(tau, si[a + kr : b + kr] * 1e6, label="reflected (aligned)")
+    ax2.set(xlabel="time in window [us]", ylabel="raw strain [ue]")
+    ax2.legend(fontsize=8)
+    return fig
+
+
+def plot_striker(time, strain, result):
+    """Figure of a striker check: the incident pulse, its plateau and the expected level."""
+    fig, (ax1,) = _figure(1)
+    ax1.plot(time * 1e6, np.asarray(strain) * 1e6, lw=0.8, color="0.3", label="incident gauge (raw strain)")
+    ax1.axhline(result["expected_strain"] * 1e6, color="C1", ls="--",
+                label=f"expected from striker speed: {result['expected_strain'] * 1e6:.1f} ue")
+    ax1.axhline(result["measured_strain"] * 1e6, color="C0", ls=":",
+                label=f"measured plateau: {result['measured_strain'] * 1e6:.1f} ue")
+    pad = 0.5 * (result["pulse_end_s"] - result["pulse_foot_s"])
+    ax1.set_xlim((result["pulse_foot_s"] - pad) * 1e6, (result["pulse_end_s"] + pad) * 1e6)
+    ax1.set(xlabel="record time [us]", ylabel="strain [ue]", title=f"striker check: scale {result['scale']:.4f}")
+    ax1.legend(fontsize=8)
+    return fig
+
+
+def plot_shunt(time, volts, result):
+    """Figure of a shunt step and the two levels read from it."""
+    fig, (ax1,) = _figure(1)
+    ax1.plot(time * 1e3, volts, lw=0.7, color="0.3")
+    ax1.axhline(result["before_V"], color="C0", ls="--", label=f"before {result['before_V']:.5g} V")
+    ax1.axhline(result["after_V"], color="C1", ls="--", label=f"after {result['after_V']:.5g} V")
+    ax1.set(xlabel="record time [ms]", ylabel="channel [V]",
+            title=f"shunt step {result['height_V']:.5g} V: scale {result.get('scale', float('nan')):.4f}")
+    ax1.legend(fontsize=8)
+    return fig
