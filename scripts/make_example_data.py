@@ -30,7 +30,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from shpb.io import atomic_write_csv, atomic_write_text  # noqa: E402
-from shpb.virtual import (analysis_window, load_simulation, record_csv_text, record_metadata,  # noqa: E402
+from shpb.virtual import (load_simulation, record_csv_text, record_metadata,  # noqa: E402
                           shot_toml_text, simulate_setup, truth_table)
 
 CONFIGS = ROOT / "configs"
@@ -310,10 +310,8 @@ def write_shot(sid, setup_path):
     shots = DATA / "shots"
     atomic_write_text(shots / f"{sid}.csv", record_csv_text(shot.record, record_metadata(shot)))
     atomic_write_csv(DATA / "truth" / f"{sid}_truth.csv", truth_table(shot.result, shot.record), float_format="%.6g")
-    window = analysis_window(shot)
-    atomic_write_text(shots / f"{sid}.toml",
-                      shot_toml_text(shot, f"{sid}.csv", "../../configs/example_bars.toml", window))
-    return shot, window
+    atomic_write_text(shots / f"{sid}.toml", shot_toml_text(shot, f"{sid}.csv", "../../configs/example_bars.toml"))
+    return shot
 
 
 def campaign_files(rows):
@@ -336,17 +334,17 @@ dispersion = true
 flow_strains = [0.05, 0.10]
 '''
     header = ("id,record,specimen_length [mm],specimen_diameter [mm],material,temperature [K],"
-              "specimen_modulus [GPa],specimen_density [kg/m^3],window [us],alloy,nominal_rate_per_s,"
+              "specimen_modulus [GPa],specimen_density [kg/m^3],alloy,nominal_rate_per_s,"
               "striker_length_m,striker_speed_m_per_s,repeat")
     lines = [header]
     for r in rows:
         lines.append(f"{r['id']},../shots/{r['id']}.csv,{r['length'] * 1e3:.3f},{r['diameter'] * 1e3:.3f},"
-                     f"\"{r['material']}\",{TEMPERATURE},{r['E'] / 1e9:g},{r['rho']:g},{r['window'] * 1e6:.1f},"
+                     f"\"{r['material']}\",{TEMPERATURE},{r['E'] / 1e9:g},{r['rho']:g},"
                      f"{r['alloy']},{r['rate']},{r['striker']},{r['speed']:.2f},{r['repeat']}")
     return toml, "\n".join(lines) + "\n"
 
 
-def example_shot_text(window):
+def example_shot_text():
     """configs/example_shot.toml: the first shot of the README, paths relative to configs/."""
     src = (DATA / "shots" / f"{EXAMPLE_SHOT}.toml").read_text()
     src = src.replace('barset = "../../configs/example_bars.toml"', 'barset = "example_bars.toml"')
@@ -435,14 +433,14 @@ def main(argv=None):
     for sid, text, alloy, rate, rep in shot_setups():
         setup_path = DATA / "setups" / f"{sid}.toml"
         atomic_write_text(setup_path, text)
-        shot, window = write_shot(sid, setup_path)
+        shot = write_shot(sid, setup_path)
         sp = shot.setup.spec
         rows.append(dict(id=sid, alloy=alloy, rate=rate, repeat=rep, length=sp.specimen.length,
                          diameter=sp.specimen.diameter, material=shot.setup.specimen["material"],
-                         E=ALLOYS[alloy]["E"], rho=ALLOYS[alloy]["rho"], window=window, striker=sp.striker.length,
+                         E=ALLOYS[alloy]["E"], rho=ALLOYS[alloy]["rho"], striker=sp.striker.length,
                          speed=sp.striker_speed, bar_stress=shot.plan["incident_bar_stress_MPa"]))
         print(f"{sid}: striker {sp.striker.length} m at {sp.striker_speed:.2f} m/s, bar stress "
-              f"{shot.plan['incident_bar_stress_MPa']:.0f} MPa, window {window * 1e6:.0f} us "
+              f"{shot.plan['incident_bar_stress_MPa']:.0f} MPa "
               f"({time.perf_counter() - start:.0f} s)")
     for stem, text in calibration_setups():
         setup_path = DATA / "setups" / f"{stem}.toml"
@@ -456,8 +454,7 @@ def main(argv=None):
     atomic_write_text(DATA / "campaign" / "shots.csv", table)
     for alloy in ALLOYS:
         atomic_write_text(DATA / "quasi_static" / f"{alloy}_qs.csv", quasi_static_text(alloy))
-    example_window = next(r["window"] for r in rows if r["id"] == EXAMPLE_SHOT)
-    atomic_write_text(CONFIGS / "example_shot.toml", example_shot_text(example_window))
+    atomic_write_text(CONFIGS / "example_shot.toml", example_shot_text())
     print(f"written in {time.perf_counter() - start:.0f} s")
     if not args.no_check:
         table = check(rows)

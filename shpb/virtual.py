@@ -37,7 +37,6 @@ __all__ = [
     "load_simulation",
     "simulate_setup",
     "truth_table",
-    "analysis_window",
     "record_csv_text",
     "record_metadata",
     "shot_toml_text",
@@ -355,25 +354,6 @@ def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = Non
                             "force_back_kN"]].reset_index(drop=True)
 
 
-def analysis_window(shot: VirtualShot) -> float:
-    """A pulse window [s] for the reduction that holds the whole pulse at the specimen faces.
-
-    From the incident foot to 1.25 times the last time a face force exceeds
-    2 % of its peak, and at least the reduction's default 1.3 x 2 L / c0 of
-    the striker (a dispersed or shaped pulse outlasts 2 L / c0, and cutting
-    a dispersed wave makes the correction ring back over the cut); at most
-    85 % of 2 d / c0 of the incident gauge (beyond, the incident and reflected
-    windows overlap at the gauge).
-    """
-    truth = shot.result.truth
-    force = np.maximum(np.abs(truth.force_front_kN.to_numpy()), np.abs(truth.force_back_kN.to_numpy()))
-    loaded = np.flatnonzero(force > 0.02 * np.nanmax(force))
-    last = truth.time_us.to_numpy()[loaded[-1]] * 1e-6
-    spec = shot.setup.spec
-    striker = 2.6 * spec.striker.length / spec.striker.wave_speed if spec.striker is not None else 0.0
-    return min(max(1.25 * last, striker), 0.85 * 2 * spec.gauge_incident_distance / spec.incident.wave_speed)
-
-
 def record_csv_text(record: VirtualRecord, metadata=()) -> str:
     """A record as a scope would export it: ``key,value`` metadata lines, then ``TIME,CH1[,CH2]`` and the samples.
 
@@ -445,7 +425,7 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
     Files (``{name}`` the setup's name): the record ``{name}.csv`` (scope
     style: metadata lines, then ``TIME,CH1,CH2``); for a specimen shot, the
     ready-to-reduce shot file ``{name}.toml`` (bar set by relative path,
-    ``window`` from :func:`analysis_window`) and the truth table
+    default analysis window) and the truth table
     ``{name}_truth.csv`` (:func:`truth_table`); the figure ``{name}.png``
     (gauge strains, face forces, specimen stress) if ``figure``.
 
@@ -469,7 +449,7 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
         atomic_write_csv(paths["truth"], truth_table(shot.result, shot.record), float_format="%.6g")
         written["truth"] = paths["truth"]
         rel = Path(os.path.relpath(Path(shot.setup.barset_path).resolve(), out.resolve())).as_posix()
-        atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel, analysis_window(shot)))
+        atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel))
         written["shot"] = paths["shot"]
     if figure:
         fig = plot_virtual_shot(shot)
