@@ -23,6 +23,10 @@ from .io import Record, atomic_write_csv, atomic_write_json, read_record
 from .setup import Bar, Gauge, Shot
 from .validity import Flag
 
+#: Written into every summary and printed by the commands that judge shots.
+DESIGN_CAUTION = ("Curves used for design need independent validation. Bar-stress and validity flags do not replace "
+                  "the laboratory's safety rules, local codes and licensed practice.")
+
 #: Time over which R(t) is averaged before the equilibrium test [s].
 EQUILIBRIUM_AVERAGING = 0.25e-6
 
@@ -430,6 +434,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         "records": rec.files,
         "provenance": prov,
         "columns": COLUMN_NOTES,
+        "caution": DESIGN_CAUTION,
     }
     traces = {"time": rec.time, "strain_incident_gauge": si, "strain_transmitted_gauge": st,
               "volts_incident": raw_i, "volts_transmitted": raw_t, "gauge_windows": gauge_windows,

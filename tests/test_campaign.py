@@ -2,7 +2,7 @@
 
 The shots come from tests/synth.py: ideal records of a specimen with a known
 constitutive law, built from the classic one-dimensional Kolsky analysis
-(Kolsky 1949; Gray 2000, ASM Handbook Vol. 8: the specimen in equilibrium,
+(Source: Kolsky (1949); Gray (2000), ASM Handbook Vol. 8: the specimen in equilibrium,
 dispersion-free bars). The known law is the outside reference for the
 numbers a campaign adds (flow stress at a strain); the single-shot
 reduction (``reduce_shot``, itself checked against the same laws in

@@ -1,7 +1,8 @@
 """Record readers: oscilloscope/DAQ text exports and .npz; bad records give one-line errors.
 
-Reference for the numbers read: numpy.loadtxt on the same data block (an
-independent parser). Atomic writes: POSIX rename semantics (os.replace).
+Source: numpy.loadtxt (reference library, an independent parser) on the same
+data block for the numbers read; POSIX rename semantics (os.replace, IEEE Std
+1003.1-2017) for atomic writes; the rest are the error messages (common practice).
 """
 
 

@@ -1,4 +1,9 @@
-"""Unit parsing at the edges (pint is the outside reference for the conversion factors)."""
+"""Unit parsing at the edges.
+
+Source: NIST Special Publication 811 (2008), Guide for the Use of the SI,
+Appendix B (exact inch, psi); the degree Celsius offset 273.15 K (SI Brochure,
+BIPM 2019).
+"""
 
 import pytest
 

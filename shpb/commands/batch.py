@@ -63,4 +63,7 @@ def register(app: typer.Typer) -> None:
         typer.echo(f"campaign {camp.name}: {len(report.ok)}/{n} shots valid, {len(report.invalid)} not valid, "
                    f"{len(report.failed)} failed ({len(report.skipped)} up to date, kept)")
         typer.echo(f"written to {report.out_dir}")
+        from ..reduce import DESIGN_CAUTION
+
+        typer.echo(f"note: {DESIGN_CAUTION}")
         raise typer.Exit(report.exit_code)

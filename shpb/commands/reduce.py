@@ -59,4 +59,7 @@ def format_result(result, out_dir) -> str:
     for f in result.flags:
         lines.append(f"  {f.severity}: {f.message}")
     lines.append(f"  written to {out_dir}")
+    from ..reduce import DESIGN_CAUTION
+
+    lines.append(f"  note: {DESIGN_CAUTION}")
     return "\n".join(lines)
