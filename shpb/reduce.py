@@ -189,8 +189,6 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     n_base = max(16, int(0.9 * foot)) if n_pre is None else n_pre
     vi = raw_i - pulses.noise_floor(raw_i, n_base)[0]
     vt = raw_t - pulses.noise_floor(raw_t, n_base)[0]
-    si = _strain(vi, bs.incident_gauge, bs.incident)
-    st = _strain(vt, bs.transmitted_gauge, bs.transmitted)
     prov.append({"step": "bridge", "parameters": {"incident": bs.incident_gauge.bridge,
                                                   "transmitted": bs.transmitted_gauge.bridge,
                                                   "baseline_samples": n_base}})
@@ -199,7 +197,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     bi, bt = bs.incident, bs.transmitted
     ci, ct = bi.wave_speed, bt.wave_speed
     di, dtr = bs.incident_gauge.distance, bs.transmitted_gauge.distance
-    end = pulses.pulse_end(si, foot, fraction=0.05)
+    end = pulses.pulse_end(bs.incident_gauge.polarity * vi, foot, fraction=0.05)  # the bridge is monotonic
     if end is not None:
         duration, duration_source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
     elif bs.striker is not None:
@@ -232,6 +230,11 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     ramp = max(2, int(ramp_time(duration, dt) / dt))
 
     # 3. each wave to its face ---------------------------------------------------------------
+    # volts -> strain only as far as the last window reaches (records are often far longer)
+    last = k1 + max(di / ci, dtr / ct) / dt + max(opt.reflected_adjust, opt.transmitted_adjust, 0.0) / dt
+    k_end = min(n, int(math.ceil(last)) + int(0.1 * (k1 - k0)) + 2 * ramp + 16)
+    si = _strain(vi[:k_end], bs.incident_gauge, bs.incident)
+    st = _strain(vt[:k_end], bs.transmitted_gauge, bs.transmitted)
     use_disp = bool(opt.dispersion)
     waves = {}
     gauge_windows = {}
@@ -246,8 +249,8 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         face, plain = _transfer(chan, dt, g0, g1, dist, bar, use_disp, opt.amplitude_factors, ramp)
         if adjust:
             face, plain = pulses.delay(face, dt, -adjust), pulses.delay(plain, dt, -adjust)
-        if k1 > n:  # the window runs past the record's end: zeros there (flagged below)
-            face, plain = np.pad(face, (0, k1 - n)), np.pad(plain, (0, k1 - n))
+        if k1 > face.size:  # the window runs past the record's end: zeros there (flagged below)
+            face, plain = np.pad(face, (0, k1 - face.size)), np.pad(plain, (0, k1 - plain.size))
         waves[name] = (face[k0:k1], plain[k0:k1])
     if k1 > n:
         end_needed = rec.time[0] + (k1 - 1) * dt
@@ -376,7 +379,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
                                   "unreliable"))
     # bars and record
     for bar_name, chan, bar in (("incident", si, bi), ("transmitted", st, bt)):
-        pk = float(np.max(np.abs(chan[n_base:]))) if n > n_base else 0.0
+        pk = float(np.max(np.abs(chan[n_base:]))) if chan.size > n_base else 0.0
         results[f"peak_bar_stress_{bar_name}_MPa"] = bar.modulus * pk / 1e6
         f = validity.bar_stress_flag(pk, bar.modulus, bar.material.yield_strength, bar_name)
         if f:
@@ -436,8 +439,8 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         "columns": COLUMN_NOTES,
         "caution": DESIGN_CAUTION,
     }
-    traces = {"time": rec.time, "strain_incident_gauge": si, "strain_transmitted_gauge": st,
-              "volts_incident": raw_i, "volts_transmitted": raw_t, "gauge_windows": gauge_windows,
+    traces = {"time": rec.time[:k_end], "strain_incident_gauge": si, "strain_transmitted_gauge": st,
+              "volts_incident": raw_i[:k_end], "volts_transmitted": raw_t[:k_end], "gauge_windows": gauge_windows,
               "t_face0": t_face0, "yield": (results.get("yield_strain"), results.get("yield_stress_MPa"))}
     return ShotResult(name=shot.name, curves=curves, summary=summary, flags=flags, traces=traces)
 
