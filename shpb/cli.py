@@ -35,39 +35,41 @@ for _name in COMMANDS:
     _mod.register(app)
 
 
-@app.callback()
-def _root(version: bool = typer.Option(False, "--version", help="Print the package version and exit.")):
-    if version:
+def _print_version(value: bool):
+    if value:
         from . import __version__
 
         typer.echo(__version__)
         raise typer.Exit(0)
 
 
+@app.callback()
+def _root(version: bool = typer.Option(False, "--version", is_eager=True, callback=_print_version,
+                                       help="Print the package version and exit.")):
+    """Split-Hopkinson (Kolsky) bar data reduction."""
+
+
 def main(argv=None) -> int:
-    """Run the CLI; known input/analysis errors become ``error: ...`` and exit 2."""
+    """Run the CLI and return its exit status.
+
+    Usage errors are reported by the command-line parser itself (usage line,
+    one message, status 2); known input and analysis errors become one line
+    ``error: ...`` and status 2 — never a traceback for bad input.
+    """
     try:
-        rv = app(args=argv, standalone_mode=False)
-        if isinstance(rv, int):  # click returns typer.Exit's code when not standalone
-            return rv
+        app(args=argv, standalone_mode=True)
+    except SystemExit as exc:  # normal end, typer.Exit and usage errors
+        code = exc.code
+        return code if isinstance(code, int) else (0 if code is None else 1)
     except ShpbError as exc:
         typer.echo(f"error: {exc}", err=True)
         return 2
     except FileNotFoundError as exc:
         typer.echo(f"error: {exc.filename}: file not found", err=True)
         return 2
-    except typer.Exit as exc:
-        return exc.exit_code
-    except (typer.Abort, KeyboardInterrupt):
+    except KeyboardInterrupt:
         typer.echo("aborted", err=True)
         return 130
-    except Exception as exc:  # click usage errors
-        import click
-
-        if isinstance(exc, click.exceptions.ClickException):
-            exc.show()
-            return exc.exit_code
-        raise
     return 0
 
 

@@ -18,6 +18,7 @@ class InputError(ShpbError, ValueError):
     """
 
     def __init__(self, message, source=None):
+        source = str(source).rstrip(": ") if source else source
         self.source = source
         self.bare_message = message
         super().__init__(f"{source}: {message}" if source else message)

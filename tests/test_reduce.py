@@ -189,3 +189,22 @@ def test_hand_alignment_adjustment(tmp_path):
         res.err = np.max(np.abs(c["stress_1wave_MPa"] * 1e6 - ideal)[c["time_us"] < 20]) / SY
     assert off.err > 0.3          # a 4 us misalignment on an 8 us rise
     assert fixed.err < 0.05
+
+
+@pytest.mark.parametrize("argv, fragment", [
+    (["reduce", "--bogus", "x"], "No such option"),
+    (["reduce", "--stress", "4-wave", "x.toml"], "expected one of 1-wave, 2-wave, 3-wave"),
+    (["batch", "x.toml", "--jobs", "0"], "--jobs"),
+])
+def test_cli_usage_errors_exit_2_without_traceback(argv, fragment):
+    # common practice: command-line usage errors exit with status 2 and a message, not a traceback
+    p = subprocess.run([sys.executable, "-m", "shpb.cli", *argv], capture_output=True, text=True)
+    assert p.returncode == 2
+    assert "Traceback" not in p.stderr and fragment in p.stderr
+
+
+def test_cli_version():
+    from shpb import __version__
+
+    p = subprocess.run([sys.executable, "-m", "shpb.cli", "--version"], capture_output=True, text=True)
+    assert p.returncode == 0 and p.stdout.strip() == __version__

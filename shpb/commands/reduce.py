@@ -29,7 +29,9 @@ def register(app: typer.Typer) -> None:
             changes["dispersion"] = dispersion
         if stress is not None:
             if stress not in STRESS_CHOICES:
-                raise typer.BadParameter(f"expected one of {', '.join(STRESS_CHOICES)}", param_hint="--stress")
+                from ..errors import InputError
+
+                raise InputError(f"expected one of {', '.join(STRESS_CHOICES)}, got {stress!r}", "--stress")
             changes["stress"] = stress
         from ..setup import load_shot
 
