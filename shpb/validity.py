@@ -116,13 +116,53 @@ def rate_plateau(strain_rate, mask):
     return {"mean_per_s": m, "std_per_s": s, "cv": s / m if m else float("nan")}
 
 
-def offset_yield(strain, stress, offset=0.002, modulus=None, fit_range=(0.1, 0.5)):
+def elastic_window(strain, stress, window_fraction=0.25, low=0.05, high=0.5):
+    """Index range of the steepest part of the loading rise: the elastic part of the curve.
+
+    Over the rise from ``low`` to ``high`` of the peak stress, a window of
+    ``window_fraction`` of the rise's samples (at least 5) slides along; the
+    window whose least-squares slope is largest is taken as elastic. Chosen
+    by slope, not by stress level: a strongly hardening metal passes half its
+    peak stress long after it yielded, and a few noisy samples around a stress
+    level do not break the window.
+
+    Returns
+    -------
+    (start, stop) : tuple of int, or None
+        Half-open index range; None when the rise has fewer than 5 samples.
+    """
+    e = np.asarray(strain, dtype=float)
+    s = np.asarray(stress, dtype=float)
+    ipk = int(np.argmax(s))
+    pk = s[ipk]
+    if pk <= 0:
+        return None
+    i_lo = int(np.argmax(s[: ipk + 1] >= low * pk))
+    i_hi = int(np.argmax(s[: ipk + 1] >= high * pk))
+    n_rise = i_hi - i_lo + 1
+    w = max(5, int(window_fraction * n_rise))
+    if n_rise < 5 or i_lo + w > s.size:
+        return None
+    starts = np.arange(i_lo, max(i_lo, i_hi - w + 1) + 1)
+    # least-squares slope of every window at once (sums over sliding windows)
+    ce, cs = np.concatenate(([0.0], np.cumsum(e))), np.concatenate(([0.0], np.cumsum(s)))
+    cee, ces = np.concatenate(([0.0], np.cumsum(e * e))), np.concatenate(([0.0], np.cumsum(e * s)))
+    se, ss = ce[starts + w] - ce[starts], cs[starts + w] - cs[starts]
+    see, ses = cee[starts + w] - cee[starts], ces[starts + w] - ces[starts]
+    var = see - se * se / w
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = np.where(var > 0, (ses - se * ss / w) / var, -np.inf)
+    k = int(starts[int(np.argmax(slope))])
+    return k, k + w
+
+
+def offset_yield(strain, stress, offset=0.002, modulus=None, window_fraction=0.25):
     """Yield point by the offset method.
 
-    The elastic line σ = E (ε − ε0) is fitted by least squares on the loading
-    part where the stress lies between ``fit_range`` fractions of its peak
-    (before the peak), or, when ``modulus`` is given, only ε0 is fitted on that
-    part. The yield point is where the curve first falls below the line
+    The elastic line σ = E (ε − ε0) is fitted by least squares on the
+    steepest part of the loading rise (:func:`elastic_window`), or, when
+    ``modulus`` is given, only its toe ε0 is fitted there. The yield point is
+    where the curve, after that part, first falls below the line
     σ = E (ε − ε0 − offset), interpolated between samples.
 
     Parameters
@@ -139,8 +179,9 @@ def offset_yield(strain, stress, offset=0.002, modulus=None, fit_range=(0.1, 0.5
         unreliable (no equilibrium during the first transits, bar-end
         indentation, seating and the bars' own compliance) — give the
         handbook or ultrasonic value when it matters.
-    fit_range : (float, float)
-        Stress fractions of the peak bounding the elastic fit.
+    window_fraction : float
+        Length of the elastic window as a fraction of the rise to half the
+        peak stress.
 
     Returns
     -------
@@ -151,34 +192,23 @@ def offset_yield(strain, stress, offset=0.002, modulus=None, fit_range=(0.1, 0.5
     """
     e = np.asarray(strain, dtype=float)
     s = np.asarray(stress, dtype=float)
-    if e.size < 5:
+    win = elastic_window(e, s, window_fraction)
+    if win is None:
         return None
-    ipk = int(np.argmax(s))
-    pk = s[ipk]
-    if pk <= 0:
-        return None
-    pre = np.arange(ipk + 1)
-    sel = pre[(s[: ipk + 1] >= fit_range[0] * pk) & (s[: ipk + 1] <= fit_range[1] * pk)]
-    # keep the first contiguous run: the elastic rise, not a later dip
-    if sel.size:
-        breaks = np.flatnonzero(np.diff(sel) > 1)
-        sel = sel[: breaks[0] + 1] if breaks.size else sel
-    if sel.size < 3:
-        return None
+    a, b = win
     if modulus is None:
-        E, c = np.polyfit(e[sel], s[sel], 1)
+        E, c = np.polyfit(e[a:b], s[a:b], 1)
         if E <= 0:
             return None
         e0, source = -c / E, "fitted"
     else:
         E, source = float(modulus), "given"
-        e0 = float(np.mean(e[sel] - s[sel] / E))
-    line = E * (e - e0 - offset)
-    d = s - line
-    after = np.flatnonzero(d[sel[-1]:] <= 0)
+        e0 = float(np.median(e[a:b] - s[a:b] / E))
+    d = s - E * (e - e0 - offset)
+    after = np.flatnonzero(d[b - 1:] <= 0)
     if after.size == 0:
         return None
-    j = sel[-1] + int(after[0])
+    j = b - 1 + int(after[0])
     if j == 0:
         return None
     # interpolate the crossing between j-1 and j

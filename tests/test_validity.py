@@ -80,3 +80,22 @@ def test_moving_average_skips_nan():
     # centred 3-sample means worked by hand; the NaN is left out of each mean
     out = validity.moving_average([1.0, 2.0, 3.0, np.nan, 5.0], 3)
     np.testing.assert_allclose(out, [1.5, 2.0, 2.5, 4.0, 5.0])
+
+
+def test_offset_yield_of_a_strongly_hardening_metal():
+    # Power-law hardening sigma = s0 + K p^n (Ludwik form, p the plastic strain), total strain
+    # e = sigma/E + p. The 0.2 % offset line sigma = E (e - 0.002) is met exactly where p = 0.002
+    # (ASTM E9 offset definition), so the yield stress is s0 + K 0.002^n. Half the peak stress lies
+    # far into the plastic part here: the elastic part must be found by its slope, not its level.
+    E, s0, K, n = 120e9, 120e6, 390e6, 0.31
+    p = np.concatenate([np.zeros(1), np.geomspace(1e-7, 0.3, 4000)])
+    sig_p = s0 + K * p**n
+    e_el = np.linspace(0, s0 / E, 200)[:-1]
+    e = np.concatenate([e_el, sig_p / E + p])
+    s = np.concatenate([E * e_el, sig_p])
+    rng = np.random.default_rng(7)
+    s_noisy = s + rng.normal(0, 0.5e6, s.size)   # 0.5 MPa recorder noise
+    expected = s0 + K * 0.002**n
+    for given in (None, E):
+        y = validity.offset_yield(e, s_noisy, 0.002, modulus=given)
+        assert y["yield_stress"] == pytest.approx(expected, rel=0.01)
