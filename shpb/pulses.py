@@ -6,6 +6,8 @@ sign convention (compression positive) unless said otherwise.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 
@@ -175,6 +177,51 @@ def taper_window(n, start, stop, ramp):
     return w
 
 
+def carry_wave(channel, dt, start, stop, travel_time, ramp, mover=None):
+    """Cut a wave out of a channel and carry it along its bar by ``travel_time``.
+
+    Parameters
+    ----------
+    channel : array_like
+        Bar strain at the gauge [1].
+    dt : float
+        Sample interval [s].
+    start, stop : float
+        The wave's window at the gauge, fractional sample indices.
+    travel_time : float
+        Signed travel time to the face [s] (distance / c0; negative for a
+        wave carried back against its travel).
+    ramp : int
+        Raised-cosine taper at the window's ends [samples].
+    mover : callable, optional
+        ``mover(segment) -> segment`` carrying the cut-out segment (e.g. a
+        dispersion correction); a pure sub-sample delay when None.
+
+    Returns
+    -------
+    moved, delayed : ndarray
+        The carried wave and its pure-delay version on the channel's sample
+        grid, zero outside the carried window and beyond the record.
+    """
+    x = np.asarray(channel, dtype=float)
+    n = x.size
+    shift = travel_time / dt  # samples
+    margin = int(0.1 * (stop - start)) + 8
+    a = int(np.floor(min(start, start + shift))) - margin
+    b = int(np.ceil(max(stop, stop + shift))) + margin
+    seg = np.zeros(b - a)
+    lo, hi = max(a, 0), min(b, n)
+    if hi > lo:
+        seg[lo - a : hi - a] = x[lo:hi]
+    seg *= taper_window(seg.size, start - a, stop - a, ramp)
+    plain = delay(seg, dt, travel_time)
+    moved = plain if mover is None else mover(seg)
+    full, full_plain = np.zeros(n), np.zeros(n)
+    full[lo:hi] = moved[lo - a : hi - a]
+    full_plain[lo:hi] = plain[lo - a : hi - a]
+    return full, full_plain
+
+
 def flat_top_run(volts):
     """Longest run of consecutive samples at the record's extreme value (max or min) and its level.
 
@@ -198,3 +245,91 @@ def flat_top_run(volts):
             if run > best:
                 best, level = run, float(ext)
     return best, level
+
+
+def ramp_time(duration, dt):
+    """Length of the raised-cosine taper at each end of a wave's window [s]: 2 % of the pulse."""
+    return max(2 * dt, 0.02 * duration)
+
+
+@dataclass(frozen=True)
+class WindowPlan:
+    """The analysis window of a shot, on the record's sample grid.
+
+    Attributes
+    ----------
+    t_foot, t_face0 : float
+        Record time of the incident foot at its gauge and at the specimen's
+        front face [s].
+    pre, window : float
+        Lead before t_face0 and length after it [s].
+    source : str
+        How the window length was chosen.
+    k0, k1 : int
+        Half-open sample range of the window at the faces.
+    ramp : int
+        Taper length [samples].
+    """
+
+    t_foot: float
+    t_face0: float
+    pre: float
+    window: float
+    source: str
+    k0: int
+    k1: int
+    ramp: int
+
+
+def plan_window(foot, duration, dt, t_start, t_end, *, incident_distance, incident_speed, incident_length,
+                transmitted_distance, transmitted_speed, transmitted_length, window=None):
+    """Choose the analysis window of a shot.
+
+    The window starts 10 % of the pulse before the incident foot reaches the
+    front face and runs as long as the bars and the record allow, up to
+    three pulse lengths: it ends before the reflected wave reaches the
+    incident gauge (2 d_i / c_i after the foot), before echoes from the bars'
+    far ends return (2 (L - d) / c), and before the record ends (the
+    reflected and transmitted waves pass their gauges last). A window cut
+    through a pulse's tail would ring through a dispersion correction and
+    hide the specimen's unloading, so a long window is the safe default.
+
+    Parameters
+    ----------
+    foot : float
+        Fractional sample index of the incident foot at its gauge.
+    duration : float
+        Incident pulse duration [s].
+    dt : float
+        Sample interval [s].
+    t_start, t_end : float
+        Record times of the first and last samples [s].
+    incident_distance, transmitted_distance : float
+        Gauge distances from the specimen faces [m].
+    incident_speed, transmitted_speed : float
+        Bar wave speeds [m/s].
+    incident_length, transmitted_length : float
+        Bar lengths [m].
+    window : float, optional
+        A given window length [s] (used as is).
+
+    Returns
+    -------
+    WindowPlan
+    """
+    di, ci, dtr, ct = incident_distance, incident_speed, transmitted_distance, transmitted_speed
+    w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct)
+    pre = min(0.1 * duration, 0.1 * w_free)
+    t_foot = t_start + foot * dt
+    t_face0 = t_foot + di / ci
+    if window:
+        source = "given"
+    else:
+        window, source = max(min(3 * duration, 0.97 * w_free - pre), duration), "automatic"
+        w_rec = t_end - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
+        if w_rec < window:
+            window, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
+    k0 = int(np.ceil((t_face0 - pre - t_start) / dt))
+    k1 = int(np.floor((t_face0 + window - t_start) / dt)) + 1
+    ramp = max(2, int(ramp_time(duration, dt) / dt))
+    return WindowPlan(t_foot, t_face0, pre, window, source, k0, k1, ramp)

@@ -8,7 +8,8 @@ Each check is a small function on arrays; those that judge return
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+import math
+from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
@@ -278,3 +279,123 @@ def overlap_flag(pulse_duration, gauge_distance, wave_speed, bar_name):
                     f"the {pulse_duration * 1e6:.0f} us pulse is longer than the {transit * 1e6:.0f} us the wave "
                     f"needs from the {bar_name} gauge to the specimen and back: the waves overlap at the gauge")
     return None
+
+
+@dataclass
+class Assessment:
+    """What :func:`assess_curve` finds: the valid mask, scalar results (units in the keys) and flags."""
+
+    valid: np.ndarray
+    results: dict = field(default_factory=dict)
+    flags: list = field(default_factory=list)
+
+
+def assess_curve(time, strain_rate, force_front, force_back, strain, stress, *, dt,
+                 threshold=EQUILIBRIUM_THRESHOLD, yield_offset=0.002, specimen_modulus=None,
+                 specimen_transit=None, averaging=0.25e-6):
+    """Judge a reduced curve: loading part, equilibrium, strain-rate plateau and yield point.
+
+    Parameters
+    ----------
+    time : array_like
+        Time at the specimen faces [s] (0 at the incident foot).
+    strain_rate, strain : array_like
+        Engineering strain rate [1/s] and strain [1].
+    force_front, force_back : array_like
+        Face forces F1, F2 [N].
+    stress : array_like
+        The reported engineering stress [Pa].
+    dt : float
+        Sample interval [s].
+    threshold : float
+        Largest |R| counted as equilibrium (Ravichandran & Subhash 1994).
+    yield_offset : float
+        Offset strain of the yield line [1].
+    specimen_modulus : float, optional
+        Elastic modulus for the offset line [Pa]; fitted when None.
+    specimen_transit : float, optional
+        One wave transit of the specimen, L_s / c_s [s]; gives the number of
+        transits before equilibrium.
+    averaging : float
+        R(t) is averaged over this time [s] before the equilibrium test, so
+        single-sample recorder noise does not break equilibrium while the
+        ring-up of a specimen transit (a microsecond and more) is not
+        smoothed away.
+
+    Returns
+    -------
+    Assessment
+    """
+    tau = np.asarray(time, dtype=float)
+    rate = np.asarray(strain_rate, dtype=float)
+    f1, f2 = np.asarray(force_front, dtype=float), np.asarray(force_back, dtype=float)
+    strain, stress = np.asarray(strain, dtype=float), np.asarray(stress, dtype=float)
+    from .kolsky import equilibrium_ratio  # the ratio is a Kolsky quantity
+
+    out = Assessment(valid=np.zeros(tau.size, dtype=bool))
+    res, flags = out.results, out.flags
+    fmean = 0.5 * (f1 + f2)
+    region = loading_region(rate, fmean)
+    onset = None
+    if region is None:
+        flags.append(Flag("no_loading", "error", "no loading found (no positive strain rate and force)"))
+    else:
+        ratio = equilibrium_ratio(f1, f2, floor=0.05 * max(float(np.max(fmean)), 1e-30))
+        ratio_avg = moving_average(ratio, max(1, round(averaging / dt)))
+        onset = equilibrium_onset(ratio_avg, region, threshold)
+        if onset is None:
+            flags.append(Flag("no_equilibrium", "error",
+                              f"the face forces never settle within {100 * threshold:.0f}% of each "
+                              f"other during loading (|R| at the end of loading "
+                              f"{abs(ratio_avg[region[1] - 1]):.2f}): the specimen is not in equilibrium"))
+        else:
+            out.valid[onset:region[1]] = True
+            res["equilibrium_from_time_us"] = float(tau[onset] * 1e6)
+            res["equilibrium_from_strain"] = float(strain[onset])
+            if specimen_transit:
+                res["specimen_transit_time_us"] = specimen_transit * 1e6
+                res["equilibrium_transits"] = float(tau[onset] / specimen_transit)
+            loading_span = tau[region[1] - 1] - tau[region[0]]
+            res["valid_fraction_of_loading"] = float((region[1] - onset) / max(region[1] - region[0], 1))
+            if res["valid_fraction_of_loading"] < 0.5:
+                flags.append(Flag("short_equilibrium", "warning",
+                                  f"equilibrium holds over only {100 * res['valid_fraction_of_loading']:.0f}% "
+                                  f"of the {loading_span * 1e6:.0f} us loading"))
+        res["loading_from_time_us"] = float(tau[region[0]] * 1e6)
+        res["loading_to_time_us"] = float(tau[region[1] - 1] * 1e6)
+    valid = out.valid
+    if valid.any():
+        plat = rate_plateau(rate, valid)
+        res["mean_strain_rate_per_s"] = plat["mean_per_s"]
+        res["strain_rate_std_per_s"] = plat["std_per_s"]
+        res["strain_rate_cv"] = plat["cv"]
+        if plat["cv"] > RATE_CV_LIMIT:
+            flags.append(Flag("rate_not_constant", "warning",
+                              f"the strain rate varies by {100 * plat['cv']:.0f}% (std/mean) over the valid part "
+                              f"(limit {100 * RATE_CV_LIMIT:.0f}%): not a constant-rate test"))
+        res["valid_strain_from"] = float(strain[valid][0])
+        res["valid_strain_to"] = float(strain[valid][-1])
+        res["flow_stress_mean_MPa"] = float(np.mean(stress[valid]) / 1e6)
+    else:
+        res["mean_strain_rate_per_s"] = float(np.max(rate)) if rate.size else math.nan
+    res["peak_stress_MPa"] = float(np.max(stress) / 1e6)
+    res["max_strain"] = float(np.max(strain))
+    res["peak_strain_rate_per_s"] = float(np.max(rate))
+    if region is not None:
+        a, b = region
+        y = offset_yield(strain[a:b], stress[a:b], yield_offset, specimen_modulus)
+        if y is None:
+            flags.append(Flag("no_yield_point", "info", "no yield point found by the offset method"))
+        else:
+            res["yield_strain"] = y["yield_strain"]
+            res["yield_stress_MPa"] = y["yield_stress"] / 1e6
+            res["elastic_modulus_GPa"] = y["modulus"] / 1e9
+            res["elastic_modulus_source"] = y["modulus_source"]
+            res["yield_offset"] = yield_offset
+            # the yield point's time: the first sample of the loading part at or past its strain
+            j = a + int(np.argmax(strain[a:b] >= y["yield_strain"]))
+            if onset is None or j < onset:
+                flags.append(Flag("yield_before_equilibrium", "warning",
+                                  "the yield point lies before force equilibrium: yield stress and modulus are "
+                                  "unreliable"))
+    return out

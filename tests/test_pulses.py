@@ -1,6 +1,7 @@
 """Pulse feet, sub-sample delays and windows, against analytic signals."""
 
 import numpy as np
+import pytest
 
 from shpb import pulses
 
@@ -49,3 +50,39 @@ def test_flat_top_run():
     v = np.concatenate([np.zeros(10), np.linspace(0, 4.99, 20), np.full(37, 5.0), np.zeros(5)])
     run, level = pulses.flat_top_run(v)
     assert run == 37 and level == 5.0
+
+
+def test_carry_wave_is_a_delay_of_the_cut_out_wave():
+    # a Gaussian inside its window carried 3.37 samples later equals the analytic g(t - 3.37 dt) to the
+    # linear-interpolation error (Press et al. 2007, Numerical Recipes §3.1); outside the window: zero
+    dt, width = 1e-7, 4e-6
+    t = np.arange(4000) * dt
+    g = np.exp(-0.5 * ((t - 150e-6) / width) ** 2)
+    other = np.exp(-0.5 * ((t - 320e-6) / width) ** 2)   # another wave later on the same channel
+    moved, plain = pulses.carry_wave(g + other, dt, 1000, 2000, 3.37 * dt, ramp=20)
+    exact = np.exp(-0.5 * ((t - 150e-6 - 3.37 * dt) / width) ** 2)
+    assert np.max(np.abs(moved - exact)) < (dt / width) ** 2 / 8 * 1.1
+    assert np.max(np.abs(moved[2500:])) == 0.0           # the later wave was cut away
+    np.testing.assert_array_equal(moved, plain)
+
+
+def test_plan_window_from_the_bar_geometry():
+    # common practice: the reflected wave returns to the incident gauge 2 d_i/c0 after the incident foot,
+    # and far-end echoes return after 2 (L - d)/c0. Here: 2*0.9/4873.4 = 369.4 us, 2*(1.2-0.4)/4873.4 =
+    # 328.3 us (the shortest), so a 100 us pulse gets 10 us of lead and min(3 * 100, 0.97 * 328.3 - 10)
+    # = 300 us of window.
+    c = 4873.4
+    plan = pulses.plan_window(1000.0, 100e-6, 1e-7, 0.0, 2e-3, incident_distance=0.9, incident_speed=c,
+                              incident_length=1.8, transmitted_distance=0.4, transmitted_speed=c,
+                              transmitted_length=1.2)
+    assert plan.pre == pytest.approx(10e-6)
+    assert plan.window == pytest.approx(300e-6)
+    assert plan.t_face0 == pytest.approx(100e-6 + 0.9 / c)
+    assert plan.k0 == int(np.ceil((plan.t_face0 - 10e-6) / 1e-7))
+    # a record ending early cuts the window: it must end 0.9/c (the later wave's travel) before the end,
+    # less two tapers of 2 us
+    short = pulses.plan_window(1000.0, 100e-6, 1e-7, 0.0, 600e-6, incident_distance=0.9, incident_speed=c,
+                               incident_length=1.8, transmitted_distance=0.4, transmitted_speed=c,
+                               transmitted_length=1.2)
+    assert short.window == pytest.approx(600e-6 - (100e-6 + 0.9 / c) - 0.9 / c - 4e-6)
+    assert "cut by the record" in short.source
