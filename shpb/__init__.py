@@ -7,4 +7,6 @@ the reflected wave of a compression test is tensile (negative).
 
 __version__ = "0.1.0"
 
-from .errors import ShpbError, InputError  # noqa: F401
+from .errors import AnalysisError, InputError, ShpbError
+
+__all__ = ["AnalysisError", "InputError", "ShpbError", "__version__"]

@@ -415,6 +415,8 @@ def free_end_wave_speed(strain, dt, gauge_to_free_end, bar_length, nominal_wave_
     .. [1] H. Kolsky, *Stress Waves in Solids*, 1953, ch. 3.
     .. [2] K. F. Graff, *Wave Motion in Elastic Solids*, 1975, ch. 2.
     """
+    if int(max_echoes) < 1:
+        raise InputError(f"max_echoes must be at least 1, got {max_echoes}", "max_echoes")
     p = first_pulse(strain)
     y, n = p["signal"], p["signal"].size
     a, b, margin = pulse_window(p["foot"], p["end"], n)
@@ -738,8 +740,9 @@ def bars_together(strain_incident, strain_transmitted, dt, incident_gauge_distan
     u_c = c * math.hypot(se / r["delay_s"], math.sqrt(2) * gauge_position_uncertainty / path)
     expected, expected_r = float(expected_ratio), float(expected_reflected_ratio)
     ratio = r["amplitude_ratio"]
-    # the reflected window: where the incident pulse returns to its gauge
-    k_r = int(round(2 * di / ci / dt)) if ci == ct else int(round(2 * di / c / dt))
+    # the reflected window: where the incident pulse returns to its gauge. The measured gauge-to-gauge
+    # speed is the incident bar's only when both bars are of one speed; otherwise the nominal one
+    k_r = int(round(2 * di / c / dt)) if ci == ct else int(round(2 * di / ci / dt))
     if b + k_r > n:
         raise AnalysisError("the record ends before the reflected wave has passed the incident gauge")
     taper = pulses.taper_window(b - a, 0, b - a, max(2, margin // 2))
@@ -792,6 +795,9 @@ def striker_incident_strain(striker_speed, bar_wave_speed, striker_impedance=Non
     v, c = float(striker_speed), float(bar_wave_speed)
     if striker_impedance is None and bar_impedance is None:
         return v / (2.0 * c)
+    if striker_impedance is None or bar_impedance is None:
+        raise InputError("give both the striker and the bar impedance, or neither (a matched striker)",
+                         "striker_impedance/bar_impedance")
     zs, zb = float(striker_impedance), float(bar_impedance)
     return v / c * zs / (zs + zb)
 

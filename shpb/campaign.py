@@ -279,6 +279,8 @@ def _row_dict(cols, cells, where_row: str, barsets: Callable[[str, str], BarSet]
             if column is None:
                 raise InputError(f"no {ch} column in the campaign's [record] table", where_row)
             rec[ch] = {"file": files[f"record_{ch}"], "column": column}
+    elif "record_incident" in files or "record_transmitted" in files:  # not silently the campaign's file
+        raise InputError("give both 'record_incident' and 'record_transmitted' (or 'record')", where_row)
     elif "file" not in rec:
         raise InputError("empty 'record' cell (the record file of the shot)", where_row)
     barset = barsets(*barset_cell) if barset_cell else barsets(None, where_row)
@@ -444,6 +446,8 @@ def _output_options(out: dict, where: str):
     if any(not 0 < s < 1 for s in strains):
         raise InputError(f"expected engineering strains between 0 and 1, got {raw}", f"{where}.flow_strains")
     plot = to_si(out.get("rate_plot_strain", strains[0]), "dimensionless", f"{where}.rate_plot_strain")
+    if not 0 < plot < 1:
+        raise InputError(f"expected an engineering strain between 0 and 1, got {plot:g}", f"{where}.rate_plot_strain")
     if plot not in strains:
         strains = strains + (plot,)
     tol = to_si(out.get("rate_group_tolerance", RATE_GROUP_TOLERANCE), "dimensionless",
@@ -690,8 +694,6 @@ def _reduce_task(shot, figures, base_dir, flow_strains):
 
     try:
         rec = read_record(shot.record)
-    except (ShpbError, OSError, ValueError) as exc:
-        return _failed(shot.name, "read", _one_line(exc))
     except Exception as exc:  # noqa: BLE001 - nothing lost: any failure is recorded
         return _failed(shot.name, "read", _one_line(exc))
     key = shot_key(shot, rec.files, base_dir)
@@ -1143,16 +1145,15 @@ def _write_tables(out: Path, table: pd.DataFrame, outcomes, campaign: Campaign) 
     files = {}
     atomic_write_csv(out / SUMMARY_TABLE, table)
     files["summary_csv"] = out / SUMMARY_TABLE
+    buf = _io.BytesIO()
+    t = table.copy()
+    for c in campaign.tag_columns:
+        t[c] = t[c].astype(str)
     try:
-        import pyarrow  # noqa: F401
-    except ImportError:
-        pass
-    else:
-        buf = _io.BytesIO()
-        t = table.copy()
-        for c in campaign.tag_columns:
-            t[c] = t[c].astype(str)
         t.to_parquet(buf, index=False)
+    except ImportError:
+        pass  # no parquet engine (pyarrow) installed: the CSV table only
+    else:
         atomic_write_bytes(out / SUMMARY_PARQUET, buf.getvalue())
         files["summary_parquet"] = out / SUMMARY_PARQUET
     fails = pd.DataFrame([{"id": o.id, "line": o.line, "status": o.status, "stage": o.stage, "reason": o.reason}
@@ -1169,7 +1170,7 @@ def repeatability_table(table: pd.DataFrame, strain: float) -> pd.DataFrame:
     """Spread among repeats: per material and rate group, the flow stress at ``strain``.
 
     Columns: ``material``, ``rate_group``, ``n``, ``mean_strain_rate_per_s``,
-    ``flow_stress_MPa_mean``, ``flow_stress_MPa_std`` (sample standard
+    ``strain`` (= ``strain`` [1]), ``flow_stress_MPa_mean``, ``flow_stress_MPa_std`` (sample standard
     deviation, ddof = 1), ``flow_stress_cv`` (std / mean), ``ids``. Only
     valid shots with a flow stress at ``strain`` count.
     """

@@ -29,7 +29,7 @@ import numpy as np
 from scipy import fft as _fft
 from scipy import special as _sp
 from scipy.interpolate import CubicHermiteSpline, CubicSpline
-from scipy.optimize import brentq
+from scipy.optimize import brentq, minimize_scalar
 
 from .errors import AnalysisError, InputError
 
@@ -48,8 +48,8 @@ __all__ = [
 ]
 
 #: Default upper end of the tabulated curve, a/Λ. At a/Λ = 2 the fundamental
-#: mode is within 0.5 % of the Rayleigh speed, so holding c beyond it changes
-#: little.
+#: mode is within 0.5 % of the Rayleigh speed for ν ≥ 0.29 (1.2 % at ν = 0.1,
+#: 1.8 % as ν → 0), so holding c beyond it changes little.
 DEFAULT_MAX_A_OVER_LAMBDA = 2.0
 #: Points in the default table (uniform in a/Λ).
 DEFAULT_TABLE_POINTS = 2000
@@ -633,13 +633,8 @@ def _second_mode_onset_cached(nu):
     vals = np.array([second_root(K) for K in Ks])
     j = int(np.argmin(vals))
     lo, hi = Ks[max(j - 1, 0)], Ks[min(j + 1, Ks.size - 1)]
-    if hi > lo:
-        from scipy.optimize import minimize_scalar
-
-        res = minimize_scalar(second_root, bounds=(lo, hi), method="bounded", options={"xatol": 1e-7})
-        wmin = min(float(res.fun), vals[j])
-    else:
-        wmin = vals[j]
+    res = minimize_scalar(second_root, bounds=(lo, hi), method="bounded", options={"xatol": 1e-7})
+    wmin = min(float(res.fun), vals[j])
     return wmin / (2.0 * np.pi * s0)  # f a / c0 = Ω (cT/c0) / 2π
 
 
@@ -685,10 +680,10 @@ def second_mode_onset(bar_radius, bar_wave_speed, poisson):
 def _fast_length(n):
     """Smallest even 2^a 3^b 5^c ≥ n.
 
-    scipy.fft.next_fast_len also admits factors 7 and 11; measured here with
-    pocketfft at ~1e6 points, 2-3-5 lengths were 1.5-2x faster than
-    neighbouring lengths with 7^k factors, and an even length halves the
-    real-FFT work.
+    scipy.fft.next_fast_len(real=True) gives 2-3-5 lengths (its complex
+    default also admits 7 and 11, which measured here with pocketfft at ~1e6
+    points were 1.5-2x slower) but may give an odd one; an even length
+    halves the real-FFT work.
     """
     n = max(int(n), 2)
     best = _fft.next_fast_len(n, real=True)
@@ -726,10 +721,7 @@ def _propagation_plan(dt, a, c0, curve, max_frequency, amplitude_factors, amplit
     # slowest energy: minimum group velocity over the band used; above the
     # hold frequency the phase velocity is constant, so cg = c there.
     sel = curve.frequency <= phi_top
-    cg_min = float(np.min(curve.group_ratio[sel]))
-    if phi_nyq > phi_hold:
-        cg_min = min(cg_min, float(curve.phase_ratio_at(phi_hold)))
-    cg_min = min(cg_min, float(curve.phase_ratio_at(phi_top)))
+    cg_min = min(float(np.min(curve.group_ratio[sel])), float(curve.phase_ratio_at(phi_top)))
     amp = _amplitude_table(curve.poisson, amplitude_limit) if amplitude_factors else None
     return phi_hold, cg_min * c0, amp
 
@@ -962,6 +954,8 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
     a = _check_positive(bar_radius, "bar_radius")
     c0 = _check_positive(bar_wave_speed, "bar_wave_speed")
     nu = _check_poisson(poisson)
+    if amplitude_factors:
+        amplitude_limit = _check_positive(amplitude_limit, "amplitude_limit")
     curve = normalized_curve(nu)
     phi_hold = curve.max_frequency
     if max_frequency is not None:
@@ -978,7 +972,7 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
         "second_mode_onset_Hz": second_mode_onset(a, c0, nu),
         "nyquist_Hz": None if dt is None else 0.5 / _check_positive(dt, "dt"),
         "amplitude_factors": bool(amplitude_factors),
-        "amplitude_limit_a_over_lambda": float(amplitude_limit) if amplitude_factors else None,
+        "amplitude_limit_a_over_lambda": amplitude_limit if amplitude_factors else None,
         "amplitude_limit_Hz": None,
         "references": [
             "Bancroft 1941, Phys. Rev. 59:588",
@@ -986,7 +980,7 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
         ],
     }
     if amplitude_factors:
-        amp = _amplitude_table(curve.poisson, _check_positive(amplitude_limit, "amplitude_limit"))
+        amp = _amplitude_table(curve.poisson, amplitude_limit)
         info["amplitude_limit_Hz"] = min(amp.phi_end, phi_hold) * c0 / a
         info["references"].append("Tyas & Watson 2001, Int. J. Impact Eng. 25:87")
     return info

@@ -33,9 +33,10 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
+from .calibration_files import _toml_clean
 from .errors import AnalysisError, InputError
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
-from .io import atomic_write_bytes
+from .io import _jsonable, atomic_write_bytes, atomic_write_csv, atomic_write_text
 from .units import to_si
 
 __all__ = [
@@ -435,15 +436,25 @@ def _read_csv(path, **kw):
         raise InputError(f"cannot read as CSV ({str(exc).splitlines()[0]})", str(path)) from None
 
 
+def _read_summary(js_path: Path) -> dict:
+    """A shot's ``summary.json`` as a dict; InputError naming the file if it is not a JSON object."""
+    try:
+        summary = json.loads(js_path.read_text(encoding="utf-8"))
+    except json.JSONDecodeError as exc:
+        raise InputError(f"not valid JSON ({exc.msg}, line {exc.lineno})", str(js_path)) from None
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", str(js_path)) from None
+    if not isinstance(summary, dict):
+        raise InputError("expected a JSON object (the shot summary)", str(js_path))
+    return summary
+
+
 def _read_shot(folder: Path, modulus, room_temperature):
     """One shot folder -> (Curve or None, note or None, stress level or None)."""
     csv_path, js_path = folder / "curves.csv", folder / "summary.json"
     if not js_path.is_file():
         raise InputError("summary.json not found next to curves.csv", str(folder))
-    try:
-        summary = json.loads(js_path.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as exc:
-        raise InputError(f"not valid JSON ({exc.msg}, line {exc.lineno})", str(js_path)) from None
+    summary = _read_summary(js_path)
     df = _read_csv(csv_path)
     src = str(csv_path)
     for col in ("true_strain", "valid"):
@@ -489,17 +500,20 @@ def _read_shot(folder: Path, modulus, room_temperature):
 def _header(path: Path):
     """``# key = value`` lines at the top of a CSV -> dict (keys lower-case)."""
     meta = {}
-    with open(path, encoding="utf-8") as fh:
-        for line in fh:
-            s = line.strip()
-            if not s:
-                continue
-            if not s.startswith("#"):
-                break
-            body = s.lstrip("#").strip()
-            if "=" in body:
-                k, v = body.split("=", 1)
-                meta[k.strip().lower().replace(" ", "_")] = v.strip().strip('"')
+    try:
+        with open(path, encoding="utf-8") as fh:
+            for line in fh:
+                s = line.strip()
+                if not s:
+                    continue
+                if not s.startswith("#"):
+                    break
+                body = s.lstrip("#").strip()
+                if "=" in body:
+                    k, v = body.split("=", 1)
+                    meta[k.strip().lower().replace(" ", "_")] = v.strip().strip('"')
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", str(path)) from None
     return meta
 
 
@@ -703,11 +717,7 @@ def load_curves(
                 continue
             js = folder / "summary.json"
             if js.is_file() and not include_invalid_shots:
-                try:
-                    flag = json.loads(js.read_text(encoding="utf-8")).get("valid", True)
-                except json.JSONDecodeError as exc:
-                    raise InputError(f"not valid JSON ({exc.msg}, line {exc.lineno})", str(js)) from None
-                if flag is False:
+                if _read_summary(js).get("valid", True) is False:
                     notes.append(f"{folder.name}: summary says the shot is not valid; skipped")
                     continue
             curve, note, level = _read_shot(folder, mod, room)
@@ -830,6 +840,8 @@ class FitResult:
         Assumptions, fixed parameters, warnings.
     success : bool
         Optimiser convergence.
+    message : str
+        The optimiser's message.
     staged : FitResult or None
         The staged Johnson–Cook route, when asked for.
     model_spec : ModelSpec or None
@@ -1132,7 +1144,7 @@ def _collect(spec, res, fixed_notes, only=None):
     return params, corr
 
 
-def _bound_notes(spec, res):
+def _bound_notes(res):
     notes = []
     for name, lp in res.params.items():
         if lp.vary and np.isfinite(lp.min) and np.isfinite(lp.max):
@@ -1144,7 +1156,7 @@ def _bound_notes(spec, res):
     return notes
 
 
-def _starts(spec, curves, settings, fixed):
+def _starts(spec, curves, settings):
     groups = [(c.plastic_strain, c.strain_rate, c.temperatures, c.stress) for c in curves]
     starts = []
     if spec.guess is not None:
@@ -1241,12 +1253,12 @@ def fit_curves(
                                     temperature_tolerance)
     fixed_notes = {k: ("fixed by the user" if k in (fixed or {}) else "not identifiable from these data")
                    for k in fixed_all}
-    res = _run_lmfit(spec, curves, settings, fixed_all, weighting, _starts(spec, curves, settings, fixed_all))
+    res = _run_lmfit(spec, curves, settings, fixed_all, weighting, _starts(spec, curves, settings))
     params, corr = _collect(spec, res, fixed_notes)
     per, rms, r2 = _stats(spec, curves, {k: p.value for k, p in params.items()}, settings)
     notes = list(load_notes)
     notes += [f"{c.name}: {n}" for c in curves for n in c.notes]
-    notes += id_notes + _bound_notes(spec, res)
+    notes += id_notes + _bound_notes(res)
     if "temperature" not in spec.variables:
         _, temps, _ = _data_levels(curves, rate_tolerance, temperature_tolerance)
         if len(temps) > 1:
@@ -1301,11 +1313,8 @@ def _staged_johnson_cook(spec, curves, settings, fixed, weighting, rate_tol, tem
             notes.append(f"{label}: no curve above room temperature; m fixed at {values['m']:g}")
             continue
         hold = {k: v for k, v in values.items() if k not in free}
-        start = {k: values[k] for k in free}
-        if names == ("A", "B", "n"):
-            start = spec.guess([(c.plastic_strain, c.strain_rate, c.temperatures, c.stress) for c in subset],
-                               **settings)
-        res = _run_lmfit(spec, subset, settings, hold, weighting, [start, {}])
+        starts = _starts(spec, subset, settings) if names == ("A", "B", "n") else [{k: values[k] for k in free}, {}]
+        res = _run_lmfit(spec, subset, settings, hold, weighting, starts)
         p_stage, c_stage = _collect(spec, res, {}, only=free)
         params.update(p_stage)
         corr.update(c_stage)
@@ -1373,19 +1382,6 @@ def tabulate(result, strain_rates=None, temperatures=None, plastic_strain=None):
     return pd.concat(blocks, ignore_index=True)
 
 
-def _clean(x):
-    """JSON-safe: NaN/inf -> None, numpy scalars -> float."""
-    if isinstance(x, dict):
-        return {str(k): _clean(v) for k, v in x.items()}
-    if isinstance(x, (list, tuple)):
-        return [_clean(v) for v in x]
-    if isinstance(x, (np.floating, float)):
-        return float(x) if math.isfinite(x) else None
-    if isinstance(x, np.integer):
-        return int(x)
-    return x
-
-
 def _settings_out(settings):
     keys = {"reference_rate": "reference_rate_per_s", "room_temperature": "room_temperature_K",
             "melt_temperature": "melt_temperature_K"}
@@ -1425,7 +1421,7 @@ def fit_to_dict(result):
            "success": result.success, "message": result.message}
     if result.staged is not None:
         out["staged"] = _result_dict(result.staged)
-    return _clean(out)
+    return _jsonable(out)
 
 
 def _toml_dict(result):
@@ -1436,15 +1432,14 @@ def _toml_dict(result):
            "stderr": {k: v["stderr"] for k, v in d["parameters"].items() if v["stderr"] is not None},
            "fixed": [k for k, v in d["parameters"].items() if not v["varied"]],
            "settings": d["settings"], "statistics": d["statistics"],
-           "curves": [{k: v for k, v in c.items() if v is not None} for c in d["curves"]],
+           "curves": d["curves"],
            "notes": d["notes"]}
     if result.staged is not None:
         s = _result_dict(result.staged)
         out["staged"] = {"parameters": {k: v["value"] for k, v in s["parameters"].items()},
                          "statistics": s["statistics"], "notes": s["notes"]}
-    out = _clean(out)
-    out["settings"] = {k: v for k, v in out["settings"].items() if v is not None}
-    return out
+    # TOML has no null: NaN/inf (e.g. R² of a flat curve, T_m = inf) become None, then are left out
+    return _toml_clean(_jsonable(out))
 
 
 def _default_flow_strain(result):
@@ -1552,11 +1547,11 @@ def write_fit(result, out_dir, *, strain_rates=None, temperatures=None, plastic_
     out.mkdir(parents=True, exist_ok=True)
     paths = {"json": out / "fit_parameters.json", "toml": out / "fit_parameters.toml",
              "curves": out / "model_curves.csv", "data": out / "fit_data.csv"}
-    atomic_write_bytes(paths["json"], (json.dumps(fit_to_dict(result), indent=2, ensure_ascii=False) + "\n").encode())
-    atomic_write_bytes(paths["toml"], tomli_w.dumps(_toml_dict(result)).encode())
+    atomic_write_text(paths["json"], json.dumps(fit_to_dict(result), indent=2, ensure_ascii=False) + "\n")
+    atomic_write_text(paths["toml"], tomli_w.dumps(_toml_dict(result)))
     table = tabulate(result, strain_rates, temperatures, plastic_strain)
-    atomic_write_bytes(paths["curves"], table.to_csv(index=False, float_format="%.8g").encode())
-    atomic_write_bytes(paths["data"], _residual_table(result).to_csv(index=False, float_format="%.8g").encode())
+    atomic_write_csv(paths["curves"], table, float_format="%.8g")
+    atomic_write_csv(paths["data"], _residual_table(result), float_format="%.8g")
     if figure:
         fs = _default_flow_strain(result) if flow_strain is None else float(flow_strain)
         paths["figure"] = out / "fit_sheet.png"

@@ -433,7 +433,9 @@ def _guess_johnson_cook(groups, reference_rate=1.0, room_temperature=293.15, mel
     rates, temps = _group_stats(groups)
     lnr = np.log(rates / reference_rate)
     tstar = np.clip((temps - room_temperature) / (melt_temperature - room_temperature), 0.0, 1.0)
-    # Flow-stress factor of each curve relative to the reference curve's hardening.
+    # Flow-stress factor of each curve relative to the reference curve's hardening:
+    # f = (1 + C lnr) / (1 + C lnr_ref) at the reference temperature, a line in lnr
+    # whose intercept is scale = 1 / (1 + C lnr_ref) and slope C * scale.
     f = np.array([_median_ratio(g, a0 + b0 * np.asarray(g[0]) ** n) for g in groups])
     near_ref_T = np.abs(temps - temps[ref]) < 5.0
     C, scale = 0.0, 1.0
@@ -443,8 +445,9 @@ def _guess_johnson_cook(groups, reference_rate=1.0, room_temperature=293.15, mel
             C, scale = float(np.clip(slope / intercept, 0.0, 0.5)), float(intercept)
     m = 1.0
     for _ in range(3):  # the reference curve may itself be above room temperature
+        # a0 = A (1 + C lnr_ref) theta_ref, so A = a0 * scale / theta_ref (likewise B)
         theta_ref = 1.0 - tstar[ref] ** m
-        A, B = a0 / (scale * max(theta_ref, 0.05)), b0 / (scale * max(theta_ref, 0.05))
+        A, B = a0 * scale / max(theta_ref, 0.05), b0 * scale / max(theta_ref, 0.05)
         hot = tstar > 0.01
         if not np.any(hot):
             break
@@ -465,7 +468,7 @@ def _guess_power_law(groups, reference_rate=1.0):
         slope, intercept = np.polyfit(lnr, f, 1)
         if intercept > 0:
             C, scale = float(np.clip(slope / intercept, 0.0, 0.5)), float(intercept)
-    return {"K": K0 / scale, "n": n, "C": C}
+    return {"K": K0 * scale, "n": n, "C": C}  # K0 = K (1 + C lnr_ref), scale = 1 / (1 + C lnr_ref)
 
 
 def _guess_cowper_symonds(groups):

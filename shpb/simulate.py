@@ -34,13 +34,14 @@ and forces in elements at whole steps; lumped nodal masses.
 * **Time step, and why the bars are refined rather than sub-cycled.** One
   common ``dt`` for the whole chain, set by the finest resolved rod: the
   specimen (at least 20 elements) or the shaper runs at Courant exactly 1
-  (exact for its elastic waves), the other at Courant <= 1 with the fewest
-  elements that allow it. A short specimen thus forces a small ``dt``. Rather
-  than run the bars at Courant < 1 (dispersive: oscillations trail every
-  front) or sub-cycle the specimen (an interface-coupling error of the order
-  of the bar step, where the reduction is most sensitive), the bar elements
-  are shortened to ``c0 dt`` so the bars stay exact. The price is grid size,
-  cost ~ ``1/dt**2``: for a 5 mm metal specimen on 1.5 m bars, about 13 000
+  (exact for its elastic waves), the other with as many elements as keep
+  its Courant number <= 1 (as close to 1 as the grid allows). A short
+  specimen thus forces a small ``dt``. Rather than run the bars at
+  Courant < 1 (dispersive: oscillations trail every front) or sub-cycle
+  the specimen (an interface-coupling error of the order of the bar step,
+  where the reduction is most sensitive), the bar elements are shortened
+  to ``c0 dt`` so the bars stay exact. The price is grid size, cost
+  ~ ``1/dt**2``: for a 5 mm metal specimen on 1.5 m bars, about 13 000
   nodes and 20 000 steps per millisecond, about two seconds (see
   ``benchmarks/bench_simulate.py``). Without a specimen or shaper, ``dt`` is
   the largest divisor of the sample interval not above ``max_time_step``.
@@ -753,7 +754,7 @@ def _build_rods(spec, laws, dt):
         if n is None:  # bar or striker: Courant exactly 1, length rounded to whole elements
             dx = rod.wave_speed * dt
             n = max(1, int(round(rod.length / dx - 0.5 * (cap_start + cap_end))))
-        else:  # resolved rod: as few elements (>= the minimum) as keep its Courant number <= 1
+        else:  # resolved rod: as many elements (>= the minimum) as keep its Courant number <= 1
             n = max(n, int(math.floor(rod.length / (rod.wave_speed * dt) + 1e-9)))
             dx = rod.length / n
         # consecutive rods are joined by a dummy link (global index node0 - 1) of zero stiffness;
@@ -943,11 +944,8 @@ def _directional_weights(rod, distance, from_end):
     node of a Courant-1 bar (see :func:`_directional_waves`); between the two
     nodes it is interpolated linearly, like the gauge strain.
     """
-    if from_end:
-        pos = (rod.n + 0.5 * rod.cap_end) * rod.dx - distance
-    else:
-        pos = distance - 0.5 * rod.cap_start * rod.dx
-    x = min(max(pos / rod.dx, 1.0), rod.n - 1.0)  # interior nodes only: both neighbour elements exist
+    # interior nodes only: both neighbour elements exist
+    x = min(max(_station_position(rod, distance, from_end) / rod.dx, 1.0), rod.n - 1.0)
     j = min(int(math.floor(x)), rod.n - 2)
     w = x - j
     return rod.node0 + j, rod.node0 + j + 1, 1.0 - w, w, rod.spec.wave_speed
@@ -981,15 +979,20 @@ def _directional_waves(eps, v, weights):
     return -0.5 * plus, -0.5 * minus
 
 
+def _station_position(rod, distance, from_end):
+    """Position [m] from the rod's first node of a station ``distance`` [m] from its specimen-side face.
+
+    Faces of capped ends lie half an element beyond the end node.
+    """
+    if from_end:
+        return (rod.n + 0.5 * rod.cap_end) * rod.dx - distance
+    return distance - 0.5 * rod.cap_start * rod.dx
+
+
 def _gauge_weights(rod, distance, from_end):
     """Two element indices and linear weights for a station ``distance`` [m] from the specimen face."""
-    # element i has its centre at (i + 1/2) dx from the rod's first node; faces of capped ends
-    # lie half an element beyond the end node
-    if from_end:
-        pos = (rod.n + 0.5 * rod.cap_end) * rod.dx - distance
-    else:
-        pos = distance - 0.5 * rod.cap_start * rod.dx
-    x = min(max(pos / rod.dx - 0.5, 0.0), rod.n - 1.0)
+    # element i has its centre at (i + 1/2) dx from the rod's first node
+    x = min(max(_station_position(rod, distance, from_end) / rod.dx - 0.5, 0.0), rod.n - 1.0)
     i = min(int(math.floor(x)), rod.n - 2) if rod.n > 1 else 0
     w = x - i
     j = min(i + 1, rod.n - 1)
@@ -1355,7 +1358,8 @@ def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson)
     x = np.asarray(strain, dtype=float)
     if distance == 0.0:
         return x.copy()
-    # held edges, long enough for the slowest harmonics (>= 0.55 c0 in the fundamental mode)
+    # held edges: propagate drops what it moves out of its window, and the advance by d / c0 below
+    # brings back what lay up to |d| / c0 beyond an end; 2 |d| / c0 leaves a margin
     pad = int(math.ceil(2.0 * abs(distance) / bar_wave_speed / dt)) + 64
     padded = np.concatenate([np.full(pad, x[0]), x, np.full(pad, x[-1])])
     moved = dispersion.propagate(padded, dt, distance, bar_radius, bar_wave_speed, poisson)
@@ -1677,8 +1681,9 @@ def dispersed_drive(spec: VirtualShotSpec, incident_poisson) -> VirtualShotSpec:
     """
     pulse = incident_pulse(spec)
     bar = spec.incident
-    # room for the trailing ripples: the slowest harmonics (~0.58 c0) lag by up to ~0.72 L / c0
-    extra = int(math.ceil(bar.length / bar.wave_speed / pulse.dt)) + 64
+    # room for the trailing ripples: energy near the slowest group velocity (~0.38 c0 for nu = 0.3) lags
+    # by up to ~1.6 L / c0 behind the pulse, so 2 L / c0 of room keeps the whole dispersed tail.
+    extra = int(math.ceil(2.0 * bar.length / bar.wave_speed / pulse.dt)) + 64
     strain = np.concatenate([pulse.strain, np.zeros(extra)])
     dispersed = excess_dispersion(strain, pulse.dt, bar.length, 0.5 * bar.diameter, bar.wave_speed, incident_poisson)
     return dataclasses.replace(spec, striker=None, shaper=None,

@@ -195,7 +195,7 @@ def load_simulation(path) -> SimulationSetup:
     data = read_toml(path)
     top = _Table(data, f"{src}:")
     top.check_keys({"name", "kind", "barset", "dispersion", "striker", "specimen", "shaper", "recorder"})
-    name = str(data.get("name", path.stem))
+    name = top.string("name", default=path.stem)
     if not name or any(c in name for c in '/\\:*?"<>|'):
         raise InputError(f"name {name!r} cannot be a file name", f"{src}: name")
     kind = top.string("kind", default="specimen" if "specimen" in data else "bars-together", choices=SHOT_KINDS)
@@ -287,7 +287,11 @@ def load_simulation(path) -> SimulationSetup:
                            gauge_transmitted_distance=bs.transmitted_gauge.distance,
                            duration=1.0, sample_rate=recorder.sample_rate, shaper=shaper,
                            specimen_elements=elements, shaper_elements=shaper_elements)
-    spec = dataclasses.replace(spec, duration=model_duration(trigger_time(spec, recorder), recorder))
+    try:
+        duration = model_duration(trigger_time(spec, recorder), recorder)
+    except InputError as exc:  # name the setup file's key, not the dataclass field
+        raise InputError(exc.bare_message, rt._key("duration")) from None
+    spec = dataclasses.replace(spec, duration=duration)
     return SimulationSetup(name=name, kind=kind, spec=spec, recorder=recorder, barset=bs, barset_path=barset_path,
                            dispersion=top.boolean("dispersion", True), specimen=info,
                            yield_strength=min(yields) if yields else None, source=src)

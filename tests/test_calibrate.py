@@ -275,6 +275,9 @@ def test_bars_together_analytic():
     assert r["transmitted_to_incident_ratio"] == pytest.approx(0.97, rel=2e-3)
     assert r["transmitted_scale_relative_to_incident"] == pytest.approx(1 / 0.97, rel=2e-3)
     assert r["reflected_to_incident_ratio"] == pytest.approx(0.02, abs=2e-3)
+    # the reflection is read where it returns, 2 di later at the bars' true speed (Kolsky 1953, ch. 3),
+    # not at the nominal speed (31 samples off here)
+    assert abs(r["reflected_lag_samples"] - 2 * 0.75 / c / DT) <= 1
     # the peak includes the dispersion ringing of the reflected wave (about +30 % at 1.5 m travel)
     assert 0.02 <= r["reflected_peak_fraction"] < 0.03
     assert r["notes"] == []

@@ -180,3 +180,25 @@ def test_evaluate_matches_direct_call():
     # (the value itself is checked against CHECK_VALUES above).
     s = M.evaluate("johnson-cook", JC_4340, 0.1, 1000.0, TR, melt_temperature=TM_4340, room_temperature=TR)
     assert s / MPa == pytest.approx(1175.96, abs=0.01)
+
+
+def test_guesses_land_on_exact_data_away_from_the_reference_rate():
+    # Starting values from data (the registry's ``guess``) on noise-free curves
+    # of the published laws, none at the reference rate 1 1/s: the rate factor
+    # (1 + C ln(rate)) of the curve the hardening is read from must be divided
+    # out, not multiplied in. Johnson & Cook 1983 OFHC copper (parameters
+    # above) at 500-3000 1/s, 293.15 and 600 K; power law K 500 MPa, n 0.2,
+    # C 0.02 (Hollomon 1945 hardening, Johnson-Cook log rate term; made up).
+    # A and B within 10 % (the guess's n grid step is 0.025; n = 0.31 is read
+    # as 0.30); C, m, K, n exact to round-off (separable on exact data).
+    ep = np.linspace(0.01, 0.3, 60)
+    groups = [(ep, r, np.full(ep.size, T), M.johnson_cook(ep, r, T, **JC_CU, room_temperature=TR,
+                                                          melt_temperature=TM_CU))
+              for r in (500.0, 1000.0, 3000.0) for T in (TR, 600.0)]
+    g = M.MODELS["johnson-cook"].guess(groups, reference_rate=1.0, room_temperature=TR, melt_temperature=TM_CU)
+    assert g["A"] == pytest.approx(JC_CU["A"], rel=0.10) and g["B"] == pytest.approx(JC_CU["B"], rel=0.10)
+    assert g["C"] == pytest.approx(JC_CU["C"], rel=1e-6) and g["m"] == pytest.approx(JC_CU["m"], rel=1e-6)
+    groups = [(ep, r, np.full(ep.size, TR), M.power_law(ep, r, 500 * MPa, 0.2, 0.02)) for r in (500.0, 1000.0, 3000.0)]
+    g = M.MODELS["power-law"].guess(groups, reference_rate=1.0)
+    assert g["K"] == pytest.approx(500 * MPa, rel=1e-6) and g["n"] == pytest.approx(0.2, rel=1e-6)
+    assert g["C"] == pytest.approx(0.02, rel=1e-6)

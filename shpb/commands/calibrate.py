@@ -70,7 +70,11 @@ def _read(record: Path, columns, time_column, time_unit, sample_interval):
         if missing and len(rest) != len(columns):
             raise InputError(f"the record has channels {', '.join(rest)}: name the one(s) to use with the column "
                              f"option(s)", str(record))
-        columns = [c if c is not None else rest[i] for i, c in enumerate(columns)]
+        # a channel left unnamed takes a column not named for the other one (never the same column twice)
+        given = {names[_column(c)] if isinstance(_column(c), int) and 0 <= _column(c) < len(names) else c
+                 for c in columns if c is not None}
+        free = iter([n for n in rest if n not in given])
+        columns = [c if c is not None else next(free) for c in columns]
     if time_column is None and sample_interval is None:
         raise InputError("give --time-column or --sample-interval", str(record))
     if any(c is None for c in columns):
@@ -155,7 +159,7 @@ def free_end_cmd(
                                                        "in the bar set) or far-end."),
     impact_end_free: bool = typer.Option(True, "--impact-end-free/--impact-end-held",
                                          help="Use passes reflected at the struck end too."),
-    max_echoes: int = typer.Option(6, help="Most passes used after the pulse."),
+    max_echoes: int = typer.Option(6, min=1, help="Most passes used after the pulse."),
     max_frequency: Optional[str] = typer.Option(None, help="Top of the phase-slope band, e.g. '15 kHz' "
                                                            "(default: a/wavelength = 0.025)."),
     gauge_position_uncertainty: str = typer.Option("0.5 mm", help="Standard uncertainty of the gauge position."),
@@ -307,6 +311,7 @@ def bars_together_cmd(
     from .. import calibration_files as CF
 
     bs = _load_barset(barset)
+    cal_file = _where(barset, calibration_file)
     time, dt, (vi, vt) = _read(record, [incident_column, transmitted_column], time_column, time_unit, sample_interval)
     si, st = _strain(vi, bs, "incident"), _strain(vt, bs, "transmitted")
     bi, bt = bs.incident, bs.transmitted
@@ -314,7 +319,8 @@ def bars_together_cmd(
     res = C.bars_together(si, st, dt, bs.incident_gauge.distance, bs.transmitted_gauge.distance,
                           expected_ratio=expected, expected_reflected_ratio=expected_r,
                           incident_wave_speed=bi.wave_speed, transmitted_wave_speed=bt.wave_speed,
-                          bar_radius=bi.radius, transmitted_bar_length=bt.length, max_frequency=_q(max_frequency, "frequency", "--max-frequency"))
+                          bar_radius=bi.radius, transmitted_bar_length=bt.length,
+                          max_frequency=_q(max_frequency, "frequency", "--max-frequency"))
     results = {k: res[k] for k in ("transmitted_to_incident_ratio", "expected_ratio",
                                    "transmitted_scale_relative_to_incident", "reflected_to_incident_ratio",
                                    "reflected_peak_fraction", "expected_reflected_ratio", "path_m",
@@ -323,7 +329,7 @@ def bars_together_cmd(
     apply_t = ({"transmitted": {"scale_relative_to_incident": res["transmitted_scale_relative_to_incident"]}}
                if apply else {})
     fig = CF.plot_bars_together(time, si, st, res) if figure else None
-    fig_path = _save(_where(barset, calibration_file), "bars-together", None, results, apply_t, [record, barset],
+    fig_path = _save(cal_file, "bars-together", None, results, apply_t, [record, barset],
                      {"max_frequency_Hz": res["max_frequency_Hz"], "sample_interval_s": dt,
                       "ratio": "time integrals of the pulses (zero-frequency amplitudes), raw strain (scale 1)"},
                      fig, figure)
@@ -334,7 +340,7 @@ def bars_together_cmd(
              f"  gauge to gauge: {res['path_m']:.4f} m in {res['transit_time_s'] * 1e6:.3f} us -> c = "
              f"{res['wave_speed_m_per_s']:.1f} +/- {res['wave_speed_uncertainty_m_per_s']:.1f} m/s"]
     lines += [f"  note: {n}" for n in res["notes"]]
-    _report(lines, _where(barset, calibration_file), fig_path, apply_t, barset)
+    _report(lines, cal_file, fig_path, apply_t, barset)
 
 
 @cal_app.command("striker")

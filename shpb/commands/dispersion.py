@@ -23,29 +23,23 @@ from ..units import to_si
 FILE_ROWS = 501
 
 
-_quantity = to_si  # an option string: "20 mm" or a bare SI number
-
-
 def _bar_from_options(barset, bar, diameter, poisson, wave_speed):
     """Radius [m], Poisson ratio [1], wave speed [m/s]; explicit options win over the bar set."""
     radius = nu = c0 = None
     if barset is not None:
-        try:
-            from ..setup import load_barset
-        except ImportError:
-            raise InputError("reading bar-set files is not available in this version; "
-                             "give --diameter, --poisson and --wave-speed", "--barset") from None
+        from ..setup import load_barset
+
         rig = load_barset(barset)
         if bar not in ("incident", "transmitted"):
             raise InputError(f"expected 'incident' or 'transmitted', got {bar!r}", "--bar")
         b = getattr(rig, bar)
         radius, nu, c0 = 0.5 * b.diameter, b.poisson_ratio, b.wave_speed
     if diameter is not None:
-        radius = 0.5 * _quantity(diameter, "length", "--diameter")
+        radius = 0.5 * to_si(diameter, "length", "--diameter")
     if poisson is not None:
-        nu = _quantity(poisson, "dimensionless", "--poisson")
+        nu = to_si(poisson, "dimensionless", "--poisson")
     if wave_speed is not None:
-        c0 = _quantity(wave_speed, "velocity", "--wave-speed")
+        c0 = to_si(wave_speed, "velocity", "--wave-speed")
     missing = [name for name, v in (("--diameter", radius), ("--poisson", nu), ("--wave-speed", c0)) if v is None]
     if missing:
         raise InputError(f"missing {', '.join(missing)} (or give --barset FILE.toml)", "dispersion")
@@ -114,7 +108,9 @@ def register(app: typer.Typer) -> None:
         if max_frequency is None:
             fmax = float(np.interp(1.0, curve.a_over_lambda, curve.frequency)) * c0 / radius
         else:
-            fmax = _quantity(max_frequency, "frequency", "--max-frequency")
+            fmax = to_si(max_frequency, "frequency", "--max-frequency")
+            if not fmax > 0.0:
+                raise InputError(f"expected a positive frequency, got {max_frequency!r}", "--max-frequency")
         ftop = curve.max_frequency * c0 / radius
         if fmax > ftop:
             raise InputError(f"{fmax / 1e3:g} kHz is above the tabulated range for this bar "
