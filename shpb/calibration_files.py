@@ -52,12 +52,12 @@ def read_calibration(path) -> list:
     return entries
 
 
-def _toml_clean(obj):
+def toml_clean(obj):
     """Numpy scalars/arrays to plain values; None dropped (TOML has no null)."""
     if isinstance(obj, dict):
-        return {str(k): _toml_clean(v) for k, v in obj.items() if v is not None}
+        return {str(k): toml_clean(v) for k, v in obj.items() if v is not None}
     if isinstance(obj, (list, tuple, np.ndarray)):
-        return [_toml_clean(v) for v in (obj.tolist() if isinstance(obj, np.ndarray) else obj) if v is not None]
+        return [toml_clean(v) for v in (obj.tolist() if isinstance(obj, np.ndarray) else obj) if v is not None]
     if isinstance(obj, (np.bool_, bool)):
         return bool(obj)
     if isinstance(obj, (np.integer,)):
@@ -115,7 +115,7 @@ def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, appl
                 raise ValueError(f"unknown apply key {k!r}")
     entry = {"date": date, "kind": kind, "bar": bar, "inputs": files, "figure": figure,
              "apply": apply or {}, "results": results, "settings": settings or {}}
-    return _toml_clean(entry)
+    return toml_clean(entry)
 
 
 def append_calibration(path, entry) -> None:

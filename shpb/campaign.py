@@ -47,7 +47,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, ShpbError
-from .io import _is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
+from .io import is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
 from .units import to_si
@@ -189,10 +189,10 @@ def _check_id(shot_id: str, where: str) -> None:
 def _quantity_cell(text: str, unit: Optional[str], dimension: str, where: str) -> float:
     """A cell of a quantity column -> SI float; the header unit applies to bare numbers."""
     if unit:
-        if not _is_number(text):
+        if not is_number(text):
             raise InputError(f"expected a number in {unit} (the unit is in the header), got {text!r}", where)
         return to_si(f"{text} {unit}", dimension, where)
-    if _is_number(text):  # a bare number is SI, as everywhere in shpb
+    if is_number(text):  # a bare number is SI, as everywhere in shpb
         return to_si(float(text), dimension, where)
     return to_si(text, dimension, where)
 

@@ -33,10 +33,10 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .calibration_files import _toml_clean
+from .calibration_files import toml_clean
 from .errors import AnalysisError, InputError
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
-from .io import _jsonable, atomic_write_bytes, atomic_write_csv, atomic_write_text
+from .io import jsonable, atomic_write_bytes, atomic_write_csv, atomic_write_text
 from .units import to_si
 
 __all__ = [
@@ -1421,7 +1421,7 @@ def fit_to_dict(result):
            "success": result.success, "message": result.message}
     if result.staged is not None:
         out["staged"] = _result_dict(result.staged)
-    return _jsonable(out)
+    return jsonable(out)
 
 
 def _toml_dict(result):
@@ -1439,7 +1439,7 @@ def _toml_dict(result):
         out["staged"] = {"parameters": {k: v["value"] for k, v in s["parameters"].items()},
                          "statistics": s["statistics"], "notes": s["notes"]}
     # TOML has no null: NaN/inf (e.g. R² of a flat curve, T_m = inf) become None, then are left out
-    return _toml_clean(_jsonable(out))
+    return toml_clean(jsonable(out))
 
 
 def _default_flow_strain(result):

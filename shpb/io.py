@@ -63,7 +63,7 @@ def sha256_file(path, chunk=1 << 20) -> str:
 
 
 # --------------------------------------------------------------------------- delimited text
-def _is_number(tok: str) -> bool:
+def is_number(tok: str) -> bool:
     try:
         float(tok)
         return True
@@ -90,17 +90,17 @@ def _sniff(path: Path, n_lines=400):
         # the first row from which the next rows are all numeric with one field count
         for i, ln in enumerate(lines):
             cells = _split(ln, delim)
-            if len(cells) < 1 or not all(_is_number(c) for c in cells if c != "") or not any(cells):
+            if len(cells) < 1 or not all(is_number(c) for c in cells if c != "") or not any(cells):
                 continue
             ncol = len(cells)
             if delim is not None and ncol < 2:
                 continue
             tail = [_split(x, delim) for x in lines[i : i + 3] if x.strip()]
-            if all(len(t) == ncol and all(_is_number(c) for c in t) for t in tail):
+            if all(len(t) == ncol and all(is_number(c) for c in t) for t in tail):
                 header = None
                 if i > 0:
                     prev = _split(lines[i - 1], delim)
-                    if len(prev) == ncol and not all(_is_number(c) for c in prev):
+                    if len(prev) == ncol and not all(is_number(c) for c in prev):
                         header = i - 1
                 return delim, header, i, ncol
     raise InputError("no block of numeric rows found (expected delimited numbers, optionally after header lines)",
@@ -181,7 +181,7 @@ def _bad_cell_message(path, sep, first, ncol):
             if len(cells) != ncol:
                 return f"line {lineno} has {len(cells)} fields, expected {ncol}"
             for j, c in enumerate(cells):
-                if not _is_number(c.strip().strip('"')):
+                if not is_number(c.strip().strip('"')):
                     return f"line {lineno}, column {j + 1}: {c.strip()!r} is not a number"
     return None
 
@@ -314,7 +314,7 @@ def atomic_write_text(path, text: str) -> None:
 
 def atomic_write_json(path, obj) -> None:
     """Write JSON atomically (indented, NaN written as null)."""
-    atomic_write_text(path, json.dumps(_jsonable(obj), indent=2, allow_nan=False) + "\n")
+    atomic_write_text(path, json.dumps(jsonable(obj), indent=2, allow_nan=False) + "\n")
 
 
 def atomic_write_csv(path, df, float_format="%.6g") -> None:
@@ -332,12 +332,12 @@ def atomic_savefig(fig, path, **kwargs) -> None:
     atomic_write_bytes(path, buf.getvalue())
 
 
-def _jsonable(obj):
+def jsonable(obj):
     """Make numpy scalars, paths and NaN JSON-friendly."""
     if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
+        return {str(k): jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
+        return [jsonable(v) for v in obj]
     if isinstance(obj, Path):
         return str(obj)
     if isinstance(obj, (np.bool_,)):
@@ -348,5 +348,5 @@ def _jsonable(obj):
         f = float(obj)
         return f if np.isfinite(f) else None
     if isinstance(obj, np.ndarray):
-        return _jsonable(obj.tolist())
+        return jsonable(obj.tolist())
     return obj
