@@ -318,9 +318,21 @@ def atomic_write_json(path, obj) -> None:
 
 
 def atomic_write_csv(path, df, float_format="%.6g") -> None:
-    """Write a DataFrame as CSV atomically."""
+    """Write a DataFrame as CSV atomically.
+
+    An all-numeric table (the curves of a shot) is formatted by numpy, several
+    times faster than pandas' per-value formatting; NaN is written ``nan``.
+    """
     buf = _io.StringIO()
-    df.to_csv(buf, index=False, float_format=float_format)
+    import pandas as pd
+
+    numeric = len(df.columns) > 0 and all(pd.api.types.is_numeric_dtype(t) and not pd.api.types.is_bool_dtype(t)
+                                          for t in df.dtypes)
+    if numeric:
+        buf.write(",".join(str(c) for c in df.columns) + "\n")
+        np.savetxt(buf, df.to_numpy(dtype=float), fmt=float_format, delimiter=",")
+    else:
+        df.to_csv(buf, index=False, float_format=float_format)
     atomic_write_text(path, buf.getvalue())
 
 
