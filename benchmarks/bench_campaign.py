@@ -25,6 +25,8 @@ import resource
 import sys
 import tempfile
 import time
+
+from timing import best_time  # noqa: E402  (benchmarks/timing.py)
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
@@ -50,15 +52,6 @@ def build(folder: Path, n: int) -> Path:
                     '[record]\nincident = "CH1"\ntransmitted = "CH2"\ntime = "TIME"\n'
                     '[analysis]\ndispersion = false\n[output]\nflow_strains = [0.03, 0.05]\n')
     return path
-
-
-def best_of(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def _cpu():
@@ -93,15 +86,15 @@ def main(argv=None):
         shots = [r.shot for r in camp.rows]
         out = folder / "out"
         run_campaign(camp, out, jobs=1, figures=a.figures)          # warm-up (imports, caches)
-        t_direct = best_of(lambda: [reduce_shot(s) for s in shots], a.repeats) / a.shots
+        t_direct = best_time(lambda: [reduce_shot(s) for s in shots], a.repeats) / a.shots
         results = [reduce_shot(s) for s in shots[:20]]
-        t_write = best_of(lambda: [r.write(folder / "w" / r.name, figure=False) for r in results],
+        t_write = best_time(lambda: [r.write(folder / "w" / r.name, figure=False) for r in results],
                           a.repeats) / len(results)
         load0 = os.getloadavg()[0]
         t1, cpu1 = timed_run(camp, out, 1, a.figures, a.repeats)
         t2, cpu2 = timed_run(camp, out, 2, a.figures, a.repeats)
         load1 = os.getloadavg()[0]
-        t_skip = best_of(lambda: run_campaign(camp, out, jobs=2, figures=a.figures), 1)
+        t_skip = best_time(lambda: run_campaign(camp, out, jobs=2, figures=a.figures), 1)
     print(f"campaign: {a.shots} synthetic shots, 6000-sample records, figures {'on' if a.figures else 'off'}; "
           f"CPUs seen: {os.cpu_count()}; built in {t_build:.1f} s")
     print(f"reduce_shot alone (read + reduce):       {1e3 * t_direct:7.1f} ms per shot")

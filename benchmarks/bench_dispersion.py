@@ -15,19 +15,11 @@ Prints, measured in this run:
 from __future__ import annotations
 
 import argparse
-import statistics
 import time
 
+from timing import median_time  # noqa: E402  (benchmarks/timing.py)
+
 import numpy as np
-
-
-def _median_time(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def main(argv=None):
@@ -49,7 +41,7 @@ def main(argv=None):
     t = time.perf_counter()
     solve()
     t_first = time.perf_counter() - t
-    t_solve = _median_time(solve, args.repeats)
+    t_solve = median_time(solve, args.repeats)
     print(f"import shpb.dispersion: {t_import * 1e3:.0f} ms")
     print(f"(a) 2000-point normalised curve (nu = 0.29): first solve {t_first * 1e3:.1f} ms, "
           f"median {t_solve * 1e3:.1f} ms of {args.repeats}; ratio to 50 ms target: {t_solve / 0.050:.2f} "
@@ -62,8 +54,8 @@ def main(argv=None):
     x = np.exp(-0.5 * ((t_axis - 0.2 * t_axis[-1]) / 5e-6) ** 2) + 1e-4 * rng.standard_normal(args.samples)
     D.propagate(x, dt, 1.0, radius, c0, 0.29)  # warm: table cached, FFT plans made
     np.fft.rfft(x)
-    t_prop = _median_time(lambda: D.propagate(x, dt, 1.0, radius, c0, 0.29), args.repeats)
-    t_fft = _median_time(lambda: np.fft.rfft(x), args.repeats)
+    t_prop = median_time(lambda: D.propagate(x, dt, 1.0, radius, c0, 0.29), args.repeats)
+    t_fft = median_time(lambda: np.fft.rfft(x), args.repeats)
     print(f"(b) propagate() on {args.samples} samples: {t_prop * 1e3:.1f} ms; numpy.fft.rfft: "
           f"{t_fft * 1e3:.1f} ms; ratio {t_prop / t_fft:.2f} (target <= 10)")
     return 0
