@@ -47,10 +47,12 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, ShpbError
+from .reduce import ShotResult
 from .io import is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
-from .units import to_si
+from . import schema
+from .units import DIMENSIONS, to_si
 
 #: Files of a campaign output folder.
 SUMMARY_TABLE = "campaign_summary.csv"
@@ -62,8 +64,8 @@ CAMPAIGN_FIGURES = ("stress_strain.png", "rate_sensitivity.png", "repeatability.
 SHOTS_DIR = "shots"
 #: Per-shot key file, written last: a folder whose key matches the inputs is complete.
 KEY_FILE = "inputs.sha256"
-#: Files a shot folder may hold (anything else there is left alone).
-_SHOT_FILES = ("curves.csv", "shot.png", "summary.json", KEY_FILE)
+#: Files a shot folder may hold (the result folder of :class:`ShotResult` and the key; anything else is left alone).
+_SHOT_FILES = ShotResult.FILES + (KEY_FILE,)
 
 #: Result statuses.
 OK, INVALID, FAILED = "ok", "invalid", "failed"
@@ -74,29 +76,11 @@ OK, INVALID, FAILED = "ok", "invalid", "failed"
 RATE_GROUP_TOLERANCE = 0.15
 
 # --------------------------------------------------------------------------- the campaign description
-#: Columns of the shots table with a physical dimension: column -> (shot-dict path, dimension).
-_QUANTITY_COLUMNS = {
-    "specimen_length": (("specimen", "length"), "length"),
-    "specimen_diameter": (("specimen", "diameter"), "length"),
-    "specimen_modulus": (("specimen", "modulus"), "pressure"),
-    "specimen_density": (("specimen", "density"), "density"),
-    "temperature": (("specimen", "temperature"), "temperature"),
-    "sample_interval": (("record", "sample_interval"), "time"),
-    "equilibrium_threshold": (("analysis", "equilibrium_threshold"), "dimensionless"),
-    "yield_offset": (("analysis", "yield_offset"), "dimensionless"),
-    "incident_start": (("analysis", "incident_start"), "time"),
-    "window": (("analysis", "window"), "time"),
-    "pre_trigger": (("analysis", "pre_trigger"), "time"),
-}
-_BOOL_COLUMNS = {"dispersion": ("analysis", "dispersion"), "amplitude_factors": ("analysis", "amplitude_factors")}
-_TEXT_COLUMNS = {"material": ("specimen", "material"), "stress": ("analysis", "stress")}
 _FILE_COLUMNS = ("record", "record_incident", "record_transmitted", "barset")
-_KNOWN_COLUMNS = set(_QUANTITY_COLUMNS) | set(_BOOL_COLUMNS) | set(_TEXT_COLUMNS) | set(_FILE_COLUMNS) | {"id"}
-_TRUE = {"true", "yes", "on", "1"}
-_FALSE = {"false", "no", "off", "0"}
+#: Setup columns come from the one key schema; any other column is a free tag.
+_SETUP_COLUMNS = schema.COLUMNS
+_KNOWN_COLUMNS = set(_SETUP_COLUMNS) | set(_FILE_COLUMNS) | {"id"}
 _HEADER_UNIT = re.compile(r"^(.*?)\s*\[(.*)\]\s*$")
-_SPECIMEN_DEFAULTS = {"length": "length", "diameter": "length", "modulus": "pressure", "density": "density",
-                      "temperature": "temperature"}
 
 
 @dataclass(frozen=True)
@@ -172,6 +156,12 @@ class Campaign:
         return [(r.id, r.line, r.error) for r in self.rows if r.error]
 
 
+def shot_folders(out_dir) -> list:
+    """The shot result folders of a campaign output folder (``<out>/shots/<id>/``), sorted by name."""
+    shots = Path(out_dir) / SHOTS_DIR
+    return sorted(p for p in shots.iterdir() if p.is_dir()) if shots.is_dir() else []
+
+
 def _slug(text: str) -> str:
     """A folder name from free text: runs of characters other than letters, digits, ``._-`` become ``-``."""
     s = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-.")
@@ -195,10 +185,6 @@ def _quantity_cell(text: str, unit: Optional[str], dimension: str, where: str) -
     if is_number(text):  # a bare number is SI, as everywhere in shpb
         return to_si(float(text), dimension, where)
     return to_si(text, dimension, where)
-
-
-def _set(d: dict, path: tuple, value) -> None:
-    d.setdefault(path[0], {})[path[1]] = value
 
 
 def _read_shots_table(path: Path):
@@ -246,20 +232,14 @@ def _row_dict(cols, cells, where_row: str, barsets: Callable[[str, str], BarSet]
         if name not in _KNOWN_COLUMNS:
             tags[header] = text
             continue
-        if unit and name not in _QUANTITY_COLUMNS:
+        key = _SETUP_COLUMNS[name] if name in _SETUP_COLUMNS else None
+        if unit and (key is None or key.kind in ("switch", "choice", "text")):
             raise InputError(f"column {name!r} takes no unit in its header", where)
         if text == "":
             continue  # empty cell: the campaign default
-        if name in _QUANTITY_COLUMNS:
-            path, dim = _QUANTITY_COLUMNS[name]
-            _set(data, path, _quantity_cell(text, unit, dim, where))
-        elif name in _BOOL_COLUMNS:
-            low = text.lower()
-            if low not in _TRUE | _FALSE:
-                raise InputError(f"expected true or false, got {text!r}", where)
-            _set(data, _BOOL_COLUMNS[name], low in _TRUE)
-        elif name in _TEXT_COLUMNS:
-            _set(data, _TEXT_COLUMNS[name], text)
+        if key is not None:
+            value = _quantity_cell(text, unit, key.kind, where) if key.kind in DIMENSIONS else key.parse(text, where)
+            data.setdefault(key.section, {})[key.name] = value
         elif name == "barset":
             barset_cell = (text, where)
         else:
@@ -328,15 +308,10 @@ def load_campaign(path, strict: bool = False) -> Campaign:
             raise InputError("expected a table", f"{src}: {key}")
     analysis_base = analysis_from_dict(data.get("analysis", {}), f"{src}: analysis", AnalysisOptions())
     record_defaults = dict(data.get("record", {}))
-    specimen_defaults = {}
-    for key, val in data.get("specimen", {}).items():
-        where = f"{src}: specimen.{key}"
-        if key == "material":
-            specimen_defaults[key] = str(val)
-        elif key in _SPECIMEN_DEFAULTS:
-            specimen_defaults[key] = to_si(val, _SPECIMEN_DEFAULTS[key], where)
-        else:
-            raise InputError(f"unknown key (expected one of: material, {', '.join(_SPECIMEN_DEFAULTS)})", where)
+    specimen_table = data.get("specimen", {})
+    schema.check_names(specimen_table, schema.SPECIMEN_KEYS, f"{src}: specimen")
+    specimen_defaults = {k.name: k.parse(specimen_table[k.name], f"{src}: specimen.{k.name}")
+                         for k in schema.SPECIMEN_KEYS if k.name in specimen_table}
     flow_strains, plot_strain, tol = _output_options(data.get("output", {}), f"{src}: output")
 
     # bar sets: the default once, each override once
@@ -373,6 +348,9 @@ def load_campaign(path, strict: bool = False) -> Campaign:
             and "file" not in record_defaults:
         raise InputError("missing column 'record' (or 'record_incident' and 'record_transmitted')", where_header)
     declared_tags = data.get("tags")
+    for n, _, h in cols:
+        if n in schema.RENAMED:  # an old key name must not silently become a free tag
+            raise InputError(f"column {h!r}: the key {n!r} is now called {schema.RENAMED[n]!r}", where_header)
     tag_columns = tuple(h for n, _, h in cols if n not in _KNOWN_COLUMNS)
     if declared_tags is not None:
         if not isinstance(declared_tags, list) or not all(isinstance(t, str) for t in declared_tags):
@@ -428,9 +406,9 @@ def load_campaign(path, strict: bool = False) -> Campaign:
 def _name_column(message: str, where_row: str, cols) -> str:
     """Say which table column a key in a shot-file message came from (``specimen.diameter`` -> the column)."""
     for name, _, header in cols:
-        path = (_QUANTITY_COLUMNS.get(name, (None,))[0] or _BOOL_COLUMNS.get(name) or _TEXT_COLUMNS.get(name))
-        if path:
-            message = message.replace(f"{where_row}: {path[0]}.{path[1]}:", f"{where_row}, column {header!r}:")
+        key = _SETUP_COLUMNS.get(name)
+        if key is not None:
+            message = message.replace(f"{where_row}: {key.section}.{key.name}:", f"{where_row}, column {header!r}:")
     return message
 
 
@@ -690,7 +668,7 @@ def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple) -
 
 def _reduce_task(shot, figures, base_dir, flow_strains):
     from .io import read_record
-    from .reduce import CURVES_FILE, SUMMARY_FILE, reduce_shot
+    from .reduce import reduce_shot
 
     try:
         rec = read_record(shot.record)
@@ -706,8 +684,8 @@ def _reduce_task(shot, figures, base_dir, flow_strains):
             result.write(tmp, figure=figures)  # the figure sheet uses no pyplot: thread-safe
             files = {p.name: p.read_bytes() for p in Path(tmp).iterdir() if p.name in _SHOT_FILES}
         # the table row is made from the written bytes, exactly as a rerun reads them back from disk
-        summary = json.loads(files[SUMMARY_FILE])
-        curves = pd.read_csv(_io.BytesIO(files[CURVES_FILE]), usecols=list(_ROW_COLUMNS))
+        summary = json.loads(files[ShotResult.SUMMARY_FILE])
+        curves = pd.read_csv(_io.BytesIO(files[ShotResult.CURVES_FILE]), usecols=list(_ROW_COLUMNS))
         row = shot_row(summary, curves, flow_strains)
         curve = _overlay_curve(curves)
     except Exception as exc:  # noqa: BLE001
@@ -865,7 +843,7 @@ def _remove_temporaries(out: Path) -> None:
 
 def _stored_key(folder: Path, figures: bool) -> Optional[str]:
     """The key of a complete shot folder, or None when the folder is not complete."""
-    need = ["curves.csv", "summary.json", KEY_FILE] + (["shot.png"] if figures else [])
+    need = [ShotResult.CURVES_FILE, ShotResult.SUMMARY_FILE, KEY_FILE] + ([ShotResult.FIGURE_FILE] if figures else [])
     if not all((folder / f).is_file() for f in need):
         return None
     return (folder / KEY_FILE).read_text().strip() or None
@@ -888,7 +866,7 @@ def _store(folder: Path, res: dict) -> None:
     for name in _SHOT_FILES:
         if name not in res["files"] and name != KEY_FILE and (folder / name).exists():
             (folder / name).unlink()  # e.g. an old figure that no longer matches
-    for name in ("curves.csv", "shot.png", "summary.json"):  # summary.json last, as ShotResult.write
+    for name in ShotResult.FILES:  # in ShotResult's order: the summary last
         if name in res["files"]:
             atomic_write_bytes(folder / name, res["files"][name])
     atomic_write_text(key, res["key"] + "\n")
@@ -1054,9 +1032,9 @@ def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignRepor
         stored = None if force else _stored_key(folder, figures)
         if stored is not None and stored == _current_key(row.shot, base_dir):
             try:
-                summary = json.loads((folder / "summary.json").read_text())
-                cdf = pd.read_csv(folder / "curves.csv", usecols=list(_ROW_COLUMNS))
-            except (OSError, ValueError):
+                summary = ShotResult.read_summary(folder)
+                cdf = pd.read_csv(folder / ShotResult.CURVES_FILE, usecols=list(_ROW_COLUMNS))
+            except (OSError, ValueError):  # InputError is a ValueError
                 todo.append(row)  # unreadable despite the key: redo it
                 continue
             rows[row.id] = shot_row(summary, cdf, campaign.flow_strains)

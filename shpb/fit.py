@@ -36,6 +36,7 @@ from . import __version__
 from .calibration_files import toml_clean
 from .errors import AnalysisError, InputError
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
+from .reduce import ShotResult
 from .io import jsonable, atomic_write_bytes, atomic_write_csv, atomic_write_text
 from .units import to_si
 
@@ -436,25 +437,12 @@ def _read_csv(path, **kw):
         raise InputError(f"cannot read as CSV ({str(exc).splitlines()[0]})", str(path)) from None
 
 
-def _read_summary(js_path: Path) -> dict:
-    """A shot's ``summary.json`` as a dict; InputError naming the file if it is not a JSON object."""
-    try:
-        summary = json.loads(js_path.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as exc:
-        raise InputError(f"not valid JSON ({exc.msg}, line {exc.lineno})", str(js_path)) from None
-    except UnicodeDecodeError as exc:
-        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", str(js_path)) from None
-    if not isinstance(summary, dict):
-        raise InputError("expected a JSON object (the shot summary)", str(js_path))
-    return summary
-
-
 def _read_shot(folder: Path, modulus, room_temperature):
     """One shot folder -> (Curve or None, note or None, stress level or None)."""
-    csv_path, js_path = folder / "curves.csv", folder / "summary.json"
+    csv_path, js_path = folder / ShotResult.CURVES_FILE, folder / ShotResult.SUMMARY_FILE
     if not js_path.is_file():
-        raise InputError("summary.json not found next to curves.csv", str(folder))
-    summary = _read_summary(js_path)
+        raise InputError(f"{ShotResult.SUMMARY_FILE} not found next to {ShotResult.CURVES_FILE}", str(folder))
+    summary = ShotResult.read_summary(folder)
     df = _read_csv(csv_path)
     src = str(csv_path)
     for col in ("true_strain", "valid"):
@@ -612,16 +600,19 @@ def read_quasi_static(path, *, strain_rate=None, temperature=None, modulus=None,
 
 def _shot_folders(path: Path):
     """Expand one input path into shot folders."""
-    if path.is_file() and path.name == "curves.csv":
+    from .campaign import SHOTS_DIR, shot_folders
+
+    if path.is_file() and path.name == ShotResult.CURVES_FILE:
         return [path.parent]
     if not path.exists():
         raise InputError("not found", str(path))
-    if (path / "curves.csv").is_file():
+    if (path / ShotResult.CURVES_FILE).is_file():
         return [path]
-    if (path / "shots").is_dir():
-        return sorted(p for p in (path / "shots").iterdir() if p.is_dir())
+    if (path / SHOTS_DIR).is_dir():
+        return shot_folders(path)
     raise InputError(
-        "expected a shot result folder (curves.csv + summary.json) or a campaign output folder (shots/<id>/)",
+        f"expected a shot result folder ({ShotResult.CURVES_FILE} + {ShotResult.SUMMARY_FILE}) or a campaign output "
+        f"folder ({SHOTS_DIR}/<id>/)",
         str(path),
     )
 
@@ -712,12 +703,12 @@ def load_curves(
     curves, notes, seen, levels = [], [], {}, []
     for p in paths:
         for folder in _shot_folders(Path(p)):
-            if not (folder / "curves.csv").is_file():
-                notes.append(f"{folder.name}: no curves.csv in {folder}; skipped")
+            if not (folder / ShotResult.CURVES_FILE).is_file():
+                notes.append(f"{folder.name}: no {ShotResult.CURVES_FILE} in {folder}; skipped")
                 continue
-            js = folder / "summary.json"
+            js = folder / ShotResult.SUMMARY_FILE
             if js.is_file() and not include_invalid_shots:
-                if _read_summary(js).get("valid", True) is False:
+                if ShotResult.read_summary(folder).get("valid", True) is False:
                     notes.append(f"{folder.name}: summary says the shot is not valid; skipped")
                     continue
             curve, note, level = _read_shot(folder, mod, room)

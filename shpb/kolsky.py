@@ -20,6 +20,8 @@ References
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 
@@ -146,3 +148,97 @@ def equilibrium_ratio(force_front, force_back, floor=0.0):
         r = (f1 - f2) / mean
     r[np.abs(mean) <= floor] = np.nan
     return r
+
+
+# --------------------------------------------------------------------------- stage 4: the Kolsky curves
+@dataclass(frozen=True)
+class KolskyCurves:
+    """Stage 4 of a reduction: the specimen's response from the three face waves (SI arrays).
+
+    Attributes
+    ----------
+    time : ndarray
+        Time at the faces [s].
+    force_front, force_back : ndarray
+        Face forces F1, F2 [N].
+    velocity_front, velocity_back : ndarray
+        Face velocities v1, v2 [m/s].
+    strain_rate, strain_rate_reflected : ndarray
+        Three-wave and reflected-wave engineering strain rates [1/s].
+    strain, strain_from_reflected : ndarray
+        Their time integrals [1].
+    stress_by_form : dict
+        ``"1-wave"``, ``"2-wave"``, ``"3-wave"`` -> engineering stress [Pa].
+    stress_form : str
+        The form reported as ``stress``.
+    true_strain : ndarray
+        [1].
+    true_stress : ndarray
+        Of the reported form [Pa].
+    """
+
+    time: np.ndarray
+    force_front: np.ndarray
+    force_back: np.ndarray
+    velocity_front: np.ndarray
+    velocity_back: np.ndarray
+    strain_rate: np.ndarray
+    strain_rate_reflected: np.ndarray
+    strain: np.ndarray
+    strain_from_reflected: np.ndarray
+    stress_by_form: dict
+    stress_form: str
+    true_strain: np.ndarray
+    true_stress: np.ndarray
+
+    @property
+    def stress(self) -> np.ndarray:
+        """The reported engineering stress [Pa]."""
+        return self.stress_by_form[self.stress_form]
+
+    @property
+    def provenance(self) -> dict:
+        return {"step": "kolsky", "parameters": {"reported_stress": self.stress_form, "strain_rate": "three-wave"}}
+
+
+def kolsky_curves(waves, barset, specimen, stress_form="1-wave") -> KolskyCurves:
+    """Stage 4: face forces and velocities, strain rates, strains and stresses of a shot.
+
+    Parameters
+    ----------
+    waves : shpb.pulses.FaceWaves
+        Incident, reflected and transmitted bar strains at the faces.
+    barset : shpb.setup.BarSet
+        Bar moduli, areas and wave speeds.
+    specimen : shpb.setup.Specimen
+        Initial length and area.
+    stress_form : str
+        ``1-wave``, ``2-wave`` or ``3-wave``: the stress reported.
+
+    Returns
+    -------
+    KolskyCurves
+
+    Raises
+    ------
+    AnalysisError
+        The engineering strain reaches 1 (a wrong specimen length or bar setup).
+    """
+    bi, bt = barset.incident, barset.transmitted
+    ei, er, et = waves.incident, waves.reflected, waves.transmitted
+    f1, f2 = face_forces(ei, er, et, bi.modulus, bi.area, bt.modulus, bt.area)
+    v1, v2 = face_velocities(ei, er, et, bi.wave_speed, bt.wave_speed)
+    rate = strain_rate(v1, v2, specimen.length)
+    rate_r = strain_rate_reflected(er, bi.wave_speed, specimen.length)
+    strain = integrate(rate, waves.dt)
+    if np.any(strain >= 1.0):
+        from .errors import AnalysisError
+
+        raise AnalysisError(f"the engineering strain reaches {np.max(strain):.2f} (>= 1): check the specimen "
+                            f"length and the bar setup")
+    sig = stresses(f1, f2, specimen.area)
+    true_strain, true_stress = true_stress_strain(strain, sig[stress_form])
+    return KolskyCurves(time=waves.time, force_front=f1, force_back=f2, velocity_front=v1, velocity_back=v2,
+                        strain_rate=rate, strain_rate_reflected=rate_r, strain=strain,
+                        strain_from_reflected=integrate(rate_r, waves.dt), stress_by_form=sig,
+                        stress_form=stress_form, true_strain=true_strain, true_stress=true_stress)

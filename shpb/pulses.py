@@ -6,7 +6,8 @@ sign convention (compression positive) unless said otherwise.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -252,6 +253,133 @@ def ramp_time(duration, dt):
     return max(2 * dt, 0.02 * duration)
 
 
+# --------------------------------------------------------------------------- stage 1: conditioned gauge strains
+#: Fewest pre-trigger samples a record must have before the incident foot.
+MIN_BASELINE_SAMPLES = 16
+
+
+@dataclass(frozen=True)
+class GaugeStrains:
+    """Stage 1 of a reduction: both channels as bar strains at their gauges.
+
+    Attributes
+    ----------
+    time : ndarray
+        Record time [s] (uniform).
+    dt : float
+        Sample interval [s].
+    incident, transmitted : ndarray
+        Bar strain at the incident and transmitted gauges [1], compression
+        positive, baseline removed, channel scale applied.
+    volts_incident, volts_transmitted : ndarray
+        The recorded voltages [V], as read.
+    baseline_incident, baseline_transmitted : float
+        Baseline levels removed from the volts [V].
+    baseline_samples : int
+        Leading samples the baselines and noise come from.
+    noise_incident, noise_transmitted : float
+        Standard deviation of each bar strain over the baseline [1].
+    foot : float
+        Fractional sample index of the incident wave's foot at its gauge.
+    foot_source : str
+        ``found`` or ``given`` (the analysis option ``incident_start``).
+    """
+
+    time: np.ndarray
+    dt: float
+    incident: np.ndarray
+    transmitted: np.ndarray
+    volts_incident: np.ndarray
+    volts_transmitted: np.ndarray
+    baseline_incident: float
+    baseline_transmitted: float
+    baseline_samples: int
+    noise_incident: float
+    noise_transmitted: float
+    foot: float
+    foot_source: str
+
+    @property
+    def provenance(self) -> dict:
+        return {"step": "bridge", "parameters": {"baseline_samples": self.baseline_samples,
+                                                 "incident_foot": self.foot_source}}
+
+
+def condition_record(record, barset, analysis) -> GaugeStrains:
+    """Stage 1: find the incident foot and the baselines, and convert both channels to bar strain.
+
+    The baseline level is the mean of the quiet record start: the
+    ``pre_trigger`` span when given, otherwise 90 % of the samples before the
+    incident foot (found on a record-wide robust level and noise,
+    :func:`robust_noise`, then :func:`find_foot`). Volts become strain through
+    the exact bridge equations of :func:`shpb.bridge.bar_strain`.
+
+    Parameters
+    ----------
+    record : shpb.io.Record
+    barset : shpb.setup.BarSet
+    analysis : shpb.setup.AnalysisOptions
+        ``pre_trigger`` and ``incident_start`` are used.
+
+    Returns
+    -------
+    GaugeStrains
+
+    Raises
+    ------
+    InputError
+        ``incident_start`` outside the record.
+    AnalysisError
+        No incident pulse, or too few samples before it.
+    """
+    from .errors import AnalysisError, InputError
+
+    dt, n, t0 = record.dt, record.time.size, float(record.time[0])
+    raw_i, raw_t = record.incident, record.transmitted
+    polarity = barset.incident_gauge.polarity
+    if analysis.pre_trigger:
+        n_pre = min(int(analysis.pre_trigger / dt), n // 2)
+        level = noise_floor(raw_i, n_pre)[0]
+    else:  # first pass: level and noise from the whole record
+        n_pre = None
+        level = robust_noise(raw_i)[0]
+    if analysis.incident_start is not None:
+        foot, source = (analysis.incident_start - t0) / dt, "given"
+        if not 0 <= foot < n:
+            raise InputError(f"{analysis.incident_start * 1e6:g} us is outside the record "
+                             f"({t0 * 1e6:g} to {record.time[-1] * 1e6:g} us)", "analysis.incident_start")
+    else:
+        # the bridge is monotonic: the foot can be found on the sign-corrected volts
+        foot, source = find_foot(polarity * (raw_i - level), n_pre), "found"
+        if foot is None:
+            raise AnalysisError("no incident pulse found on the incident channel (nothing rises above 8x its "
+                                "noise)")
+    if foot < MIN_BASELINE_SAMPLES:
+        raise AnalysisError(f"the incident pulse starts {foot:.0f} samples into the record: no "
+                            f"pre-trigger baseline (record at least {MIN_BASELINE_SAMPLES} samples before the pulse)")
+    # second pass: the baseline is the whole quiet part before the foot, less a margin
+    n_base = max(MIN_BASELINE_SAMPLES, int(0.9 * foot)) if n_pre is None else n_pre
+    base_i, base_t = noise_floor(raw_i, n_base)[0], noise_floor(raw_t, n_base)[0]
+    si = _bar_strain(raw_i - base_i, barset.incident_gauge, barset.incident)
+    st = _bar_strain(raw_t - base_t, barset.transmitted_gauge, barset.transmitted)
+    return GaugeStrains(time=record.time, dt=dt, incident=si, transmitted=st, volts_incident=raw_i,
+                        volts_transmitted=raw_t, baseline_incident=base_i, baseline_transmitted=base_t,
+                        baseline_samples=n_base, noise_incident=noise_floor(si, n_base)[1],
+                        noise_transmitted=noise_floor(st, n_base)[1], foot=float(foot), foot_source=source)
+
+
+def _bar_strain(volts, gauge, bar):
+    from .bridge import bar_strain
+
+    return bar_strain(volts, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor, excitation=gauge.excitation,
+                      gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson=bar.poisson_ratio)
+
+
+# --------------------------------------------------------------------------- stage 2: the window plan
+#: The three waves: (name, bar, sign of the travel from the gauge to the face).
+WAVES = (("incident", "incident", +1), ("reflected", "incident", -1), ("transmitted", "transmitted", -1))
+
+
 @dataclass(frozen=True)
 class WindowPlan:
     """The analysis window of a shot, on the record's sample grid.
@@ -261,28 +389,74 @@ class WindowPlan:
     t_foot, t_face0 : float
         Record time of the incident foot at its gauge and at the specimen's
         front face [s].
-    pre, window : float
-        Lead before t_face0 and length after it [s].
+    lead, length : float
+        Lead before ``t_face0`` and window length after it [s].
     source : str
         How the window length was chosen.
-    k0, k1 : int
-        Half-open sample range of the window at the faces.
+    span : (int, int)
+        Half-open sample range of the window at the faces (record samples).
     ramp : int
-        Taper length [samples].
+        Raised-cosine taper at each end of a wave's window [samples].
+    duration : float
+        Incident pulse duration [s].
+    duration_source : str
+        How the duration was found.
+    gauge_spans : dict
+        Wave name -> (start, stop): fractional record-sample range of the
+        wave's window at its gauge (the face window moved back by the travel
+        time and any hand adjustment).
+    distances : dict
+        Wave name -> signed distance the wave is carried from its gauge to
+        its face [m] (positive along its travel).
+    travel_times : dict
+        Wave name -> signed travel time from the gauge to the face [s].
+    adjusts : dict
+        Wave name -> hand alignment adjustment [s].
     """
 
     t_foot: float
     t_face0: float
-    pre: float
-    window: float
+    lead: float
+    length: float
     source: str
-    k0: int
-    k1: int
+    span: tuple
     ramp: int
+    duration: float = float("nan")
+    duration_source: str = ""
+    gauge_spans: dict = field(default_factory=dict)
+    distances: dict = field(default_factory=dict)
+    travel_times: dict = field(default_factory=dict)
+    adjusts: dict = field(default_factory=dict)
+
+    @property
+    def k0(self) -> int:
+        """First sample of the window."""
+        return self.span[0]
+
+    @property
+    def k1(self) -> int:
+        """One past the last sample of the window."""
+        return self.span[1]
+
+    def gauge_window_times(self, t_start, dt) -> dict:
+        """Wave name -> (start, stop) record times of its window at its gauge [s]."""
+        return {k: (t_start + a * dt, t_start + b * dt) for k, (a, b) in self.gauge_spans.items()}
+
+    def last_sample(self, n_samples) -> int:
+        """One past the last record sample any wave's window (with its margins) reaches."""
+        reach = max(b for _, b in self.gauge_spans.values()) if self.gauge_spans else self.k1
+        return min(int(n_samples), int(math.ceil(reach)) + int(0.1 * (self.k1 - self.k0)) + 2 * self.ramp + 16)
+
+    def results(self) -> dict:
+        """Scalars of the plan for the summary (units in the keys)."""
+        return {"incident_foot_time_us": self.t_foot * 1e6, "pulse_duration_us": self.duration * 1e6,
+                "pulse_duration_source": self.duration_source, "window_length_us": self.length * 1e6,
+                "window_source": self.source}
 
 
-def plan_window(foot, duration, dt, t_start, t_end, *, incident_distance, incident_speed, incident_length,
-                transmitted_distance, transmitted_speed, transmitted_length, window=None):
+def plan_window(foot, duration, dt, t_start, t_end, *, incident_gauge_distance, incident_wave_speed,
+                incident_length, transmitted_gauge_distance, transmitted_wave_speed, transmitted_length,
+                window_length=None):
     """Choose the analysis window of a shot.
 
     The window starts 10 % of the pulse before the incident foot reaches the
@@ -304,32 +478,188 @@ def plan_window(foot, duration, dt, t_start, t_end, *, incident_distance, incide
         Sample interval [s].
     t_start, t_end : float
         Record times of the first and last samples [s].
-    incident_distance, transmitted_distance : float
+    incident_gauge_distance, transmitted_gauge_distance : float
         Gauge distances from the specimen faces [m].
-    incident_speed, transmitted_speed : float
+    incident_wave_speed, transmitted_wave_speed : float
         Bar wave speeds [m/s].
     incident_length, transmitted_length : float
         Bar lengths [m].
-    window : float, optional
+    window_length : float, optional
         A given window length [s] (used as is).
 
     Returns
     -------
     WindowPlan
+        Without the per-wave gauge spans (see :func:`plan_analysis`).
     """
-    di, ci, dtr, ct = incident_distance, incident_speed, transmitted_distance, transmitted_speed
+    di, ci = incident_gauge_distance, incident_wave_speed
+    dtr, ct = transmitted_gauge_distance, transmitted_wave_speed
     w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct)
-    pre = min(0.1 * duration, 0.1 * w_free)
+    lead = min(0.1 * duration, 0.1 * w_free)
     t_foot = t_start + foot * dt
     t_face0 = t_foot + di / ci
-    if window:
+    if window_length:
         source = "given"
     else:
-        window, source = max(min(3 * duration, 0.97 * w_free - pre), duration), "automatic"
+        window_length, source = max(min(3 * duration, 0.97 * w_free - lead), duration), "automatic"
         w_rec = t_end - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
-        if w_rec < window:
-            window, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
-    k0 = int(np.ceil((t_face0 - pre - t_start) / dt))
-    k1 = int(np.floor((t_face0 + window - t_start) / dt)) + 1
+        if w_rec < window_length:
+            window_length, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
+    k0 = int(np.ceil((t_face0 - lead - t_start) / dt))
+    k1 = int(np.floor((t_face0 + window_length - t_start) / dt)) + 1
     ramp = max(2, int(ramp_time(duration, dt) / dt))
-    return WindowPlan(t_foot, t_face0, pre, window, source, k0, k1, ramp)
+    return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration)
+
+
+def plan_analysis(strains: GaugeStrains, barset, analysis) -> WindowPlan:
+    """Stage 2: the incident pulse's duration, the analysis window and each wave's window at its gauge.
+
+    The duration is measured on the incident channel (down to 5 % of its
+    peak, :func:`pulse_end`), or taken as the striker's 2 L / c0 when the
+    pulse does not end inside the record.
+
+    Returns
+    -------
+    WindowPlan
+
+    Raises
+    ------
+    AnalysisError
+        The pulse does not end inside the record and there is no striker.
+    """
+    from .errors import AnalysisError
+
+    dt, foot = strains.dt, strains.foot
+    volts = barset.incident_gauge.polarity * (strains.volts_incident - strains.baseline_incident)
+    end = pulse_end(volts, foot, fraction=0.05)  # on the volts: the bridge is monotonic
+    if end is not None:
+        duration, source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
+    elif barset.striker is not None:
+        duration, source = barset.striker.pulse_duration, "striker 2L/c0"
+    else:
+        raise AnalysisError("the incident pulse does not end before the record does")
+    bi, bt = barset.incident, barset.transmitted
+    plan = plan_window(foot, duration, dt, float(strains.time[0]), float(strains.time[-1]),
+                       incident_gauge_distance=barset.incident_gauge.distance, incident_wave_speed=bi.wave_speed,
+                       incident_length=bi.length, transmitted_gauge_distance=barset.transmitted_gauge.distance,
+                       transmitted_wave_speed=bt.wave_speed, transmitted_length=bt.length,
+                       window_length=analysis.window_length)
+    adjusts = {"incident": 0.0, "reflected": analysis.reflected_adjust or 0.0,
+               "transmitted": analysis.transmitted_adjust or 0.0}
+    distances, travel, spans = {}, {}, {}
+    for name, bar_name, sign in WAVES:
+        gauge = barset.incident_gauge if bar_name == "incident" else barset.transmitted_gauge
+        distances[name] = sign * gauge.distance
+        travel[name] = distances[name] / getattr(barset, bar_name).wave_speed
+        # a hand adjustment of the alignment: the wave is taken `adjust` seconds later at its gauge
+        shift = travel[name] / dt - adjusts[name] / dt
+        spans[name] = (plan.k0 - shift, plan.k1 - shift)
+    return replace(plan, duration_source=source, gauge_spans=spans, distances=distances, travel_times=travel,
+                   adjusts=adjusts)
+
+
+# --------------------------------------------------------------------------- stage 3: waves at the faces
+@dataclass(frozen=True)
+class FaceWaves:
+    """Stage 3: the incident, reflected and transmitted bar strains at the specimen faces.
+
+    Attributes
+    ----------
+    time : ndarray
+        Time at the faces [s]; 0 where the incident foot reaches the front face.
+    dt : float
+        Sample interval [s].
+    incident, reflected, transmitted : ndarray
+        Bar strains at the faces [1], compression positive (the reflected wave
+        of a compression test is negative), as used by the analysis: with the
+        dispersion correction when it is on.
+    plain : dict
+        Wave name -> the same wave moved by a pure delay (no dispersion
+        correction), for comparison.
+    dispersion : dict
+        What the dispersion correction did (``applied`` and, when applied, its
+        parameters and the largest change it made to each wave).
+    """
+
+    time: np.ndarray
+    dt: float
+    incident: np.ndarray
+    reflected: np.ndarray
+    transmitted: np.ndarray
+    plain: dict
+    dispersion: dict
+
+    def wave(self, name) -> np.ndarray:
+        """One wave by name (``incident``, ``reflected``, ``transmitted``)."""
+        return getattr(self, name)
+
+    @property
+    def provenance(self) -> dict:
+        return {"step": "shift", "parameters": {"dispersion": self.dispersion}}
+
+    def results(self) -> dict:
+        return {"peak_incident_strain": float(np.max(self.incident)), "sample_interval_us": self.dt * 1e6}
+
+
+def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset, analysis) -> FaceWaves:
+    """Stage 3: cut each wave out at its gauge and carry it to its specimen face.
+
+    Each wave is moved over its gauge distance with the bar's
+    Pochhammer-Chree dispersion (:func:`shpb.dispersion.propagate`) when the
+    analysis option ``dispersion`` is on, else by a pure sub-sample delay;
+    a hand adjustment moves it further by a pure delay.
+
+    Returns
+    -------
+    FaceWaves
+    """
+    dt, (k0, k1) = strains.dt, plan.span
+    use_disp = bool(analysis.dispersion)
+    faces, plains = {}, {}
+    for name, bar_name, _ in WAVES:
+        bar = getattr(barset, bar_name)
+        chan = strains.incident if bar_name == "incident" else strains.transmitted
+        g0, g1 = plan.gauge_spans[name]
+        mover = None
+        if use_disp:
+            mover = _dispersion_mover(dt, plan.distances[name], bar, analysis.amplitude_factors)
+        face, plain = carry_wave(chan, dt, g0, g1, plan.travel_times[name], plan.ramp, mover)
+        adjust = plan.adjusts[name]
+        if adjust:
+            face, plain = delay(face, dt, -adjust), delay(plain, dt, -adjust)
+        if k1 > face.size:  # the window runs past the record's end: zeros there (flagged by the verdict)
+            face, plain = np.pad(face, (0, k1 - face.size)), np.pad(plain, (0, k1 - plain.size))
+        faces[name], plains[name] = face[k0:k1], plain[k0:k1]
+    time = float(strains.time[0]) + np.arange(k0, k1) * dt - plan.t_face0
+    return FaceWaves(time=time, dt=dt, **faces, plain=plains,
+                     dispersion=_dispersion_record(use_disp, barset, analysis, dt, plan, faces, plains))
+
+
+def _dispersion_mover(dt, distance, bar, amplitude_factors):
+    from .dispersion import propagate
+
+    def mover(segment):
+        return propagate(segment, dt, distance, bar.radius, bar.wave_speed, bar.poisson_ratio,
+                         amplitude_factors=amplitude_factors)
+
+    return mover
+
+
+def _dispersion_record(applied, barset, analysis, dt, plan, faces, plains) -> dict:
+    """The provenance of the dispersion correction (what, with which bar data, how much it changed)."""
+    info = {"applied": applied}
+    if not applied:
+        return info
+    from .dispersion import dispersion_info
+
+    bi, bt = barset.incident, barset.transmitted
+    info.update(dispersion_info(bi.radius, bi.wave_speed, bi.poisson_ratio, dt=dt,
+                                amplitude_factors=analysis.amplitude_factors))
+    info["distances_m"] = dict(plan.distances)
+    if (bt.radius, bt.wave_speed, bt.poisson_ratio) != (bi.radius, bi.wave_speed, bi.poisson_ratio):
+        info["transmitted_bar"] = dispersion_info(bt.radius, bt.wave_speed, bt.poisson_ratio, dt=dt,
+                                                  amplitude_factors=analysis.amplitude_factors)
+    peak = max(float(np.max(np.abs(faces["incident"]))), 1e-30)
+    for k in faces:
+        info[f"max_change_{k}_percent_of_incident_peak"] = float(100 * np.max(np.abs(faces[k] - plains[k])) / peak)
+    return info

@@ -10,13 +10,12 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure  # no pyplot: no global state, thread-safe, no screen needed
 
-from .io import atomic_savefig
 
 _SEVERITY_MARK = {"error": "ERROR", "warning": "warning", "info": "note"}
 
 
-def shot_sheet(result, path):
-    """Write the figure sheet of one shot.
+def plot_shot(result):
+    """The figure sheet of one shot (a Figure; nothing written).
 
     Panels: raw bar strains at the gauges with the pulse windows; the waves
     moved to the specimen faces; face forces with the equilibrium factor
@@ -94,4 +93,4 @@ def shot_sheet(result, path):
         lines += textwrap.wrap(f"{_SEVERITY_MARK.get(f.severity, f.severity)}: {f.message}", 70)
     ax.text(0, 1, "\n".join(lines), va="top", family="monospace", fontsize=8)
     fig.suptitle(f"shpb — shot {result.name} (curves for design need independent validation)", fontsize=10)
-    atomic_savefig(fig, path, dpi=110)
+    return fig

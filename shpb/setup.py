@@ -8,7 +8,7 @@ names the file, the key and what was expected.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any, Optional, Union
 
@@ -22,8 +22,8 @@ except ModuleNotFoundError:  # pragma: no cover
 
 #: Bridge arrangements understood by :mod:`shpb.bridge`.
 from .bridge import BRIDGES  # noqa: E402
-#: Stress definitions that may be reported as ``stress_MPa``.
-STRESS_CHOICES = ("1-wave", "2-wave", "3-wave")
+from . import schema  # noqa: E402
+from .schema import STRESS_CHOICES  # noqa: E402,F401  (re-exported)
 
 
 # --------------------------------------------------------------------------- dataclasses
@@ -210,6 +210,19 @@ class Specimen:
         """Initial cross-section area [m^2]."""
         return math.pi * self.diameter**2 / 4.0
 
+    @property
+    def wave_speed(self) -> Optional[float]:
+        """Elastic bar wave speed sqrt(E/rho) of the specimen [m/s]; None without modulus and density."""
+        if self.modulus and self.density:
+            return math.sqrt(self.modulus / self.density)
+        return None
+
+    @property
+    def transit_time(self) -> Optional[float]:
+        """One elastic wave transit of the specimen, L / sqrt(E/rho) [s]; None without modulus and density."""
+        c = self.wave_speed
+        return self.length / c if c else None
+
 
 @dataclass(frozen=True)
 class Channel:
@@ -244,7 +257,7 @@ class RecordSpec:
 
 @dataclass(frozen=True)
 class AnalysisOptions:
-    """Analysis choices for a shot (all have defaults).
+    """Analysis choices for a shot (all have defaults; keys and meanings in :data:`shpb.schema.ANALYSIS_KEYS`).
 
     Attributes
     ----------
@@ -261,9 +274,9 @@ class AnalysisOptions:
         Strain offset of the yield line [1] (default 0.002).
     incident_start : float or None
         Record time of the incident foot [s]; found automatically if None.
-    window : float or None
-        Length of every pulse window [s]; from the striker or the incident
-        pulse if None.
+    window_length : float or None
+        Length of the analysis window after the incident foot reaches the
+        front face [s]; chosen from the bars, the pulse and the record if None.
     pre_trigger : float or None
         Length of the quiet record start used as baseline [s]; default: the
         part before the incident foot, less a margin.
@@ -278,7 +291,7 @@ class AnalysisOptions:
     equilibrium_threshold: float = 0.05
     yield_offset: float = 0.002
     incident_start: Optional[float] = None
-    window: Optional[float] = None
+    window_length: Optional[float] = None
     pre_trigger: Optional[float] = None
     reflected_adjust: float = 0.0
     transmitted_adjust: float = 0.0
@@ -286,12 +299,17 @@ class AnalysisOptions:
 
 @dataclass(frozen=True)
 class Shot:
-    """Everything needed to reduce one shot."""
+    """Everything needed to reduce one shot.
+
+    ``record`` says where the record files are; it may be None for a shot
+    whose record is passed to :func:`shpb.reduce.reduce_shot` in memory
+    (:meth:`shpb.io.Record.from_arrays`).
+    """
 
     name: str
     barset: BarSet
     specimen: Specimen
-    record: RecordSpec
+    record: Optional[RecordSpec] = None
     analysis: AnalysisOptions = AnalysisOptions()
     source: Optional[str] = None
 
@@ -564,32 +582,10 @@ def load_barset(path, apply_calibration: bool = True) -> BarSet:
     return barset_from_dict(read_toml(path), str(path), path.parent, apply_calibration)
 
 
-_ANALYSIS_KEYS = {
-    "dispersion", "amplitude_factors", "stress", "equilibrium_threshold", "yield_offset",
-    "incident_start", "window", "pre_trigger", "reflected_adjust", "transmitted_adjust",
-}
-
-
 def analysis_from_dict(data: dict, where: str, base: AnalysisOptions = AnalysisOptions()) -> AnalysisOptions:
-    """Analysis options from a mapping, on top of ``base``."""
-    t = _Table(data, where)
-    t.check_keys(_ANALYSIS_KEYS)
-    thr = t.quantity("equilibrium_threshold", "dimensionless", default=base.equilibrium_threshold)
-    if not 0 < thr < 1:
-        raise InputError(f"expected a fraction between 0 and 1, got {thr}", t._key("equilibrium_threshold"))
-    return AnalysisOptions(
-        dispersion=t.boolean("dispersion", base.dispersion),
-        amplitude_factors=t.boolean("amplitude_factors", base.amplitude_factors),
-        stress=t.string("stress", default=base.stress, choices=STRESS_CHOICES),
-        equilibrium_threshold=thr,
-        yield_offset=t.quantity("yield_offset", "dimensionless", default=base.yield_offset),
-        incident_start=t.quantity("incident_start", "time", required=False, positive=False, default=base.incident_start),
-        window=t.quantity("window", "time", required=False, default=base.window),
-        pre_trigger=t.quantity("pre_trigger", "time", required=False, default=base.pre_trigger),
-        reflected_adjust=t.quantity("reflected_adjust", "time", positive=False, default=base.reflected_adjust),
-        transmitted_adjust=t.quantity("transmitted_adjust", "time", positive=False,
-                                      default=base.transmitted_adjust),
-    )
+    """Analysis options from a mapping (keys of :data:`shpb.schema.ANALYSIS_KEYS`), on top of ``base``."""
+    values = schema.parse_table(data, schema.ANALYSIS_KEYS, where, base=asdict(base))
+    return AnalysisOptions(**values)
 
 
 def _channel(value, common_file, base_dir: Path, where: str) -> Channel:
@@ -631,21 +627,16 @@ def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
 
 
 def specimen_from_dict(data: dict, where: str) -> Specimen:
-    """A :class:`Specimen` from the ``[specimen]`` mapping."""
-    t = _Table(data, where)
-    t.check_keys({"length", "diameter", "material", "temperature", "modulus", "density"})
-    length = t.quantity("length", "length")
-    diameter = t.quantity("diameter", "length")
+    """A :class:`Specimen` from the ``[specimen]`` mapping (keys of :data:`shpb.schema.SPECIMEN_KEYS`)."""
+    values = schema.parse_table(data, schema.SPECIMEN_KEYS, where)
+    for name in ("length", "diameter"):
+        if values[name] is None:
+            raise InputError(f"missing key {name!r} (a length, e.g. with its unit)", where)
+    length, diameter = values["length"], values["diameter"]
     if length > 0.2 or diameter > 0.2:
         raise InputError(f"specimen of {length*1e3:g} mm x {diameter*1e3:g} mm is implausible (units?)", where)
-    return Specimen(
-        length=length,
-        diameter=diameter,
-        material=str(data.get("material", "")),
-        temperature=t.quantity("temperature", "temperature", required=False),
-        modulus=t.quantity("modulus", "pressure", required=False),
-        density=t.quantity("density", "density", required=False),
-    )
+    values["material"] = str(values["material"])
+    return Specimen(**values)
 
 
 def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[BarSet] = None,

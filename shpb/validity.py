@@ -19,6 +19,9 @@ EQUILIBRIUM_THRESHOLD = 0.05
 RATE_CV_LIMIT = 0.10
 #: Peak bar stress, as a fraction of the bar's yield strength, that earns a warning (common practice).
 BAR_STRESS_WARNING = 0.90
+#: Time over which R(t) is averaged before the equilibrium test [s]: single-sample recorder noise must not
+#: break equilibrium, while the ring-up of a specimen transit (a microsecond and more) is not smoothed away.
+EQUILIBRIUM_AVERAGING = 0.25e-6
 
 
 @dataclass(frozen=True)
@@ -283,16 +286,29 @@ def overlap_flag(pulse_duration, gauge_distance, wave_speed, bar_name):
 
 @dataclass
 class Assessment:
-    """What :func:`assess_curve` finds: the valid mask, scalar results (units in the keys) and flags."""
+    """What :func:`assess_curve` finds: the valid mask, the R(t) that decided, scalar results, flags.
+
+    Attributes
+    ----------
+    valid : ndarray of bool
+        Samples in the loading part after force equilibrium.
+    equilibrium_ratio : ndarray
+        R(t) averaged as the equilibrium test reads it [1] (NaN where the
+        forces are too small to give a meaningful ratio).
+    results : dict
+        Scalars, units in the keys.
+    flags : list of Flag
+    """
 
     valid: np.ndarray
+    equilibrium_ratio: np.ndarray = None
     results: dict = field(default_factory=dict)
     flags: list = field(default_factory=list)
 
 
 def assess_curve(time, strain_rate, force_front, force_back, strain, stress, *, dt,
                  threshold=EQUILIBRIUM_THRESHOLD, yield_offset=0.002, specimen_modulus=None,
-                 specimen_transit=None, averaging=0.25e-6):
+                 specimen_transit=None, averaging=EQUILIBRIUM_AVERAGING):
     """Judge a reduced curve: loading part, equilibrium, strain-rate plateau and yield point.
 
     Parameters
@@ -332,16 +348,16 @@ def assess_curve(time, strain_rate, force_front, force_back, strain, stress, *, 
     strain, stress = np.asarray(strain, dtype=float), np.asarray(stress, dtype=float)
     from .kolsky import equilibrium_ratio  # the ratio is a Kolsky quantity
 
-    out = Assessment(valid=np.zeros(tau.size, dtype=bool))
-    res, flags = out.results, out.flags
     fmean = 0.5 * (f1 + f2)
+    ratio = equilibrium_ratio(f1, f2, floor=0.05 * max(float(np.max(fmean)), 1e-30) if fmean.size else 0.0)
+    ratio_avg = moving_average(ratio, max(1, round(averaging / dt)))
+    out = Assessment(valid=np.zeros(tau.size, dtype=bool), equilibrium_ratio=ratio_avg)
+    res, flags = out.results, out.flags
     region = loading_region(rate, fmean)
     onset = None
     if region is None:
         flags.append(Flag("no_loading", "error", "no loading found (no positive strain rate and force)"))
     else:
-        ratio = equilibrium_ratio(f1, f2, floor=0.05 * max(float(np.max(fmean)), 1e-30))
-        ratio_avg = moving_average(ratio, max(1, round(averaging / dt)))
         onset = equilibrium_onset(ratio_avg, region, threshold)
         if onset is None:
             flags.append(Flag("no_equilibrium", "error",
@@ -399,3 +415,131 @@ def assess_curve(time, strain_rate, force_front, force_back, strain, stress, *, 
                                   "the yield point lies before force equilibrium: yield stress and modulus are "
                                   "unreliable"))
     return out
+
+
+# --------------------------------------------------------------------------- stage 5: the verdict
+@dataclass(frozen=True)
+class Verdict:
+    """Stage 5 of a reduction: every finding about a shot.
+
+    Attributes
+    ----------
+    valid : ndarray of bool
+        Samples of the curves that may be used (loading part after force
+        equilibrium).
+    equilibrium_ratio : ndarray
+        The R(t) that decided equilibrium (averaged as the test reads it) [1].
+    results : dict
+        Scalar results, units in the keys.
+    flags : tuple of Flag
+        In the order found.
+    """
+
+    valid: np.ndarray
+    equilibrium_ratio: np.ndarray
+    results: dict
+    flags: tuple
+
+    @property
+    def is_valid(self) -> bool:
+        """True when no flag is an error."""
+        return not any(f.severity == "error" for f in self.flags)
+
+
+def record_flags(strains, plan, waves, barset) -> list:
+    """Flags about the record: waves overlapping at the gauge, a truncated record, no transmitted pulse.
+
+    Parameters
+    ----------
+    strains : shpb.pulses.GaugeStrains
+    plan : shpb.pulses.WindowPlan
+    waves : shpb.pulses.FaceWaves
+    barset : shpb.setup.BarSet
+
+    Returns
+    -------
+    list of Flag
+    """
+    flags = []
+    dt, n, t0 = strains.dt, strains.time.size, float(strains.time[0])
+    bi = barset.incident
+    duration = plan.duration
+    flags.append(overlap_flag(duration, barset.incident_gauge.distance, bi.wave_speed, "incident"))
+    t_end = float(strains.time[-1])
+    if plan.k1 > n:
+        flags.append(Flag("record_truncated", "error",
+                          f"the record ends at {t_end * 1e6:.1f} us, before the analysis window does "
+                          f"({(t0 + (plan.k1 - 1) * dt) * 1e6:.1f} us)"))
+    times = plan.gauge_window_times(t0, dt)
+    passed = max(times["transmitted"][1], times["reflected"][1])
+    if (passed > t_end or plan.length < duration) and plan.k1 <= n:
+        flags.append(Flag("record_truncated", "error",
+                          f"the record ends at {t_end * 1e6:.1f} us, before the transmitted (or reflected) pulse "
+                          f"has passed its gauge (the {duration * 1e6:.0f} us pulse needs the record to "
+                          f"{(passed + max(duration - plan.length, 0)) * 1e6:.1f} us)"))
+    et_peak = float(np.max(waves.transmitted)) if waves.transmitted.size else 0.0
+    if et_peak < max(8 * strains.noise_transmitted, 0.01 * float(np.max(waves.incident))):
+        flags.append(Flag("no_transmitted_pulse", "error",
+                          f"no transmitted pulse found (peak {et_peak:.3g} against noise "
+                          f"{strains.noise_transmitted:.3g}): check the transmitted channel and the specimen contact"))
+    return [f for f in flags if f is not None]
+
+
+def bar_flags(strains, plan, barset):
+    """Flags about the bars and the channels: bar stress against yield, clipping, far-end echo of the transmitted bar.
+
+    Returns
+    -------
+    flags : list of Flag
+    results : dict
+        ``peak_bar_stress_incident_MPa`` and ``peak_bar_stress_transmitted_MPa``.
+    """
+    flags, results = [], {}
+    dt, n, t0 = strains.dt, strains.time.size, float(strains.time[0])
+    bi, bt = barset.incident, barset.transmitted
+    gi, gt = barset.incident_gauge, barset.transmitted_gauge
+    duration, times = plan.duration, plan.gauge_window_times(t0, dt)
+    # the bars' own stress, over the part of the record the analysis reads
+    last, n_base = plan.last_sample(n), strains.baseline_samples
+    for name, chan, bar in (("incident", strains.incident, bi), ("transmitted", strains.transmitted, bt)):
+        pk = float(np.max(np.abs(chan[n_base:last]))) if last > n_base else 0.0
+        results[f"peak_bar_stress_{name}_MPa"] = bar.modulus * pk / 1e6
+        flags.append(bar_stress_flag(pk, bar.modulus, bar.material.yield_strength, name))
+    # a channel can only hit its rail while a pulse passes: check the pulse windows
+    w0 = max(int(times["incident"][0] / dt - t0 / dt), 0)
+    w1 = min(int(max(w[1] for w in times.values()) / dt - t0 / dt) + 1, n)
+    for name, volts, gauge in (("incident", strains.volts_incident, gi), ("transmitted", strains.volts_transmitted, gt)):
+        flags.append(clipping_flag(volts[w0:w1], name, gauge.full_scale, duration / dt))
+    echo = 2 * (bt.length - gt.distance) / bt.wave_speed
+    if duration > echo:
+        flags.append(Flag("transmitted_overlap", "warning",
+                          f"the {duration * 1e6:.0f} us pulse is longer than the {echo * 1e6:.0f} us echo time from "
+                          f"the transmitted bar's far end to its gauge"))
+    return [f for f in flags if f is not None], results
+
+
+def judge(strains, plan, waves, curves, barset, specimen, analysis) -> Verdict:
+    """Stage 5: judge a reduced shot: the record (:func:`record_flags`), the curve (:func:`assess_curve`), the bars.
+
+    Parameters
+    ----------
+    strains, plan, waves : stages 1-3 (:mod:`shpb.pulses`)
+    curves : shpb.kolsky.KolskyCurves
+    barset : shpb.setup.BarSet
+    specimen : shpb.setup.Specimen
+        Its modulus (offset line) and transit time (transits to equilibrium).
+    analysis : shpb.setup.AnalysisOptions
+        ``equilibrium_threshold`` and ``yield_offset``.
+
+    Returns
+    -------
+    Verdict
+    """
+    judged = assess_curve(curves.time, curves.strain_rate, curves.force_front, curves.force_back, curves.strain,
+                          curves.stress, dt=waves.dt, threshold=analysis.equilibrium_threshold,
+                          yield_offset=analysis.yield_offset, specimen_modulus=specimen.modulus,
+                          specimen_transit=specimen.transit_time, averaging=EQUILIBRIUM_AVERAGING)
+    bflags, bresults = bar_flags(strains, plan, barset)
+    return Verdict(valid=judged.valid, equilibrium_ratio=judged.equilibrium_ratio,
+                   results={**judged.results, **bresults},
+                   flags=tuple(record_flags(strains, plan, waves, barset) + judged.flags + bflags))

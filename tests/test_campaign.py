@@ -249,7 +249,7 @@ def test_row_errors_name_row_and_column(shots_dir, capsys):
 
 def test_row_overrides(shots_dir):
     (shots_dir / "over.csv").write_text(
-        "id,record_incident,record_transmitted,specimen_length,specimen_diameter [mm],dispersion,window [us],"
+        "id,record_incident,record_transmitted,specimen_length,specimen_diameter [mm],dispersion,window_length [us],"
         "barset,operator\n"
         "A-1,A-1.csv,A-1.csv,5 mm,10,true,140,bars.toml,J. Doe (fictional)\n"
         "A-2,A-2.csv,A-2.csv,0.005,10,,,,\n")
@@ -259,8 +259,8 @@ def test_row_overrides(shots_dir):
         '[specimen]\nmodulus = "70 GPa"\n')
     camp = load_campaign(shots_dir / "over.toml")
     a, b = (r.shot for r in camp.rows)
-    assert a.analysis.dispersion is True and a.analysis.window == pytest.approx(140e-6)
-    assert b.analysis.dispersion is False and b.analysis.window is None      # empty cell: the default
+    assert a.analysis.dispersion is True and a.analysis.window_length == pytest.approx(140e-6)
+    assert b.analysis.dispersion is False and b.analysis.window_length is None      # empty cell: the default
     assert a.specimen.length == b.specimen.length == pytest.approx(0.005)    # '5 mm' cell and bare SI
     assert a.specimen.modulus == pytest.approx(70e9)                          # campaign [specimen] default
     assert a.record.incident.file == shots_dir / "A-1.csv" and a.record.transmitted.column == "CH2"

@@ -72,17 +72,17 @@ def test_plan_window_from_the_bar_geometry():
     # 328.3 us (the shortest), so a 100 us pulse gets 10 us of lead and min(3 * 100, 0.97 * 328.3 - 10)
     # = 300 us of window.
     c = 4873.4
-    plan = pulses.plan_window(1000.0, 100e-6, 1e-7, 0.0, 2e-3, incident_distance=0.9, incident_speed=c,
-                              incident_length=1.8, transmitted_distance=0.4, transmitted_speed=c,
+    plan = pulses.plan_window(1000.0, 100e-6, 1e-7, 0.0, 2e-3, incident_gauge_distance=0.9, incident_wave_speed=c,
+                              incident_length=1.8, transmitted_gauge_distance=0.4, transmitted_wave_speed=c,
                               transmitted_length=1.2)
-    assert plan.pre == pytest.approx(10e-6)
-    assert plan.window == pytest.approx(300e-6)
+    assert plan.lead == pytest.approx(10e-6)
+    assert plan.length == pytest.approx(300e-6)
     assert plan.t_face0 == pytest.approx(100e-6 + 0.9 / c)
     assert plan.k0 == int(np.ceil((plan.t_face0 - 10e-6) / 1e-7))
     # a record ending early cuts the window: it must end 0.9/c (the later wave's travel) before the end,
     # less two tapers of 2 us
-    short = pulses.plan_window(1000.0, 100e-6, 1e-7, 0.0, 600e-6, incident_distance=0.9, incident_speed=c,
-                               incident_length=1.8, transmitted_distance=0.4, transmitted_speed=c,
+    short = pulses.plan_window(1000.0, 100e-6, 1e-7, 0.0, 600e-6, incident_gauge_distance=0.9, incident_wave_speed=c,
+                               incident_length=1.8, transmitted_gauge_distance=0.4, transmitted_wave_speed=c,
                                transmitted_length=1.2)
-    assert short.window == pytest.approx(600e-6 - (100e-6 + 0.9 / c) - 0.9 / c - 4e-6)
+    assert short.length == pytest.approx(600e-6 - (100e-6 + 0.9 / c) - 0.9 / c - 4e-6)
     assert "cut by the record" in short.source

@@ -252,7 +252,7 @@ def test_long_specimen_is_flagged_out_of_equilibrium():
     specimen = RodSpec(0.020, 0.010, 3e9, 1200.0, PerfectlyPlastic(60e6))
     spec = make_spec(specimen, striker=0.10, speed=10.0, shaper=None)
     result = simulate_shot(spec)
-    _, _, reduced = reduce_virtual(result, spec, window=None, striker=0.10)
+    _, _, reduced = reduce_virtual(result, spec, window_length=None, striker=0.10)
     codes = [f.code for f in reduced.flags]
     assert "no_equilibrium" in codes and not reduced.valid
     truth = result.truth
