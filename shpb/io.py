@@ -48,6 +48,39 @@ class Record:
     transmitted: np.ndarray
     files: dict = field(default_factory=dict)
 
+    @classmethod
+    def from_arrays(cls, incident, transmitted, *, dt=None, time=None) -> "Record":
+        """A record held in memory (no file): the two channels [V] and a sample interval [s] or a time vector [s].
+
+        Raises
+        ------
+        InputError
+            Channels of unequal length or too short, non-finite values, or
+            a time base that is not uniform and increasing.
+        """
+        inc = np.asarray(incident, dtype=float).ravel()
+        tra = np.asarray(transmitted, dtype=float).ravel()
+        if inc.size != tra.size:
+            raise InputError(f"the incident channel has {inc.size} samples but the transmitted channel has "
+                             f"{tra.size}", "record")
+        if inc.size < 16:
+            raise InputError(f"only {inc.size} samples: too short to be a bar record", "record")
+        for name, x in (("incident", inc), ("transmitted", tra)):
+            if not np.all(np.isfinite(x)):
+                raise InputError(f"the {name} channel has a non-finite value at sample "
+                                 f"{int(np.argmax(~np.isfinite(x)))}", "record")
+        if (dt is None) == (time is None):
+            raise InputError("give either dt (the sample interval) or time (a time vector)", "record")
+        if time is not None:
+            t = np.asarray(time, dtype=float).ravel()
+            if t.size != inc.size:
+                raise InputError(f"time has {t.size} samples, channels {inc.size}", "record")
+            dt = _uniform_dt(t, "record", "time")
+            return cls(time=t[0] + dt * np.arange(t.size), dt=dt, incident=inc, transmitted=tra)
+        if not (np.isfinite(dt) and dt > 0):
+            raise InputError(f"expected a positive sample interval, got {dt!r}", "record")
+        return cls(time=dt * np.arange(inc.size), dt=float(dt), incident=inc, transmitted=tra)
+
 
 # --------------------------------------------------------------------------- hashing
 def sha256_file(path, chunk=1 << 20) -> str:
