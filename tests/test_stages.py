@@ -144,3 +144,17 @@ def test_docs_list_every_setup_key():
     campaign_doc = (DOCS / "campaigns.md").read_text()
     for column in schema.COLUMNS:
         assert f"`{column}`" in campaign_doc, f"docs/campaigns.md lacks the column {column}"
+
+
+def test_public_api_is_light_and_complete():
+    # the package's main entry points import from the package itself, without loading numpy,
+    # pandas or scipy until one is used (common practice: lazy module attributes, PEP 562)
+    import subprocess
+    import sys
+
+    code = ("import sys, shpb; heavy = [m for m in ('numpy', 'pandas', 'scipy', 'matplotlib') if m in sys.modules];"
+            "print(','.join(heavy)); from shpb import load_shot, reduce_shot, ShotResult, load_barset, propagate, "
+            "MODELS, fit_curves; print('johnson-cook' in MODELS)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
+    assert out == ["True"], f"loaded on import: {out[0]}"   # no heavy module listed, the registry found
+    assert (Path(__file__).resolve().parents[1] / "shpb" / "py.typed").is_file()
