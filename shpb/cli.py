@@ -4,6 +4,13 @@ Each subcommand lives in ``shpb/commands/<name>.py`` and exposes
 ``register(app)``; this file only assembles them and turns known errors into
 one-line messages with a non-zero exit status (never a traceback for bad
 input).
+
+Start-up stays light: building the parser (``shpb --help``, ``--version``,
+``shpb COMMAND --help``) imports the parser library and the command modules
+only; each command imports the library modules it calls (and so numpy,
+pandas, scipy, pint, matplotlib) inside its body, when it runs.
+``benchmarks/bench_startup.py`` measures the cost; ``tests/test_cli.py``
+checks that no heavy module is imported.
 """
 
 from __future__ import annotations
@@ -13,14 +20,10 @@ import sys
 
 import typer
 
+from .commands.common import new_app
 from .errors import ShpbError
 
-app = typer.Typer(
-    add_completion=False,
-    no_args_is_help=True,
-    help="Split-Hopkinson (Kolsky) bar data reduction. SI inside; quantities may carry units ('19.05 mm').",
-    pretty_exceptions_enable=False,
-)
+app = new_app("Split-Hopkinson (Kolsky) bar data reduction. SI inside; quantities may carry units ('19.05 mm').")
 
 #: Subcommand modules, in the order they appear in --help.
 COMMANDS = ["reduce", "simulate", "dispersion", "calibrate", "batch", "fit"]

@@ -524,7 +524,7 @@ def test_cli_flight_bars_together_shunt_striker(tmp_path):
     csv = tmp_path / "flight.csv"
     L = np.array([300.0, 600.0, 900.0])
     csv.write_text("length [mm],delay [us]\n" + "".join(f"{a},{a / C0 * 1e3:.6f}\n" for a in L))
-    res = run.invoke(app, ["calibrate", "flight", str(csv), "--barset", str(bars), "--bar", "transmitted"])
+    res = run.invoke(app, ["calibrate", "flight", str(bars), str(csv), "--bar", "transmitted"])
     assert res.exit_code == 0, res.output
     assert "c = 5047.5" in res.output
     # bars together: transmitted channel reads 3 % low

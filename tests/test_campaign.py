@@ -192,7 +192,7 @@ def test_faults_are_recorded_and_the_rest_complete(shots_dir, clean_run, capsys)
             _row("K-1"), _row("B-2")]
     path = write_campaign(shots_dir, "faults", rows)
     out = shots_dir / "out-faults"
-    rc = main(["batch", str(path), "--jobs", "2", "--no-figures", "--out", str(out)])
+    rc = main(["batch", str(path), "--jobs", "2", "--no-figure", "--out", str(out)])
     assert rc == 1                                  # some shots failed or are not valid
     err = capsys.readouterr().err
     assert "shot M-1: failed (read)" in err and "shot K-1: not valid" in err

@@ -377,7 +377,7 @@ def test_cli_table_csv_and_plot(tmp_path, capsys):
 
     csv_path, png_path = tmp_path / "v.csv", tmp_path / "v.png"
     rc = main(["dispersion", "--diameter", "20 mm", "--poisson", "0.29", "--wave-speed", f"{C0} m/s",
-               "--max-frequency", "300 kHz", "--rows", "7", "--csv", str(csv_path), "--plot", str(png_path)])
+               "--max-frequency", "300 kHz", "--rows", "7", "--csv", str(csv_path), "--figure", str(png_path)])
     assert rc == 0
     out = capsys.readouterr().out
     # second-mode onset printed: f a/c0 = 0.3488 for ν = 0.29 (the independent minimum over k of the second
@@ -428,7 +428,7 @@ excitation = "10 V"
 gain = 100
 polarity = 1
 """)
-    rc = main(["dispersion", "--barset", str(tmp_path / "rig.toml"), "--rows", "3"])
+    rc = main(["dispersion", str(tmp_path / "rig.toml"), "--rows", "3"])
     assert rc == 0
     out = capsys.readouterr().out
     assert "wave speed 5047.5 m/s" in out  # c0 = √(E/ρ), CHECK_VALUES §5

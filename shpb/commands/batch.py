@@ -8,6 +8,8 @@ from typing import Optional
 
 import typer
 
+from .common import INTEGER, Command, figure_switch, out_option
+
 
 class _Progress:
     """``12/40 shots`` on stderr, updated in place on a terminal; one line per shot that is not valid."""
@@ -37,19 +39,19 @@ class _Progress:
 
 
 def register(app: typer.Typer) -> None:
-    @app.command("batch")
+    @app.command("batch", cls=Command)
     def batch_cmd(
-        campaign: Path = typer.Argument(..., help="Campaign file (TOML) naming the shots table (CSV)."),
-        jobs: Optional[int] = typer.Option(None, "--jobs", "-j", min=1,
-                                           help="Local worker processes (default: the number of CPUs)."),
-        out: Optional[Path] = typer.Option(None, "--out", "-o",
-                                           help="Output folder (default: results/<campaign name> beside the "
-                                                "campaign file)."),
+        campaign: Path = typer.Argument(..., metavar="CAMPAIGN",
+                                        help="Campaign file (TOML) naming the shots table (CSV)."),
+        jobs: Optional[int] = typer.Option(None, "--jobs", "-j", min=1, metavar=INTEGER, show_default=False,
+                                           help="Local worker processes [default: the number of CPUs]."),
+        out: Optional[Path] = out_option("results/<campaign name> beside the campaign file"),
         force: bool = typer.Option(False, "--force", help="Redo every shot, even those that are up to date."),
-        scheduler: Optional[str] = typer.Option(None, "--scheduler",
+        scheduler: Optional[str] = typer.Option(None, "--scheduler", metavar="ADDRESS",
                                                 help="Address of a running Dask scheduler (e.g. "
                                                      "tcp://10.0.0.5:8786): run the shots there."),
-        no_figures: bool = typer.Option(False, "--no-figures", help="Write no figures (per shot or campaign)."),
+        figure: bool = figure_switch("Write the figures: each shot's sheet and the campaign's overlays "
+                                     "(--no-figure is much faster)."),
     ):
         """Reduce every shot of a campaign. Writes shots/<id>/ (curves, summary, figure), campaign_summary.csv,
         failures.csv, repeatability.csv and overlay figures. Exit status: 0 all shots valid, 1 some not valid
@@ -58,7 +60,7 @@ def register(app: typer.Typer) -> None:
 
         camp = load_campaign(campaign)
         report = run_campaign(camp, out_dir=out, jobs=jobs, force=force, scheduler=scheduler,
-                              figures=not no_figures, progress=_Progress())
+                              figures=figure, progress=_Progress())
         n = len(report.outcomes)
         typer.echo(f"campaign {camp.name}: {len(report.ok)}/{n} shots valid, {len(report.invalid)} not valid, "
                    f"{len(report.failed)} failed ({len(report.skipped)} up to date, kept)")

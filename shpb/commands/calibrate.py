@@ -8,15 +8,25 @@ applies the latest values.
 
 from __future__ import annotations
 
+import enum
 from pathlib import Path
 from typing import Optional
 
 import typer
 
-cal_app = typer.Typer(no_args_is_help=True, help="Calibrate a bar set: wave speed (free-end shot, time of "
-                                                 "flight), channel scales (bars together, striker, shunt).")
+from .common import COLUMN, FILE, INTEGER, NAME, QUANTITY, BarName, Command, bar_option, bar_value, \
+    barset_argument, figure_switch, new_app
 
-_BARS = ("incident", "transmitted")
+cal_app = new_app("Calibrate a bar set: wave speeds and channel scales.\n\nWave speed from a free-end shot or "
+                  "times of flight; channel scales from bars together, the striker or a shunt. Each result is "
+                  "appended to the bar set's calibration file.")
+
+
+class FreeEnd(str, enum.Enum):
+    """Which end of the bar is free in a free-end shot (the value of ``--free-end``)."""
+
+    specimen_face = "specimen-face"
+    far_end = "far-end"
 
 
 # --------------------------------------------------------------------------- helpers (parse only)
@@ -31,12 +41,6 @@ def _q(text, dimension, option):
     from ..units import to_si
 
     return None if text is None else to_si(text, dimension, option)
-
-
-def _bar_choice(bar):
-    if bar not in _BARS:
-        raise typer.BadParameter(f"expected incident or transmitted, got {bar!r}", param_hint="--bar")
-    return bar
 
 
 def _load_barset(path: Path):
@@ -141,44 +145,51 @@ def _report(lines, cal_file, fig_path, apply, barset_path=None):
     typer.echo("\n".join(lines))
 
 
-_TIME_HELP = "Time column (name or 0-based index) (default: a column named 'time'/'TIME')."
+# options the record-reading subcommands share
+_RECORD_HELP = "Record (delimited text or .npz)"
+_TIME_HELP = "Time column (name or 0-based index) [default: a column named 'time'/'TIME']."
+_TIME_UNIT_HELP = "Unit of the time column."
 _DT_HELP = "Sample interval when there is no time column, e.g. '0.1 us'."
+_CAL_HELP = "Calibration file to append to [default: the bar set's calibration_file, or <bar set>.calibration.toml]."
 
 
 # --------------------------------------------------------------------------- subcommands
-@cal_app.command("free-end")
+@cal_app.command("free-end", cls=Command)
 def free_end_cmd(
-    barset: Path = typer.Argument(..., help="Bar set (TOML)."),
-    record: Path = typer.Argument(..., help="Record of the free-end shot (delimited text or .npz)."),
-    bar: str = typer.Option("incident", help="The bar struck: incident or transmitted."),
-    column: Optional[str] = typer.Option(None, help="The gauge's channel (name or 0-based index)."),
-    time_column: Optional[str] = typer.Option(None, help=_TIME_HELP),
-    time_unit: str = typer.Option("s", help="Unit of the time column."),
-    sample_interval: Optional[str] = typer.Option(None, help=_DT_HELP),
-    free_end: str = typer.Option("specimen-face", help="Which end is free: specimen-face (the gauge distance "
-                                                       "in the bar set) or far-end."),
+    barset: Path = barset_argument(),
+    record: Path = typer.Argument(..., metavar="RECORD", help=f"{_RECORD_HELP} of the free-end shot."),
+    bar: BarName = bar_option(BarName.incident, "The bar struck."),
+    column: Optional[str] = typer.Option(None, metavar=COLUMN, help="The gauge's channel (name or 0-based index)."),
+    time_column: Optional[str] = typer.Option(None, metavar=COLUMN, help=_TIME_HELP),
+    time_unit: str = typer.Option("s", metavar="UNIT", help=_TIME_UNIT_HELP),
+    sample_interval: Optional[str] = typer.Option(None, metavar=QUANTITY, help=_DT_HELP),
+    free_end: FreeEnd = typer.Option(FreeEnd.specimen_face, metavar="|".join(e.value for e in FreeEnd),
+                                     help="Which end is free: specimen-face (the gauge distance in the bar set) "
+                                          "or far-end."),
     impact_end_free: bool = typer.Option(True, "--impact-end-free/--impact-end-held",
                                          help="Use passes reflected at the struck end too."),
-    max_echoes: int = typer.Option(6, min=1, help="Most passes used after the pulse."),
-    max_frequency: Optional[str] = typer.Option(None, help="Top of the phase-slope band, e.g. '15 kHz' "
-                                                           "(default: a/wavelength = 0.025)."),
-    gauge_position_uncertainty: str = typer.Option("0.5 mm", help="Standard uncertainty of the gauge position."),
-    bar_length_uncertainty: str = typer.Option("1 mm", help="Standard uncertainty of the bar length."),
-    calibration_file: Optional[Path] = typer.Option(None, help="(default: the bar set's calibration_file, or "
-                                                               "<bar set>.calibration.toml)"),
+    max_echoes: int = typer.Option(6, min=1, metavar=INTEGER, help="Most passes used after the pulse."),
+    max_frequency: Optional[str] = typer.Option(None, metavar=QUANTITY,
+                                                help="Top of the phase-slope band, e.g. '15 kHz' "
+                                                     "[default: a/wavelength = 0.025]."),
+    gauge_position_uncertainty: str = typer.Option("0.5 mm", metavar=QUANTITY,
+                                                   help="Standard uncertainty of the gauge position."),
+    bar_length_uncertainty: str = typer.Option("1 mm", metavar=QUANTITY,
+                                               help="Standard uncertainty of the bar length."),
+    calibration_file: Optional[Path] = typer.Option(None, metavar=FILE, help=_CAL_HELP),
     apply: bool = typer.Option(True, "--apply/--check-only", help="Apply the wave speed, or only record the check."),
-    figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure."),
+    figure: bool = figure_switch(),
 ):
-    """Bar wave speed c0 (and E = rho c0^2) from a free-end shot: the pulse and its echoes at one gauge."""
+    """Bar wave speed from a free-end shot.
+
+    c0 (and E = rho c0^2) from the pulse and its echoes at one gauge."""
     from .. import calibrate as C
     from .. import calibration_files as CF
 
-    bar = _bar_choice(bar)
+    bar, free_end = bar_value(bar), FreeEnd(free_end).value
     bs = _load_barset(barset)
     b = bs.incident if bar == "incident" else bs.transmitted
     g = bs.incident_gauge if bar == "incident" else bs.transmitted_gauge
-    if free_end not in ("specimen-face", "far-end"):
-        raise typer.BadParameter("expected specimen-face or far-end", param_hint="--free-end")
     d = g.distance if free_end == "specimen-face" else b.length - g.distance
     time, dt, (volts,) = _read(record, [column], time_column, time_unit, sample_interval)
     strain = _strain(volts, bs, bar)
@@ -219,33 +230,31 @@ def free_end_cmd(
     _report(lines, cal_file, fig_path, apply_t, barset)
 
 
-@cal_app.command("flight")
+@cal_app.command("flight", cls=Command)
 def flight_cmd(
-    data: Path = typer.Argument(..., help="CSV of path lengths and delays (header units: 'length [mm]', "
-                                          "'delay [us]'; none: SI)."),
-    length_column: Optional[str] = typer.Option(None, help="(default: the column whose name starts with "
-                                                           "'length' or 'path')"),
-    delay_column: Optional[str] = typer.Option(None, help="(default: the column whose name starts with "
-                                                          "'delay' or 'time')"),
-    barset: Optional[Path] = typer.Option(None, help="Bar set whose calibration file receives the result."),
-    bar: Optional[str] = typer.Option(None, help="Apply the speed to this bar (incident or transmitted)."),
-    calibration_file: Optional[Path] = typer.Option(None, help="(default: the bar set's, or "
-                                                               "<data>.calibration.toml)"),
-    figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure."),
+    barset: Path = barset_argument("Bar set (TOML) whose calibration file receives the result."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV of path lengths and delays (header units: "
+                                                          "'length [mm]', 'delay [us]'; none: SI)."),
+    length_column: Optional[str] = typer.Option(None, metavar=NAME, help="Path-length column [default: the column "
+                                                                         "whose name starts with 'length' or "
+                                                                         "'path']."),
+    delay_column: Optional[str] = typer.Option(None, metavar=NAME, help="Delay column [default: the column whose "
+                                                                        "name starts with 'delay' or 'time']."),
+    bar: Optional[BarName] = bar_option(None, "Apply the speed to this bar [default: none, only record the "
+                                              "check]."),
+    calibration_file: Optional[Path] = typer.Option(None, metavar=FILE, help=_CAL_HELP),
+    figure: bool = figure_switch(),
 ):
-    """Time-of-flight regression t = L/c + t0: wave speed, and a check that no fixed delay hides in the data."""
+    """Wave speed from times of flight over several paths.
+
+    Regression t = L/c + t0: the wave speed, and a check that no fixed delay hides in the data."""
     from .. import calibrate as C
     from .. import calibration_files as CF
-    from ..errors import InputError
 
+    bar = bar_value(bar)
     lengths, delays = _flight_table(data, length_column, delay_column)
     res = C.time_of_flight_fit(lengths, delays)
-    if bar is not None:
-        _bar_choice(bar)
-        if barset is None and calibration_file is None:
-            raise InputError("--bar needs --barset (or --calibration-file) to apply the speed to", "--bar")
-    cal_file = calibration_file or (CF.calibration_path(barset) if barset else
-                                    data.with_name(data.stem + CF.CALIBRATION_SUFFIX))
+    cal_file = _where(barset, calibration_file)
     results = {"wave_speed_m_per_s": res["wave_speed_m_per_s"], "wave_speed_se_m_per_s": res["wave_speed_se_m_per_s"],
                "intercept_us": res["intercept_s"] * 1e6, "intercept_se_us": res["intercept_se_s"] * 1e6,
                "intercept_significant": res["intercept_significant"], "n_points": res["n_points"],
@@ -253,7 +262,7 @@ def flight_cmd(
                "residuals_us": [r * 1e6 for r in res["residuals_s"]], "notes": res["notes"]}
     apply_t = {bar: {"wave_speed_m_per_s": res["wave_speed_m_per_s"]}} if bar else {}
     fig = CF.plot_flight(lengths, delays, res) if figure else None
-    inputs = [data] + ([barset] if barset else [])
+    inputs = [data, barset]
     fig_path = _save(cal_file, "flight", bar, results, apply_t, inputs,
                      {"method": "ordinary least squares t = L/c + t0"}, fig, figure)
     lines = [f"time of flight ({res['n_points']} points): c = {res['wave_speed_m_per_s']:.1f} +/- "
@@ -291,22 +300,27 @@ def _flight_table(path: Path, length_column, delay_column):
     return list(pick(length_column, ("length", "path"), "length")), list(pick(delay_column, ("delay", "time"), "time"))
 
 
-@cal_app.command("bars-together")
+@cal_app.command("bars-together", cls=Command)
 def bars_together_cmd(
-    barset: Path = typer.Argument(..., help="Bar set (TOML)."),
-    record: Path = typer.Argument(..., help="Record of the bars-together shot."),
-    incident_column: Optional[str] = typer.Option(None, help="Incident-gauge channel (default: the first)."),
-    transmitted_column: Optional[str] = typer.Option(None, help="Transmitted-gauge channel (default: the second)."),
-    time_column: Optional[str] = typer.Option(None, help=_TIME_HELP),
-    time_unit: str = typer.Option("s", help="Unit of the time column."),
-    sample_interval: Optional[str] = typer.Option(None, help=_DT_HELP),
-    max_frequency: Optional[str] = typer.Option(None, help="Top of the phase-slope band, e.g. '15 kHz'."),
-    calibration_file: Optional[Path] = typer.Option(None, help="(default: the bar set's)"),
+    barset: Path = barset_argument(),
+    record: Path = typer.Argument(..., metavar="RECORD", help=f"{_RECORD_HELP} of the bars-together shot."),
+    incident_column: Optional[str] = typer.Option(None, metavar=COLUMN,
+                                                  help="Incident-gauge channel [default: the first]."),
+    transmitted_column: Optional[str] = typer.Option(None, metavar=COLUMN,
+                                                     help="Transmitted-gauge channel [default: the second]."),
+    time_column: Optional[str] = typer.Option(None, metavar=COLUMN, help=_TIME_HELP),
+    time_unit: str = typer.Option("s", metavar="UNIT", help=_TIME_UNIT_HELP),
+    sample_interval: Optional[str] = typer.Option(None, metavar=QUANTITY, help=_DT_HELP),
+    max_frequency: Optional[str] = typer.Option(None, metavar=QUANTITY,
+                                                help="Top of the phase-slope band, e.g. '15 kHz'."),
+    calibration_file: Optional[Path] = typer.Option(None, metavar=FILE, help=_CAL_HELP),
     apply: bool = typer.Option(True, "--apply/--check-only", help="Apply the transmitted channel's relative scale, "
                                                                   "or only record the check."),
-    figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure."),
+    figure: bool = figure_switch(),
 ):
-    """Bars together (no specimen): transmitted/incident ratio, residual reflected wave, gauge-to-gauge speed."""
+    """Bars together: relative channel scale and contact check.
+
+    A shot with no specimen: transmitted/incident ratio, residual reflected wave, gauge-to-gauge speed."""
     from .. import calibrate as C
     from .. import calibration_files as CF
 
@@ -343,22 +357,26 @@ def bars_together_cmd(
     _report(lines, cal_file, fig_path, apply_t, barset)
 
 
-@cal_app.command("striker")
+@cal_app.command("striker", cls=Command)
 def striker_cmd(
-    barset: Path = typer.Argument(..., help="Bar set (TOML) with a [striker] table."),
-    record: Path = typer.Argument(..., help="Record with the incident pulse (any shot with a clean plateau)."),
-    speed: str = typer.Option(..., help="Measured striker speed, e.g. '12.3 m/s'."),
-    speed_uncertainty: Optional[str] = typer.Option(None, help="Standard uncertainty of the speed, e.g. '0.1 m/s'."),
-    column: Optional[str] = typer.Option(None, help="Incident-gauge channel."),
-    time_column: Optional[str] = typer.Option(None, help=_TIME_HELP),
-    time_unit: str = typer.Option("s", help="Unit of the time column."),
-    sample_interval: Optional[str] = typer.Option(None, help=_DT_HELP),
-    calibration_file: Optional[Path] = typer.Option(None, help="(default: the bar set's)"),
-    apply: bool = typer.Option(False, "--apply/--check-only", help="Apply the incident scale (default: only record "
-                                                                   "the check)."),
-    figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure."),
+    barset: Path = barset_argument("Bar set (TOML) with a [striker] table."),
+    record: Path = typer.Argument(..., metavar="RECORD",
+                                  help=f"{_RECORD_HELP} with the incident pulse (any shot with a clean plateau)."),
+    speed: str = typer.Option(..., metavar=QUANTITY, help="Measured striker speed, e.g. '12.3 m/s'."),
+    speed_uncertainty: Optional[str] = typer.Option(None, metavar=QUANTITY,
+                                                    help="Standard uncertainty of the speed, e.g. '0.1 m/s'."),
+    column: Optional[str] = typer.Option(None, metavar=COLUMN, help="Incident-gauge channel."),
+    time_column: Optional[str] = typer.Option(None, metavar=COLUMN, help=_TIME_HELP),
+    time_unit: str = typer.Option("s", metavar="UNIT", help=_TIME_UNIT_HELP),
+    sample_interval: Optional[str] = typer.Option(None, metavar=QUANTITY, help=_DT_HELP),
+    calibration_file: Optional[Path] = typer.Option(None, metavar=FILE, help=_CAL_HELP),
+    apply: bool = typer.Option(False, "--apply/--check-only", help="Apply the incident scale, or only record the "
+                                                                   "check."),
+    figure: bool = figure_switch(),
 ):
-    """Striker check: measured incident plateau against (v / c_b) Z_s / (Z_s + Z_b)."""
+    """Striker check of the incident channel's scale.
+
+    The measured incident plateau against (v / c_b) Z_s / (Z_s + Z_b)."""
     from .. import calibrate as C
     from .. import calibration_files as CF
     from ..errors import InputError
@@ -399,26 +417,29 @@ def striker_cmd(
     _report(lines, cal_file, fig_path, apply_t, barset)
 
 
-@cal_app.command("shunt")
+@cal_app.command("shunt", cls=Command)
 def shunt_cmd(
-    barset: Path = typer.Argument(..., help="Bar set (TOML)."),
-    record: Path = typer.Argument(..., help="Record of the channel with the shunt switched once."),
-    bar: str = typer.Option("incident", help="Whose gauge channel: incident or transmitted."),
-    shunt: str = typer.Option(..., help="Shunt resistance, e.g. '174.65 kohm'."),
-    gauge_resistance: str = typer.Option("350 ohm", help="Gauge (arm) resistance."),
-    column: Optional[str] = typer.Option(None, help="The channel."),
-    time_column: Optional[str] = typer.Option(None, help=_TIME_HELP),
-    time_unit: str = typer.Option("s", help="Unit of the time column."),
-    sample_interval: Optional[str] = typer.Option(None, help=_DT_HELP),
-    calibration_file: Optional[Path] = typer.Option(None, help="(default: the bar set's)"),
+    barset: Path = barset_argument(),
+    record: Path = typer.Argument(..., metavar="RECORD",
+                                  help=f"{_RECORD_HELP} of the channel with the shunt switched once."),
+    bar: BarName = bar_option(BarName.incident, "Whose gauge channel."),
+    shunt: str = typer.Option(..., metavar=QUANTITY, help="Shunt resistance, e.g. '174.65 kohm'."),
+    gauge_resistance: str = typer.Option("350 ohm", metavar=QUANTITY, help="Gauge (arm) resistance."),
+    column: Optional[str] = typer.Option(None, metavar=COLUMN, help="The channel."),
+    time_column: Optional[str] = typer.Option(None, metavar=COLUMN, help=_TIME_HELP),
+    time_unit: str = typer.Option("s", metavar="UNIT", help=_TIME_UNIT_HELP),
+    sample_interval: Optional[str] = typer.Option(None, metavar=QUANTITY, help=_DT_HELP),
+    calibration_file: Optional[Path] = typer.Option(None, metavar=FILE, help=_CAL_HELP),
     apply: bool = typer.Option(True, "--apply/--check-only", help="Apply the channel scale, or only record it."),
-    figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure."),
+    figure: bool = figure_switch(),
 ):
-    """Shunt calibration: the recorded step against the strain the shunt simulates, -Rg / (GF (Rg + Rs))."""
+    """Channel scale from a shunt step.
+
+    The recorded step against the strain the shunt simulates, -Rg / (GF (Rg + Rs))."""
     from .. import calibrate as C
     from .. import calibration_files as CF
 
-    bar = _bar_choice(bar)
+    bar = bar_value(bar)
     bs = _load_barset(barset)
     g = bs.incident_gauge if bar == "incident" else bs.transmitted_gauge
     rs, rg = _q(shunt, "resistance", "--shunt"), _q(gauge_resistance, "resistance", "--gauge-resistance")
@@ -440,8 +461,8 @@ def shunt_cmd(
     _report(lines, cal_file, fig_path, apply_t, barset)
 
 
-@cal_app.command("show")
-def show_cmd(barset: Path = typer.Argument(..., help="Bar set (TOML).")):
+@cal_app.command("show", cls=Command)
+def show_cmd(barset: Path = barset_argument()):
     """The calibration a reduction would use with this bar set."""
     from ..setup import load_barset
 

@@ -1,8 +1,10 @@
-"""``shpb dispersion``: phase and group velocity of a bar against frequency.
+"""``shpb dispersion [BARSET]``: phase and group velocity of a bar against frequency.
 
 Thin: parse the bar (from a bar-set file or explicit options), call
 :func:`shpb.dispersion.dispersion_table`, print a table, optionally write a
-CSV and a PNG figure (both written atomically).
+CSV and a PNG figure (both written atomically). numpy, pandas and the
+library modules are imported when the command runs, not when the parser is
+built.
 """
 
 from __future__ import annotations
@@ -10,14 +12,10 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Optional
 
-import numpy as np
-import pandas as pd
 import typer
 
-from .. import dispersion as _disp
-from ..errors import InputError
-from ..io import atomic_savefig, atomic_write_csv
-from ..units import to_si
+from .common import FILE, INTEGER, NUMBER, QUANTITY, BarName, Command, bar_option, bar_value, barset_argument, \
+    figure_file_option
 
 #: Rows of the CSV file and points of the figure.
 FILE_ROWS = 501
@@ -25,13 +23,14 @@ FILE_ROWS = 501
 
 def _bar_from_options(barset, bar, diameter, poisson, wave_speed):
     """Radius [m], Poisson ratio [1], wave speed [m/s]; explicit options win over the bar set."""
+    from ..errors import InputError
+    from ..units import to_si
+
     radius = nu = c0 = None
     if barset is not None:
         from ..setup import load_barset
 
         rig = load_barset(barset)
-        if bar not in ("incident", "transmitted"):
-            raise InputError(f"expected 'incident' or 'transmitted', got {bar!r}", "--bar")
         b = getattr(rig, bar)
         radius, nu, c0 = 0.5 * b.diameter, b.poisson_ratio, b.wave_speed
     if diameter is not None:
@@ -42,7 +41,7 @@ def _bar_from_options(barset, bar, diameter, poisson, wave_speed):
         c0 = to_si(wave_speed, "velocity", "--wave-speed")
     missing = [name for name, v in (("--diameter", radius), ("--poisson", nu), ("--wave-speed", c0)) if v is None]
     if missing:
-        raise InputError(f"missing {', '.join(missing)} (or give --barset FILE.toml)", "dispersion")
+        raise InputError(f"missing {', '.join(missing)} (or give a bar set: shpb dispersion BARSET)", "dispersion")
     checks = (("diameter", 2.0 * radius, diameter, "--diameter", "m"),
               ("wave_speed", c0, wave_speed, "--wave-speed", "m/s"))
     for key, value, option_value, option, unit in checks:
@@ -65,11 +64,17 @@ def _columns(table):
 
 
 def _write_csv(path, table):
+    import pandas as pd
+
+    from ..io import atomic_write_csv
+
     atomic_write_csv(path, pd.DataFrame(_columns(table)), float_format="%.10g")
 
 
 def _write_plot(path, table, title, onset_Hz):
     from matplotlib.figure import Figure  # no pyplot: no global state, Agg canvas
+
+    from ..io import atomic_savefig
 
     fig = Figure(figsize=(6.4, 4.2), layout="constrained")
     ax = fig.add_subplot()
@@ -88,22 +93,36 @@ def _write_plot(path, table, title, onset_Hz):
 def register(app: typer.Typer) -> None:
     """Add the ``dispersion`` command to ``app``."""
 
-    @app.command("dispersion")
+    @app.command("dispersion", cls=Command)
     def dispersion_command(
-        barset: Optional[Path] = typer.Option(None, "--barset", help="Bar-set TOML file to take the bar from."),
-        bar: str = typer.Option("incident", "--bar", help="Which bar of the bar set: incident or transmitted."),
-        diameter: Optional[str] = typer.Option(None, "--diameter", help="Bar diameter, e.g. '20 mm'."),
-        poisson: Optional[str] = typer.Option(None, "--poisson", help="Poisson ratio of the bar, e.g. 0.29."),
-        wave_speed: Optional[str] = typer.Option(None, "--wave-speed",
+        barset: Optional[Path] = barset_argument("Bar set (TOML) to take the bar from; or give the bar with "
+                                                 "--diameter, --poisson and --wave-speed.", optional=True),
+        bar: BarName = bar_option(BarName.incident, "Which bar of the bar set."),
+        diameter: Optional[str] = typer.Option(None, "--diameter", metavar=QUANTITY,
+                                               help="Bar diameter, e.g. '20 mm'."),
+        poisson: Optional[str] = typer.Option(None, "--poisson", metavar=NUMBER,
+                                              help="Poisson ratio of the bar, e.g. 0.29."),
+        wave_speed: Optional[str] = typer.Option(None, "--wave-speed", metavar=QUANTITY,
                                                  help="Bar wave speed c0, e.g. '5000 m/s' (measured if known)."),
         max_frequency: Optional[str] = typer.Option(
-            None, "--max-frequency", help="Highest frequency, e.g. '300 kHz' (default: where a/wavelength = 1)."),
-        rows: int = typer.Option(21, "--rows", help="Rows of the printed table."),
-        csv: Optional[Path] = typer.Option(None, "--csv", help=f"Write a {FILE_ROWS}-row table to this CSV file."),
-        plot: Optional[Path] = typer.Option(None, "--plot", help="Write a figure to this PNG file."),
+            None, "--max-frequency", metavar=QUANTITY,
+            help="Highest frequency, e.g. '300 kHz' [default: where a/wavelength = 1]."),
+        rows: int = typer.Option(21, "--rows", metavar=INTEGER, help="Rows of the printed table."),
+        csv: Optional[Path] = typer.Option(None, "--csv", metavar=FILE,
+                                           help=f"Write a {FILE_ROWS}-row table to this CSV file."),
+        figure: Optional[Path] = figure_file_option(),
     ):
-        """Pochhammer-Chree phase and group velocity of the fundamental mode against frequency."""
-        radius, nu, c0 = _bar_from_options(barset, bar, diameter, poisson, wave_speed)
+        """Phase and group velocity of a bar against frequency.
+
+        Pochhammer-Chree, fundamental longitudinal mode: a printed table, and on request a CSV table and a
+        figure."""
+        import numpy as np
+
+        from .. import dispersion as _disp
+        from ..errors import InputError
+        from ..units import to_si
+
+        radius, nu, c0 = _bar_from_options(barset, bar_value(bar), diameter, poisson, wave_speed)
         curve = _disp.normalized_curve(nu)
         if max_frequency is None:
             fmax = float(np.interp(1.0, curve.a_over_lambda, curve.frequency)) * c0 / radius
@@ -127,12 +146,12 @@ def register(app: typer.Typer) -> None:
         typer.echo("  ".join(f"{name:>22}" for name in cols))
         for i in range(rows):
             typer.echo("  ".join(f"{cols[name][i]:>22.6g}" for name in cols))
-        if csv is not None or plot is not None:
+        if csv is not None or figure is not None:
             full = _disp.dispersion_table(radius, c0, nu, fmax, n=FILE_ROWS)
             if csv is not None:
                 _write_csv(csv, full)
                 typer.echo(f"wrote {csv}")
-            if plot is not None:
+            if figure is not None:
                 title = f"bar d = {2e3 * radius:.2f} mm, c0 = {c0:.0f} m/s, ν = {nu:g}"
-                _write_plot(plot, full, title, onset)
-                typer.echo(f"wrote {plot}")
+                _write_plot(figure, full, title, onset)
+                typer.echo(f"wrote {figure}")

@@ -7,20 +7,26 @@ from typing import Optional
 
 import typer
 
+from .common import Command, figure_switch, out_option
+
 
 def register(app: typer.Typer) -> None:
-    @app.command("reduce")
+    @app.command("reduce", cls=Command)
     def reduce_cmd(
-        shot: Path = typer.Argument(..., help="Shot setup file (TOML)."),
-        out: Optional[Path] = typer.Option(None, "--out", "-o",
-                                           help="Output folder (default: results/<shot name> beside the shot file)."),
+        shot: Path = typer.Argument(..., metavar="SHOT", help="Shot setup file (TOML)."),
+        out: Optional[Path] = out_option("results/<shot name> beside the shot file"),
         dispersion: Optional[bool] = typer.Option(None, "--dispersion/--no-dispersion",
-                                                  help="Pochhammer–Chree correction (default: as the shot file says; on)."),
-        stress: Optional[str] = typer.Option(None, help="Reported stress: 1-wave, 2-wave or 3-wave."),
-        figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure sheet."),
+                                                  help="Pochhammer-Chree correction [default: as the shot file "
+                                                       "says; on]."),
+        stress: Optional[str] = typer.Option(None, "--stress", metavar="FORM",
+                                             help="Reported stress: 1-wave, 2-wave or 3-wave [default: as the "
+                                                  "shot file says]."),
+        figure: bool = figure_switch("Write the PNG figure sheet."),
     ):
-        """Reduce one shot: bridge volts -> strains at the specimen faces -> stress, strain, strain rate,
-        equilibrium and yield checks. Writes curves.csv, summary.json and shot.png."""
+        """Reduce one shot to stress-strain curves and validity checks.
+
+        Bridge volts -> strains at the specimen faces -> stress, strain, strain rate, equilibrium and yield
+        checks. Writes curves.csv, summary.json and shot.png."""
         from ..reduce import reduce_file
         from ..setup import STRESS_CHOICES
 

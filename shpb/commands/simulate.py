@@ -7,22 +7,26 @@ from typing import Optional
 
 import typer
 
+from .common import Command, figure_switch, out_option
+
 SAFETY = ("caution: this tool does not replace the laboratory's safety rules, its gas-gun procedures or its "
           "own limits for bars, strikers and specimens; a virtual shot is not a clearance to fire.")
 
 
 def register(app: typer.Typer) -> None:
-    @app.command("simulate")
+    @app.command("simulate", cls=Command)
     def simulate_cmd(
-        setup: Path = typer.Argument(..., help="Simulation setup file (TOML, see docs/simulation.md)."),
-        out: Optional[Path] = typer.Option(None, "--out", "-o",
-                                           help="Output folder [default: <setup name> beside the setup file]."),
+        setup: Path = typer.Argument(..., metavar="SETUP",
+                                     help="Simulation setup file (TOML, see docs/simulation.md)."),
+        out: Optional[Path] = out_option("<setup name> beside the setup file"),
         allow_bar_yield: bool = typer.Option(False, "--allow-bar-yield",
                                              help="Simulate even if the planned bar stress reaches the bar's "
                                                   "yield strength."),
-        figure: bool = typer.Option(True, "--figure/--no-figure", help="Write the PNG figure."),
+        figure: bool = figure_switch(),
     ):
-        """Simulate a shot with the 1-D wave model and record it as a scope would: writes <name>.csv (record),
+        """Simulate a shot and record it as a scope would.
+
+        The 1-D wave model of striker, bars and specimen; writes <name>.csv (record),
         for a specimen shot <name>.toml (ready-to-reduce shot file) and <name>_truth.csv (specimen truth),
         and <name>.png."""
         from ..simulate import plan_shot
