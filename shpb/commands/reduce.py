@@ -21,6 +21,10 @@ def register(app: typer.Typer) -> None:
         stress: Optional[str] = typer.Option(None, "--stress", metavar="FORM",
                                              help="Reported stress: 1-wave, 2-wave or 3-wave [default: as the "
                                                   "shot file says]."),
+        settings: list[str] = typer.Option([], "--set", metavar="KEY=VALUE",
+                                           help="Override any [analysis] key of the shot file, e.g. --set "
+                                                "window_length='120 us' or --set equilibrium_threshold=0.03; "
+                                                "repeatable (keys: docs/setup-files.md)."),
         figure: bool = figure_switch("Write the PNG figure sheet."),
     ):
         """Reduce one shot to stress-strain curves and validity checks.
@@ -28,18 +32,17 @@ def register(app: typer.Typer) -> None:
         Bridge volts -> strains at the specimen faces -> stress, strain, strain rate, equilibrium and yield
         checks. Writes curves.csv, summary.json and shot.png."""
         from ..reduce import reduce_file
-        from ..setup import STRESS_CHOICES
+        from ..schema import find_key, parse_assignment
+        from ..setup import load_shot
 
         changes = {}
+        for text in settings:
+            key, value = parse_assignment(text)
+            changes[key.name] = value
         if dispersion is not None:
             changes["dispersion"] = dispersion
         if stress is not None:
-            if stress not in STRESS_CHOICES:
-                from ..errors import InputError
-
-                raise InputError(f"expected one of {', '.join(STRESS_CHOICES)}, got {stress!r}", "--stress")
-            changes["stress"] = stress
-        from ..setup import load_shot
+            changes["stress"] = find_key("analysis", "stress").parse(stress, "--stress")
 
         name = load_shot(shot).name
         out_dir = out or shot.parent / "results" / name
