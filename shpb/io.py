@@ -12,16 +12,13 @@ import hashlib
 import io as _io
 import json
 import os
-import tempfile
+import secrets
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from .errors import InputError
-
-_UMASK = os.umask(0)
-os.umask(_UMASK)
 
 TEXT_SUFFIXES = {".csv", ".txt", ".dat", ".tsv", ".asc", ".prn"}
 
@@ -287,17 +284,36 @@ def _uniform_dt(t, where, column):
 
 
 # --------------------------------------------------------------------------- atomic writes
+def _create_temporary(path: Path):
+    """Open a new temporary file beside ``path``: (file descriptor, its path).
+
+    The file is created with mode 0o666, from which the kernel removes the
+    process umask, so the output gets the usual mode of a new file (as
+    ``open(path, "w")`` would give) without reading or changing the umask,
+    which is process-wide state.
+    """
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0)
+    while True:
+        tmp = path.parent / f".{path.name}.{secrets.token_hex(6)}.tmp"
+        try:
+            return os.open(tmp, flags, 0o666), tmp
+        except FileExistsError:  # another writer drew the same name: draw again
+            continue
+
+
 def atomic_write_bytes(path, data: bytes) -> None:
-    """Write ``data`` to ``path`` atomically (temporary file in the same folder, then rename)."""
+    """Write ``data`` to ``path`` atomically (temporary file in the same folder, then rename).
+
+    The file gets the mode a newly created file gets (0o666 less the umask).
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    fd, tmp = _create_temporary(path)
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
-        os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes files private (0600); give the usual mode
         os.replace(tmp, path)
     except BaseException:
         try:

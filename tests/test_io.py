@@ -123,3 +123,48 @@ def test_atomic_write_leaves_no_temporary(tmp_path):
     atomic_write_text(target, "hello")
     assert target.read_text() == "hello"
     assert [f.name for f in target.parent.iterdir()] == ["x.txt"]
+
+
+def _run_python(code):
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    return done.stdout
+
+
+@pytest.mark.parametrize("umask", [0o022, 0o027, 0o077])
+def test_atomic_write_gives_the_mode_of_a_new_file(tmp_path, umask):
+    # POSIX open(): a new file's mode is the requested mode less the process umask (IEEE Std 1003.1-2017,
+    # open() and umask()); an ordinary open(path, "w") asks for 0o666, so the atomic output must match it.
+    out = _run_python(f"""
+import os, stat
+os.umask({umask:#o})
+from shpb.io import atomic_write_text
+atomic_write_text({str(tmp_path / 'atomic.txt')!r}, "x")
+with open({str(tmp_path / 'plain.txt')!r}, "w") as fh:
+    fh.write("x")
+print(oct(stat.S_IMODE(os.stat({str(tmp_path / 'atomic.txt')!r}).st_mode)),
+      oct(stat.S_IMODE(os.stat({str(tmp_path / 'plain.txt')!r}).st_mode)))
+""")
+    atomic, plain = out.split()
+    assert atomic == plain == oct(0o666 & ~umask)
+
+
+def test_importing_the_package_leaves_the_umask_alone():
+    # A library must not change process-wide state on import (common practice): the umask is shared by every
+    # thread, so even a brief umask(0) lets files another thread creates meanwhile come out world-writable.
+    out = _run_python("""
+import os
+calls = []
+real = os.umask
+os.umask = lambda mask: calls.append(mask) or real(mask)
+real(0o027)
+import shpb, shpb.io, shpb.setup, shpb.reduce, shpb.report, shpb.virtual, shpb.campaign, shpb.fit
+import shpb.calibration_files
+os.umask = real
+now = real(0o022)
+print(len(calls), oct(now))
+""")
+    assert out.split() == ["0", oct(0o027)]
