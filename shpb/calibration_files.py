@@ -52,21 +52,6 @@ def read_calibration(path) -> list:
     return entries
 
 
-def toml_clean(obj):
-    """Numpy scalars/arrays to plain values; None dropped (TOML has no null)."""
-    if isinstance(obj, dict):
-        return {str(k): toml_clean(v) for k, v in obj.items() if v is not None}
-    if isinstance(obj, (list, tuple, np.ndarray)):
-        return [toml_clean(v) for v in (obj.tolist() if isinstance(obj, np.ndarray) else obj) if v is not None]
-    if isinstance(obj, (np.bool_, bool)):
-        return bool(obj)
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.floating, float)):
-        return float(obj)
-    return obj
-
-
 def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, apply=None, settings=None,
                       figure=None, date=None) -> dict:
     """One calibration entry (a mapping ready for TOML).
@@ -93,7 +78,7 @@ def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, appl
     """
     import datetime
 
-    from .io import sha256_file
+    from .io import sha256_file, to_plain
 
     if date is None:
         date = datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
@@ -115,7 +100,8 @@ def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, appl
                 raise ValueError(f"unknown apply key {k!r}")
     entry = {"date": date, "kind": kind, "bar": bar, "inputs": files, "figure": figure,
              "apply": apply or {}, "results": results, "settings": settings or {}}
-    return toml_clean(entry)
+    # TOML has no null: None is left out; NaN (e.g. an uncertainty not estimated) is kept, TOML writes nan
+    return to_plain(entry, nonfinite="keep", none="omit")
 
 
 def append_calibration(path, entry) -> None:

@@ -29,7 +29,6 @@ Nothing is lost and nothing is half written:
 from __future__ import annotations
 
 import csv
-import dataclasses
 import hashlib
 import io as _io
 import json
@@ -47,7 +46,8 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, ShpbError
-from .io import is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
+from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file,
+                 to_plain)
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
 from .units import to_si
@@ -588,20 +588,6 @@ def _package_version() -> str:
     return shpb.__version__
 
 
-def _plain(obj, base_dir: Path):
-    """Dataclasses, paths and tuples as JSON-ready values; paths relative to ``base_dir``."""
-    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
-        return {f.name: _plain(getattr(obj, f.name), base_dir) for f in dataclasses.fields(obj)
-                if f.name != "source"}  # where the setup was read from does not change the result
-    if isinstance(obj, dict):
-        return {str(k): _plain(v, base_dir) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_plain(v, base_dir) for v in obj]
-    if isinstance(obj, Path):
-        return _rel(obj, base_dir)
-    return obj
-
-
 def _rel(path, base_dir: Path) -> str:
     try:
         return Path(os.path.relpath(Path(path), base_dir)).as_posix()
@@ -636,7 +622,8 @@ def shot_key(shot: Shot, record_hashes: dict, base_dir) -> str:
     base_dir = Path(base_dir)
     payload = {
         "package_version": _package_version(),
-        "setup": _plain(shot, base_dir),
+        # where the setup was read from ("source") does not change the result; NaN kept as JSON's NaN
+        "setup": to_plain(shot, nonfinite="keep", path=lambda p: _rel(p, base_dir), skip_fields={"source"}),
         "records": {_rel(p, base_dir): h for p, h in sorted(record_hashes.items())},
     }
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"), default=str)

@@ -33,10 +33,9 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .calibration_files import toml_clean
 from .errors import AnalysisError, InputError
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
-from .io import jsonable, atomic_write_bytes, atomic_write_csv, atomic_write_text
+from .io import atomic_write_bytes, atomic_write_csv, atomic_write_text, to_plain
 from .units import to_si
 
 __all__ = [
@@ -1421,7 +1420,7 @@ def fit_to_dict(result):
            "success": result.success, "message": result.message}
     if result.staged is not None:
         out["staged"] = _result_dict(result.staged)
-    return jsonable(out)
+    return to_plain(out)
 
 
 def _toml_dict(result):
@@ -1438,8 +1437,9 @@ def _toml_dict(result):
         s = _result_dict(result.staged)
         out["staged"] = {"parameters": {k: v["value"] for k, v in s["parameters"].items()},
                          "statistics": s["statistics"], "notes": s["notes"]}
-    # TOML has no null: NaN/inf (e.g. R² of a flat curve, T_m = inf) become None, then are left out
-    return toml_clean(jsonable(out))
+    # TOML has no null: None, NaN and inf (e.g. R² of a flat curve, T_m = inf) are left out, so that a
+    # simulation input deck reading this file meets only finite numbers
+    return to_plain(out, nonfinite="omit", none="omit")
 
 
 def _default_flow_strain(result):

@@ -168,3 +168,41 @@ now = real(0o022)
 print(len(calls), oct(now))
 """)
     assert out.split() == ["0", oct(0o027)]
+
+
+def test_to_plain_for_json_and_toml(tmp_path):
+    # JSON has no NaN or infinity (RFC 8259, sec. 6) and TOML no null but nan and inf floats (TOML 1.0.0,
+    # "Float"); the standard library's json and tomllib, and tomli_w, are the reference readers and writer.
+    import dataclasses
+    import json
+    from pathlib import Path
+
+    import tomli_w
+
+    try:
+        import tomllib
+    except ModuleNotFoundError:  # Python 3.10
+        import tomli as tomllib
+
+    from shpb.io import to_plain
+
+    @dataclasses.dataclass(frozen=True)
+    class Part:
+        name: str
+        where: Path
+        source: str = "ignored"
+
+    value = {"a": np.float32(1.5), "n": np.int64(3), "flag": np.bool_(True), "bad": float("nan"),
+             "big": np.inf, "none": None, "arr": np.array([1.0, np.nan]), "pair": (1, 2), 7: "int key",
+             "part": Part("x", Path("d") / "f.csv")}
+    as_json = json.loads(json.dumps(to_plain(value), allow_nan=False))
+    assert as_json == {"a": 1.5, "n": 3, "flag": True, "bad": None, "big": None, "none": None, "arr": [1.0, None],
+                       "pair": [1, 2], "7": "int key", "part": {"name": "x", "where": str(Path("d/f.csv")),
+                                                               "source": "ignored"}}
+    kept = tomllib.loads(tomli_w.dumps(to_plain(value, nonfinite="keep", none="omit", skip_fields={"source"},
+                                                path=lambda p: p.as_posix())))
+    assert np.isnan(kept.pop("bad")) and kept.pop("big") == float("inf") and np.isnan(kept["arr"].pop())
+    assert kept == {"a": 1.5, "n": 3, "flag": True, "arr": [1.0], "pair": [1, 2], "7": "int key",
+                    "part": {"name": "x", "where": "d/f.csv"}}
+    left_out = tomllib.loads(tomli_w.dumps(to_plain(value, nonfinite="omit", none="omit")))
+    assert "bad" not in left_out and "big" not in left_out and "none" not in left_out and left_out["arr"] == [1.0]
