@@ -70,9 +70,10 @@ class ShotResult:
         out.mkdir(parents=True, exist_ok=True)
         atomic_write_csv(out / CURVES_FILE, self.curves)
         if figure and self.traces:
-            from .report import shot_sheet
+            from .io import atomic_savefig
+            from .report import plot_shot
 
-            shot_sheet(self, out / FIGURE_FILE)
+            atomic_savefig(plot_shot(self), out / FIGURE_FILE, dpi=110)
         # the summary last: its presence marks a complete result folder
         atomic_write_json(out / SUMMARY_FILE, self.summary)
         return out
