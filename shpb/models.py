@@ -69,7 +69,7 @@ def johnson_cook(
     plastic_strain : array_like
         Equivalent (true) plastic strain, ε_p ≥ 0 [1].
     strain_rate : array_like
-        Plastic strain rate, > 0 [1/s].
+        Plastic strain rate, > 0 [1/s] (≥ 0 with a positive ``rate_floor``).
     temperature : array_like or None
         Temperature [K]; None: at room temperature, no thermal term (``m``
         and ``melt_temperature`` unused).
@@ -109,10 +109,10 @@ def johnson_cook(
     Rates below the reference rate (decided here, for every caller). The
     published law [1] has no lower limit: for ε̇ < ε̇0 the rate factor
     ``1 + C ln(ε̇/ε̇0)`` falls below 1, and it tends to −∞ as ε̇ → 0. That is
-    the default (``rate_floor=None``) and what the fitter uses: quasi-static
-    curves below ε̇0 (e.g. 0.001 1/s against ε̇0 = 1 1/s) carry information
-    on C only through this unclipped form, and a fit usually takes ε̇0 at or
-    below its slowest data anyway. A caller that must evaluate the law at
+    the default (``rate_floor=None``) and what the fitter uses: a
+    quasi-static curve slower than ε̇0 (e.g. 0.001 1/s against ε̇0 = 1 1/s)
+    tells the fit about C only through this unclipped form (with a floor it
+    would be read as a curve at ε̇0). A caller that must evaluate the law at
     rates down to zero sets ``rate_floor``; with ``rate_floor =
     reference_rate`` there is no rate effect below ε̇0 and the quasi-static
     strength is ``(A + B ε_p^n)(1 − T*^m)``. Finite-element codes commonly do
