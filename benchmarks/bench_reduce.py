@@ -24,7 +24,8 @@ from timing import median_time  # noqa: E402  (benchmarks/timing.py)
 from synth import elastic_perfectly_plastic, make_shot  # noqa: E402
 
 from shpb.reduce import reduce_shot  # noqa: E402
-from shpb.report import shot_sheet  # noqa: E402
+from shpb.io import atomic_savefig  # noqa: E402
+from shpb.report import plot_shot  # noqa: E402
 from shpb.setup import load_shot, with_analysis  # noqa: E402
 
 
@@ -48,7 +49,7 @@ def main(argv=None):
             s = with_analysis(shot, dispersion=disp)
             rows[disp] = median_time(lambda: reduce_shot(s), a.repeats)
         res = reduce_shot(shot)
-        t_fig = median_time(lambda: shot_sheet(res, Path(tmp) / "fig.png"), 1)
+        t_fig = median_time(lambda: atomic_savefig(plot_shot(res), Path(tmp) / "fig.png", dpi=110), 1)
     print(f"record: {a.samples} samples x 3 columns, {size_mb:.0f} MB of text")
     print(f"pandas.read_csv alone:             {t_pandas:.3f} s")
     for disp, t in rows.items():

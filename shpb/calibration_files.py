@@ -2,16 +2,20 @@
 
 :mod:`shpb.calibrate` holds the pure calibration methods (wave speed, bars
 together, striker check, shunt calibration). This module holds what touches
-files or draws: where a bar set's calibration file lies
-(:func:`calibration_path`), reading it (:func:`read_calibration`), building
-and appending entries (:func:`calibration_entry`,
+files or draws, and it alone knows the calibration-file format (described in
+``docs/calibration.md``): where a bar set's calibration file lies
+(:func:`calibration_path`), reading it (:func:`read_calibration`), validating
+it and finding the latest value of each quantity (:func:`latest_values`,
+which :func:`shpb.setup.apply_calibration_file` applies to a bar set),
+building and appending entries (:func:`calibration_entry`,
 :func:`append_calibration`), naming an entry's figure (:func:`figure_name`)
-and the figures of each calibration (``plot_*``). :func:`shpb.setup.load_barset`
-applies the latest entries (format in ``docs/calibration.md``).
+and the figures of each calibration (``plot_*``, each returning a
+``matplotlib.figure.Figure``; matplotlib is imported only when one is drawn).
 """
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import numpy as np
@@ -27,7 +31,7 @@ APPLY_KEYS = ("wave_speed_m_per_s", "scale", "scale_relative_to_incident")
 
 def calibration_path(barset_path) -> Path:
     """The calibration file of a bar set: its ``calibration_file`` key, else ``<stem>.calibration.toml`` beside it."""
-    from .setup import read_toml
+    from .setup import read_toml  # lazy: setup imports this module lazily too
 
     barset_path = Path(barset_path)
     data = read_toml(barset_path)
@@ -41,30 +45,80 @@ def calibration_path(barset_path) -> Path:
 
 def read_calibration(path) -> list:
     """The entries of a calibration file, oldest first (empty when the file does not exist)."""
-    from .setup import read_toml
-
     path = Path(path)
     if not path.is_file():
         return []
+    return _entries(path)
+
+
+def _entries(path: Path) -> list:
+    from .setup import read_toml  # lazy: setup imports this module lazily too
+
     entries = read_toml(path).get("calibration", [])
     if not isinstance(entries, list):
         raise InputError("expected [[calibration]] entries", str(path))
     return entries
 
 
-def toml_clean(obj):
-    """Numpy scalars/arrays to plain values; None dropped (TOML has no null)."""
-    if isinstance(obj, dict):
-        return {str(k): toml_clean(v) for k, v in obj.items() if v is not None}
-    if isinstance(obj, (list, tuple, np.ndarray)):
-        return [toml_clean(v) for v in (obj.tolist() if isinstance(obj, np.ndarray) else obj) if v is not None]
-    if isinstance(obj, (np.bool_, bool)):
-        return bool(obj)
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.floating, float)):
-        return float(obj)
-    return obj
+def latest_values(path) -> dict:
+    """What a calibration file applies: per bar and quantity, the value of the latest entry giving it.
+
+    For each quantity (each bar's wave speed, each gauge's scale) the last
+    entry in the file whose ``[calibration.apply.<bar>]`` table gives it wins
+    ("latest" is last in the file: entries are appended in time order). The
+    file is validated on the way: every entry must be a table whose
+    ``apply`` table maps ``incident``/``transmitted`` to keys of
+    :data:`APPLY_KEYS` with positive finite numbers.
+
+    Parameters
+    ----------
+    path : str or Path
+        The calibration file (it must exist).
+
+    Returns
+    -------
+    dict
+        ``{(bar, quantity): record}`` with ``bar`` ``"incident"`` or
+        ``"transmitted"`` and ``quantity`` ``"wave_speed_m_per_s"`` [m/s] or
+        ``"scale"`` [1]. A record is a dict: ``value``, ``entry`` (index in
+        the file), ``date`` (str or None), ``kind``, ``inputs`` (files with
+        their SHA-256) and, for a scale given relative to the incident
+        channel's (``scale_relative_to_incident``, from a bars-together
+        shot), ``relative_to_incident`` = ``value`` = that ratio: the caller
+        multiplies it by the incident scale in effect.
+
+    Raises
+    ------
+    InputError
+        Missing or malformed file, unknown bar or key, a value that is not a
+        positive number; the message names the file and the entry.
+    """
+    path = Path(path)
+    where = str(path)
+    entries = _entries(path)
+    latest = {}
+    for i, e in enumerate(entries):
+        if not isinstance(e, dict) or not isinstance(e.get("apply", {}), dict):
+            raise InputError("expected a table with an 'apply' table", f"{where}: calibration[{i}]")
+        for bar_name, table in e.get("apply", {}).items():
+            if bar_name not in ("incident", "transmitted") or not isinstance(table, dict):
+                raise InputError(f"expected [calibration.apply.incident] or .transmitted, got {bar_name!r}",
+                                 f"{where}: calibration[{i}].apply")
+            for key, value in table.items():
+                if key not in APPLY_KEYS:
+                    raise InputError(f"unknown key {key!r} (expected one of: {', '.join(APPLY_KEYS)})",
+                                     f"{where}: calibration[{i}].apply.{bar_name}")
+                if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0 \
+                        or not math.isfinite(value):
+                    raise InputError(f"expected a positive number, got {value!r}",
+                                     f"{where}: calibration[{i}].apply.{bar_name}.{key}")
+                date = e.get("date")  # a hand-edited file may hold a TOML datetime: keep the summary JSON-able
+                record = {"value": float(value), "entry": i, "date": None if date is None else str(date),
+                          "kind": e.get("kind"), "inputs": e.get("inputs", [])}
+                if key == "scale_relative_to_incident":
+                    record["relative_to_incident"] = float(value)
+                latest[(bar_name, "scale" if key.startswith("scale") else key)] = record
+    return latest
 
 
 def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, apply=None, settings=None,
@@ -93,7 +147,7 @@ def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, appl
     """
     import datetime
 
-    from .io import sha256_file
+    from .io import sha256_file, to_plain
 
     if date is None:
         date = datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
@@ -115,7 +169,8 @@ def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, appl
                 raise ValueError(f"unknown apply key {k!r}")
     entry = {"date": date, "kind": kind, "bar": bar, "inputs": files, "figure": figure,
              "apply": apply or {}, "results": results, "settings": settings or {}}
-    return toml_clean(entry)
+    # TOML has no null: None is left out; NaN (e.g. an uncertainty not estimated) is kept, TOML writes nan
+    return to_plain(entry, nonfinite="keep", none="omit")
 
 
 def append_calibration(path, entry) -> None:

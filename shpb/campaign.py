@@ -29,7 +29,6 @@ Nothing is lost and nothing is half written:
 from __future__ import annotations
 
 import csv
-import dataclasses
 import hashlib
 import io as _io
 import json
@@ -48,7 +47,8 @@ import pandas as pd
 
 from .errors import InputError, ShpbError
 from .reduce import ShotResult
-from .io import is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file
+from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file,
+                 to_plain)
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
 from . import schema
@@ -566,20 +566,6 @@ def _package_version() -> str:
     return shpb.__version__
 
 
-def _plain(obj, base_dir: Path):
-    """Dataclasses, paths and tuples as JSON-ready values; paths relative to ``base_dir``."""
-    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
-        return {f.name: _plain(getattr(obj, f.name), base_dir) for f in dataclasses.fields(obj)
-                if f.name != "source"}  # where the setup was read from does not change the result
-    if isinstance(obj, dict):
-        return {str(k): _plain(v, base_dir) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_plain(v, base_dir) for v in obj]
-    if isinstance(obj, Path):
-        return _rel(obj, base_dir)
-    return obj
-
-
 def _rel(path, base_dir: Path) -> str:
     try:
         return Path(os.path.relpath(Path(path), base_dir)).as_posix()
@@ -614,7 +600,8 @@ def shot_key(shot: Shot, record_hashes: dict, base_dir) -> str:
     base_dir = Path(base_dir)
     payload = {
         "package_version": _package_version(),
-        "setup": _plain(shot, base_dir),
+        # where the setup was read from ("source") does not change the result; NaN kept as JSON's NaN
+        "setup": to_plain(shot, nonfinite="keep", path=lambda p: _rel(p, base_dir), skip_fields={"source"}),
         "records": {_rel(p, base_dir): h for p, h in sorted(record_hashes.items())},
     }
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"), default=str)
@@ -1168,24 +1155,35 @@ def repeatability_table(table: pd.DataFrame, strain: float) -> pd.DataFrame:
     return pd.DataFrame(out, columns=cols)
 
 
-def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, folder) -> dict:
-    """Overlay figures of a campaign (PNG, written atomically).
+def _shots_for_figures(table: pd.DataFrame):
+    """The successful shots of a campaign table and their materials (sorted; ``[""]`` when there are none)."""
+    ok = table[table["status"] == OK]
+    return ok, sorted(ok["material"].astype(str).unique()) or [""]
 
-    ``stress_strain.png``: valid parts of the valid shots, one panel per
-    material, coloured by mean strain rate (log colour scale, colour bar).
-    ``rate_sensitivity.png``: flow stress at ``campaign.rate_plot_strain``
-    against mean strain rate on a log axis; each repeat a point, each rate
-    group its mean with +/- one standard deviation. ``repeatability.png``:
-    per material and rate group, each repeat's deviation from the group mean
-    [%].
+
+def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
+    """Overlay of the valid parts of the valid shots, one panel per material, coloured by mean strain rate.
+
+    Parameters
+    ----------
+    campaign : Campaign
+        The campaign (its name titles the figure).
+    table : DataFrame
+        The campaign table (``status``, ``material``, ``id``, ``mean_strain_rate_per_s``).
+    curves : dict
+        Shot id -> (engineering strain [1], engineering stress [MPa]) of its valid part.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Log colour scale of the mean strain rate with a colour bar; built
+        without pyplot.
     """
     import matplotlib
     from matplotlib import cm, colors
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
 
-    folder = Path(folder)
-    ok = table[table["status"] == OK]
-    mats = sorted(ok["material"].astype(str).unique()) or [""]
+    ok, mats = _shots_for_figures(table)
     rates = ok["mean_strain_rate_per_s"].to_numpy(float)
     finite = rates[np.isfinite(rates) & (rates > 0)]
     lo, hi = (finite.min(), finite.max()) if finite.size else (1.0, 10.0)
@@ -1193,9 +1191,6 @@ def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, fold
         lo, hi = lo / 1.2, hi * 1.2
     norm = colors.LogNorm(vmin=lo, vmax=hi)
     cmap = matplotlib.colormaps["viridis"]
-    files = {}
-
-    # 1. stress-strain overlays
     ncol = min(len(mats), 3)
     nrow = int(math.ceil(len(mats) / ncol))
     fig = Figure(figsize=(5.0 * ncol + 1.2, 4.0 * nrow), constrained_layout=True)
@@ -1214,10 +1209,19 @@ def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, fold
     sm = cm.ScalarMappable(norm=norm, cmap=cmap)
     fig.colorbar(sm, ax=axes, label="mean strain rate [1/s]")
     fig.suptitle(f"{campaign.name}: valid parts of the valid shots")
-    files["stress_strain_png"] = folder / "stress_strain.png"
-    atomic_savefig(fig, files["stress_strain_png"], dpi=110)
+    return fig
 
-    # 2. rate sensitivity
+
+def plot_rate_sensitivity(campaign: Campaign, table: pd.DataFrame):
+    """Flow stress at ``campaign.rate_plot_strain`` against mean strain rate (log axis).
+
+    Each repeat is a point, each rate group its mean with +/- one standard
+    deviation (:func:`repeatability_table`). Returns a
+    ``matplotlib.figure.Figure`` built without pyplot.
+    """
+    from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    ok, mats = _shots_for_figures(table)
     col = _flow_column(campaign.rate_plot_strain)
     rep = repeatability_table(table, campaign.rate_plot_strain)
     fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
@@ -1236,10 +1240,21 @@ def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, fold
     ax.grid(alpha=0.3, which="both")
     if len(ok):
         ax.legend(fontsize=8)
-    files["rate_sensitivity_png"] = folder / "rate_sensitivity.png"
-    atomic_savefig(fig, files["rate_sensitivity_png"], dpi=110)
+    return fig
 
-    # 3. repeatability: deviation of each repeat from its group mean
+
+def plot_repeatability(campaign: Campaign, table: pd.DataFrame):
+    """Per material and rate group, each repeat's deviation from the group mean flow stress [%].
+
+    Bars: +/- one standard deviation of the group (:func:`repeatability_table`
+    at ``campaign.rate_plot_strain``). Returns a ``matplotlib.figure.Figure``
+    built without pyplot.
+    """
+    from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    ok, _ = _shots_for_figures(table)
+    col = _flow_column(campaign.rate_plot_strain)
+    rep = repeatability_table(table, campaign.rate_plot_strain)
     fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
     ax = fig.subplots()
     labels = []
@@ -1256,6 +1271,27 @@ def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, fold
     ax.set(ylabel=f"deviation from group mean [%] (flow stress at {campaign.rate_plot_strain:g})",
            title=f"{campaign.name}: repeatability (bars: ± 1 std)")
     ax.grid(alpha=0.3, axis="y")
-    files["repeatability_png"] = folder / "repeatability.png"
-    atomic_savefig(fig, files["repeatability_png"], dpi=110)
+    return fig
+
+
+def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, folder) -> dict:
+    """Write the overlay figures of a campaign into ``folder`` (PNG, 110 dpi, each atomically).
+
+    ``stress_strain.png`` (:func:`plot_stress_strain`),
+    ``rate_sensitivity.png`` (:func:`plot_rate_sensitivity`),
+    ``repeatability.png`` (:func:`plot_repeatability`).
+
+    Returns
+    -------
+    dict
+        ``stress_strain_png``, ``rate_sensitivity_png``, ``repeatability_png`` -> Path.
+    """
+    folder = Path(folder)
+    drawings = {"stress_strain": lambda: plot_stress_strain(campaign, table, curves),
+                "rate_sensitivity": lambda: plot_rate_sensitivity(campaign, table),
+                "repeatability": lambda: plot_repeatability(campaign, table)}
+    files = {}
+    for name, draw in drawings.items():  # one figure in memory at a time
+        files[f"{name}_png"] = folder / f"{name}.png"
+        atomic_savefig(draw(), files[f"{name}_png"], dpi=110)
     return files

@@ -22,7 +22,6 @@ SI inside (Pa, 1/s, K); output keys and columns carry their unit.
 
 from __future__ import annotations
 
-import io
 import json
 import math
 import os
@@ -33,11 +32,10 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .calibration_files import toml_clean
 from .errors import AnalysisError, InputError
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
 from .reduce import ShotResult
-from .io import jsonable, atomic_write_bytes, atomic_write_csv, atomic_write_text
+from .io import atomic_savefig, atomic_write_csv, atomic_write_text, to_plain
 from .units import to_si
 
 __all__ = [
@@ -59,6 +57,7 @@ __all__ = [
     "fit_report",
     "fit_to_dict",
     "write_fit",
+    "plot_fit",
 ]
 
 #: Room temperature assumed where a shot gives none [K].
@@ -1412,7 +1411,7 @@ def fit_to_dict(result):
            "success": result.success, "message": result.message}
     if result.staged is not None:
         out["staged"] = _result_dict(result.staged)
-    return jsonable(out)
+    return to_plain(out)
 
 
 def _toml_dict(result):
@@ -1429,8 +1428,9 @@ def _toml_dict(result):
         s = _result_dict(result.staged)
         out["staged"] = {"parameters": {k: v["value"] for k, v in s["parameters"].items()},
                          "statistics": s["statistics"], "notes": s["notes"]}
-    # TOML has no null: NaN/inf (e.g. R² of a flat curve, T_m = inf) become None, then are left out
-    return toml_clean(jsonable(out))
+    # TOML has no null: None, NaN and inf (e.g. R² of a flat curve, T_m = inf) are left out, so that a
+    # simulation input deck reading this file meets only finite numbers
+    return to_plain(out, nonfinite="omit", none="omit")
 
 
 def _default_flow_strain(result):
@@ -1439,11 +1439,27 @@ def _default_flow_strain(result):
     return float(np.median(mids))
 
 
-def _figure(result, flow_strain):
-    """Figure sheet: data + fit per rate, residuals, rate sensitivity, parameters."""
-    from matplotlib import colormaps, colors, ticker
-    from matplotlib.figure import Figure
+def plot_fit(result, flow_strain=None):
+    """Figure sheet of a fit: data and fit per rate, residuals, rate sensitivity, parameters.
 
+    Parameters
+    ----------
+    result : FitResult
+        A fit.
+    flow_strain : float, optional
+        Plastic strain of the rate-sensitivity panel [1]; default the median
+        mid-range strain of the curves.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; :func:`write_fit` saves it as ``fit_sheet.png``.
+    """
+    from matplotlib import colormaps, colors, ticker
+    from matplotlib.figure import Figure  # no pyplot: no global state, the user's backend untouched
+
+    if flow_strain is None:
+        flow_strain = _default_flow_strain(result)
     fig = Figure(figsize=(12, 9), layout="constrained")
     ax_fit, ax_res, ax_rate, ax_txt = fig.subplots(2, 2).ravel()
     rates = [c.strain_rate for c in result.curves]
@@ -1485,9 +1501,7 @@ def _figure(result, flow_strain):
     ax_txt.axis("off")
     ax_txt.text(0.0, 1.0, fit_report(result, width=70), va="top", ha="left", family="monospace", fontsize=7.5,
                 transform=ax_txt.transAxes)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=110)
-    return buf.getvalue()
+    return fig
 
 
 def _residual_table(result):
@@ -1544,9 +1558,9 @@ def write_fit(result, out_dir, *, strain_rates=None, temperatures=None, plastic_
     atomic_write_csv(paths["curves"], table, float_format="%.8g")
     atomic_write_csv(paths["data"], _residual_table(result), float_format="%.8g")
     if figure:
-        fs = _default_flow_strain(result) if flow_strain is None else float(flow_strain)
         paths["figure"] = out / "fit_sheet.png"
-        atomic_write_bytes(paths["figure"], _figure(result, fs))
+        atomic_savefig(plot_fit(result, None if flow_strain is None else float(flow_strain)), paths["figure"],
+                       dpi=110)
     return paths
 
 

@@ -8,20 +8,19 @@ is written atomically: to a temporary file in the target folder, then renamed.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import io as _io
 import json
+import math
 import os
-import tempfile
+import secrets
 from dataclasses import dataclass, field
-from pathlib import Path
+from pathlib import Path, PurePath
 
 import numpy as np
 
 from .errors import InputError
-
-_UMASK = os.umask(0)
-os.umask(_UMASK)
 
 TEXT_SUFFIXES = {".csv", ".txt", ".dat", ".tsv", ".asc", ".prn"}
 
@@ -320,17 +319,36 @@ def _uniform_dt(t, where, column):
 
 
 # --------------------------------------------------------------------------- atomic writes
+def _create_temporary(path: Path):
+    """Open a new temporary file beside ``path``: (file descriptor, its path).
+
+    The file is created with mode 0o666, from which the kernel removes the
+    process umask, so the output gets the usual mode of a new file (as
+    ``open(path, "w")`` would give) without reading or changing the umask,
+    which is process-wide state.
+    """
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0)
+    while True:
+        tmp = path.parent / f".{path.name}.{secrets.token_hex(6)}.tmp"
+        try:
+            return os.open(tmp, flags, 0o666), tmp
+        except FileExistsError:  # another writer drew the same name: draw again
+            continue
+
+
 def atomic_write_bytes(path, data: bytes) -> None:
-    """Write ``data`` to ``path`` atomically (temporary file in the same folder, then rename)."""
+    """Write ``data`` to ``path`` atomically (temporary file in the same folder, then rename).
+
+    The file gets the mode a newly created file gets (0o666 less the umask).
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    fd, tmp = _create_temporary(path)
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
-        os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes files private (0600); give the usual mode
         os.replace(tmp, path)
     except BaseException:
         try:
@@ -347,7 +365,7 @@ def atomic_write_text(path, text: str) -> None:
 
 def atomic_write_json(path, obj) -> None:
     """Write JSON atomically (indented, NaN written as null)."""
-    atomic_write_text(path, json.dumps(jsonable(obj), indent=2, allow_nan=False) + "\n")
+    atomic_write_text(path, json.dumps(to_plain(obj), indent=2, allow_nan=False) + "\n")
 
 
 def atomic_write_csv(path, df, float_format="%.6g") -> None:
@@ -377,21 +395,70 @@ def atomic_savefig(fig, path, **kwargs) -> None:
     atomic_write_bytes(path, buf.getvalue())
 
 
+_OMIT = object()  # marks a value to_plain leaves out
+
+
+def to_plain(obj, *, nonfinite="null", none="keep", path=str, skip_fields=()):
+    """Plain Python values (dict, list, str, int, float, bool, None) for JSON or TOML output.
+
+    The one conversion of shpb's results into serialisable values: every JSON
+    and TOML writer goes through it.
+
+    Parameters
+    ----------
+    obj : object
+        Any nesting of mappings (keys become ``str``), lists, tuples and
+        numpy arrays (become lists), numpy scalars (become ``bool``, ``int``,
+        ``float``), paths and dataclass instances (become a mapping of their
+        fields). Other objects are returned unchanged.
+    nonfinite : {"null", "omit", "keep"}
+        What a NaN or infinite float becomes: ``"null"`` None (JSON's
+        ``null``); ``"omit"`` left out of its mapping or list; ``"keep"``
+        the float itself (TOML 1.0 writes ``nan`` and ``inf``).
+    none : {"keep", "omit"}
+        ``"omit"`` leaves None out of mappings and lists (TOML has no null).
+    path : callable
+        ``Path -> str``; default ``str``.
+    skip_fields : collection of str
+        Dataclass fields left out, at any depth.
+
+    Returns
+    -------
+    object
+        The plain value (None if ``obj`` itself is omitted).
+    """
+    if nonfinite not in ("null", "omit", "keep") or none not in ("keep", "omit"):
+        raise ValueError(f"unknown option nonfinite={nonfinite!r} or none={none!r}")
+
+    def plain(o):
+        if dataclasses.is_dataclass(o) and not isinstance(o, type):
+            o = {f.name: getattr(o, f.name) for f in dataclasses.fields(o) if f.name not in skip_fields}
+        if isinstance(o, dict):
+            items = ((str(k), plain(v)) for k, v in o.items())
+            return {k: v for k, v in items if v is not _OMIT}
+        if isinstance(o, np.ndarray):
+            o = o.tolist()
+        if isinstance(o, (list, tuple)):
+            return [v for v in map(plain, o) if v is not _OMIT]
+        if o is None:
+            return _OMIT if none == "omit" else None
+        if isinstance(o, PurePath):
+            return path(o)
+        if isinstance(o, (bool, np.bool_)):
+            return bool(o)
+        if isinstance(o, np.integer):
+            return int(o)
+        if isinstance(o, (float, np.floating)):
+            f = float(o)
+            if math.isfinite(f) or nonfinite == "keep":
+                return f
+            return plain(None) if nonfinite == "null" else _OMIT
+        return o
+
+    out = plain(obj)
+    return None if out is _OMIT else out
+
+
 def jsonable(obj):
-    """Make numpy scalars, paths and NaN JSON-friendly."""
-    if isinstance(obj, dict):
-        return {str(k): jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [jsonable(v) for v in obj]
-    if isinstance(obj, Path):
-        return str(obj)
-    if isinstance(obj, (np.bool_,)):
-        return bool(obj)
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        f = float(obj)
-        return f if np.isfinite(f) else None
-    if isinstance(obj, np.ndarray):
-        return jsonable(obj.tolist())
-    return obj
+    """JSON-ready values: :func:`to_plain` with NaN and infinity as null."""
+    return to_plain(obj)

@@ -54,6 +54,8 @@ def johnson_cook(
     reference_rate=1.0,
     room_temperature=293.15,
     melt_temperature=np.inf,
+    *,
+    rate_floor=None,
 ):
     r"""Johnson–Cook flow stress.
 
@@ -67,9 +69,10 @@ def johnson_cook(
     plastic_strain : array_like
         Equivalent (true) plastic strain, ε_p ≥ 0 [1].
     strain_rate : array_like
-        Plastic strain rate, > 0 [1/s].
-    temperature : array_like
-        Temperature [K].
+        Plastic strain rate, > 0 [1/s] (≥ 0 with a positive ``rate_floor``).
+    temperature : array_like or None
+        Temperature [K]; None: at room temperature, no thermal term (``m``
+        and ``melt_temperature`` unused).
     A : float
         Yield stress at the reference rate and room temperature [Pa].
     B : float
@@ -86,6 +89,11 @@ def johnson_cook(
         Reference (room) temperature T_r [K].
     melt_temperature : float
         Melting temperature T_m [K]; only needed when T ≠ T_r.
+    rate_floor : float or None
+        Lowest strain rate the rate term sees [1/s]: slower rates are raised
+        to it before the logarithm. None (default): no floor, the published
+        form. See Notes for when to set it (the virtual shot sets it to
+        ``reference_rate``).
 
     Returns
     -------
@@ -96,8 +104,22 @@ def johnson_cook(
     -----
     T* is clipped to [0, 1]: below T_r no thermal term is applied (the law is
     only defined for T ≥ T_r; :func:`shpb.fit.fit_curves` refuses such data),
-    at and above T_m the strength is zero. For ε̇ < ε̇0 the rate factor falls
-    below 1, as in the original form (no clipping here).
+    at and above T_m the strength is zero.
+
+    Rates below the reference rate (decided here, for every caller). The
+    published law [1] has no lower limit: for ε̇ < ε̇0 the rate factor
+    ``1 + C ln(ε̇/ε̇0)`` falls below 1, and it tends to −∞ as ε̇ → 0. That is
+    the default (``rate_floor=None``) and what the fitter uses: a
+    quasi-static curve slower than ε̇0 (e.g. 0.001 1/s against ε̇0 = 1 1/s)
+    tells the fit about C only through this unclipped form (with a floor it
+    would be read as a curve at ε̇0). A caller that must evaluate the law at
+    rates down to zero sets ``rate_floor``; with ``rate_floor =
+    reference_rate`` there is no rate effect below ε̇0 and the quasi-static
+    strength is ``(A + B ε_p^n)(1 − T*^m)``. Finite-element codes commonly do
+    this (from memory: the Johnson–Cook rate dependence of the Abaqus user's
+    manual takes the rate factor as 1 below ε̇0). :class:`shpb.simulate.JohnsonCookLaw`
+    does it, because the virtual shot's return mapping evaluates the flow
+    stress at zero plastic rate for its yield check (common practice).
 
     References
     ----------
@@ -112,9 +134,13 @@ def johnson_cook(
     """
     eps = np.asarray(plastic_strain, dtype=float)
     rate = np.asarray(strain_rate, dtype=float)
-    T = np.asarray(temperature, dtype=float)
+    if rate_floor is not None:
+        rate = np.maximum(rate, rate_floor)
     hardening = A + B * eps**n
     rate_factor = 1.0 + C * np.log(rate / reference_rate)
+    if temperature is None:
+        return hardening * rate_factor
+    T = np.asarray(temperature, dtype=float)
     t_star = np.clip((T - room_temperature) / (melt_temperature - room_temperature), 0.0, 1.0)
     return hardening * rate_factor * (1.0 - t_star**m)
 

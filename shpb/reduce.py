@@ -20,7 +20,6 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Optional
 
-import numpy as np
 import pandas as pd
 
 from . import __version__, kolsky, pulses, validity

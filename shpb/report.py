@@ -1,8 +1,12 @@
-"""Figures: the one-page sheet of a reduced shot.
+"""Figures: the one-page sheet of a reduced shot, the dispersion curves of a bar.
 
-Plotting lives at the edge: it reads a :class:`shpb.reduce.ShotResult` and
-writes a PNG atomically. Figures are built on ``matplotlib.figure.Figure``
-(not pyplot), so they need no screen and are safe in threaded workers.
+Plotting lives at the edge. The figure convention of the whole package: a
+``plot_*`` function takes a result (or data) and returns a
+``matplotlib.figure.Figure``; it writes no file and touches no pyplot state
+or backend. The figures are built on ``matplotlib.figure.Figure`` directly
+(not pyplot), so they need no screen, are safe in threaded workers and leave
+a notebook's backend alone. The caller writes a figure with
+:func:`shpb.io.atomic_savefig`.
 """
 
 from __future__ import annotations
@@ -10,12 +14,11 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure  # no pyplot: no global state, thread-safe, no screen needed
 
-
 _SEVERITY_MARK = {"error": "ERROR", "warning": "warning", "info": "note"}
 
 
-def plot_shot(result):
-    """The figure sheet of one shot (a Figure; nothing written).
+def plot_shot(result) -> Figure:
+    """The figure sheet of one shot (A4 landscape; :meth:`shpb.reduce.ShotResult.write` saves it at 110 dpi).
 
     Panels: raw bar strains at the gauges with the pulse windows; the waves
     moved to the specimen faces; face forces with the equilibrium factor
@@ -93,4 +96,32 @@ def plot_shot(result):
         lines += textwrap.wrap(f"{_SEVERITY_MARK.get(f.severity, f.severity)}: {f.message}", 70)
     ax.text(0, 1, "\n".join(lines), va="top", family="monospace", fontsize=8)
     fig.suptitle(f"shpb — shot {result.name} (curves for design need independent validation)", fontsize=10)
+    return fig
+
+
+def plot_dispersion(table, title, onset_Hz) -> Figure:
+    """Phase and group velocity of a bar's fundamental mode against frequency.
+
+    Parameters
+    ----------
+    table : mapping
+        :func:`shpb.dispersion.dispersion_table` output: ``frequency_Hz``,
+        ``phase_velocity_m_per_s``, ``group_velocity_m_per_s`` arrays.
+    title : str
+        Figure title (the bar).
+    onset_Hz : float
+        Frequency from which the second mode propagates [Hz]; marked when
+        inside the table's range.
+    """
+    fig = Figure(figsize=(6.4, 4.2), layout="constrained")
+    ax = fig.add_subplot()
+    f_kHz = table["frequency_Hz"] / 1e3
+    ax.plot(f_kHz, table["phase_velocity_m_per_s"], label="phase velocity")
+    ax.plot(f_kHz, table["group_velocity_m_per_s"], label="group velocity")
+    if onset_Hz <= table["frequency_Hz"][-1]:
+        ax.axvline(onset_Hz / 1e3, color="0.5", ls=":", label="second mode onset")
+    ax.set_xlabel("frequency [kHz]")
+    ax.set_ylabel("velocity [m/s]")
+    ax.set_title(title, fontsize="medium")
+    ax.legend()
     return fig

@@ -490,21 +490,18 @@ def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: 
     return barset
 
 
-#: Per-bar quantities a calibration entry may apply (``[calibration.apply.<bar>]``).
-_CAL_KEYS = ("wave_speed_m_per_s", "scale", "scale_relative_to_incident")
-
-
 def apply_calibration_file(barset: BarSet, path, explicit: Optional[dict] = None) -> BarSet:
     """Apply the latest calibration of a calibration file to a bar set.
 
-    The file (written by ``shpb calibrate``, format in ``docs/calibration.md``)
-    holds ``[[calibration]]`` entries, oldest first. For each quantity — each
-    bar's wave speed and each gauge's scale — the last entry that gives it
-    wins. A transmitted scale given relative to the incident one (bars-together
-    shot) is multiplied by the incident scale in effect. A value written in the
-    bar set itself (``wave_speed`` of a bar, ``scale`` of a gauge; flagged in
-    ``explicit`` as ``{(bar, "wave_speed_m_per_s" | "scale"): bool}``) wins
-    over the calibration, which is then noted as overridden.
+    :func:`shpb.calibration_files.latest_values` reads the file (written by
+    ``shpb calibrate``, format in ``docs/calibration.md``) and gives, for
+    each quantity — each bar's wave speed and each gauge's scale — the value
+    of the latest entry giving it. A transmitted scale given relative to the
+    incident one (bars-together shot) is multiplied by the incident scale in
+    effect. A value written in the bar set itself (``wave_speed`` of a bar,
+    ``scale`` of a gauge; flagged in ``explicit`` as
+    ``{(bar, "wave_speed_m_per_s" | "scale"): bool}``) wins over the
+    calibration, which is then noted as overridden.
 
     Returns
     -------
@@ -513,39 +510,12 @@ def apply_calibration_file(barset: BarSet, path, explicit: Optional[dict] = None
         ``calibration`` recording the file, its SHA-256 and, per applied
         quantity, the value with the entry's date, kind and input hashes.
     """
+    from .calibration_files import latest_values
     from .io import sha256_file
 
     path = Path(path)
-    where = str(path)
-    entries = read_toml(path).get("calibration", [])
-    if not isinstance(entries, list):
-        raise InputError("expected [[calibration]] entries", where)
+    latest = latest_values(path)
     explicit = explicit or {}
-    latest = {}
-    for i, e in enumerate(entries):
-        if not isinstance(e, dict) or not isinstance(e.get("apply", {}), dict):
-            raise InputError("expected a table with an 'apply' table", f"{where}: calibration[{i}]")
-        for bar_name, table in e.get("apply", {}).items():
-            if bar_name not in ("incident", "transmitted") or not isinstance(table, dict):
-                raise InputError(f"expected [calibration.apply.incident] or .transmitted, got {bar_name!r}",
-                                 f"{where}: calibration[{i}].apply")
-            for key, value in table.items():
-                if key not in _CAL_KEYS:
-                    raise InputError(f"unknown key {key!r} (expected one of: {', '.join(_CAL_KEYS)})",
-                                     f"{where}: calibration[{i}].apply.{bar_name}")
-                if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0 \
-                        or not math.isfinite(value):
-                    raise InputError(f"expected a positive number, got {value!r}",
-                                     f"{where}: calibration[{i}].apply.{bar_name}.{key}")
-                quantity = "scale" if key.startswith("scale") else key
-                latest[(bar_name, quantity)] = (key, float(value), i)
-
-    def record(i, value, **extra):
-        e = entries[i]
-        date = e.get("date")  # a hand-edited file may hold a TOML datetime: keep the summary JSON-able
-        return {"value": value, "entry": i, "date": None if date is None else str(date), "kind": e.get("kind"),
-                "inputs": e.get("inputs", []), **extra}
-
     applied, overridden = {}, {}
     bars = {"incident": barset.incident, "transmitted": barset.transmitted}
     gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
@@ -553,23 +523,20 @@ def apply_calibration_file(barset: BarSet, path, explicit: Optional[dict] = None
         for quantity in ("wave_speed_m_per_s", "scale"):
             if (bar_name, quantity) not in latest:
                 continue
-            key, value, i = latest[(bar_name, quantity)]
+            record = dict(latest[(bar_name, quantity)])
+            if "relative_to_incident" in record:
+                record["value"] = record["relative_to_incident"] * gauges["incident"].scale
             name = f"{bar_name}.{quantity}"
-            extra = {}
-            if key == "scale_relative_to_incident":
-                extra = {"relative_to_incident": value}
-                value = value * gauges["incident"].scale
             if explicit.get((bar_name, quantity)):
                 used = bars[bar_name].measured_wave_speed if quantity != "scale" else gauges[bar_name].scale
-                overridden[name] = {**record(i, value, **extra), "used": used,
-                                    "reason": "the bar set gives this value explicitly"}
+                overridden[name] = {**record, "used": used, "reason": "the bar set gives this value explicitly"}
                 continue
             if quantity == "scale":
-                gauges[bar_name] = replace(gauges[bar_name], scale=value)
+                gauges[bar_name] = replace(gauges[bar_name], scale=record["value"])
             else:
-                bars[bar_name] = replace(bars[bar_name], measured_wave_speed=value)
-            applied[name] = record(i, value, **extra)
-    info = {**barset.calibration, "file": where, "file_sha256": sha256_file(path), "applied": applied}
+                bars[bar_name] = replace(bars[bar_name], measured_wave_speed=record["value"])
+            applied[name] = record
+    info = {**barset.calibration, "file": str(path), "file_sha256": sha256_file(path), "applied": applied}
     if overridden:
         info["overridden"] = overridden
     return replace(barset, incident=bars["incident"], transmitted=bars["transmitted"],

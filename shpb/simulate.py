@@ -149,13 +149,13 @@ import numpy as np
 import pandas as pd
 
 from .errors import AnalysisError, InputError
+from .models import johnson_cook
 
 __all__ = [
     "PerfectlyPlastic",
     "JohnsonCookLaw",
     "FlowStressLaw",
     "TrueStressLaw",
-    "johnson_cook_flow_stress",
     "radial_return",
     "RodSpec",
     "VirtualShotSpec",
@@ -180,49 +180,6 @@ __all__ = [
 
 
 # --------------------------------------------------------------------------- constitutive laws
-def johnson_cook_flow_stress(plastic_strain, strain_rate, A, B, n, C, reference_rate=1.0):
-    """Johnson-Cook flow stress at constant temperature.
-
-    ``sigma_y = (A + B eps_p**n) (1 + C ln(rate / rate0))``
-
-    Parameters
-    ----------
-    plastic_strain : array_like
-        Equivalent plastic strain eps_p [1] (>= 0).
-    strain_rate : array_like
-        Plastic strain rate [1/s] (Johnson & Cook's dimensionless rate times
-        ``reference_rate``).
-    A, B : float
-        Yield stress and hardening modulus [Pa].
-    n : float
-        Hardening exponent [1].
-    C : float
-        Rate sensitivity [1].
-    reference_rate : float
-        Reference strain rate rate0 [1/s].
-
-    Returns
-    -------
-    ndarray
-        Flow stress [Pa].
-
-    Notes
-    -----
-    Rates below ``reference_rate`` use ``ln = 0`` (the rate term is not
-    allowed to soften the law below its quasi-static value; common practice,
-    since the logarithm diverges at zero rate). The thermal-softening factor
-    ``(1 - T*^m)`` of the full model is 1 here (T* = 0).
-
-    References
-    ----------
-    .. [1] G. R. Johnson, W. H. Cook, Proc. 7th Int. Symp. Ballistics, 1983,
-       541-547.
-    """
-    p = np.maximum(np.asarray(plastic_strain, dtype=float), 0.0)
-    ratio = np.maximum(np.asarray(strain_rate, dtype=float) / reference_rate, 1.0)
-    return (A + B * p**n) * (1.0 + C * np.log(ratio))
-
-
 @dataclass(frozen=True)
 class PerfectlyPlastic:
     """Elastic-perfectly-plastic law: constant flow stress ``yield_stress`` [Pa]."""
@@ -236,7 +193,10 @@ class PerfectlyPlastic:
 
 @dataclass(frozen=True)
 class JohnsonCookLaw:
-    """Elastic with Johnson-Cook hardening at constant temperature.
+    """Elastic with Johnson-Cook hardening at constant temperature (room temperature, T* = 0).
+
+    The law itself is :func:`shpb.models.johnson_cook`, the function the
+    fitter uses; this object holds its parameters for the simulator.
 
     Attributes
     ----------
@@ -248,6 +208,14 @@ class JohnsonCookLaw:
         Rate sensitivity [1].
     reference_rate : float
         Reference strain rate [1/s] (1 s^-1 in Johnson & Cook 1983).
+
+    Notes
+    -----
+    The flow stress is evaluated with ``rate_floor = reference_rate``: no rate
+    effect below the reference rate, so the quasi-static strength at zero
+    plastic rate (the return mapping's yield check) is finite. Why, and how
+    this differs from the published form, is set out once in the Notes of
+    :func:`shpb.models.johnson_cook`.
     """
 
     A: float
@@ -257,9 +225,10 @@ class JohnsonCookLaw:
     reference_rate: float = 1.0
 
     def flow_stress(self, plastic_strain, strain_rate):
-        """Flow stress [Pa]; see :func:`johnson_cook_flow_stress`."""
-        return johnson_cook_flow_stress(plastic_strain, strain_rate, self.A, self.B, self.n, self.C,
-                                        self.reference_rate)
+        """Flow stress [Pa] at equivalent plastic strain [1] and plastic strain rate [1/s]."""
+        # temperature None: isothermal at room temperature, no thermal term (m unused)
+        return johnson_cook(plastic_strain, strain_rate, None, self.A, self.B, self.n, self.C, m=1.0,
+                            reference_rate=self.reference_rate, rate_floor=self.reference_rate)
 
 
 @dataclass(frozen=True)

@@ -456,27 +456,24 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
         atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel))
         written["shot"] = paths["shot"]
     if figure:
-        fig = plot_virtual_shot(shot)
-        atomic_savefig(fig, paths["figure"], dpi=100)
-        import matplotlib.pyplot as plt
-
-        plt.close(fig)
+        atomic_savefig(plot_virtual_shot(shot), paths["figure"], dpi=100)
         written["figure"] = paths["figure"]
     return written
 
 
 # =========================================================================== figure
 def plot_virtual_shot(shot: VirtualShot):
-    """Figure of a virtual shot: bar strains at the gauges, face forces, specimen stress (a matplotlib Figure)."""
-    import matplotlib
+    """Figure of a virtual shot: bar strains at the gauges, face forces, specimen stress.
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    Returns a ``matplotlib.figure.Figure`` built without pyplot (no backend
+    or global state touched); :func:`write_virtual_shot` saves it.
+    """
+    from matplotlib.figure import Figure  # no pyplot: the user's backend and figure list stay as they are
 
     rec, res, s = shot.record, shot.result, shot.setup
     has_specimen = s.kind == "specimen"
-    fig, axes = plt.subplots(3 if has_specimen else 1, 1, figsize=(8.3, 9.5 if has_specimen else 3.8),
-                             constrained_layout=True, squeeze=False)
+    fig = Figure(figsize=(8.3, 9.5 if has_specimen else 3.8), constrained_layout=True)
+    axes = fig.subplots(3 if has_specimen else 1, 1, squeeze=False)
     ax = axes[0, 0]
     ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, label="incident-bar gauge")
     if rec.strain_transmitted is not None:

@@ -24,7 +24,7 @@ HEAVY = ("numpy", "pandas", "scipy", "matplotlib", "pint", "lmfit", "dask", "pya
 
 #: Placeholders a user reads for an option's value (shpb.commands.common, plus the few named in place).
 KNOWN_METAVARS = {"FILE", "DIR", "QUANTITY", "QUANTITIES", "NUMBER", "INTEGER", "TEXT", "NAME", "COLUMN", "UNIT",
-                  "FORM", "ADDRESS", "NAME=VALUE"}
+                  "FORM", "ADDRESS", "NAME=VALUE", "KEY=VALUE"}
 
 
 def _tree():

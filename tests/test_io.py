@@ -123,3 +123,86 @@ def test_atomic_write_leaves_no_temporary(tmp_path):
     atomic_write_text(target, "hello")
     assert target.read_text() == "hello"
     assert [f.name for f in target.parent.iterdir()] == ["x.txt"]
+
+
+def _run_python(code):
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    return done.stdout
+
+
+@pytest.mark.parametrize("umask", [0o022, 0o027, 0o077])
+def test_atomic_write_gives_the_mode_of_a_new_file(tmp_path, umask):
+    # POSIX open(): a new file's mode is the requested mode less the process umask (IEEE Std 1003.1-2017,
+    # open() and umask()); an ordinary open(path, "w") asks for 0o666, so the atomic output must match it.
+    out = _run_python(f"""
+import os, stat
+os.umask({umask:#o})
+from shpb.io import atomic_write_text
+atomic_write_text({str(tmp_path / 'atomic.txt')!r}, "x")
+with open({str(tmp_path / 'plain.txt')!r}, "w") as fh:
+    fh.write("x")
+print(oct(stat.S_IMODE(os.stat({str(tmp_path / 'atomic.txt')!r}).st_mode)),
+      oct(stat.S_IMODE(os.stat({str(tmp_path / 'plain.txt')!r}).st_mode)))
+""")
+    atomic, plain = out.split()
+    assert atomic == plain == oct(0o666 & ~umask)
+
+
+def test_importing_the_package_leaves_the_umask_alone():
+    # A library must not change process-wide state on import (common practice): the umask is shared by every
+    # thread, so even a brief umask(0) lets files another thread creates meanwhile come out world-writable.
+    out = _run_python("""
+import os
+calls = []
+real = os.umask
+os.umask = lambda mask: calls.append(mask) or real(mask)
+real(0o027)
+import shpb, shpb.io, shpb.setup, shpb.reduce, shpb.report, shpb.virtual, shpb.campaign, shpb.fit
+import shpb.calibration_files
+os.umask = real
+now = real(0o022)
+print(len(calls), oct(now))
+""")
+    assert out.split() == ["0", oct(0o027)]
+
+
+def test_to_plain_for_json_and_toml(tmp_path):
+    # JSON has no NaN or infinity (RFC 8259, sec. 6) and TOML no null but nan and inf floats (TOML 1.0.0,
+    # "Float"); the standard library's json and tomllib, and tomli_w, are the reference readers and writer.
+    import dataclasses
+    import json
+    from pathlib import Path
+
+    import tomli_w
+
+    try:
+        import tomllib
+    except ModuleNotFoundError:  # Python 3.10
+        import tomli as tomllib
+
+    from shpb.io import to_plain
+
+    @dataclasses.dataclass(frozen=True)
+    class Part:
+        name: str
+        where: Path
+        source: str = "ignored"
+
+    value = {"a": np.float32(1.5), "n": np.int64(3), "flag": np.bool_(True), "bad": float("nan"),
+             "big": np.inf, "none": None, "arr": np.array([1.0, np.nan]), "pair": (1, 2), 7: "int key",
+             "part": Part("x", Path("d") / "f.csv")}
+    as_json = json.loads(json.dumps(to_plain(value), allow_nan=False))
+    assert as_json == {"a": 1.5, "n": 3, "flag": True, "bad": None, "big": None, "none": None, "arr": [1.0, None],
+                       "pair": [1, 2], "7": "int key", "part": {"name": "x", "where": str(Path("d/f.csv")),
+                                                               "source": "ignored"}}
+    kept = tomllib.loads(tomli_w.dumps(to_plain(value, nonfinite="keep", none="omit", skip_fields={"source"},
+                                                path=lambda p: p.as_posix())))
+    assert np.isnan(kept.pop("bad")) and kept.pop("big") == float("inf") and np.isnan(kept["arr"].pop())
+    assert kept == {"a": 1.5, "n": 3, "flag": True, "arr": [1.0], "pair": [1, 2], "7": "int key",
+                    "part": {"name": "x", "where": "d/f.csv"}}
+    left_out = tomllib.loads(tomli_w.dumps(to_plain(value, nonfinite="omit", none="omit")))
+    assert "bad" not in left_out and "big" not in left_out and "none" not in left_out and left_out["arr"] == [1.0]

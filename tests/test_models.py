@@ -73,6 +73,20 @@ def test_johnson_cook_limits():
     assert s == pytest.approx((90e6 + 292e6 * 0.2**0.31) * (1 + 0.025 * math.log(100.0)), rel=1e-12)
 
 
+def test_johnson_cook_below_the_reference_rate():
+    # Johnson & Cook 1983 equation as published (the default): at 0.001 1/s with eps0 = 1 1/s the rate factor
+    # is 1 + C ln(0.001) = 1 - 0.025 * 6.907755 = 0.827306, below 1. With rate_floor = eps0 there is no rate
+    # effect below eps0 (finite-element practice, from memory), so any slower rate, zero included, gives
+    # A + B eps^n. temperature=None is the isothermal case at room temperature (T* = 0 in the same equation).
+    static = 90 * MPa + 292 * MPa * 0.2**0.31
+    s = M.johnson_cook(0.2, 1e-3, TR, **JC_CU, melt_temperature=TM_CU)
+    assert s == pytest.approx(static * 0.827306, rel=1e-6)
+    floored = M.johnson_cook(0.2, np.array([0.0, 1e-3, 1.0]), None, **JC_CU, rate_floor=1.0)
+    np.testing.assert_allclose(floored, static, rtol=1e-12)
+    above = M.johnson_cook(0.2, 1000.0, None, **JC_CU, rate_floor=1.0)
+    assert above == pytest.approx(static * (1 + 0.025 * math.log(1000.0)), rel=1e-12)
+
+
 # --- Cowper–Symonds ------------------------------------------------------
 
 

@@ -2,9 +2,8 @@
 
 Thin: parse the bar (from a bar-set file or explicit options), call
 :func:`shpb.dispersion.dispersion_table`, print a table, optionally write a
-CSV and a PNG figure (both written atomically). numpy, pandas and the
-library modules are imported when the command runs, not when the parser is
-built.
+CSV and a PNG figure (:func:`shpb.report.plot_dispersion`; both written atomically). numpy, pandas and
+the library modules are imported when the command runs, not when the parser is built.
 """
 
 from __future__ import annotations
@@ -71,25 +70,6 @@ def _write_csv(path, table):
     atomic_write_csv(path, pd.DataFrame(_columns(table)), float_format="%.10g")
 
 
-def _write_plot(path, table, title, onset_Hz):
-    from matplotlib.figure import Figure  # no pyplot: no global state, Agg canvas
-
-    from ..io import atomic_savefig
-
-    fig = Figure(figsize=(6.4, 4.2), layout="constrained")
-    ax = fig.add_subplot()
-    f_kHz = table["frequency_Hz"] / 1e3
-    ax.plot(f_kHz, table["phase_velocity_m_per_s"], label="phase velocity")
-    ax.plot(f_kHz, table["group_velocity_m_per_s"], label="group velocity")
-    if onset_Hz <= table["frequency_Hz"][-1]:
-        ax.axvline(onset_Hz / 1e3, color="0.5", ls=":", label="second mode onset")
-    ax.set_xlabel("frequency [kHz]")
-    ax.set_ylabel("velocity [m/s]")
-    ax.set_title(title, fontsize="medium")
-    ax.legend()
-    atomic_savefig(fig, path, dpi=120)
-
-
 def register(app: typer.Typer) -> None:
     """Add the ``dispersion`` command to ``app``."""
 
@@ -153,5 +133,8 @@ def register(app: typer.Typer) -> None:
                 typer.echo(f"wrote {csv}")
             if figure is not None:
                 title = f"bar d = {2e3 * radius:.2f} mm, c0 = {c0:.0f} m/s, ν = {nu:g}"
-                _write_plot(figure, full, title, onset)
+                from ..io import atomic_savefig
+                from ..report import plot_dispersion
+
+                atomic_savefig(plot_dispersion(full, title, onset), figure, dpi=120)
                 typer.echo(f"wrote {figure}")
