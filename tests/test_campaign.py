@@ -78,11 +78,26 @@ def write_campaign(folder, name, rows, flow_strains=(0.03, 0.05), extra=""):
 
 @pytest.fixture(scope="module")
 def clean_run(shots_dir):
-    """All seven good shots, two jobs, figures on: the reference run of the module."""
+    """All seven good shots, two jobs, no figures: the reference run of the module.
+
+    Figures cost about a second a shot; they are checked on a smaller run of their own
+    (``figure_run``), so this one, which most tests read, stays fast.
+    """
     path = write_campaign(shots_dir, "clean", [_row(s[0]) for s in SHOTS])
     camp = load_campaign(path)
-    report = run_campaign(camp, shots_dir / "out-clean", jobs=2, figures=True)
+    report = run_campaign(camp, shots_dir / "out-clean", jobs=2, figures=False)
     return camp, report
+
+
+#: Shots of the figure run: both materials, and two rate groups of AL-X1 (amplitudes 7e-4 and 9e-4).
+FIGURE_SHOTS = ["A-1", "A-3", "B-1"]
+
+
+@pytest.fixture(scope="module")
+def figure_run(shots_dir):
+    """Three shots, two jobs, figures on: the per-shot sheets and the campaign figures."""
+    path = write_campaign(shots_dir, "figures", [_row(s) for s in FIGURE_SHOTS])
+    return run_campaign(load_campaign(path), shots_dir / "out-figures", jobs=2, figures=True)
 
 
 # --------------------------------------------------------------------------- the campaign as one call
@@ -135,12 +150,24 @@ def test_summary_matches_single_shots_and_known_law(clean_run):
         assert list(pq["id"]) == list(back["id"])
 
 
-def test_outputs_layout_and_figures(shots_dir, clean_run):
+def test_outputs_layout_and_figures(shots_dir, clean_run, figure_run):
+    # the layout of docs/campaigns.md ("Outputs"); --no-figures: no sheets and no campaign figures
     _, report = clean_run
     out = report.out_dir
     for sid, *_ in SHOTS:
+        for f in ("curves.csv", "summary.json", KEY_FILE):
+            assert (out / "shots" / sid / f).is_file()
+        assert not (out / "shots" / sid / "shot.png").exists()
+    assert not (out / "figures").exists()
+    assert pd.read_csv(out / "failures.csv").empty
+    assert not list(out.rglob("*.tmp"))
+    # figures on: a sheet per shot and the three campaign figures, all PNG
+    out = figure_run.out_dir
+    assert figure_run.ok == FIGURE_SHOTS
+    for sid in FIGURE_SHOTS:
         for f in ("curves.csv", "summary.json", "shot.png", KEY_FILE):
             assert (out / "shots" / sid / f).is_file()
+        assert (out / "shots" / sid / "shot.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     for f in ("stress_strain.png", "rate_sensitivity.png", "repeatability.png"):
         assert (out / "figures" / f).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert pd.read_csv(out / "failures.csv").empty
