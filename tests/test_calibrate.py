@@ -427,6 +427,7 @@ def _write_record(path, *channels):
         np.savetxt(fh, np.column_stack([t, *channels]), delimiter=",", fmt="%.9e")
 
 
+@pytest.mark.slow
 def test_calibrated_barset_reduces_with_measured_speed(tmp_path):
     # The lab's bar set says rho = 8000 kg/m^3 (sqrt(E/rho) = 5000 m/s) but the bars carry 5047.5 m/s:
     # a free-end shot measures it, the calibration file records it, and the reduction uses it.
@@ -510,6 +511,7 @@ def test_explicit_wave_speed_wins_and_scales_apply(tmp_path):
         load_barset(bars)
 
 
+@pytest.mark.slow
 def test_cli_flight_bars_together_shunt_striker(tmp_path):
     from synth import elastic_perfectly_plastic, make_shot
 

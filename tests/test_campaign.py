@@ -150,6 +150,7 @@ def test_summary_matches_single_shots_and_known_law(clean_run):
         assert list(pq["id"]) == list(back["id"])
 
 
+@pytest.mark.slow
 def test_outputs_layout_and_figures(shots_dir, clean_run, figure_run):
     # the layout of docs/campaigns.md ("Outputs"); --no-figures: no sheets and no campaign figures
     _, report = clean_run
@@ -324,6 +325,7 @@ def test_rerun_skips_unchanged_and_redoes_changed(shots_dir, monkeypatch):
     assert run_campaign(load_campaign(path), out, jobs=1, figures=False, force=True).redone == ids
 
 
+@pytest.mark.slow
 def test_interrupted_run_leaves_whole_files_and_resumes(shots_dir):
     ids = [s[0] for s in SHOTS]
     path = write_campaign(shots_dir, "interrupt", [_row(s) for s in ids])
@@ -358,6 +360,7 @@ def test_interrupted_run_leaves_whole_files_and_resumes(shots_dir):
 
 
 # --------------------------------------------------------------------------- beyond one machine
+@pytest.mark.slow
 def test_dask_cluster_gives_the_same_outputs(shots_dir, clean_run):
     distributed = pytest.importorskip("dask.distributed")
     ids = ["A-1", "A-3", "B-2"]

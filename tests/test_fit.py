@@ -587,6 +587,7 @@ def test_cli_fit(fitted, capsys):
     assert rc == 2 and err.startswith("error:") and "melting" in err and len(err.strip().splitlines()) == 1
 
 
+@pytest.mark.slow
 def test_fit_on_the_example_campaign_recovers_the_generating_law(tmp_path):
     """The shipped example campaign (synthetic: virtual shots of the fictional HR-A61 alloy, made by
     scripts/make_example_data.py with Johnson-Cook A 300 MPa, B 400 MPa, n 0.40, C 0.010, reference

@@ -156,6 +156,7 @@ def test_cli_reduce_ok(tmp_path, capsys):
     assert (tmp_path / "o" / "summary.json").is_file()
 
 
+@pytest.mark.slow
 def test_cli_bad_input_is_one_line_no_traceback(tmp_path):
     shot, _ = make_shot(tmp_path, law=elastic_perfectly_plastic(E_SPEC, SY))
     (tmp_path / "synthetic.csv").unlink()
