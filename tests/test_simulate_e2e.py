@@ -3,10 +3,10 @@
 The outside references are the constitutive law put into the specimen
 (Johnson & Cook 1983), the Kolsky relations (Kolsky 1949; Gray 2000, ASM
 Handbook Vol. 8), published equilibrium criteria (Ravichandran & Subhash 1994;
-Davies & Hunter 1963), Pochhammer–Chree phase velocities (Bancroft 1941, as
-tabulated in /work/shared/reference/CHECK_VALUES.md section 1), striker
-relations (CHECK_VALUES section 6) and the bridge equations (Dally & Riley
-1991). The model's specimen truth is an independent computation (the wave
+Davies & Hunter 1963), Pochhammer–Chree phase velocities (the frequency
+equation as in Graff 1975, section 8.2; roots as Bancroft 1941 tabulated
+them), the striker relations (Kolsky 1963) and the bridge equations (Dally &
+Riley 1991). The model's specimen truth is an independent computation (the wave
 model) from the reduction's (the Kolsky analysis of recorded volts).
 
 Rig, small so the file runs in well under a minute: 19.05 mm maraging-type
@@ -132,8 +132,7 @@ def dispersed_shot():
 # --------------------------------------------------------------------------- the model's wave split
 def test_gauge_waves_split_into_travelling_waves():
     # d'Alembert (Graff 1975, Wave Motion in Elastic Solids, ch. 2): the bar strain is the sum of a wave
-    # travelling each way; a matched striker sends eps = v / (2 c0) for 2 L / c0 (Kolsky 1949; CHECK_VALUES
-    # section 6). Bars together (identical bars, R = 0, T = 1): nothing travels back towards the striker.
+    # travelling each way; a matched striker sends eps = v / (2 c0) for 2 L / c0 (Kolsky 1949; Kolsky 1963). Bars together (identical bars, R = 0, T = 1): nothing travels back towards the striker.
     spec = VirtualShotSpec(striker=bar(0.15), incident=bar(L_INC), transmitted=bar(L_TRA), specimen=None,
                            striker_speed=10.0, gauge_incident_distance=D_INC, gauge_transmitted_distance=D_TRA,
                            duration=0.3e-3, sample_rate=10e6)
@@ -176,7 +175,7 @@ def test_prescribed_pulse_reproduces_the_striker_shot(plain_shot):
 
 @pytest.mark.slow
 def test_true_stress_law_follows_the_law_at_constant_volume(plain_shot):
-    # Volume constancy (CHECK_VALUES section 5; Chen & Song 2011 ch. 1): true stress = engineering stress
+    # Volume constancy (Chen & Song 2011 ch. 1): true stress = engineering stress
     # x (1 - e), true strain = -ln(1 - e). The law was put in as a true-stress Johnson-Cook law (Johnson &
     # Cook 1983), so once the specimen is in equilibrium its true stress equals the law at its true plastic
     # strain and true rate.
@@ -295,8 +294,8 @@ def test_dispersion_correction_brings_the_reduction_closer_to_the_truth(disperse
 
 
 def test_excess_dispersion_shifts_each_harmonic_by_the_pochhammer_chree_delay():
-    # Bancroft (1941) phase velocities (CHECK_VALUES section 1, nu = 0.30): at a/Lambda = 0.1,
-    # c/c0 = 0.99054. A tone burst at that frequency carried 1 m without the bulk delay d/c0 lags by the
+    # Pochhammer-Chree phase velocity (Bancroft 1941): at a/Lambda = 0.1, nu = 0.30, c/c0 = 0.99054
+    # (computed from the frequency equation, Graff 1975 section 8.2; the table of test_dispersion.py). A tone burst at that frequency carried 1 m without the bulk delay d/c0 lags by the
     # phase 2 pi f d (1/c - 1/c0).
     a = D_BAR / 2
     c = 0.99054 * C0
@@ -352,7 +351,7 @@ def test_digitiser_codes_and_rails():
 
 @pytest.mark.slow
 def test_noise_in_microstrain_goes_through_the_bridge(plain_shot):
-    # Half-bending bridge (Dally & Riley 1991 ch. 7; CHECK_VALUES section 4): Vr = GF eps / (2 + GF eps),
+    # Half-bending bridge (Dally & Riley 1991 ch. 7): Vr = GF eps / (2 + GF eps),
     # so near zero dV/deps = gain V_exc GF / 2 = 1050 V per unit strain: 3 microstrain -> 3.15 mV rms.
     _, result, _ = plain_shot
     rec = RecorderSpec(duration=0.45e-3, pre_trigger=50e-6, bits=None, full_scale=(None, None),
@@ -366,8 +365,9 @@ def test_noise_in_microstrain_goes_through_the_bridge(plain_shot):
 
 # --------------------------------------------------------------------------- planning, setup file, CLI
 def test_planned_bar_stress_matches_the_striker_relations():
-    # CHECK_VALUES section 6 [computed]: a matched steel striker (E 200 GPa, rho 7850) at 10 m/s gives
-    # rho c0 v / 2 = 198.12 MPa; Kolsky (1963) impedance form for another striker.
+    # Computed from sigma = rho c0 v / 2 (Kolsky 1963, from memory): a matched steel striker (E 200 GPa,
+    # rho 7850) at 10 m/s gives 7850 x 5047.54 x 10 / 2 = 198.12 MPa for 2 L / c0 = 118.87 us; the
+    # impedance form (v / c) Z_s / (Z_s + Z_b) (Kolsky 1963) for another striker.
     steel = RodSpec(0.3, 0.02, 200e9, 7850.0)
     spec = VirtualShotSpec(striker=steel, incident=RodSpec(1.0, 0.02, 200e9, 7850.0),
                            transmitted=RodSpec(1.0, 0.02, 200e9, 7850.0), specimen=None, striker_speed=10.0,
@@ -464,7 +464,7 @@ def test_cli_writes_the_four_outputs_and_the_shot_reduces(tmp_path, capsys):
 
 
 def test_planning_refuses_a_striker_speed_that_yields_the_bar(tmp_path, capsys):
-    # sigma = rho c0 v / 2 (CHECK_VALUES section 6) reaches the 1900 MPa yield at v = 2 sigma_y / (rho c0)
+    # sigma = rho c0 v / 2 (Kolsky 1963, from memory) reaches the 1900 MPa yield at v = 2 sigma_y / (rho c0)
     # = 97.5 m/s for these bars.
     v_yield = 2 * YIELD_BAR / (RHO_BAR * C0)
     assert v_yield == pytest.approx(97.47, abs=0.01)
