@@ -89,9 +89,10 @@ def specimen_response(law, eps_i_fn, c0, bar_area, bar_modulus, spec_area, spec_
     (c_t, A_t, E_t) of another transmitted bar, de/dt = [2 c0 eps_i - (c0 As/(E Ab) +
     c_t As/(E_t A_t)) sigma] / Ls (module docstring), and eps_t = As sigma/(E_t A_t).
 
-    Heun's method (explicit trapezoidal rule; e.g. Press et al. 2007, Numerical
-    Recipes, 3rd ed., section 17.1): an Euler predictor, then the mean of the
-    slopes at both ends of the step. The stress at each stage comes from the
+    Heun's method (Heun 1900; the explicit trapezoidal rule, a second-order
+    Runge-Kutta method: Hairer, Norsett & Wanner 1993, Solving Ordinary
+    Differential Equations I, section II.1; from memory): an Euler predictor,
+    then the mean of the slopes at both ends of the step. The stress at each stage comes from the
     law's radial return. ``eps_i_fn`` takes an array of times [s] and returns the
     incident strain at each (vectorised: it is called once).
     """

@@ -32,6 +32,8 @@ from shpb.setup import load_shot
 
 from synth import elastic_perfectly_plastic, linear_hardening, make_shot
 
+# its module-scoped fixtures are built once: the whole file runs on one xdist worker
+pytestmark = pytest.mark.xdist_group("test_campaign")
 E_SPEC, SY, ET = 70e9, 300e6, 2e9
 EPP = elastic_perfectly_plastic(E_SPEC, SY)
 HARD = linear_hardening(E_SPEC, SY, ET)
@@ -151,8 +153,7 @@ def test_summary_matches_single_shots_and_known_law(clean_run):
         assert list(pq["id"]) == list(back["id"])
 
 
-@pytest.mark.slow
-def test_outputs_layout_and_figures(shots_dir, clean_run, figure_run):
+def test_outputs_layout(clean_run):
     # the layout of docs/campaigns.md ("Outputs"); --no-figures: no sheets and no campaign figures
     _, report = clean_run
     out = report.out_dir
@@ -163,7 +164,11 @@ def test_outputs_layout_and_figures(shots_dir, clean_run, figure_run):
     assert not (out / "figures").exists()
     assert pd.read_csv(out / "failures.csv").empty
     assert not list(out.rglob("*.tmp"))
-    # figures on: a sheet per shot and the three campaign figures, all PNG
+
+
+@pytest.mark.slow
+def test_outputs_with_figures(figure_run):
+    # figures on (docs/campaigns.md, "Outputs"): a sheet per shot and the three campaign figures, all PNG
     out = figure_run.out_dir
     assert figure_run.ok == FIGURE_SHOTS
     for sid in FIGURE_SHOTS:
