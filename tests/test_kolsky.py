@@ -2,9 +2,10 @@
 
 Sources: H. Kolsky (1949), Proc. Phys. Soc. B 62:676; G. T. Gray III (2000),
 "Classic split-Hopkinson pressure bar testing", ASM Handbook Vol. 8; W. Chen
-and B. Song (2011), Split Hopkinson (Kolsky) Bar, ch. 1. The numbers are the
-synthetic set of the project's reference sheet (CHECK_VALUES.md §5), each
-intermediate re-derived by hand below.
+and B. Song (2011), Split Hopkinson (Kolsky) Bar, ch. 1. The inputs are round
+numbers (a generic steel bar, E 200 GPa, rho 7850 kg/m^3, 20 mm; a 10 mm x 5 mm
+specimen; strains 7e-4, -5e-4, 2e-4); each expected value is computed by hand
+below from those equations.
 """
 
 import math

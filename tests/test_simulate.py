@@ -22,7 +22,11 @@ from shpb.simulate import (
     simulate_shot,
 )
 
-# Steel bar of CHECK_VALUES section 6: E = 200 GPa, rho = 7850 kg/m^3 -> c0 = 5047.54 m/s.
+# its module-scoped fixtures are built once: the whole file runs on one xdist worker
+pytestmark = pytest.mark.xdist_group("test_simulate")
+
+# A generic steel bar, round values (common practice): E = 200 GPa, rho = 7850 kg/m^3, so
+# c0 = sqrt(E/rho) = 5047.54 m/s (computed from Kolsky 1949).
 E_STEEL, RHO_STEEL = 200e9, 7850.0
 C0 = math.sqrt(E_STEEL / RHO_STEEL)
 
@@ -50,7 +54,8 @@ def plateau(signal, time, start, stop):
 def test_matched_striker_gives_v_over_2c0_for_2L_over_c0():
     # Kolsky (1949); Graff (1975), Wave Motion in Elastic Solids, ch. 2: a striker of the bar's own
     # material and diameter gives eps_i = v / (2 c0) lasting 2 L / c0.
-    # CHECK_VALUES section 6 [computed]: v = 10 m/s -> 9.9058e-4 and 0.3 m -> 118.87 us.
+    # Computed from those relations: v = 10 m/s -> 10 / (2 x 5047.54) = 9.9058e-4; a 0.3 m striker ->
+    # 2 x 0.3 / 5047.54 = 118.87 us.
     res = simulate_shot(shot())
     t, eps = res.time, res.strain_incident_gauge
     assert np.allclose(plateau(eps, t, 110e-6, 210e-6), 9.9058e-4, rtol=1e-4, atol=0)
@@ -75,7 +80,7 @@ def test_matched_striker_gives_v_over_2c0_for_2L_over_c0():
     RodSpec(0.3, 0.02, 70e9, 2700.0),  # aluminium striker, same diameter
 ])
 def test_striker_of_other_impedance(striker):
-    # CHECK_VALUES section 6 (Kolsky 1963, Stress Waves in Solids) [from memory: high]:
+    # Kolsky (1963), Stress Waves in Solids (from memory):
     # eps_i = (v / c_b) Z_s / (Z_s + Z_b), Z = rho c0 A; this is the first step of the pulse,
     # lasting 2 L_s / c_s.
     res = simulate_shot(shot(striker=striker, duration=0.2e-3))
@@ -211,9 +216,9 @@ def test_perfectly_plastic_specimen_flows_at_its_yield_stress(perfectly_plastic_
 
 def test_equilibrium_after_a_few_transits(perfectly_plastic_shot):
     # Davies & Hunter (1963), J. Mech. Phys. Solids 11:155: equilibrium after about pi transits
-    # L_s / c_s [from memory: medium]; Ravichandran & Subhash (1994), J. Am. Ceram. Soc. 77:263:
-    # R = 2 (F1 - F2)/(F1 + F2) <= 0.05, reached after about 4 transits [from memory: medium]
-    # (CHECK_VALUES section 5). Causality: the back face cannot feel the load before one elastic
+    # L_s / c_s (from memory); Ravichandran & Subhash (1994), J. Am. Ceram. Soc. 77:263:
+    # R = 2 (F1 - F2)/(F1 + F2) <= 0.05, reached after about 4 transits (from memory)
+    # Causality: the back face cannot feel the load before one elastic
     # transit (c_s = sqrt(E/rho), Graff 1975 ch. 2).
     truth = perfectly_plastic_shot.truth
     transit_us = 0.005 / math.sqrt(70e9 / 2700.0) * 1e6
@@ -228,7 +233,9 @@ def test_equilibrium_after_a_few_transits(perfectly_plastic_shot):
 
 
 def test_johnson_cook_values():
-    # CHECK_VALUES section 8 [computed] from Johnson & Cook (1983) constants, T* = 0, 1000 1/s:
+    # Computed from the Johnson & Cook (1983) flow-stress equation with their published constants
+    # (4340: Johnson & Cook 1985, Eng. Fract. Mech. 21:31; copper and Armco iron: Johnson & Cook 1983;
+    # constants as quoted secondarily, not read in the printed tables), T* = 0, 1000 1/s:
     # AISI 4340 (792, 510 MPa, 0.26, 0.014): eps_p = 0.1 -> 1175.96 MPa;
     # OFHC Cu (90, 292 MPa, 0.31, 0.025): 0.2 -> 313.46 MPa; Armco iron (175, 380, 0.32, 0.060): 0.1 -> 504.79.
     cases = [((792e6, 510e6, 0.26, 0.014), 0.1, 1175.96e6),
@@ -268,7 +275,7 @@ def test_radial_return_linear_hardening():
 
 
 def test_rate_dependent_specimen_follows_johnson_cook():
-    # Johnson & Cook (1983) flow stress of OFHC copper (CHECK_VALUES section 8: A = 90 MPa, B = 292 MPa,
+    # Johnson & Cook (1983) flow stress of OFHC copper (their constants, as quoted secondarily: A = 90 MPa, B = 292 MPa,
     # n = 0.31, C = 0.025): once in equilibrium, the specimen's mean stress equals the law at its plastic
     # strain (strain - stress/E) and strain rate (total rate; the elastic part is small in steady flow).
     # Equilibrium per Ravichandran & Subhash (1994): R <= 0.05.
@@ -311,7 +318,7 @@ def test_bars_run_at_courant_one_even_when_the_specimen_sets_the_step(perfectly_
     # The design choice (module docstring): the specimen sets dt, the bars keep Courant exactly 1 by
     # using dx = c0 dt. Consequence to check: the bar stays exact for 1-D waves (Courant-1 leapfrog is
     # exact for the wave equation; e.g. Strikwerda 2004, Finite Difference Schemes, ch. 1
-    # [from memory: medium]) - the incident plateau shows no trailing oscillation; the specimen has
+    # (from memory)) - the incident plateau shows no trailing oscillation; the specimen has
     # >= 20 elements at Courant <= 1; modelled bar lengths are within half an element of the request.
     res = perfectly_plastic_shot
     rods = res.grid["rods"]
