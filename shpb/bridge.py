@@ -19,7 +19,7 @@ import numpy as np
 BRIDGES = ("quarter", "half-bending", "half-poisson", "full-poisson")
 
 
-def strain_from_ratio(ratio, bridge, gauge_factor, poisson=0.3):
+def strain_from_ratio(ratio, bridge, gauge_factor, poisson_ratio=0.3):
     """Axial strain from the bridge ratio, with each bridge's exact non-linearity.
 
     Parameters
@@ -35,7 +35,7 @@ def strain_from_ratio(ratio, bridge, gauge_factor, poisson=0.3):
         transverse gauges in the other two.
     gauge_factor : float
         Gauge factor GF [1].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio of the bar, for the transverse gauges [1].
 
     Returns
@@ -58,7 +58,7 @@ def strain_from_ratio(ratio, bridge, gauge_factor, poisson=0.3):
     .. [1] Dally & Riley (1991), *Experimental Stress Analysis*, ch. 7.
     """
     vr = np.asarray(ratio, dtype=float)
-    gf, nu = float(gauge_factor), float(poisson)
+    gf, nu = float(gauge_factor), float(poisson_ratio)
     if bridge == "quarter":
         return 4.0 * vr / (gf * (1.0 - 2.0 * vr))
     if bridge == "half-bending":
@@ -70,10 +70,10 @@ def strain_from_ratio(ratio, bridge, gauge_factor, poisson=0.3):
     raise ValueError(f"unknown bridge {bridge!r}; expected one of {', '.join(BRIDGES)}")
 
 
-def ratio_from_strain(strain, bridge, gauge_factor, poisson=0.3):
+def ratio_from_strain(strain, bridge, gauge_factor, poisson_ratio=0.3):
     """Bridge ratio Vr [1] for an axial strain [1] (tension positive); the exact inverse of :func:`strain_from_ratio`."""
     e = np.asarray(strain, dtype=float) * float(gauge_factor)
-    nu = float(poisson)
+    nu = float(poisson_ratio)
     if bridge == "quarter":
         return e / (4.0 + 2.0 * e)
     if bridge == "half-bending":
@@ -85,14 +85,14 @@ def ratio_from_strain(strain, bridge, gauge_factor, poisson=0.3):
     raise ValueError(f"unknown bridge {bridge!r}; expected one of {', '.join(BRIDGES)}")
 
 
-def bar_strain(volts, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1, scale=1.0, poisson=0.3):
+def bar_strain(volts, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1, scale=1.0, poisson_ratio=0.3):
     """Bar strain, compression positive, from a recorded channel [V].
 
     Parameters
     ----------
     volts : array_like
         Recorded voltage after the amplifier, baseline already removed [V].
-    bridge, gauge_factor, poisson
+    bridge, gauge_factor, poisson_ratio
         See :func:`strain_from_ratio`.
     excitation : float
         Bridge excitation [V].
@@ -111,12 +111,12 @@ def bar_strain(volts, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1,
     # A compressive strain gives Vr < 0 in the textbook convention; the record
     # shows it with sign `polarity`.
     ratio = -polarity * np.asarray(volts, dtype=float) / (gain * excitation)
-    return -scale * strain_from_ratio(ratio, bridge, gauge_factor, poisson)
+    return -scale * strain_from_ratio(ratio, bridge, gauge_factor, poisson_ratio)
 
 
-def bar_volts(strain, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1, scale=1.0, poisson=0.3):
+def bar_volts(strain, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1, scale=1.0, poisson_ratio=0.3):
     """Recorded voltage [V] for a bar strain [1] (compression positive); inverse of :func:`bar_strain`."""
-    ratio = ratio_from_strain(-np.asarray(strain, dtype=float) / scale, bridge, gauge_factor, poisson)
+    ratio = ratio_from_strain(-np.asarray(strain, dtype=float) / scale, bridge, gauge_factor, poisson_ratio)
     return -polarity * ratio * gain * excitation
 
 

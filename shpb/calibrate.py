@@ -64,7 +64,7 @@ MIN_CORRELATION = 0.6
 
 
 # =========================================================================== speeds
-def bar_and_bulk_wave_speeds(modulus, density, poisson):
+def bar_and_bulk_wave_speeds(modulus, density, poisson_ratio):
     """Extensional (thin-bar) and longitudinal (bulk, dilatational) wave speeds.
 
     Parameters
@@ -73,7 +73,7 @@ def bar_and_bulk_wave_speeds(modulus, density, poisson):
         Young's modulus E [Pa].
     density : float
         Density ρ [kg/m^3].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1].
 
     Returns
@@ -90,7 +90,7 @@ def bar_and_bulk_wave_speeds(modulus, density, poisson):
     .. [1] H. Kolsky, *Stress Waves in Solids*, 1953, ch. 1 and 3.
     .. [2] K. F. Graff, *Wave Motion in Elastic Solids*, 1975, ch. 2 and 5.
     """
-    E, rho, nu = float(modulus), float(density), float(poisson)
+    E, rho, nu = float(modulus), float(density), float(poisson_ratio)
     return math.sqrt(E / rho), math.sqrt(E * (1 - nu) / ((1 + nu) * (1 - 2 * nu) * rho))
 
 
@@ -341,7 +341,7 @@ def free_end_passes(gauge_to_free_end, bar_length, count, *, impact_end_free=Tru
 
 
 def free_end_wave_speed(strain, dt, gauge_to_free_end, bar_length, nominal_wave_speed, bar_radius, *,
-                        density=None, poisson=None, impact_end_free=True, max_echoes=6, max_frequency=None,
+                        density=None, poisson_ratio=None, impact_end_free=True, max_echoes=6, max_frequency=None,
                         speed_tolerance=SPEED_TOLERANCE, min_correlation=MIN_CORRELATION, amplitude_tolerance=0.2,
                         gauge_position_uncertainty=0.5e-3, bar_length_uncertainty=1.0e-3):
     """Bar wave speed c0 from a free-end shot: the pulse and its echoes at one gauge.
@@ -368,7 +368,7 @@ def free_end_wave_speed(strain, dt, gauge_to_free_end, bar_length, nominal_wave_
         Bar radius [m]; sets the dispersion-free band (:func:`low_band_limit`).
     density : float or None
         Bar density [kg/m^3]; with it, E = ρ c0² is reported.
-    poisson : float or None
+    poisson_ratio : float or None
         Bar Poisson ratio [1]; with it, a speed nearer the bulk speed than the
         bar speed is noted (see :func:`bar_and_bulk_wave_speeds`).
     impact_end_free : bool
@@ -490,8 +490,8 @@ def free_end_wave_speed(strain, dt, gauge_to_free_end, bar_length, nominal_wave_
     if p["sign"] < 0:
         notes.append("the first pulse is negative on this channel: if it is the compressive pulse from the "
                      "striker, the gauge polarity in the bar set is inverted")
-    if poisson is not None:
-        ratio = bar_and_bulk_wave_speeds(1.0, 1.0, poisson)[1]  # c_L / c0
+    if poisson_ratio is not None:
+        ratio = bar_and_bulk_wave_speeds(1.0, 1.0, poisson_ratio)[1]  # c_L / c0
         if abs(c0 - ratio * nominal_wave_speed) < abs(c0 - nominal_wave_speed):
             notes.append(f"the speed is nearer the bulk (longitudinal) speed {ratio * nominal_wave_speed:.0f} m/s than "
                          f"the bar speed {nominal_wave_speed:.0f} m/s: check the gauge position and bar length")
@@ -558,7 +558,7 @@ def time_of_flight_fit(path_lengths, delays, *, k_sigma=3.0, intercept_floor=0.1
     Returns
     -------
     dict
-        ``wave_speed_m_per_s``, ``wave_speed_se_m_per_s``, ``intercept_s``,
+        ``wave_speed_m_per_s``, ``wave_speed_uncertainty_m_per_s``, ``intercept_s``,
         ``intercept_se_s`` (NaN with only two points), ``intercept_significant``
         (bool), ``residuals_s``, ``n_points``, ``notes``.
 
@@ -607,7 +607,7 @@ def time_of_flight_fit(path_lengths, delays, *, k_sigma=3.0, intercept_floor=0.1
         notes.append(f"intercept t0 = {t0 * 1e6:.3f} us is {abs(t0) / se_t0:.1f} standard errors from zero: a "
                      f"delay that is not wave travel (trigger or cable delay, unequal channel filters, a gap at a "
                      f"contact)")
-    return {"wave_speed_m_per_s": c, "wave_speed_se_m_per_s": c * c * se_slope, "intercept_s": t0,
+    return {"wave_speed_m_per_s": c, "wave_speed_uncertainty_m_per_s": c * c * se_slope, "intercept_s": t0,
             "intercept_se_s": se_t0, "intercept_significant": significant, "residuals_s": resid,
             "n_points": int(L.size), "notes": notes}
 

@@ -77,13 +77,13 @@ _SCAN_LOW = 0.95
 # --------------------------------------------------------------------------
 # input checks
 # --------------------------------------------------------------------------
-def _check_poisson(poisson, where="poisson"):
+def _check_poisson(poisson_ratio, where="poisson_ratio"):
     try:
-        nu = float(poisson)
+        nu = float(poisson_ratio)
     except (TypeError, ValueError):
-        raise InputError(f"Poisson ratio must be a number in (0, 0.5), got {poisson!r}", where) from None
+        raise InputError(f"Poisson ratio must be a number in (0, 0.5), got {poisson_ratio!r}", where) from None
     if not (0.0 < nu < 0.5):
-        raise InputError(f"Poisson ratio must be in (0, 0.5) (exclusive), got {poisson!r}", where)
+        raise InputError(f"Poisson ratio must be in (0, 0.5) (exclusive), got {poisson_ratio!r}", where)
     return nu
 
 
@@ -166,7 +166,7 @@ def _frequency_function(s, K, nu):
     return _determinant(a2, b2, 1.0, _bessel_pair(K2 * a2), _bessel_pair(K2 * b2))
 
 
-def rayleigh_speed_ratio(poisson):
+def rayleigh_speed_ratio(poisson_ratio):
     """Rayleigh surface-wave speed over the shear wave speed, cR/cT.
 
     Root in (0, 1) of the Rayleigh equation
@@ -175,7 +175,7 @@ def rayleigh_speed_ratio(poisson):
 
     Parameters
     ----------
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν of the bar [1], in (0, 0.5).
 
     Returns
@@ -191,7 +191,7 @@ def rayleigh_speed_ratio(poisson):
     .. [2] K. F. Graff, *Wave Motion in Elastic Solids*, Ohio State Univ.
        Press (1975), §6.3.
     """
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     q2 = _q2(nu)
 
     def f(x):
@@ -230,7 +230,7 @@ def _solve_fundamental(K, nu):
     # No sign change: only for ka so small that the root is within rounding
     # of c0 (c/c0 − 1 ≈ −ν²(ka)²/4, accepted below 2.5e-13); c = c0 there.
     if not np.all(has | (nu * nu * Kt * Kt < 1e-12)):
-        raise AnalysisError(f"Pochhammer-Chree root not bracketed (poisson {nu}, ka up to {Kt.max():.3g})")
+        raise AnalysisError(f"Pochhammer-Chree root not bracketed (poisson_ratio {nu}, ka up to {Kt.max():.3g})")
     lo = np.where(has, lo, s0)
     hi = np.where(has, hi, s0)
     flo = np.where(has, flo, 0.0)
@@ -269,7 +269,7 @@ def _illinois(func, a, b, fa, fb, max_iter=200):
     return x
 
 
-def phase_velocity_ratio(a_over_lambda, poisson):
+def phase_velocity_ratio(a_over_lambda, poisson_ratio):
     """Fundamental-mode phase velocity over the bar wave speed, c/c0.
 
     Solves the Pochhammer–Chree frequency equation of the first longitudinal
@@ -279,7 +279,7 @@ def phase_velocity_ratio(a_over_lambda, poisson):
     ----------
     a_over_lambda : float or array_like
         Bar radius over wavelength, a/Λ [1], ≥ 0 and ≤ 40.
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1], in (0, 0.5).
 
     Returns
@@ -313,7 +313,7 @@ def phase_velocity_ratio(a_over_lambda, poisson):
     .. [4] D. Bancroft, "The velocity of longitudinal waves in cylindrical
        bars", Phys. Rev. 59, 588–593 (1941), doi:10.1103/PhysRev.59.588 (DOI from memory).
     """
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     x = np.asarray(a_over_lambda, dtype=float)
     if not np.all(np.isfinite(x)) or np.any(x < 0) or np.any(x > MAX_A_OVER_LAMBDA_LIMIT):
         raise InputError(f"a/Λ must be finite and in [0, {MAX_A_OVER_LAMBDA_LIMIT}]", "a_over_lambda")
@@ -338,7 +338,7 @@ def _mean_to_surface(s, K, nu):
     return 2.0 * c1a * c1b * (1.0 - b2 + 2.0 * a2) / (c0a * c1b * (1.0 - b2) + 2.0 * a2 * c1a * c0b)
 
 
-def mean_to_surface_strain_ratio(a_over_lambda, poisson):
+def mean_to_surface_strain_ratio(a_over_lambda, poisson_ratio):
     """Section-mean axial strain over surface axial strain, fundamental mode.
 
     Tyas & Watson's strain factor: a gauge reads the surface strain, the
@@ -350,7 +350,7 @@ def mean_to_surface_strain_ratio(a_over_lambda, poisson):
     ----------
     a_over_lambda : float or array_like
         a/Λ [1], in [0, 40].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1], in (0, 0.5).
 
     Returns
@@ -366,7 +366,7 @@ def mean_to_surface_strain_ratio(a_over_lambda, poisson):
        dispersion correction of pressure bar signals", Int. J. Impact Eng. 25,
        87–101 (2001), doi:10.1016/S0734-743X(00)00031-7 (DOI from memory).
     """
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     x = np.asarray(a_over_lambda, dtype=float)
     if not np.all(np.isfinite(x)) or np.any(x < 0) or np.any(x > MAX_A_OVER_LAMBDA_LIMIT):
         raise InputError(f"a/Λ must be finite and in [0, {MAX_A_OVER_LAMBDA_LIMIT}]", "a_over_lambda")
@@ -386,7 +386,7 @@ class DispersionCurve:
 
     Attributes
     ----------
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1].
     a_over_lambda : ndarray
         a/Λ [1], from 0 to ``max_a_over_lambda``.
@@ -402,7 +402,7 @@ class DispersionCurve:
         cR/c0 [1], the a/Λ → ∞ limit of c/c0.
     """
 
-    poisson: float
+    poisson_ratio: float
     a_over_lambda: np.ndarray
     phase_ratio: np.ndarray
     group_ratio: np.ndarray
@@ -451,14 +451,14 @@ def _curve_cached(nu, n, max_a_over_lambda):
     g = (s + K * dsdK) / s0  # cg = d(ω)/dk = c + k dc/dk
     phi = x * r
     if np.any(np.diff(phi) <= 0) or np.any(g <= 0):
-        raise AnalysisError(f"fundamental-mode frequency not increasing with a/Λ (poisson {nu}): solver failure")
+        raise AnalysisError(f"fundamental-mode frequency not increasing with a/Λ (poisson_ratio {nu}): solver failure")
     drdphi = 2.0 * np.pi * dsdK / (s0 * g)  # (dr/dK) / (dφ/dK), dφ/dK = g / (2π)
     m = _mean_to_surface(s, K, nu)
     arrays = [x, r, g, phi, m]
     for arr in arrays:
         arr.flags.writeable = False
     return DispersionCurve(
-        poisson=nu,
+        poisson_ratio=nu,
         a_over_lambda=x,
         phase_ratio=r,
         group_ratio=g,
@@ -475,7 +475,7 @@ def _cache_key(nu):
     return float(f"{nu:.12g}")
 
 
-def normalized_curve(poisson, n=DEFAULT_TABLE_POINTS, max_a_over_lambda=DEFAULT_MAX_A_OVER_LAMBDA):
+def normalized_curve(poisson_ratio, n=DEFAULT_TABLE_POINTS, max_a_over_lambda=DEFAULT_MAX_A_OVER_LAMBDA):
     """Fundamental-mode table c/c0, cg/c0 against a/Λ and f·a/c0, cached.
 
     Computed once per (ν to 12 significant digits, n, max a/Λ) and kept in an LRU
@@ -483,7 +483,7 @@ def normalized_curve(poisson, n=DEFAULT_TABLE_POINTS, max_a_over_lambda=DEFAULT_
 
     Parameters
     ----------
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1], in (0, 0.5).
     n : int
         Number of table points, uniform in a/Λ (≥ 16).
@@ -500,7 +500,7 @@ def normalized_curve(poisson, n=DEFAULT_TABLE_POINTS, max_a_over_lambda=DEFAULT_
     .. [1] D. Bancroft, Phys. Rev. 59, 588–593 (1941),
        doi:10.1103/PhysRev.59.588 (DOI from memory).
     """
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     if isinstance(n, bool) or int(n) != n or int(n) < 16:
         raise InputError(f"table size must be an integer ≥ 16, got {n!r}", "n")
     xmax = _check_a_over_lambda_max(max_a_over_lambda)
@@ -526,7 +526,7 @@ def _dimensionless_frequency(frequency, bar_radius, bar_wave_speed, curve):
     return phi
 
 
-def phase_velocity(frequency, bar_radius, bar_wave_speed, poisson, *,
+def phase_velocity(frequency, bar_radius, bar_wave_speed, poisson_ratio, *,
                    max_a_over_lambda=DEFAULT_MAX_A_OVER_LAMBDA):
     """Fundamental-mode phase velocity c(f) of a cylindrical bar.
 
@@ -539,7 +539,7 @@ def phase_velocity(frequency, bar_radius, bar_wave_speed, poisson, *,
     bar_wave_speed : float
         Bar wave speed c0 [m/s], used as given (pass the measured value when
         there is one).
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1], in (0, 0.5).
     max_a_over_lambda : float, optional
         Extent of the cached table, a/Λ [1].
@@ -561,13 +561,13 @@ def phase_velocity(frequency, bar_radius, bar_wave_speed, poisson, *,
     """
     a = _check_positive(bar_radius, "bar_radius")
     c0 = _check_positive(bar_wave_speed, "bar_wave_speed")
-    curve = normalized_curve(poisson, max_a_over_lambda=max_a_over_lambda)
+    curve = normalized_curve(poisson_ratio, max_a_over_lambda=max_a_over_lambda)
     phi = _dimensionless_frequency(frequency, a, c0, curve)
     c = c0 * curve.phase_ratio_at(phi)
     return float(c) if np.ndim(c) == 0 else c
 
 
-def group_velocity(frequency, bar_radius, bar_wave_speed, poisson, *,
+def group_velocity(frequency, bar_radius, bar_wave_speed, poisson_ratio, *,
                    max_a_over_lambda=DEFAULT_MAX_A_OVER_LAMBDA):
     """Fundamental-mode group velocity cg(f) = dω/dk of a cylindrical bar.
 
@@ -579,7 +579,7 @@ def group_velocity(frequency, bar_radius, bar_wave_speed, poisson, *,
         Bar radius a [m].
     bar_wave_speed : float
         Bar wave speed c0 [m/s].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1], in (0, 0.5).
     max_a_over_lambda : float, optional
         Extent of the cached table, a/Λ [1].
@@ -596,7 +596,7 @@ def group_velocity(frequency, bar_radius, bar_wave_speed, poisson, *,
     """
     a = _check_positive(bar_radius, "bar_radius")
     c0 = _check_positive(bar_wave_speed, "bar_wave_speed")
-    curve = normalized_curve(poisson, max_a_over_lambda=max_a_over_lambda)
+    curve = normalized_curve(poisson_ratio, max_a_over_lambda=max_a_over_lambda)
     phi = _dimensionless_frequency(frequency, a, c0, curve)
     c = c0 * curve.group_ratio_at(phi)
     return float(c) if np.ndim(c) == 0 else c
@@ -638,7 +638,7 @@ def _second_mode_onset_cached(nu):
     return wmin / (2.0 * np.pi * s0)  # f a / c0 = Ω (cT/c0) / 2π
 
 
-def second_mode_onset(bar_radius, bar_wave_speed, poisson):
+def second_mode_onset(bar_radius, bar_wave_speed, poisson_ratio):
     """Lowest frequency at which the second longitudinal mode propagates.
 
     Above it a pulse can carry energy in more than one mode and a
@@ -650,7 +650,7 @@ def second_mode_onset(bar_radius, bar_wave_speed, poisson):
         Bar radius a [m].
     bar_wave_speed : float
         Bar wave speed c0 [m/s].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1], in (0, 0.5).
 
     Returns
@@ -670,7 +670,7 @@ def second_mode_onset(bar_radius, bar_wave_speed, poisson):
     """
     a = _check_positive(bar_radius, "bar_radius")
     c0 = _check_positive(bar_wave_speed, "bar_wave_speed")
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     return _second_mode_onset_cached(_cache_key(nu)) * c0 / a
 
 
@@ -722,11 +722,11 @@ def _propagation_plan(dt, a, c0, curve, max_frequency, amplitude_factors, amplit
     # hold frequency the phase velocity is constant, so cg = c there.
     sel = curve.frequency <= phi_top
     cg_min = min(float(np.min(curve.group_ratio[sel])), float(curve.phase_ratio_at(phi_top)))
-    amp = _amplitude_table(curve.poisson, amplitude_limit) if amplitude_factors else None
+    amp = _amplitude_table(curve.poisson_ratio, amplitude_limit) if amplitude_factors else None
     return phi_hold, cg_min * c0, amp
 
 
-def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson, *,
+def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio, *,
               amplitude_factors=False, max_frequency=None, above_max_frequency="hold",
               amplitude_limit=DEFAULT_AMPLITUDE_LIMIT):
     """Move a bar strain history a distance along the bar, with dispersion.
@@ -752,7 +752,7 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson, *,
         Bar radius a [m].
     bar_wave_speed : float
         Bar wave speed c0 [m/s], used as given (pass the measured speed).
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν of the bar [1], in (0, 0.5).
     amplitude_factors : bool, optional
         Also apply the radial amplitude factors: the input is then read as
@@ -835,7 +835,7 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson, *,
         raise InputError(f"must be a finite number [m], got {distance!r}", "distance")
     a = _check_positive(bar_radius, "bar_radius")
     c0 = _check_positive(bar_wave_speed, "bar_wave_speed")
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     if max_frequency is not None:
         max_frequency = _check_positive(max_frequency, "max_frequency")
     if above_max_frequency not in ("hold", "lowpass"):
@@ -904,7 +904,7 @@ def _amplitude_table(nu, limit):
     x_sing = float(x[bad[0]]) if bad.size else math.inf
     if not limit < 0.9 * x_sing:
         raise InputError(f"must be below 0.9 × {x_sing:.3f}, the a/Λ where the surface strain of the "
-                         f"fundamental mode vanishes (poisson {nu}), got {limit:g}", "amplitude_limit")
+                         f"fundamental mode vanishes (poisson_ratio {nu}), got {limit:g}", "amplitude_limit")
     K_end = np.array([2.0 * math.pi * limit])
     s_end = _solve_fundamental(K_end, nu)
     r_end = float(s_end[0]) / math.sqrt(2.0 * (1.0 + nu))
@@ -922,7 +922,7 @@ def _lowpass(phi, phi_max, taper=0.1):
     return 0.5 * (1.0 + np.cos(np.pi * u))
 
 
-def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=None,
+def dispersion_info(bar_radius, bar_wave_speed, poisson_ratio, *, distance=None, dt=None,
                     amplitude_factors=False, max_frequency=None, above_max_frequency="hold",
                     amplitude_limit=DEFAULT_AMPLITUDE_LIMIT):
     """Provenance record of a dispersion correction (JSON-ready dict).
@@ -933,7 +933,7 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
         Bar radius a [m].
     bar_wave_speed : float
         Bar wave speed c0 [m/s].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1].
     distance : float, optional
         Propagation distance [m].
@@ -945,7 +945,7 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
     Returns
     -------
     dict
-        Keys carry units: ``method``, ``poisson``, ``bar_radius_m``,
+        Keys carry units: ``method``, ``poisson_ratio``, ``bar_radius_m``,
         ``bar_wave_speed_m_per_s``, ``distance_m``, ``table_max_a_over_lambda``,
         ``hold_frequency_Hz`` (phase velocity held above), ``above_max_frequency``,
         ``second_mode_onset_Hz``, ``nyquist_Hz``, ``amplitude_factors``,
@@ -953,7 +953,7 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
     """
     a = _check_positive(bar_radius, "bar_radius")
     c0 = _check_positive(bar_wave_speed, "bar_wave_speed")
-    nu = _check_poisson(poisson)
+    nu = _check_poisson(poisson_ratio)
     if amplitude_factors:
         amplitude_limit = _check_positive(amplitude_limit, "amplitude_limit")
     curve = normalized_curve(nu)
@@ -962,7 +962,7 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
         phi_hold = min(phi_hold, _check_positive(max_frequency, "max_frequency") * a / c0)
     info = {
         "method": "Pochhammer-Chree fundamental-mode phase shift (Follansbee & Frantz 1983)",
-        "poisson": nu,
+        "poisson_ratio": nu,
         "bar_radius_m": a,
         "bar_wave_speed_m_per_s": c0,
         "distance_m": None if distance is None else float(distance),
@@ -980,13 +980,13 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson, *, distance=None, dt=No
         ],
     }
     if amplitude_factors:
-        amp = _amplitude_table(curve.poisson, amplitude_limit)
+        amp = _amplitude_table(curve.poisson_ratio, amplitude_limit)
         info["amplitude_limit_Hz"] = min(amp.phi_end, phi_hold) * c0 / a
         info["references"].append("Tyas & Watson 2001, Int. J. Impact Eng. 25:87")
     return info
 
 
-def dispersion_table(bar_radius, bar_wave_speed, poisson, max_frequency, n=201):
+def dispersion_table(bar_radius, bar_wave_speed, poisson_ratio, max_frequency, n=201):
     """Phase and group velocity against frequency, for printing or plotting.
 
     Parameters
@@ -995,7 +995,7 @@ def dispersion_table(bar_radius, bar_wave_speed, poisson, max_frequency, n=201):
         Bar radius a [m].
     bar_wave_speed : float
         Bar wave speed c0 [m/s].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio ν [1].
     max_frequency : float
         Highest frequency [Hz] (the table must reach it: f·a/c0 ≤ table end).
@@ -1014,8 +1014,8 @@ def dispersion_table(bar_radius, bar_wave_speed, poisson, max_frequency, n=201):
     if isinstance(n, bool) or int(n) != n or int(n) < 2:
         raise InputError(f"number of rows must be an integer ≥ 2, got {n!r}", "n")
     f = np.linspace(0.0, fmax, int(n))
-    c = phase_velocity(f, a, c0, poisson)
-    cg = group_velocity(f, a, c0, poisson)
+    c = phase_velocity(f, a, c0, poisson_ratio)
+    cg = group_velocity(f, a, c0, poisson_ratio)
     return {
         "frequency_Hz": f,
         "a_over_wavelength": f * a / c,

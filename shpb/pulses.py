@@ -372,7 +372,7 @@ def _bar_strain(volts, gauge, bar):
     from .bridge import bar_strain
 
     return bar_strain(volts, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor, excitation=gauge.excitation,
-                      gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson=bar.poisson_ratio)
+                      gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson_ratio=bar.poisson_ratio)
 
 
 # --------------------------------------------------------------------------- stage 2: the window plan

@@ -1470,7 +1470,7 @@ def _channel_volts(strain, gauge, poisson):
     from .bridge import bar_volts
 
     return bar_volts(strain, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor, excitation=gauge.excitation,
-                     gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson=poisson)
+                     gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson_ratio=poisson)
 
 
 def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_gauge, transmitted_gauge=None, *,

@@ -163,9 +163,9 @@ def make_shot(folder, *, law, name="synthetic", amplitude=8e-4, duration=100e-6,
     tra = np.interp(time - t_face0 - d_tra / c_t, tau, eps_t, left=0, right=0)
     rng = np.random.default_rng(seed)
     kw = dict(bridge=bridge_type, gauge_factor=gf, excitation=exc, gain=gain, polarity=polarity,
-              poisson=STEEL["poisson_ratio"])
+              poisson_ratio=STEEL["poisson_ratio"])
     v_inc = bridge.bar_volts(inc + refl, **kw) + offset + noise * gain * exc * rng.standard_normal(time.size) / 4
-    v_tra = bridge.bar_volts(tra, **dict(kw, poisson=tb["poisson_ratio"])) - offset \
+    v_tra = bridge.bar_volts(tra, **dict(kw, poisson_ratio=tb["poisson_ratio"])) - offset \
         + noise * gain * exc * rng.standard_normal(time.size) / 4
     if kill_transmitted:
         v_tra = noise * gain * exc * rng.standard_normal(time.size) / 4

@@ -118,7 +118,7 @@ def test_free_end_recovers_model_speed(disperse):
     # Measured: about 0.0002 % without dispersion, -0.02 % with either dispersion model.
     c_true = 5100.0
     s = free_end_record(c0=c_true, disperse=disperse)
-    r = C.free_end_wave_speed(s, DT, 0.75, 1.5, C0, RADIUS, density=RHO, poisson=NU)
+    r = C.free_end_wave_speed(s, DT, 0.75, 1.5, C0, RADIUS, density=RHO, poisson_ratio=NU)
     assert len(r["echoes"]) >= 4  # the record holds 4 clean passes after the pulse
     assert abs(r["wave_speed_m_per_s"] / c_true - 1) < (1e-4 if not disperse else 1e-3)
     # the combined standard uncertainty covers the error
@@ -419,7 +419,7 @@ def _cli():
 def _volts(strain):
     """Record volts of the synth.py rig (half-bending, GF 2.1, 10 V, gain 100, polarity -1)."""
     return bridge.bar_volts(strain, bridge="half-bending", gauge_factor=2.1, excitation=10.0, gain=100.0,
-                            polarity=-1, poisson=0.29)
+                            polarity=-1, poisson_ratio=0.29)
 
 
 def _write_record(path, *channels):

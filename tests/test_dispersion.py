@@ -335,7 +335,7 @@ def test_above_max_frequency_hold_and_lowpass():
 
 def test_dispersion_info_record():
     info = D.dispersion_info(RADIUS, C0, NU, distance=0.75, dt=DT, amplitude_factors=True)
-    assert info["poisson"] == NU and info["amplitude_factors"] is True
+    assert info["poisson_ratio"] == NU and info["amplitude_factors"] is True
     assert info["nyquist_Hz"] == pytest.approx(5e6)
     # table end a/Λ = 2: f = (a/Λ)(c/c0) c0/a with c/c0 from an independent root
     assert info["hold_frequency_Hz"] == pytest.approx(2.0 * _reference_ratio(2.0, NU) * C0 / RADIUS, rel=1e-9)

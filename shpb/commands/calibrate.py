@@ -102,7 +102,7 @@ def _strain(volts, barset, bar):
     b = barset.incident if bar == "incident" else barset.transmitted
     v = np.asarray(volts, float) - pulses.robust_noise(volts)[0]
     return bridge.bar_strain(v, bridge=g.bridge, gauge_factor=g.gauge_factor, excitation=g.excitation, gain=g.gain,
-                             polarity=g.polarity, scale=1.0, poisson=b.poisson_ratio)
+                             polarity=g.polarity, scale=1.0, poisson_ratio=b.poisson_ratio)
 
 
 def _save(cal_file: Path, kind, bar, results, apply, inputs, settings, fig, figure: bool):
@@ -194,7 +194,7 @@ def free_end_cmd(
     time, dt, (volts,) = _read(record, [column], time_column, time_unit, sample_interval)
     strain = _strain(volts, bs, bar)
     res = C.free_end_wave_speed(
-        strain, dt, d, b.length, b.wave_speed, b.radius, density=b.material.density, poisson=b.poisson_ratio,
+        strain, dt, d, b.length, b.wave_speed, b.radius, density=b.material.density, poisson_ratio=b.poisson_ratio,
         impact_end_free=impact_end_free, max_echoes=max_echoes,
         max_frequency=_q(max_frequency, "frequency", "--max-frequency"),
         gauge_position_uncertainty=_q(gauge_position_uncertainty, "length", "--gauge-position-uncertainty"),
@@ -255,7 +255,7 @@ def flight_cmd(
     lengths, delays = _flight_table(data, length_column, delay_column)
     res = C.time_of_flight_fit(lengths, delays)
     cal_file = _where(barset, calibration_file)
-    results = {"wave_speed_m_per_s": res["wave_speed_m_per_s"], "wave_speed_se_m_per_s": res["wave_speed_se_m_per_s"],
+    results = {"wave_speed_m_per_s": res["wave_speed_m_per_s"], "wave_speed_uncertainty_m_per_s": res["wave_speed_uncertainty_m_per_s"],
                "intercept_us": res["intercept_s"] * 1e6, "intercept_se_us": res["intercept_se_s"] * 1e6,
                "intercept_significant": res["intercept_significant"], "n_points": res["n_points"],
                "path_lengths_m": list(lengths), "delays_us": [d * 1e6 for d in delays],
@@ -266,7 +266,7 @@ def flight_cmd(
     fig_path = _save(cal_file, "flight", bar, results, apply_t, inputs,
                      {"method": "ordinary least squares t = L/c + t0"}, fig, figure)
     lines = [f"time of flight ({res['n_points']} points): c = {res['wave_speed_m_per_s']:.1f} +/- "
-             f"{res['wave_speed_se_m_per_s']:.1f} m/s, t0 = {res['intercept_s'] * 1e6:.3f} +/- "
+             f"{res['wave_speed_uncertainty_m_per_s']:.1f} m/s, t0 = {res['intercept_s'] * 1e6:.3f} +/- "
              f"{res['intercept_se_s'] * 1e6:.3f} us"]
     lines += [f"  note: {n}" for n in res["notes"]]
     _report(lines, cal_file, fig_path, apply_t, barset)
