@@ -15,11 +15,12 @@ References
 from __future__ import annotations
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 BRIDGES = ("quarter", "half-bending", "half-poisson", "full-poisson")
 
 
-def strain_from_ratio(ratio, bridge, gauge_factor, poisson_ratio=0.3):
+def strain_from_ratio(ratio: ArrayLike, bridge: str, gauge_factor: float, poisson_ratio: float = 0.3) -> np.ndarray:
     """Axial strain from the bridge ratio, with each bridge's exact non-linearity.
 
     Parameters
@@ -70,7 +71,7 @@ def strain_from_ratio(ratio, bridge, gauge_factor, poisson_ratio=0.3):
     raise ValueError(f"unknown bridge {bridge!r}; expected one of {', '.join(BRIDGES)}")
 
 
-def ratio_from_strain(strain, bridge, gauge_factor, poisson_ratio=0.3):
+def ratio_from_strain(strain: ArrayLike, bridge: str, gauge_factor: float, poisson_ratio: float = 0.3) -> np.ndarray:
     """Bridge ratio Vr [1] for an axial strain [1] (tension positive); the exact inverse of :func:`strain_from_ratio`."""
     e = np.asarray(strain, dtype=float) * float(gauge_factor)
     nu = float(poisson_ratio)
@@ -85,7 +86,8 @@ def ratio_from_strain(strain, bridge, gauge_factor, poisson_ratio=0.3):
     raise ValueError(f"unknown bridge {bridge!r}; expected one of {', '.join(BRIDGES)}")
 
 
-def bar_strain(volts, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1, scale=1.0, poisson_ratio=0.3):
+def bar_strain(volts: ArrayLike, *, bridge: str, gauge_factor: float, excitation: float, gain: float = 1.0,
+               polarity: int = 1, scale: float = 1.0, poisson_ratio: float = 0.3) -> np.ndarray:
     """Bar strain, compression positive, from a recorded channel [V].
 
     Parameters
@@ -114,13 +116,14 @@ def bar_strain(volts, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1,
     return -scale * strain_from_ratio(ratio, bridge, gauge_factor, poisson_ratio)
 
 
-def bar_volts(strain, *, bridge, gauge_factor, excitation, gain=1.0, polarity=1, scale=1.0, poisson_ratio=0.3):
+def bar_volts(strain: ArrayLike, *, bridge: str, gauge_factor: float, excitation: float, gain: float = 1.0,
+              polarity: int = 1, scale: float = 1.0, poisson_ratio: float = 0.3) -> np.ndarray:
     """Recorded voltage [V] for a bar strain [1] (compression positive); inverse of :func:`bar_strain`."""
     ratio = ratio_from_strain(-np.asarray(strain, dtype=float) / scale, bridge, gauge_factor, poisson_ratio)
     return -polarity * ratio * gain * excitation
 
 
-def shunt_strain(gauge_resistance, shunt_resistance, gauge_factor):
+def shunt_strain(gauge_resistance: float, shunt_resistance: float, gauge_factor: float) -> float:
     """Equivalent strain of a shunt resistor across an active gauge arm.
 
     Parameters

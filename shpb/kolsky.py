@@ -21,12 +21,19 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
+from numpy.typing import ArrayLike
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .pulses import FaceWaves
+    from .setup import BarSet, Specimen
 
 
-def face_forces(strain_incident, strain_reflected, strain_transmitted, incident_modulus, incident_area,
-                transmitted_modulus, transmitted_area):
+def face_forces(strain_incident: ArrayLike, strain_reflected: ArrayLike, strain_transmitted: ArrayLike,
+                incident_modulus: float, incident_area: float, transmitted_modulus: float,
+                transmitted_area: float) -> tuple[np.ndarray, np.ndarray]:
     """Forces on the specimen's front and back faces.
 
     F1 = E_i A_i (ε_i + ε_r),  F2 = E_t A_t ε_t  (refs [1]–[3]).
@@ -49,8 +56,8 @@ def face_forces(strain_incident, strain_reflected, strain_transmitted, incident_
     return incident_modulus * incident_area * (ei + er), transmitted_modulus * transmitted_area * et
 
 
-def face_velocities(strain_incident, strain_reflected, strain_transmitted, incident_wave_speed,
-                    transmitted_wave_speed):
+def face_velocities(strain_incident: ArrayLike, strain_reflected: ArrayLike, strain_transmitted: ArrayLike,
+                    incident_wave_speed: float, transmitted_wave_speed: float) -> tuple[np.ndarray, np.ndarray]:
     """Particle velocities of the specimen faces, positive towards the transmitted bar.
 
     v1 = c_i (ε_i − ε_r),  v2 = c_t ε_t  (refs [1]–[3]).
@@ -64,12 +71,12 @@ def face_velocities(strain_incident, strain_reflected, strain_transmitted, incid
     return incident_wave_speed * (ei - er), transmitted_wave_speed * et
 
 
-def strain_rate(velocity_front, velocity_back, specimen_length):
+def strain_rate(velocity_front: ArrayLike, velocity_back: ArrayLike, specimen_length: float) -> np.ndarray:
     """Three-wave engineering strain rate (v1 − v2) / L_s [1/s], compression positive."""
     return (np.asarray(velocity_front, dtype=float) - np.asarray(velocity_back, dtype=float)) / specimen_length
 
 
-def strain_rate_reflected(strain_reflected, bar_wave_speed, specimen_length):
+def strain_rate_reflected(strain_reflected: ArrayLike, bar_wave_speed: float, specimen_length: float) -> np.ndarray:
     """Classic strain rate from the reflected wave alone, −2 c0 ε_r / L_s [1/s].
 
     Assumes force equilibrium (ε_i + ε_r = ε_t) and identical bars (refs [2], [3]).
@@ -77,7 +84,7 @@ def strain_rate_reflected(strain_reflected, bar_wave_speed, specimen_length):
     return -2.0 * bar_wave_speed * np.asarray(strain_reflected, dtype=float) / specimen_length
 
 
-def integrate(rate, dt):
+def integrate(rate: ArrayLike, dt: float) -> np.ndarray:
     """Cumulative trapezoidal integral of a rate sampled at ``dt`` [s], starting at 0."""
     r = np.asarray(rate, dtype=float)
     out = np.zeros_like(r)
@@ -86,7 +93,7 @@ def integrate(rate, dt):
     return out
 
 
-def stresses(force_front, force_back, specimen_area):
+def stresses(force_front: ArrayLike, force_back: ArrayLike, specimen_area: float) -> dict:
     """One-, two- and three-wave engineering stress [Pa].
 
     one-wave = F2 / A_s (back face), two-wave = F1 / A_s (front face),
@@ -102,7 +109,7 @@ def stresses(force_front, force_back, specimen_area):
     return {"1-wave": f2 / specimen_area, "2-wave": f1 / specimen_area, "3-wave": 0.5 * (f1 + f2) / specimen_area}
 
 
-def true_stress_strain(strain, stress):
+def true_stress_strain(strain: ArrayLike, stress: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     """True strain and stress from engineering values, compression positive, volume constant.
 
     ε_T = −ln(1 − e),  σ_T = σ (1 − e)  (ref. [3], ch. 1).
@@ -124,7 +131,7 @@ def true_stress_strain(strain, stress):
         return -np.log1p(-e), s * (1.0 - e)
 
 
-def equilibrium_ratio(force_front, force_back, floor=0.0):
+def equilibrium_ratio(force_front: ArrayLike, force_back: ArrayLike, floor: float = 0.0) -> np.ndarray:
     """Force-equilibrium factor R(t) = 2 (F1 − F2) / (F1 + F2).
 
     Parameters
@@ -201,7 +208,8 @@ class KolskyCurves:
         return {"step": "kolsky", "parameters": {"reported_stress": self.stress_form, "strain_rate": "three-wave"}}
 
 
-def kolsky_curves(waves, barset, specimen, stress_form="1-wave") -> KolskyCurves:
+def kolsky_curves(waves: "FaceWaves", barset: "BarSet", specimen: "Specimen",
+                  stress_form: str = "1-wave") -> KolskyCurves:
     """Stage 4: face forces and velocities, strain rates, strains and stresses of a shot.
 
     Parameters

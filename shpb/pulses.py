@@ -8,11 +8,17 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING, Callable, Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .io import Record
+    from .setup import AnalysisOptions, BarSet
 
 
-def noise_floor(signal, n_baseline):
+def noise_floor(signal: ArrayLike, n_baseline: int) -> tuple[float, float]:
     """Mean and standard deviation of the first ``n_baseline`` samples (the pre-trigger part).
 
     Parameters
@@ -31,7 +37,7 @@ def noise_floor(signal, n_baseline):
     return float(np.mean(s)), float(np.std(s))
 
 
-def robust_noise(signal):
+def robust_noise(signal: ArrayLike) -> tuple[float, float]:
     """Baseline level and noise of a record without knowing where its pulses are.
 
     The level is the median of the record (pulses fill less than half a bar
@@ -57,7 +63,8 @@ def robust_noise(signal):
     return level, sigma / np.sqrt(2.0)
 
 
-def find_foot(signal, n_baseline=None, *, k_sigma=8.0, min_fraction=0.05, foot_fraction=0.01):
+def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: float = 8.0, min_fraction: float = 0.05,
+              foot_fraction: float = 0.01) -> Optional[float]:
     """Sub-sample index of the foot of the first positive pulse.
 
     The pulse is first detected where it exceeds a threshold relative to the
@@ -110,7 +117,7 @@ def find_foot(signal, n_baseline=None, *, k_sigma=8.0, min_fraction=0.05, foot_f
     return i0 + float(np.clip(frac, 0.0, 1.0))
 
 
-def pulse_end(signal, i_start, *, fraction=0.1):
+def pulse_end(signal: ArrayLike, i_start: float, *, fraction: float = 0.1) -> Optional[int]:
     """Index where a positive pulse starting at ``i_start`` has fallen back below ``fraction`` of its peak.
 
     The search starts at the pulse's peak (the largest value before the
@@ -136,7 +143,7 @@ def pulse_end(signal, i_start, *, fraction=0.1):
     return i0 + ipk + int(after[0])
 
 
-def delay(signal, dt, shift_time):
+def delay(signal: ArrayLike, dt: float, shift_time: float) -> np.ndarray:
     """Delay a signal by ``shift_time`` with sub-sample (linear) interpolation.
 
     ``out(t) = signal(t - shift_time)`` on the same time grid; samples that
@@ -159,7 +166,7 @@ def delay(signal, dt, shift_time):
     return np.interp(k - shift_time / dt, k, s, left=0.0, right=0.0)
 
 
-def taper_window(n, start, stop, ramp):
+def taper_window(n: int, start: float, stop: float, ramp: int) -> np.ndarray:
     """A 0–1 mask of length ``n``: 1 on ``[start, stop)``, raised-cosine ramps of ``ramp`` samples just inside.
 
     Tapering the window's edges keeps a cut-out pulse free of steps, so a
@@ -178,7 +185,8 @@ def taper_window(n, start, stop, ramp):
     return w
 
 
-def carry_wave(channel, dt, start, stop, travel_time, ramp, mover=None):
+def carry_wave(channel: ArrayLike, dt: float, start: float, stop: float, travel_time: float, ramp: int,
+               mover: Optional[Callable[[np.ndarray], np.ndarray]] = None) -> tuple[np.ndarray, np.ndarray]:
     """Cut a wave out of a channel and carry it along its bar by ``travel_time``.
 
     Parameters
@@ -223,7 +231,7 @@ def carry_wave(channel, dt, start, stop, travel_time, ramp, mover=None):
     return full, full_plain
 
 
-def flat_top_run(volts):
+def flat_top_run(volts: ArrayLike) -> tuple[int, float]:
     """Longest run of consecutive samples at the record's extreme value (max or min) and its level.
 
     A recorder driven past its range writes its rail value sample after
@@ -248,7 +256,7 @@ def flat_top_run(volts):
     return best, level
 
 
-def ramp_time(duration, dt):
+def ramp_time(duration: float, dt: float) -> float:
     """Length of the raised-cosine taper at each end of a wave's window [s]: 2 % of the pulse."""
     return max(2 * dt, 0.02 * duration)
 
@@ -305,7 +313,7 @@ class GaugeStrains:
                                                  "incident_foot": self.foot_source}}
 
 
-def condition_record(record, barset, analysis) -> GaugeStrains:
+def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOptions") -> GaugeStrains:
     """Stage 1: find the incident foot and the baselines, and convert both channels to bar strain.
 
     The baseline level is the mean of the quiet record start: the
@@ -454,9 +462,10 @@ class WindowPlan:
                 "window_source": self.source}
 
 
-def plan_window(foot, duration, dt, t_start, t_end, *, incident_gauge_distance, incident_wave_speed,
-                incident_length, transmitted_gauge_distance, transmitted_wave_speed, transmitted_length,
-                window_length=None):
+def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: float, *,
+                incident_gauge_distance: float, incident_wave_speed: float, incident_length: float,
+                transmitted_gauge_distance: float, transmitted_wave_speed: float, transmitted_length: float,
+                window_length: Optional[float] = None) -> WindowPlan:
     """Choose the analysis window of a shot.
 
     The window starts 10 % of the pulse before the incident foot reaches the
@@ -511,7 +520,7 @@ def plan_window(foot, duration, dt, t_start, t_end, *, incident_gauge_distance, 
     return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration)
 
 
-def plan_analysis(strains: GaugeStrains, barset, analysis) -> WindowPlan:
+def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions") -> WindowPlan:
     """Stage 2: the incident pulse's duration, the analysis window and each wave's window at its gauge.
 
     The duration is measured on the incident channel (down to 5 % of its
@@ -601,7 +610,7 @@ class FaceWaves:
         return {"peak_incident_strain": float(np.max(self.incident)), "sample_interval_us": self.dt * 1e6}
 
 
-def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset, analysis) -> FaceWaves:
+def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset: "BarSet", analysis: "AnalysisOptions") -> FaceWaves:
     """Stage 3: cut each wave out at its gauge and carry it to its specimen face.
 
     Each wave is moved over its gauge distance with the bar's

@@ -10,8 +10,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass, field
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .kolsky import KolskyCurves
+    from .pulses import FaceWaves, GaugeStrains, WindowPlan
+    from .setup import AnalysisOptions, BarSet, Specimen
 
 #: Largest |R| counted as force equilibrium (Ravichandran & Subhash 1994).
 EQUILIBRIUM_THRESHOLD = 0.05
@@ -36,7 +43,8 @@ class Flag:
         return asdict(self)
 
 
-def loading_region(strain_rate, force_mean, *, force_fraction=0.1, rate_fraction=0.5):
+def loading_region(strain_rate: ArrayLike, force_mean: ArrayLike, *, force_fraction: float = 0.1,
+                   rate_fraction: float = 0.5) -> Optional[tuple[int, int]]:
     """Index range of the loading part of a shot.
 
     From where the mean face force first exceeds ``force_fraction`` of its
@@ -62,7 +70,7 @@ def loading_region(strain_rate, force_mean, *, force_fraction=0.1, rate_fraction
     return start, int(on[-1]) + 1
 
 
-def moving_average(values, n):
+def moving_average(values: ArrayLike, n: int) -> np.ndarray:
     """Centred moving average over ``n`` samples, NaN-aware (NaN where the window holds no number)."""
     x = np.asarray(values, dtype=float)
     n = int(n)
@@ -78,7 +86,7 @@ def moving_average(values, n):
     return out
 
 
-def equilibrium_onset(ratio, region, threshold=EQUILIBRIUM_THRESHOLD):
+def equilibrium_onset(ratio: ArrayLike, region: tuple[int, int], threshold: float = EQUILIBRIUM_THRESHOLD) -> Optional[int]:
     """First index of ``region`` from which |R| stays at or below ``threshold`` to the region's end.
 
     Parameters
@@ -105,7 +113,7 @@ def equilibrium_onset(ratio, region, threshold=EQUILIBRIUM_THRESHOLD):
     return a + (int(idx[-1]) + 1 if idx.size else 0)
 
 
-def rate_plateau(strain_rate, mask):
+def rate_plateau(strain_rate: ArrayLike, mask: ArrayLike) -> dict:
     """Mean, standard deviation and coefficient of variation of the strain rate over ``mask``.
 
     Returns
@@ -120,7 +128,8 @@ def rate_plateau(strain_rate, mask):
     return {"mean_per_s": m, "std_per_s": s, "cv": s / m if m else float("nan")}
 
 
-def elastic_window(strain, stress, window_fraction=0.25, low=0.05, high=0.5):
+def elastic_window(strain: ArrayLike, stress: ArrayLike, window_fraction: float = 0.25, low: float = 0.05,
+                   high: float = 0.5) -> Optional[tuple[int, int]]:
     """Index range of the steepest part of the loading rise: the elastic part of the curve.
 
     Over the rise from ``low`` to ``high`` of the peak stress, a window of
@@ -160,7 +169,8 @@ def elastic_window(strain, stress, window_fraction=0.25, low=0.05, high=0.5):
     return k, k + w
 
 
-def offset_yield(strain, stress, offset=0.002, modulus=None, window_fraction=0.25):
+def offset_yield(strain: ArrayLike, stress: ArrayLike, offset: float = 0.002, modulus: Optional[float] = None,
+                 window_fraction: float = 0.25) -> Optional[dict]:
     """Yield point by the offset method.
 
     The elastic line σ = E (ε − ε0) is fitted by least squares on the
@@ -223,7 +233,7 @@ def offset_yield(strain, stress, offset=0.002, modulus=None, window_fraction=0.2
             "modulus_source": source, "toe_strain": float(e0)}
 
 
-def bar_stress_flag(peak_strain, modulus, yield_strength, bar_name):
+def bar_stress_flag(peak_strain: float, modulus: float, yield_strength: Optional[float], bar_name: str) -> Optional[Flag]:
     """Peak bar stress E·|ε|max against the bar's yield strength.
 
     Returns
@@ -248,7 +258,8 @@ def bar_stress_flag(peak_strain, modulus, yield_strength, bar_name):
     return None
 
 
-def clipping_flag(volts, channel, full_scale=None, pulse_samples=None):
+def clipping_flag(volts: ArrayLike, channel: str, full_scale: Optional[float] = None,
+                  pulse_samples: Optional[float] = None) -> Optional[Flag]:
     """Flag a channel that sat at its recorder's rail.
 
     With the recorder's range known (``full_scale`` [V]), any sample within
@@ -274,7 +285,7 @@ def clipping_flag(volts, channel, full_scale=None, pulse_samples=None):
     return None
 
 
-def overlap_flag(pulse_duration, gauge_distance, wave_speed, bar_name):
+def overlap_flag(pulse_duration: float, gauge_distance: float, wave_speed: float, bar_name: str) -> Optional[Flag]:
     """Incident and reflected waves overlap at the gauge if the pulse lasts longer than 2 d / c0."""
     transit = 2.0 * gauge_distance / wave_speed
     if pulse_duration > transit:
@@ -306,7 +317,8 @@ class Assessment:
     flags: list = field(default_factory=list)
 
 
-def assess_curve(time, strain_rate, force_front, force_back, strain, stress, *, dt,
+def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike, force_back: ArrayLike,
+                 strain: ArrayLike, stress: ArrayLike, *, dt: float,
                  threshold=EQUILIBRIUM_THRESHOLD, yield_offset=0.002, specimen_modulus=None,
                  specimen_transit=None, averaging=EQUILIBRIUM_AVERAGING):
     """Judge a reduced curve: loading part, equilibrium, strain-rate plateau and yield point.
@@ -446,7 +458,7 @@ class Verdict:
         return not any(f.severity == "error" for f in self.flags)
 
 
-def record_flags(strains, plan, waves, barset) -> list:
+def record_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", barset: "BarSet") -> list:
     """Flags about the record: waves overlapping at the gauge, a truncated record, no transmitted pulse.
 
     Parameters
@@ -485,7 +497,7 @@ def record_flags(strains, plan, waves, barset) -> list:
     return [f for f in flags if f is not None]
 
 
-def bar_flags(strains, plan, barset):
+def bar_flags(strains: "GaugeStrains", plan: "WindowPlan", barset: "BarSet") -> tuple[list, dict]:
     """Flags about the bars and the channels: bar stress against yield, clipping, far-end echo of the transmitted bar.
 
     Returns
@@ -518,7 +530,8 @@ def bar_flags(strains, plan, barset):
     return [f for f in flags if f is not None], results
 
 
-def judge(strains, plan, waves, curves, barset, specimen, analysis) -> Verdict:
+def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curves: "KolskyCurves", barset: "BarSet",
+          specimen: "Specimen", analysis: "AnalysisOptions") -> Verdict:
     """Stage 5: judge a reduced shot: the record (:func:`record_flags`), the curve (:func:`assess_curve`), the bars.
 
     Parameters
