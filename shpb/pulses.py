@@ -358,10 +358,11 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
                              f"({t0 * 1e6:g} to {record.time[-1] * 1e6:g} us)", "analysis.incident_start")
     else:
         # the bridge is monotonic: the foot can be found on the sign-corrected volts
-        foot, source = find_foot(polarity * (raw_i - level), n_pre), "found"
-        if foot is None:
+        found, source = find_foot(polarity * (raw_i - level), n_pre), "found"
+        if found is None:
             raise AnalysisError("no incident pulse found on the incident channel (nothing rises above 8x its "
                                 "noise)")
+        foot = found
     if foot < MIN_BASELINE_SAMPLES:
         raise AnalysisError(f"the incident pulse starts {foot:.0f} samples into the record: no "
                             f"pre-trigger baseline (record at least {MIN_BASELINE_SAMPLES} samples before the pulse)")

@@ -312,7 +312,7 @@ class Assessment:
     """
 
     valid: np.ndarray
-    equilibrium_ratio: np.ndarray = None
+    equilibrium_ratio: Optional[np.ndarray] = None
     results: dict = field(default_factory=dict)
     flags: list = field(default_factory=list)
 
