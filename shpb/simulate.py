@@ -394,36 +394,87 @@ def radial_return(trial_stress, plastic_strain, modulus, flow_stress, dt, *, gue
     size = np.abs(trial)
     p = np.asarray(plastic_strain, dtype=float)
     increment = np.zeros_like(trial)
-    yielding = np.flatnonzero(size > flow_stress(p, np.zeros_like(p)))
+    quasi_static = flow_stress(p, np.zeros_like(p))
+    yielding = np.flatnonzero(size > quasi_static)
     if yielding.size:
         x0 = None if guess is None else np.asarray(guess, dtype=float)[yielding]
-        increment[yielding] = _solve_increment(size[yielding], p[yielding], modulus, flow_stress, dt, x0,
-                                               rtol, max_iter)
+        increment[yielding], _ = _solve_increment(size[yielding], p[yielding], modulus, flow_stress, dt, x0,
+                                                  rtol, max_iter, quasi_static[yielding])
     return trial - np.sign(trial) * modulus * increment, increment
 
 
-def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter):
-    # g(x) = |s_trial| - E x - s_y(p + x, x/dt) has g(0) > 0 (the yield check) and g(|s_trial|/E) <= 0
-    # since s_y >= 0: the root is bracketed, so bisection can always take over from Newton.
-    lo = np.zeros_like(size)
-    hi = size / E
-    x = (size - flow_stress(p, np.zeros_like(p))) / E  # exact for a rate-independent perfectly plastic law
+def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter, quasi_static):
+    """The plastic increments of :func:`radial_return` and the quasi-static flow stress after them.
+
+    ``quasi_static`` is ``flow_stress(p, 0)`` (the yield check's). Each
+    iteration asks the law once, for three points per element: the flow
+    stress at the iterate (the residual), a little beyond it (the
+    forward-difference slope) and at zero rate (the next step's yield check,
+    returned with the converged increments so that a caller can keep it).
+
+    The residual ``g(x) = |s_trial| - E x - s_y(p + x, x / dt)`` falls
+    monotonically from ``g(0+) > 0`` (the yield check) to
+    ``g(|s_trial| / E) <= 0`` (``s_y >= 0``), so the root stays bracketed.
+    Newton steps are taken on ``x``, or on ``ln x`` where the law's slope
+    exceeds E (a rate term in ``ln x`` then dominates and ``g`` is nearly
+    linear in ``ln x``; roots at the onset of flow lie orders of magnitude
+    below the rate-independent first guess). A step from one side of the
+    root that overshoots the bracket is replaced by the step from the
+    bracket's other end (the side from which Newton converges monotonically
+    for a residual convex in the variable), and failing that by bisection,
+    geometric across a bracket wider than a factor of 4.
+    """
+    m = size.size
+    lo, hi = np.zeros_like(size), size / E
+    x = (size - quasi_static) / E  # exact for a rate-independent perfectly plastic law
     if x0 is not None:  # warm start from the previous step where it lies inside the bracket
         x = np.where((x0 > 0.0) & (x0 < hi), x0, x)
     tol = rtol * size
+    strains, rates = np.empty(3 * m), np.zeros(3 * m)
+    # residual, slope and law slope at each end of the bracket (NaN: not evaluated there yet)
+    ends = {name: np.full(m, np.nan) for name in ("g_lo", "slope_lo", "law_lo", "g_hi", "slope_hi", "law_hi")}
     for _ in range(max_iter):
-        g = size - E * x - flow_stress(p + x, x / dt)
-        if np.all(np.abs(g) <= tol):
-            break
-        lo = np.where(g > 0.0, x, lo)
-        hi = np.where(g > 0.0, hi, x)
-        h = np.maximum(1e-6 * x, 1e-15)
-        slope = E + (flow_stress(p + x + h, (x + h) / dt) - flow_stress(p + x, x / dt)) / h
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = x + g / slope
-        inside = (step > lo) & (step < hi) & np.isfinite(step)
-        x = np.where(inside, step, 0.5 * (lo + hi))
-    return x
+        h = 1e-6 * x  # x > 0 throughout: every iterate lies inside the bracket (0, |s_trial| / E)
+        np.add(p, x, out=strains[:m])
+        np.add(strains[:m], h, out=strains[m:2 * m])
+        strains[2 * m:] = strains[:m]
+        np.divide(x, dt, out=rates[:m])
+        np.divide(x + h, dt, out=rates[m:2 * m])
+        flow = flow_stress(strains, rates)
+        g = size - E * x - flow[:m]
+        if (np.abs(g) <= tol).all():
+            return x, flow[2 * m:]
+        law_slope = (flow[m:2 * m] - flow[:m]) / h
+        slope = E + law_slope
+        right = g <= 0.0  # x is at or beyond the root: the bracket's upper end
+        left = ~right
+        np.copyto(hi, x, where=right)
+        np.copyto(lo, x, where=left)
+        for side, where in (("_hi", right), ("_lo", left)):
+            np.copyto(ends["g" + side], g, where=where)
+            np.copyto(ends["slope" + side], slope, where=where)
+            np.copyto(ends["law" + side], law_slope, where=where)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            step = _newton_step(x, g, slope, law_slope, E)
+            inside = (step > lo) & (step < hi) & np.isfinite(step)
+            if inside.all():
+                x = step
+                continue
+            other = np.where(right, _newton_step(lo, ends["g_lo"], ends["slope_lo"], ends["law_lo"], E),
+                             _newton_step(hi, ends["g_hi"], ends["slope_hi"], ends["law_hi"], E))
+            mid = np.where((lo > 0.0) & (hi > 4.0 * lo), np.sqrt(lo * hi), 0.5 * (lo + hi))
+        other_in = (other > lo) & (other < hi) & np.isfinite(other)
+        x = np.where(inside, step, np.where(other_in, other, mid))
+    return x, np.asarray(flow_stress(p + x, np.zeros_like(x)), dtype=float)
+
+
+def _newton_step(x, g, slope, law_slope, E):
+    """Newton step for ``g(x) = 0`` with ``g' = -slope``: on ``ln x`` where the law's slope exceeds E."""
+    linear = x + g / slope
+    on_log = law_slope > E
+    if on_log.any():
+        return np.where(on_log, x * np.exp(g / (slope * x)), linear)
+    return linear
 
 
 # --------------------------------------------------------------------------- specifications
@@ -812,121 +863,301 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
     return _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak)
 
 
-def _masses_and_stiffness(rods, n_nodes, dt):
-    """Lumped nodal masses [kg] and per-link EA [N], dt/dx [s/m], dx/(EA) [m/N]; zero on the joints."""
-    mass = np.zeros(n_nodes)
-    EA, dt_over_dx, dx_over_EA = np.zeros(n_nodes - 1), np.zeros(n_nodes - 1), np.zeros(n_nodes - 1)
-    for r in rods:
-        s = r.spec
-        m_el = s.density * s.area * r.dx
-        mass[r.node0:r.last_node] += 0.5 * m_el
-        mass[r.node0 + 1:r.last_node + 1] += 0.5 * m_el
-        mass[r.node0] += 0.5 * m_el * r.cap_start  # a capped end carries a whole element
-        mass[r.last_node] += 0.5 * m_el * r.cap_end
-        EA[r.links] = s.modulus * s.area
-        dt_over_dx[r.links] = dt / r.dx
-        dx_over_EA[r.links] = r.dx / (s.modulus * s.area)
-    return mass, EA, dt_over_dx, dx_over_EA
+# --------------------------------------------------------------------------- the solver
+#: Rods that run at Courant number exactly 1 (``_build_rods``); elastic ones are solved as delay lines.
+_COURANT_ONE = ("striker", "incident", "transmitted")
+#: Steps of grid state kept at a time before they are reduced to the recorded quantities.
+_CHUNK = 1024
+
+
+class _DelayLine:
+    """An elastic rod at Courant number 1, solved exactly as two shift registers of its travelling waves.
+
+    At Courant 1 the staggered scheme of a uniform rod is the d'Alembert
+    solution on the grid: with ``R_j(n)`` the strain of the wave travelling
+    +x in element j at step n and ``L_j(n)`` that of the wave travelling -x
+    (tension positive), an element's strain is ``R_j + L_j``, an interior
+    node's velocity is ``v_j(n+1/2) = c0 (L_j(n) - R_(j-1)(n))``, and each
+    step every wave moves one element unchanged: ``R_j(n+1) = R_(j-1)(n)``,
+    ``L_j(n+1) = L_(j+1)(n)`` (substitute into the update
+    ``v_j += c0 (eps_j - eps_(j-1))``, ``eps_j += (v_(j+1) - v_j) / c0``).
+    Only the two end nodes are integrated: they carry the rod's end masses
+    and meet the contacts, the drive or a free end in the grid of
+    :func:`_run`, and the wave each sends in follows from its velocity,
+    ``R_0(n+1) = L_0(n) - v_0(n+1/2) / c0`` and
+    ``L_(N-1)(n+1) = R_(N-1)(n) + v_N(n+1/2) / c0`` (the same update at the
+    end elements). The results are those of the node-by-node march, to
+    round-off, at a cost independent of the rod's length.
+
+    Storage: ``R_j(n) = right[N + n - j]`` and ``L_j(n) = left[n + j]``, so
+    the whole history stays available for the records and energies after the
+    run.
+
+    References
+    ----------
+    .. [1] K. F. Graff, Wave Motion in Elastic Solids, Oxford Univ. Press,
+       1975, ch. 2 (d'Alembert solution; v = -c0 eps for a wave travelling +x).
+    """
+
+    def __init__(self, rod: _Rod, n_steps: int, speed: float = 0.0):
+        self.rod = rod
+        self.N = rod.n
+        self.c = rod.spec.wave_speed
+        self.EA = rod.spec.modulus * rod.spec.area
+        self.right = np.zeros(self.N + n_steps + 2)
+        self.left = np.zeros(self.N + n_steps + 2)
+        # a rod moving at `speed` without strain: eps = R + L = 0 and v = c0 (L - R) = speed
+        self.right[:self.N + 1] = -speed / (2.0 * self.c)
+        self.left[:self.N] = speed / (2.0 * self.c)
+
+    def end_forces(self, n):
+        """Element forces [N] at step n in the first and in the last element, tension positive."""
+        N, R, L = self.N, self.right, self.left
+        return self.EA * (R[N + n] + L[n]), self.EA * (R[n + 1] + L[n + N - 1])
+
+    def strain(self, j, steps):
+        """Strain of element j [1] at the given steps, tension positive."""
+        return self.right[self.N + steps - j] + self.left[steps + j]
+
+    def node_waves(self, j, steps):
+        """The two travelling waves at interior node j [1], tension positive: each one's mean over the
+        two elements beside the node, ``(R_(j-1) + R_j) / 2`` and ``(L_(j-1) + L_j) / 2``."""
+        R, L, N = self.right, self.left, self.N
+        return 0.5 * (R[N + steps - j] + R[N + steps - j + 1]), 0.5 * (L[steps + j - 1] + L[steps + j])
+
+    def energies(self, n_steps):
+        """Kinetic energy of the interior nodes and strain energy of the elements [J] at steps 0..n_steps.
+
+        The same discrete energies as the node-by-node march (kinetic
+        ``m v(n-1/2) v(n+1/2) / 2`` per node, strain ``F**2 dx / (2 EA)`` per
+        element), written in the waves: with ``m c0**2 = EA dx`` and
+        ``a_k = R`` history, ``b_k = L`` history,
+
+            strain  = EA dx / 2 * sum_j (R_j + L_j)**2
+            kinetic = EA dx / 2 * sum_(j=1..N-1) (L_j(n-1) - R_(j-1)(n-1)) (L_j(n) - R_(j-1)(n)).
+
+        Squares and lag products are window sums (cumulative sums); the
+        cross term ``sum_j R_j(n) L_j(n)`` pairs the two histories along
+        anti-diagonals and is computed for every step at once
+        (:func:`_band_pair_sums`).
+        """
+        N, R, L = self.N, self.right, self.left
+        k = np.arange(n_steps + 1)
+
+        def cumulative(x):
+            return np.concatenate(([0.0], np.cumsum(x)))
+
+        r2, l2 = cumulative(R * R), cumulative(L * L)
+        r_lag, l_lag = cumulative(R[:-1] * R[1:]), cumulative(L[:-1] * L[1:])
+        sum_r2 = r2[N + k + 1] - r2[k + 1]  # right[k+1 .. N+k]: R_j(k) for j = N-1 .. 0
+        sum_l2 = l2[k + N] - l2[k]  # left[k .. k+N-1]
+        sum_r_lag = r_lag[k + N] - r_lag[k + 1]  # R_(j-1)(k) R_j(k) for j = 1 .. N-1
+        sum_l_lag = l_lag[k + N - 1] - l_lag[k]
+        # cross term: right[N+k-j] left[k+j] = x[u] y[m] with x = right[1:], y = N-1 zeros then left:
+        # u = N+k-j-1, m = k+j+N-1, u + m = 2k + 2N - 2, m - u = 2j in [0, 2N - 2]
+        x = R[1:N + n_steps + 1]
+        y = np.concatenate((np.zeros(N - 1), L[:N + n_steps]))
+        cross = _band_pair_sums(x, y, 2 * N - 2)[2 * k + 2 * N - 2]
+        half = 0.5 * self.EA * self.rod.dx
+        strain = half * (sum_r2 + sum_l2 + 2.0 * cross)
+        kinetic = half * (sum_l_lag + sum_r_lag - 2.0 * cross + R[k + 1] * L[k + N - 1] + R[N + k] * L[k])
+        return kinetic, strain
+
+
+def _upper_pair_sums(x, y):
+    """``out[s] = sum of x[u] y[m] over u <= m, u + m = s`` for s = 0 .. 2 len - 2 (equal lengths).
+
+    Divide and conquer over the index range: the pairs with u in the left
+    half of a block and m in its right half all count, and are one linear
+    convolution (by FFT, batched over the blocks of a level); the pairs within
+    a half are left to the next level down, and the smallest blocks are summed
+    directly. O(n log^2 n).
+    """
+    from scipy import fft as sfft
+
+    size = x.size
+    base = 4
+    total = base * 2 ** max(0, math.ceil(math.log2(max(size, 1) / base)))
+    xp, yp = np.zeros(total), np.zeros(total)
+    xp[:size], yp[:size] = x, y
+    out = np.zeros(3 * total)
+    r = np.arange(base)
+    upper = r[:, None] <= r[None, :]
+    blocks = total // base
+    prod = (xp.reshape(blocks, base)[:, :, None] * yp.reshape(blocks, base)[:, None, :])[:, upper]
+    where = ((2 * base) * np.arange(blocks))[:, None] + (r[:, None] + r[None, :])[upper][None, :]
+    out[:2 * total] = np.bincount(where.ravel(), prod.ravel(), minlength=2 * total)
+    half = base
+    while half < total:
+        blocks = total // (2 * half)
+        left = xp.reshape(blocks, 2 * half)[:, :half]
+        right = yp.reshape(blocks, 2 * half)[:, half:]
+        conv = sfft.irfft(sfft.rfft(left, 2 * half, axis=1) * sfft.rfft(right, 2 * half, axis=1), 2 * half, axis=1)
+        # u = 2 half b + i, m = 2 half b + half + k  ->  s = 4 half b + half + i + k
+        out[half:half + 4 * half * blocks].reshape(blocks, 4 * half)[:, :2 * half] += conv
+        half *= 2
+    return out[:2 * size - 1]
+
+
+def _band_pair_sums(x, y, width):
+    """``out[s] = sum of x[u] y[m] over u + m = s, 0 <= m - u <= width``, s = 0 .. len(x) + len(y) - 2."""
+    n = max(x.size, y.size)
+    xp, yp = np.zeros(n), np.zeros(n)
+    xp[:x.size], yp[:y.size] = x, y
+    out = _upper_pair_sums(xp, yp)
+    # minus the pairs with m - u >= width + 1: m = m' + width + 1 with m' >= u
+    far = yp[width + 1:]
+    if far.size:
+        shifted = np.zeros(n)
+        shifted[:far.size] = far
+        out[width + 1:] -= _upper_pair_sums(xp, shifted)[:out.size - width - 1]
+    return out
+
+
+class _Grid:
+    """What the time march integrates node by node: the resolved rods, the end nodes of the delay lines.
+
+    Layout, rod after rod along the chain: a delay line contributes its two
+    end nodes with a fixed "hinge" node between them (no mass, never moves)
+    and two links that carry its end elements' forces; any other rod
+    (specimen, shaper, or a striker or bar with a plastic law) contributes
+    all its nodes and elements. Consecutive rods are joined by a link of zero
+    stiffness: they interact only through the contact impulses. The state is
+    one array, ``[v (nodes), eps (links), 0, F (links), 0]``, so a step's
+    state is kept in one copy and the node forces are one difference of the
+    padded force array.
+    """
+
+    def __init__(self, spec, rods, dt, n_steps):
+        self.rods, self.lines, self.first, self.last, self.links = rods, {}, {}, {}, {}
+        mass, dt_over_m, EA, dt_over_dx, dx_over_EA = [], [], [], [], []
+        for k, r in enumerate(rods):
+            s = r.spec
+            if k > 0:  # joint to the previous rod
+                EA.append(0.0)
+                dt_over_dx.append(0.0)
+                dx_over_EA.append(0.0)
+            m_el = s.density * s.area * r.dx
+            ends = (0.5 * m_el * (1 + r.cap_start), 0.5 * m_el * (1 + r.cap_end))
+            self.first[r.name] = len(mass)
+            if r.law is None and r.name in _COURANT_ONE:
+                speed = spec.striker_speed if r.name == "striker" else 0.0
+                self.lines[r.name] = _DelayLine(r, n_steps, speed)
+                mass += [ends[0], 0.0, ends[1]]
+                dt_over_m += [dt / ends[0], 0.0, dt / ends[1]]
+                EA += [0.0, 0.0]
+                dt_over_dx += [0.0, 0.0]
+                dx_over_EA += [0.0, 0.0]
+            else:
+                node_mass = [ends[0]] + [m_el] * (r.n - 1) + [ends[1]] if r.n > 1 else [ends[0] + 0.0, ends[1]]
+                mass += node_mass
+                dt_over_m += [dt / m for m in node_mass]
+                self.links[r.name] = slice(len(EA), len(EA) + r.n)
+                EA += [s.modulus * s.area] * r.n
+                dt_over_dx += [dt / r.dx] * r.n
+                dx_over_EA += [r.dx / (s.modulus * s.area)] * r.n
+            self.last[r.name] = len(mass) - 1
+        self.mass, self.dt_over_m = np.array(mass), np.array(dt_over_m)
+        self.EA, self.dt_over_dx, self.dx_over_EA = np.array(EA), np.array(dt_over_dx), np.array(dx_over_EA)
+        self.n_nodes, self.n_links = len(mass), len(EA)
+        self.state = np.zeros(self.n_nodes + 2 * self.n_links + 2)
+        nn, nl = self.n_nodes, self.n_links
+        self.v = self.state[:nn]
+        self.eps = self.state[nn:nn + nl]
+        self.F_pad = self.state[nn + nl:nn + 2 * nl + 2]  # a zero beyond each end of the chain
+        self.F = self.F_pad[1:-1]
+        if "striker" in self.first:
+            self.v[self.first["striker"]:self.last["striker"] + 1] = spec.striker_speed
+            if "striker" in self.lines:
+                self.v[self.first["striker"] + 1] = 0.0  # the hinge
+        for name, line in self.lines.items():
+            self.F[self.first[name]], self.F[self.first[name] + 1] = line.end_forces(0)
+
+    def column(self, kind, name, index):
+        """Column of the state array holding node ``index`` (``kind = "v"``) or element ``index``
+        (``"eps"``, ``"F"``) of grid rod ``name``."""
+        if kind == "v":
+            return self.first[name] + index
+        link = self.links[name].start + index
+        return self.n_nodes + link if kind == "eps" else self.n_nodes + self.n_links + 1 + link
 
 
 def _run(spec, rods, dt, kept_steps):
-    """March the leapfrog scheme; return the kept rows, the force entering the incident bar, E0, peak strains."""
-    by_name = {r.name: r for r in rods}
-    n_nodes = rods[-1].last_node + 1
-    n_steps = int(kept_steps[-1])
-    row_of_step = np.full(n_steps + 1, -1, dtype=np.int64)
-    row_of_step[kept_steps] = np.arange(kept_steps.size)
-    mass, EA, dt_over_dx, dx_over_EA = _masses_and_stiffness(rods, n_nodes, dt)
-    dt_over_m = dt / mass
+    """March the model; return the kept rows, the force entering the incident bar, E0, peak strains.
 
-    # state: tension positive, x from the striker towards the transmitted bar
-    v = np.zeros(n_nodes)
-    striker = by_name.get("striker")
-    if striker is not None:
-        v[striker.node0:striker.last_node + 1] = spec.striker_speed
-    e0 = 0.5 * float(np.sum(mass * v * v))
+    The delay lines (:class:`_DelayLine`) need nothing per step but their
+    end nodes; the grid (:class:`_Grid`) is marched with the staggered
+    scheme: node velocities from the element forces, the contact impulses,
+    then the element strains and forces (radial return in the plastic rods).
+    What the records need is read afterwards from the delay lines' histories
+    and from the grid state, kept step by step.
+    """
+    by_name = {r.name: r for r in rods}
+    n_steps = int(kept_steps[-1])
+    grid = _Grid(spec, rods, dt, n_steps)
     incident = by_name["incident"]
+    striker = by_name.get("striker")
+    e0 = 0.0
+    if striker is not None:
+        m_el = striker.spec.density * striker.spec.area * striker.dx
+        e0 = 0.5 * m_el * (striker.n + 0.5 * (striker.cap_start + striker.cap_end)) * spec.striker_speed ** 2
     drive = None
     if spec.incident_pulse is not None:  # force on the impact face, compression pushing +x, per step
         p = spec.incident_pulse
         strain = np.asarray(p.strain, dtype=float)
         drive = incident.spec.modulus * incident.spec.area * np.interp(
             np.arange(n_steps + 1) * dt, np.arange(strain.size) * p.dt, strain, left=0.0, right=0.0)
-    eps = np.zeros(n_nodes - 1)
-    F_pad = np.zeros(n_nodes + 1)  # element forces with a zero beyond each end of the chain
-    F = F_pad[1:-1]
-    node_force, dv, v_old = np.zeros(n_nodes), np.zeros(n_nodes - 1), np.zeros(n_nodes)
-    plastic = [_PlasticState(r) for r in rods if r.law is not None]
-
     # contacts between consecutive rods: (left rod's last node, right rod's first node)
-    a_idx = np.array([r.last_node for r in rods[:-1]], dtype=np.int64)
-    b_idx = np.array([r.node0 for r in rods[1:]], dtype=np.int64)
-    inv_ma, inv_mb = 1.0 / mass[a_idx], 1.0 / mass[b_idx]
-    inv_w = 1.0 / (dt * (inv_ma + inv_mb))
-    gap = np.zeros(a_idx.size)
-    left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
-    i_impact = left_of.get("incident")  # None when a prescribed pulse drives the incident bar
-    # a free-end shot (no transmitted bar) has no contact beyond the incident bar
-    i_front = left_of.get("specimen", left_of.get("transmitted"))
-    i_back = left_of.get("transmitted")
-    impact_force = np.zeros(n_steps + 1)
+    contacts = [(grid.last[a.name], grid.first[b.name]) for a, b in zip(rods[:-1], rods[1:])]
+    inv_ma = [1.0 / grid.mass[a] for a, _ in contacts]
+    inv_mb = [1.0 / grid.mass[b] for _, b in contacts]
+    inv_w = [1.0 / (dt * (ia + ib)) for ia, ib in zip(inv_ma, inv_mb)]
+    gap = [0.0] * len(contacts)
+    impulses = np.zeros((n_steps + 1, len(contacts)))
+    plastic = [_PlasticState(r, grid.links[r.name]) for r in rods if r.law is not None]
+    work = np.zeros(n_steps + 1)
+    reader = _GridReader(grid, rods, spec, n_steps)
 
-    gauge_inc = _gauge_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
-    waves_inc = _directional_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
-    transmitted = by_name.get("transmitted")
-    if transmitted is not None:
-        gauge_tra = _gauge_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
-        waves_tra = _directional_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
-    specimen = by_name.get("specimen")
-    resolved = [r for r in rods if r.name in ("specimen", "shaper")]
-    peak = {r.name: (0.0, 0.0) for r in resolved}
-    rec = np.full((kept_steps.size, 15), np.nan)
-
+    v, eps, F, F_pad = grid.v, grid.eps, grid.F, grid.F_pad
+    dt_over_m, dt_over_dx, EA = grid.dt_over_m, grid.dt_over_dx, grid.EA
+    node_force, dv = np.zeros(grid.n_nodes), np.zeros(grid.n_links)
+    lines = [(line.right, line.left, line.N, line.c, line.EA, grid.first[name], grid.last[name])
+             for name, line in grid.lines.items()]
+    i_drive = grid.first["incident"]
+    state, kept = grid.state, np.empty((_CHUNK, grid.state.size))
+    row = 0
     for n in range(n_steps + 1):
-        i_row = row_of_step[n]
-        if i_row >= 0:
-            v_old[:] = v
         # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
         np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
         if drive is not None:
-            node_force[incident.node0] += drive[n]
+            node_force[i_drive] += drive[n]
         node_force *= dt_over_m
         v += node_force
         # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
-        va, vb = v[a_idx], v[b_idx]
-        g = gap + dt * (vb - va)
-        impulse = np.maximum(-g, 0.0) * inv_w
-        v[a_idx] = va - impulse * inv_ma
-        v[b_idx] = vb + impulse * inv_mb
-        np.maximum(g, 0.0, out=gap)
-        impact_force[n] = impulse[i_impact] / dt if drive is None else drive[n]
-        if i_row >= 0:
-            row = rec[i_row]
-            row[0] = n * dt
-            row[1] = -(gauge_inc[2] * eps[gauge_inc[0]] + gauge_inc[3] * eps[gauge_inc[1]])
-            row[11:13] = _directional_waves(eps, v, waves_inc)
-            if transmitted is not None:
-                row[2] = -(gauge_tra[2] * eps[gauge_tra[0]] + gauge_tra[3] * eps[gauge_tra[1]])
-                row[6:8] = impulse[[i_front, i_back]] / dt
-                row[13:15] = _directional_waves(eps, v, waves_tra)
-            if specimen is not None:
-                sl = specimen.links
-                row[3] = -F[sl].mean() / specimen.spec.area
-                row[4] = -eps[sl].mean()
-                # velocities at n: mean of the half steps on either side
-                v_front = 0.5 * (v_old[specimen.node0] + v[specimen.node0])
-                v_back = 0.5 * (v_old[specimen.last_node] + v[specimen.last_node])
-                row[5] = (v_front - v_back) / specimen.spec.length
-            # multiply-and-sum rather than np.dot: BLAS threads stall on small shared machines
-            row[8] = 0.5 * float(np.multiply(np.multiply(mass, v_old, out=v_old), v, out=v_old).sum())
-            row[9] = 0.5 * float(np.multiply(np.multiply(F, F, out=dv), dx_over_EA, out=dv).sum())
-            row[10] = sum(p.work for p in plastic)
-            for r in resolved:  # largest mean and element compressions, to catch a crushed rod
-                mean_peak, element_peak = peak[r.name]
-                strains = eps[r.links]
-                peak[r.name] = (max(mean_peak, -float(strains.mean())), max(element_peak, -float(strains.min())))
+        for k, (a, b) in enumerate(contacts):
+            va, vb = v[a], v[b]
+            g = gap[k] + dt * (vb - va)
+            if g < 0.0:
+                impulse = -g * inv_w[k]
+                v[a] = va - impulse * inv_ma[k]
+                v[b] = vb + impulse * inv_mb[k]
+                impulses[n, k] = impulse
+                gap[k] = 0.0
+            else:
+                gap[k] = g
+        kept[row] = state
+        if plastic:
+            work[n] = sum(p.work for p in plastic)
+        row += 1
+        if row == _CHUNK or n == n_steps:
+            reader.read(kept[:row], n + 1 - row)
+            row = 0
         if n == n_steps:
             break
+        # delay lines: the waves their end nodes send in at n+1
+        for R, L, N, c, _, first, last in lines:
+            R[N + n + 1] = L[n] - v[first] / c
+            L[n + N] = R[n + 1] + v[last] / c
         # elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
         np.subtract(v[1:], v[:-1], out=dv)
         dv *= dt_over_dx
@@ -934,7 +1165,181 @@ def _run(spec, rods, dt, kept_steps):
         np.multiply(EA, eps, out=F)
         for p in plastic:
             p.update(eps, dt, F)
+        for R, L, N, _, ea, first, last in lines:  # the end elements' forces at n+1, on the hinge links
+            F[first] = ea * (R[N + n + 1] + L[n + 1])
+            F[last - 1] = ea * (R[n + 2] + L[n + N])
+
+    left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
+    impact_force = drive if drive is not None else impulses[:, left_of["incident"]] / dt
+    rec, peak = _records(spec, by_name, grid, reader, impulses, work, left_of, dt, kept_steps)
     return rec, impact_force, e0, peak
+
+
+class _GridReader:
+    """Reduces the kept grid states, chunk by chunk, to what the records need at every step."""
+
+    def __init__(self, grid: _Grid, rods, spec, n_steps):
+        self.grid = grid
+        self.previous_v = grid.v.copy()  # v(-1/2): the initial velocities
+        self.kinetic = np.zeros(n_steps + 1)
+        self.strain_energy = np.zeros(n_steps + 1)
+        self.resolved = [r.name for r in rods if r.name in ("specimen", "shaper")]
+        self.mean_strain = {name: np.zeros(n_steps + 1) for name in self.resolved}
+        self.min_strain = {name: np.zeros(n_steps + 1) for name in self.resolved}
+        self.mean_force = {name: np.zeros(n_steps + 1) for name in self.resolved}
+        self.columns = {}  # (kind, rod, index) -> position in self.probes
+        wanted = []
+        if "specimen" in grid.links:
+            wanted += [("v", "specimen", 0), ("v", "specimen", grid.links["specimen"].stop
+                                                    - grid.links["specimen"].start)]
+        for name, distance, from_end in (("incident", spec.gauge_incident_distance, True),
+                                         ("transmitted", spec.gauge_transmitted_distance, False)):
+            if name in grid.links:  # a bar with a plastic law is marched on the grid
+                rod = next(r for r in rods if r.name == name)
+                i0, i1, _, _ = _gauge_weights(rod, distance, from_end)
+                j0, j1, _, _, _ = _directional_weights(rod, distance, from_end)
+                for j in (j0, j1):
+                    wanted += [("v", name, j - rod.node0), ("eps", name, j - rod.node0),
+                               ("eps", name, j - 1 - rod.node0)]
+                wanted += [("eps", name, i0 - rod.node0), ("eps", name, i1 - rod.node0)]
+        for key in wanted:
+            self.columns.setdefault(key, len(self.columns))
+        self.probe_index = np.array([grid.column(*key) for key in self.columns], dtype=np.int64)
+        self.probes = np.zeros((n_steps + 1, len(self.columns)))
+
+    def read(self, states, start):
+        """Take the grid states of steps ``start ..`` (one row per step)."""
+        g = self.grid
+        nn, nl = g.n_nodes, g.n_links
+        stop = start + states.shape[0]
+        v = states[:, :nn]
+        v_before = np.vstack((self.previous_v[None, :], v[:-1]))
+        self.previous_v = v[-1].copy()
+        self.kinetic[start:stop] = 0.5 * ((v_before * g.mass) * v).sum(axis=1)
+        F = states[:, nn + nl + 1:nn + 2 * nl + 1]
+        self.strain_energy[start:stop] = 0.5 * (F * F * g.dx_over_EA).sum(axis=1)
+        for name in self.resolved:
+            sl = g.links[name]
+            e = states[:, nn + sl.start:nn + sl.stop]
+            self.mean_strain[name][start:stop] = e.mean(axis=1)
+            self.min_strain[name][start:stop] = e.min(axis=1)
+            self.mean_force[name][start:stop] = F[:, sl].mean(axis=1)
+        if self.probe_index.size:
+            self.probes[start:stop] = states[:, self.probe_index]
+
+    def probe(self, kind, name, index, steps):
+        return self.probes[steps, self.columns[(kind, name, index)]]
+
+
+def _bar_measures(name, rod, grid, reader, distance, from_end, steps):
+    """Gauge strain and the two travelling waves at a bar's station [1], compression positive, at ``steps``.
+
+    Returns ``strain, plus, minus`` (waves travelling +x and -x). On a delay
+    line, read from its histories; on a bar marched on the grid, from the
+    kept states (the split of :func:`_directional_weights`, exact at a node).
+    """
+    i0, i1, w0, w1 = _gauge_weights(rod, distance, from_end)
+    j0, j1, u0, u1, c = _directional_weights(rod, distance, from_end)
+    i0, i1, j0, j1 = i0 - rod.node0, i1 - rod.node0, j0 - rod.node0, j1 - rod.node0
+    line = grid.lines.get(name)
+    if line is not None:
+        strain = w0 * line.strain(i0, steps) + w1 * line.strain(i1, steps)
+        (r0, l0), (r1, l1) = line.node_waves(j0, steps), line.node_waves(j1, steps)
+        plus, minus = u0 * r0 + u1 * r1, u0 * l0 + u1 * l1
+    else:
+        def probe(kind, index):
+            return reader.probe(kind, name, index, steps)
+
+        strain = w0 * probe("eps", i0) + w1 * probe("eps", i1)
+        waves = [(0.5 * (probe("eps", j) - probe("v", j) / c), 0.5 * (probe("eps", j - 1) + probe("v", j) / c))
+                 for j in (j0, j1)]
+        plus, minus = u0 * waves[0][0] + u1 * waves[1][0], u0 * waves[0][1] + u1 * waves[1][1]
+    return -strain, -plus, -minus
+
+
+def _records(spec, by_name, grid, reader, impulses, work, left_of, dt, kept_steps):
+    """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods."""
+    ks = kept_steps
+    rec = np.full((ks.size, 15), np.nan)
+    rec[:, 0] = ks * dt
+    strain, plus, minus = _bar_measures("incident", by_name["incident"], grid, reader,
+                                        spec.gauge_incident_distance, True, ks)
+    rec[:, 1], rec[:, 11], rec[:, 12] = strain, plus, minus
+    if "transmitted" in by_name:
+        strain, plus, minus = _bar_measures("transmitted", by_name["transmitted"], grid, reader,
+                                            spec.gauge_transmitted_distance, False, ks)
+        rec[:, 2], rec[:, 13], rec[:, 14] = strain, plus, minus  # away from the specimen is +x
+        i_front = left_of.get("specimen", left_of["transmitted"])
+        rec[:, 6] = impulses[ks, i_front] / dt
+        rec[:, 7] = impulses[ks, left_of["transmitted"]] / dt
+    specimen = by_name.get("specimen")
+    if specimen is not None:
+        rec[:, 3] = -reader.mean_force["specimen"][ks] / specimen.spec.area
+        rec[:, 4] = -reader.mean_strain["specimen"][ks]
+        n_el = grid.links["specimen"].stop - grid.links["specimen"].start
+        v_front, v_back = (reader.probe("v", "specimen", j, ks) for j in (0, n_el))
+        v_front_before, v_back_before = (np.where(ks > 0, reader.probe("v", "specimen", j, np.maximum(ks - 1, 0)),
+                                                  0.0) for j in (0, n_el))
+        # velocities at n: mean of the half steps on either side (the specimen starts at rest)
+        rec[:, 5] = (0.5 * (v_front_before + v_front) - 0.5 * (v_back_before + v_back)) / specimen.spec.length
+    kinetic, strain_energy = reader.kinetic.copy(), reader.strain_energy.copy()
+    for line in grid.lines.values():
+        k_line, s_line = line.energies(kinetic.size - 1)
+        kinetic += k_line
+        strain_energy += s_line
+    rec[:, 8], rec[:, 9], rec[:, 10] = kinetic[ks], strain_energy[ks], work[ks]
+    peak = {name: (max(0.0, float(np.max(-reader.mean_strain[name][ks]))),
+                   max(0.0, float(np.max(-reader.min_strain[name][ks])))) for name in reader.resolved}
+    return rec, peak
+
+
+class _PlasticState:
+    """Plastic strain and dissipated work of one rod with a constitutive law (its elements on ``links``).
+
+    The step is :func:`radial_return`'s, with the quasi-static flow stress of
+    each element kept between steps: it changes only when the element's
+    plastic strain does, so the law is asked only while the rod flows.
+    """
+
+    def __init__(self, rod: _Rod, links: slice):
+        self.rod = rod
+        self.sl = links
+        self.E = rod.spec.modulus
+        self.A = rod.spec.area
+        self.eps_p = np.zeros(rod.n)  # signed plastic strain
+        self.p = np.zeros(rod.n)  # accumulated equivalent plastic strain
+        self.work = 0.0  # plastic work [J]
+        self.last_increment = np.zeros(rod.n)  # warm start of the return mapping
+        self.before_last = np.zeros(rod.n)
+        self.flow = rod.law.flow_stress
+        self.quasi_static = np.array(self.flow(self.p, np.zeros(rod.n)), dtype=float)  # flow_stress(p, 0)
+        self.vol = rod.spec.area * rod.dx
+
+    def update(self, eps, dt, F):
+        trial = self.E * (eps[self.sl] - self.eps_p)
+        yielding = np.flatnonzero(np.abs(trial) > self.quasi_static)
+        if not yielding.size:  # elastic step: the trial stress stands
+            if self.last_increment.any() or self.before_last.any():
+                self.before_last = self.last_increment
+                self.last_increment = np.zeros(self.rod.n)
+            np.multiply(trial, self.A, out=F[self.sl])
+            return
+        size = np.abs(trial[yielding])
+        inc = np.zeros(self.rod.n)
+        last, before = self.last_increment[yielding], self.before_last[yielding]
+        guess = np.where((last > 0) & (before > 0), 2.0 * last - before, last)
+        inc[yielding], quasi_static = _solve_increment(size, self.p[yielding], self.E, self.flow, dt,
+                                                       guess, 1e-10, 60,
+                                                       self.quasi_static[yielding])
+        self.before_last = self.last_increment
+        stress = trial - np.sign(trial) * self.E * inc
+        self.last_increment = inc
+        self.eps_p += np.sign(trial) * inc
+        self.p += inc
+        self.quasi_static[yielding] = quasi_static
+        # dissipated work: stress at the end of the step times plastic increment (first order)
+        self.work += float((np.abs(stress) * inc).sum()) * self.vol
+        F[self.sl] = stress * self.A
 
 
 def _directional_weights(rod, distance, from_end):
@@ -949,34 +1354,6 @@ def _directional_weights(rod, distance, from_end):
     j = min(int(math.floor(x)), rod.n - 2)
     w = x - j
     return rod.node0 + j, rod.node0 + j + 1, 1.0 - w, w, rod.spec.wave_speed
-
-
-def _directional_waves(eps, v, weights):
-    """Strain of the wave travelling +x and of the wave travelling -x at a station, compression positive.
-
-    At Courant 1 in a uniform bar, node velocities v_j(n+1/2) and element
-    strains eps_j(n) (element j right of node j) satisfy, for a wave R
-    travelling +x and a wave L travelling -x (d'Alembert; tension positive),
-    ``v_j = c0 (L_j - R_(j-1))``, so that
-
-        R at node j = (eps_j - v_j / c0) / 2,   L at node j = (eps_(j-1) + v_j / c0) / 2,
-
-    each the mean of the wave over the two elements beside the node, and
-    R + L the mean strain there. This follows from the update itself
-    (``v`` gains ``c0 (eps_j - eps_(j-1))`` per step at Courant 1, and
-    ``R_j(n) = R_(j-1)(n-1)``, ``L_j(n) = L_(j+1)(n-1)``), so the split is
-    exact on the grid, not an approximation of it. Called when ``v`` holds
-    v(n+1/2) and ``eps`` holds eps(n).
-
-    References
-    ----------
-    .. [1] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2
-       (d'Alembert solution; v = -c0 eps for a wave travelling +x).
-    """
-    j0, j1, w0, w1, c = weights
-    plus = w0 * (eps[j0] - v[j0] / c) + w1 * (eps[j1] - v[j1] / c)
-    minus = w0 * (eps[j0 - 1] + v[j0] / c) + w1 * (eps[j1 - 1] + v[j1] / c)
-    return -0.5 * plus, -0.5 * minus
 
 
 def _station_position(rod, distance, from_end):
@@ -997,33 +1374,6 @@ def _gauge_weights(rod, distance, from_end):
     w = x - i
     j = min(i + 1, rod.n - 1)
     return rod.node0 + i, rod.node0 + j, 1.0 - w, w
-
-
-class _PlasticState:
-    """Plastic strain and dissipated work of one rod with a constitutive law."""
-
-    def __init__(self, rod: _Rod):
-        self.rod = rod
-        self.sl = rod.links
-        self.E = rod.spec.modulus
-        self.A = rod.spec.area
-        self.eps_p = np.zeros(rod.n)  # signed plastic strain
-        self.p = np.zeros(rod.n)  # accumulated equivalent plastic strain
-        self.work = 0.0  # plastic work [J]
-        self.last_increment = np.zeros(rod.n)  # warm start of the return mapping
-        self.flow = rod.law.flow_stress
-        self.vol = rod.spec.area * rod.dx
-
-    def update(self, eps, dt, F):
-        trial = self.E * (eps[self.sl] - self.eps_p)
-        stress, inc = radial_return(trial, self.p, self.E, self.flow, dt, guess=self.last_increment)
-        self.last_increment = inc
-        if inc.any():
-            self.eps_p += np.sign(trial) * inc
-            self.p += inc
-            # dissipated work: stress at the end of the step times plastic increment (first order)
-            self.work += float((np.abs(stress) * inc).sum()) * self.vol
-        F[self.sl] = stress * self.A
 
 
 def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak):
