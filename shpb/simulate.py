@@ -407,10 +407,13 @@ def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter, quasi_stat
     """The plastic increments of :func:`radial_return` and the quasi-static flow stress after them.
 
     ``quasi_static`` is ``flow_stress(p, 0)`` (the yield check's). Each
-    iteration asks the law once, for three points per element: the flow
-    stress at the iterate (the residual), a little beyond it (the
-    forward-difference slope) and at zero rate (the next step's yield check,
-    returned with the converged increments so that a caller can keep it).
+    iteration asks the law once (:func:`_flow_points`): at the iterate ``x``
+    and at ``x + h`` (``h = 1e-6 x``), at the plastic rate (residual and
+    forward-difference slope) and at zero rate (the quasi-static flow stress
+    after the step, returned so that a caller can keep it for the next yield
+    check). The first iteration tries both starting points, the guess and
+    the rate-independent estimate ``(|s_trial| - quasi_static) / E`` (exact
+    for perfect plasticity), and goes on from the better one.
 
     The residual ``g(x) = |s_trial| - E x - s_y(p + x, x / dt)`` falls
     monotonically from ``g(0+) > 0`` (the yield check) to
@@ -423,49 +426,105 @@ def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter, quasi_stat
     bracket's other end (the side from which Newton converges monotonically
     for a residual convex in the variable), and failing that by bisection,
     geometric across a bracket wider than a factor of 4.
+
+    An element has converged, and stops iterating, when
+    ``|g| <= rtol |s_trial|``, or when a Newton step inside the bracket
+    changes ``x`` by at most ``1e-5 x``: the residual after it is then about
+    ``g'' dx**2 / 2``, below ``5e-11 x**2 |g''|`` (for a Johnson-Cook rate
+    term ``x**2 g''`` is about ``C sigma``, a few MPa: some 1e-4 Pa), so the
+    step is taken without asking the law again, and the quasi-static flow
+    stress is carried to it along its forward-difference slope. The second
+    test also ends the iteration where the law's own round-off keeps
+    ``|g|`` above the tolerance.
     """
-    m = size.size
+    n = size.size
+    x_out, quasi_static_out = np.empty(n), np.empty(n)
+    active = np.arange(n)  # elements still iterating
     lo, hi = np.zeros_like(size), size / E
-    x = (size - quasi_static) / E  # exact for a rate-independent perfectly plastic law
-    if x0 is not None:  # warm start from the previous step where it lies inside the bracket
-        x = np.where((x0 > 0.0) & (x0 < hi), x0, x)
     tol = rtol * size
-    strains, rates = np.empty(3 * m), np.zeros(3 * m)
-    # residual, slope and law slope at each end of the bracket (NaN: not evaluated there yet)
-    ends = {name: np.full(m, np.nan) for name in ("g_lo", "slope_lo", "law_lo", "g_hi", "slope_hi", "law_hi")}
+    ends = np.full((6, n), np.nan)  # residual, slope and law slope at lo, then at hi (NaN: not evaluated there)
+    x = (size - quasi_static) / E  # exact for a rate-independent perfectly plastic law
+    candidates = [x]
+    if x0 is not None:  # warm start from the previous step where it lies inside the bracket
+        usable = (x0 > 0.0) & (x0 < hi)
+        if usable.any():
+            candidates.append(np.where(usable, x0, x))
     for _ in range(max_iter):
-        h = 1e-6 * x  # x > 0 throughout: every iterate lies inside the bracket (0, |s_trial| / E)
-        np.add(p, x, out=strains[:m])
-        np.add(strains[:m], h, out=strains[m:2 * m])
-        strains[2 * m:] = strains[:m]
-        np.divide(x, dt, out=rates[:m])
-        np.divide(x + h, dt, out=rates[m:2 * m])
-        flow = flow_stress(strains, rates)
-        g = size - E * x - flow[:m]
-        if (np.abs(g) <= tol).all():
-            return x, flow[2 * m:]
-        law_slope = (flow[m:2 * m] - flow[:m]) / h
+        k, m = len(candidates), active.size
+        xs = np.concatenate(candidates) if k > 1 else candidates[0]
+        h, flow, ahead, base, beyond = _flow_points(flow_stress, np.concatenate((p, p)) if k > 1 else p, xs, dt)
+        g = (np.concatenate((size, size)) if k > 1 else size) - E * xs - flow
+        law_slope = (ahead - flow) / h
+        if k > 1:  # go on from the candidate with the smaller residual; both narrow the bracket (below)
+            pick = np.argmin(np.abs(g).reshape(k, m), axis=0) * m + np.arange(m)
+            points = xs, g, law_slope
+            x, g, h, law_slope, base, beyond = xs[pick], g[pick], h[pick], law_slope[pick], base[pick], beyond[pick]
+        else:
+            x = points = xs
         slope = E + law_slope
-        right = g <= 0.0  # x is at or beyond the root: the bracket's upper end
-        left = ~right
-        np.copyto(hi, x, where=right)
-        np.copyto(lo, x, where=left)
-        for side, where in (("_hi", right), ("_lo", left)):
-            np.copyto(ends["g" + side], g, where=where)
-            np.copyto(ends["slope" + side], slope, where=where)
-            np.copyto(ends["law" + side], law_slope, where=where)
+        small = np.abs(g) <= tol
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             step = _newton_step(x, g, slope, law_slope, E)
-            inside = (step > lo) & (step < hi) & np.isfinite(step)
-            if inside.all():
-                x = step
-                continue
-            other = np.where(right, _newton_step(lo, ends["g_lo"], ends["slope_lo"], ends["law_lo"], E),
-                             _newton_step(hi, ends["g_hi"], ends["slope_hi"], ends["law_hi"], E))
-            mid = np.where((lo > 0.0) & (hi > 4.0 * lo), np.sqrt(lo * hi), 0.5 * (lo + hi))
-        other_in = (other > lo) & (other < hi) & np.isfinite(other)
-        x = np.where(inside, step, np.where(other_in, other, mid))
-    return x, np.asarray(flow_stress(p + x, np.zeros_like(x)), dtype=float)
+        inside = (step > lo) & (step < hi) & np.isfinite(step)
+        done = small | (inside & (np.abs(step - x) <= 1e-5 * x))
+        if done.any():  # small steps are taken; the quasi-static flow stress follows along its slope
+            x_new = np.where(small, x, step)[done]
+            x_out[active[done]] = x_new
+            quasi_static_out[active[done]] = base[done] + (beyond[done] - base[done]) / h[done] * (x_new - x[done])
+            if done.all():
+                return x_out, quasi_static_out
+        if k > 1:
+            for j in range(k):  # every evaluated point narrows the bracket
+                cut = slice(j * m, (j + 1) * m)
+                _narrow(lo, hi, ends, points[0][cut], points[1][cut], points[2][cut], E)
+        else:
+            _narrow(lo, hi, ends, x, g, law_slope, E)
+        if done.any():
+            keep = ~done
+            active, size, p, lo, hi, tol, ends = active[keep], size[keep], p[keep], lo[keep], hi[keep], tol[keep], \
+                ends[:, keep]
+            x, step = x[keep], step[keep]
+        inside = (step > lo) & (step < hi) & np.isfinite(step)  # in the narrowed bracket
+        if not inside.all():
+            right = x >= hi  # the iterate is the bracket's upper end
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                other = np.where(right, _newton_step(lo, ends[0], ends[1], ends[2], E),
+                                 _newton_step(hi, ends[3], ends[4], ends[5], E))
+                mid = np.where((lo > 0.0) & (hi > 4.0 * lo), np.sqrt(lo * hi), 0.5 * (lo + hi))
+            other_in = (other > lo) & (other < hi) & np.isfinite(other)
+            step = np.where(inside, step, np.where(other_in, other, mid))
+        candidates = [step]
+    x = candidates[0]
+    x_out[active] = x
+    quasi_static_out[active] = flow_stress(p + x, np.zeros_like(x))
+    return x_out, quasi_static_out
+
+
+def _flow_points(flow_stress, p, x, dt):
+    """One call of the law for the return mapping: ``h = 1e-6 x`` and the flow stresses [Pa] at ``(p + x,
+    x / dt)``, ``(p + x + h, (x + h) / dt)``, ``(p + x, 0)`` and ``(p + x + h, 0)``."""
+    m = x.size
+    h = 1e-6 * x  # x > 0 throughout: every iterate lies inside the bracket (0, |s_trial| / E)
+    strains, rates = np.empty(4 * m), np.zeros(4 * m)
+    np.add(p, x, out=strains[:m])
+    np.add(strains[:m], h, out=strains[m:2 * m])
+    strains[2 * m:] = strains[:2 * m]
+    np.divide(x, dt, out=rates[:m])
+    np.divide(x + h, dt, out=rates[m:2 * m])
+    flow = np.asarray(flow_stress(strains, rates), dtype=float)
+    return h, flow[:m], flow[m:2 * m], flow[2 * m:3 * m], flow[3 * m:]
+
+
+def _narrow(lo, hi, ends, x, g, law_slope, E):
+    """Narrow the bracket ``(lo, hi)`` around the root with a point ``x`` and its residual ``g``, in place,
+    keeping the residual, slope and law slope at each end in ``ends``."""
+    below = (g > 0.0) & (x > lo)
+    above = (g <= 0.0) & (x < hi)
+    np.copyto(lo, x, where=below)
+    np.copyto(hi, x, where=above)
+    for row, value in enumerate((g, E + law_slope, law_slope)):
+        np.copyto(ends[row], value, where=below)
+        np.copyto(ends[row + 3], value, where=above)
 
 
 def _newton_step(x, g, slope, law_slope, E):
@@ -891,7 +950,7 @@ class _DelayLine:
 
     Storage: ``R_j(n) = right[N + n - j]`` and ``L_j(n) = left[n + j]``, so
     the whole history stays available for the records and energies after the
-    run.
+    run. The end nodes belong to :func:`_run`.
 
     References
     ----------
@@ -901,19 +960,17 @@ class _DelayLine:
 
     def __init__(self, rod: _Rod, n_steps: int, speed: float = 0.0):
         self.rod = rod
-        self.N = rod.n
+        self.N = N = rod.n
         self.c = rod.spec.wave_speed
         self.EA = rod.spec.modulus * rod.spec.area
-        self.right = np.zeros(self.N + n_steps + 2)
-        self.left = np.zeros(self.N + n_steps + 2)
+        # Python lists while marching (one element read or written at a time), arrays after (finish)
         # a rod moving at `speed` without strain: eps = R + L = 0 and v = c0 (L - R) = speed
-        self.right[:self.N + 1] = -speed / (2.0 * self.c)
-        self.left[:self.N] = speed / (2.0 * self.c)
+        self.right = [-speed / (2.0 * self.c)] * (N + 1) + [0.0] * (n_steps + 1)
+        self.left = [speed / (2.0 * self.c)] * N + [0.0] * (n_steps + 2)
 
-    def end_forces(self, n):
-        """Element forces [N] at step n in the first and in the last element, tension positive."""
-        N, R, L = self.N, self.right, self.left
-        return self.EA * (R[N + n] + L[n]), self.EA * (R[n + 1] + L[n + N - 1])
+    def finish(self):
+        """The histories as arrays, for the records."""
+        self.right, self.left = np.array(self.right), np.array(self.left)
 
     def strain(self, j, steps):
         """Strain of element j [1] at the given steps, tension positive."""
@@ -1015,88 +1072,73 @@ def _band_pair_sums(x, y, width):
 
 
 class _Grid:
-    """What the time march integrates node by node: the resolved rods, the end nodes of the delay lines.
+    """The rods marched node by node: the specimen, the shaper and any striker or bar with a plastic law.
 
-    Layout, rod after rod along the chain: a delay line contributes its two
-    end nodes with a fixed "hinge" node between them (no mass, never moves)
-    and two links that carry its end elements' forces; any other rod
-    (specimen, shaper, or a striker or bar with a plastic law) contributes
-    all its nodes and elements. Consecutive rods are joined by a link of zero
-    stiffness: they interact only through the contact impulses. The state is
-    one array, ``[v (nodes), eps (links), 0, F (links), 0]``, so a step's
-    state is kept in one copy and the node forces are one difference of the
-    padded force array.
+    Their nodes and elements, rod after rod along the chain, in one state
+    array ``[v (nodes), eps (links), 0, F (links), 0]``: a step's state is
+    kept in one copy, and the node forces are one difference of the padded
+    force array. Consecutive rods are joined by a link of zero stiffness:
+    they interact only through the contact impulses (their end nodes are
+    the contacts' business, see :func:`_run`).
     """
 
-    def __init__(self, spec, rods, dt, n_steps):
-        self.rods, self.lines, self.first, self.last, self.links = rods, {}, {}, {}, {}
-        mass, dt_over_m, EA, dt_over_dx, dx_over_EA = [], [], [], [], []
-        for k, r in enumerate(rods):
+    def __init__(self, spec, rods, dt):
+        self.first, self.last, self.links = {}, {}, {}
+        mass, EA, dt_over_dx, dx_over_EA = [], [], [], []
+        for r in rods:
             s = r.spec
-            if k > 0:  # joint to the previous rod
+            if mass:  # joint to the previous rod on the grid
                 EA.append(0.0)
                 dt_over_dx.append(0.0)
                 dx_over_EA.append(0.0)
             m_el = s.density * s.area * r.dx
-            ends = (0.5 * m_el * (1 + r.cap_start), 0.5 * m_el * (1 + r.cap_end))
             self.first[r.name] = len(mass)
-            if r.law is None and r.name in _COURANT_ONE:
-                speed = spec.striker_speed if r.name == "striker" else 0.0
-                self.lines[r.name] = _DelayLine(r, n_steps, speed)
-                mass += [ends[0], 0.0, ends[1]]
-                dt_over_m += [dt / ends[0], 0.0, dt / ends[1]]
-                EA += [0.0, 0.0]
-                dt_over_dx += [0.0, 0.0]
-                dx_over_EA += [0.0, 0.0]
-            else:
-                node_mass = [ends[0]] + [m_el] * (r.n - 1) + [ends[1]] if r.n > 1 else [ends[0] + 0.0, ends[1]]
-                mass += node_mass
-                dt_over_m += [dt / m for m in node_mass]
-                self.links[r.name] = slice(len(EA), len(EA) + r.n)
-                EA += [s.modulus * s.area] * r.n
-                dt_over_dx += [dt / r.dx] * r.n
-                dx_over_EA += [r.dx / (s.modulus * s.area)] * r.n
+            mass += [0.5 * m_el * (1 + r.cap_start)] + [m_el] * (r.n - 1) + [0.5 * m_el * (1 + r.cap_end)]
             self.last[r.name] = len(mass) - 1
-        self.mass, self.dt_over_m = np.array(mass), np.array(dt_over_m)
+            self.links[r.name] = slice(len(EA), len(EA) + r.n)
+            EA += [s.modulus * s.area] * r.n
+            dt_over_dx += [dt / r.dx] * r.n
+            dx_over_EA += [r.dx / (s.modulus * s.area)] * r.n
+        self.mass = np.array(mass)
+        self.dt_over_m = dt / self.mass if mass else self.mass
         self.EA, self.dt_over_dx, self.dx_over_EA = np.array(EA), np.array(dt_over_dx), np.array(dx_over_EA)
         self.n_nodes, self.n_links = len(mass), len(EA)
-        self.state = np.zeros(self.n_nodes + 2 * self.n_links + 2)
         nn, nl = self.n_nodes, self.n_links
+        self.state = np.zeros(nn + 2 * nl + 2)
         self.v = self.state[:nn]
         self.eps = self.state[nn:nn + nl]
-        self.F_pad = self.state[nn + nl:nn + 2 * nl + 2]  # a zero beyond each end of the chain
+        self.F_pad = self.state[nn + nl:nn + 2 * nl + 2]  # a zero beyond each end
         self.F = self.F_pad[1:-1]
         if "striker" in self.first:
             self.v[self.first["striker"]:self.last["striker"] + 1] = spec.striker_speed
-            if "striker" in self.lines:
-                self.v[self.first["striker"] + 1] = 0.0  # the hinge
-        for name, line in self.lines.items():
-            self.F[self.first[name]], self.F[self.first[name] + 1] = line.end_forces(0)
 
     def column(self, kind, name, index):
         """Column of the state array holding node ``index`` (``kind = "v"``) or element ``index``
-        (``"eps"``, ``"F"``) of grid rod ``name``."""
+        (``"eps"``) of rod ``name``."""
         if kind == "v":
             return self.first[name] + index
-        link = self.links[name].start + index
-        return self.n_nodes + link if kind == "eps" else self.n_nodes + self.n_links + 1 + link
+        return self.n_nodes + self.links[name].start + index
 
 
 def _run(spec, rods, dt, kept_steps):
     """March the model; return the kept rows, the force entering the incident bar, E0, peak strains.
 
-    The delay lines (:class:`_DelayLine`) need nothing per step but their
-    end nodes; the grid (:class:`_Grid`) is marched with the staggered
-    scheme: node velocities from the element forces, the contact impulses,
-    then the element strains and forces (radial return in the plastic rods).
-    What the records need is read afterwards from the delay lines' histories
-    and from the grid state, kept step by step.
+    Per step: the grid's node velocities from its element forces and the
+    delay lines' end nodes from their end elements' (the drive, if any, on
+    the incident bar's impact face); the contact impulses between the end
+    nodes of neighbouring rods; then the waves the delay lines' ends send in
+    and the grid's element strains and forces (radial return in the plastic
+    rods). The end nodes and the contacts are a handful of scalars, kept as
+    Python floats; the grid is numpy. What the records need is read
+    afterwards from the delay lines' histories and from the grid states,
+    kept step by step.
     """
     by_name = {r.name: r for r in rods}
     n_steps = int(kept_steps[-1])
-    grid = _Grid(spec, rods, dt, n_steps)
-    incident = by_name["incident"]
-    striker = by_name.get("striker")
+    lines = {r.name: _DelayLine(r, n_steps, spec.striker_speed if r.name == "striker" else 0.0)
+             for r in rods if r.law is None and r.name in _COURANT_ONE}
+    grid = _Grid(spec, [r for r in rods if r.name not in lines], dt)
+    incident, striker = by_name["incident"], by_name.get("striker")
     e0 = 0.0
     if striker is not None:
         m_el = striker.spec.density * striker.spec.area * striker.dx
@@ -1107,71 +1149,113 @@ def _run(spec, rods, dt, kept_steps):
         strain = np.asarray(p.strain, dtype=float)
         drive = incident.spec.modulus * incident.spec.area * np.interp(
             np.arange(n_steps + 1) * dt, np.arange(strain.size) * p.dt, strain, left=0.0, right=0.0)
-    # contacts between consecutive rods: (left rod's last node, right rod's first node)
-    contacts = [(grid.last[a.name], grid.first[b.name]) for a, b in zip(rods[:-1], rods[1:])]
-    inv_ma = [1.0 / grid.mass[a] for a, _ in contacts]
-    inv_mb = [1.0 / grid.mass[b] for _, b in contacts]
-    inv_w = [1.0 / (dt * (ia + ib)) for ia, ib in zip(inv_ma, inv_mb)]
-    gap = [0.0] * len(contacts)
-    impulses = np.zeros((n_steps + 1, len(contacts)))
-    plastic = [_PlasticState(r, grid.links[r.name]) for r in rods if r.law is not None]
-    work = np.zeros(n_steps + 1)
-    reader = _GridReader(grid, rods, spec, n_steps)
 
-    v, eps, F, F_pad = grid.v, grid.eps, grid.F, grid.F_pad
+    # the end nodes of every rod as Python floats: a delay line's own, a grid rod's copies of its grid nodes
+    u, u_mass, ends, copies = [], [], {}, []
+    for r in rods:
+        m_el = r.spec.density * r.spec.area * r.dx
+        for side, cap in (("first", r.cap_start), ("last", r.cap_end)):
+            ends[r.name, side] = len(u)
+            if r.name in lines:
+                u.append(float(spec.striker_speed if r.name == "striker" else 0.0))
+                u_mass.append(0.5 * m_el * (1 + cap))
+            else:
+                node = getattr(grid, side)[r.name]
+                copies.append((len(u), node))
+                u.append(float(grid.v[node]))
+                u_mass.append(float(grid.mass[node]))
+    line_steps = [(line.right, line.left, line.N, 1.0 / line.c, dt / u_mass[ends[name, "first"]] * line.EA,
+                   dt / u_mass[ends[name, "last"]] * line.EA, ends[name, "first"], ends[name, "last"])
+                  for name, line in lines.items()]
+    # contacts between consecutive rods: (left rod's last node, right rod's first node, 1/m_a, 1/m_b, 1/w)
+    contacts = []
+    for a, b in zip(rods[:-1], rods[1:]):
+        ia, ib = ends[a.name, "last"], ends[b.name, "first"]
+        inv_a, inv_b = 1.0 / u_mass[ia], 1.0 / u_mass[ib]
+        contacts.append((ia, ib, inv_a, inv_b, 1.0 / (dt * (inv_a + inv_b))))
+    gaps = [0.0] * len(contacts)
+    impulses = [[0.0] * (n_steps + 1) for _ in contacts]
+    i_drive = ends["incident", "first"]
+    drive_on_line = drive is not None and "incident" in lines
+    drive_kick = (drive * (dt / u_mass[i_drive])).tolist() if drive_on_line else None
+    plastic = [_PlasticState(r, grid.eps[grid.links[r.name]], grid.F[grid.links[r.name]]) for r in rods
+               if r.law is not None]
+    work = [0.0] * (n_steps + 1)
+    reader = _GridReader(grid, rods, spec, n_steps)
+    history = [tuple(u)]  # end node velocities, v(-1/2) first
+
+    v, eps, F = grid.v, grid.eps, grid.F
+    F_right, F_left, v_right, v_left = grid.F_pad[1:], grid.F_pad[:-1], v[1:], v[:-1]
     dt_over_m, dt_over_dx, EA = grid.dt_over_m, grid.dt_over_dx, grid.EA
     node_force, dv = np.zeros(grid.n_nodes), np.zeros(grid.n_links)
-    lines = [(line.right, line.left, line.N, line.c, line.EA, grid.first[name], grid.last[name])
-             for name, line in grid.lines.items()]
-    i_drive = grid.first["incident"]
+    on_grid = grid.n_nodes > 0
     state, kept = grid.state, np.empty((_CHUNK, grid.state.size))
     row = 0
     for n in range(n_steps + 1):
         # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
-        np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
-        if drive is not None:
-            node_force[i_drive] += drive[n]
-        node_force *= dt_over_m
-        v += node_force
+        if on_grid:
+            np.subtract(F_right, F_left, out=node_force)
+            if drive is not None and not drive_on_line:
+                node_force[grid.first["incident"]] += drive[n]
+            node_force *= dt_over_m
+            v += node_force
+            for k, node in copies:
+                u[k] = v.item(node)
+        for R, L, N, _, kick_first, kick_last, first, last in line_steps:
+            u[first] += kick_first * (R[N + n] + L[n])
+            u[last] -= kick_last * (R[n + 1] + L[n + N - 1])
+        if drive_on_line:
+            u[i_drive] += drive_kick[n]
         # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
-        for k, (a, b) in enumerate(contacts):
-            va, vb = v[a], v[b]
-            g = gap[k] + dt * (vb - va)
+        for k, (a, b, inv_a, inv_b, inv_w) in enumerate(contacts):
+            va, vb = u[a], u[b]
+            g = gaps[k] + dt * (vb - va)
             if g < 0.0:
-                impulse = -g * inv_w[k]
-                v[a] = va - impulse * inv_ma[k]
-                v[b] = vb + impulse * inv_mb[k]
-                impulses[n, k] = impulse
-                gap[k] = 0.0
+                impulse = -g * inv_w
+                u[a] = va - impulse * inv_a
+                u[b] = vb + impulse * inv_b
+                impulses[k][n] = impulse
+                gaps[k] = 0.0
             else:
-                gap[k] = g
-        kept[row] = state
-        if plastic:
-            work[n] = sum(p.work for p in plastic)
-        row += 1
-        if row == _CHUNK or n == n_steps:
-            reader.read(kept[:row], n + 1 - row)
-            row = 0
+                gaps[k] = g
+        history.append(tuple(u))
+        if on_grid:
+            for k, node in copies:
+                v[node] = u[k]
+            kept[row] = state
+            row += 1
+            if row == _CHUNK or n == n_steps:
+                reader.read(kept[:row], n + 1 - row)
+                row = 0
+        for p in plastic:
+            work[n] += p.work
         if n == n_steps:
             break
         # delay lines: the waves their end nodes send in at n+1
-        for R, L, N, c, _, first, last in lines:
-            R[N + n + 1] = L[n] - v[first] / c
-            L[n + N] = R[n + 1] + v[last] / c
-        # elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
-        np.subtract(v[1:], v[:-1], out=dv)
-        dv *= dt_over_dx
-        eps += dv
-        np.multiply(EA, eps, out=F)
-        for p in plastic:
-            p.update(eps, dt, F)
-        for R, L, N, _, ea, first, last in lines:  # the end elements' forces at n+1, on the hinge links
-            F[first] = ea * (R[N + n + 1] + L[n + 1])
-            F[last - 1] = ea * (R[n + 2] + L[n + N])
+        for R, L, N, inv_c, _, _, first, last in line_steps:
+            R[N + n + 1] = L[n] - u[first] * inv_c
+            L[n + N] = R[n + 1] + u[last] * inv_c
+        # grid elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
+        if on_grid:
+            np.subtract(v_right, v_left, out=dv)
+            dv *= dt_over_dx
+            eps += dv
+            np.multiply(EA, eps, out=F)
+            for p in plastic:
+                p.update(dt)
 
+    for line in lines.values():
+        line.finish()
     left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
-    impact_force = drive if drive is not None else impulses[:, left_of["incident"]] / dt
-    rec, peak = _records(spec, by_name, grid, reader, impulses, work, left_of, dt, kept_steps)
+    impulses = np.array(impulses).reshape(len(contacts), n_steps + 1)
+    impact_force = drive if drive is not None else impulses[left_of["incident"]] / dt
+    # kinetic energy of the delay lines' end nodes (leapfrog form m v(n-1/2) v(n+1/2) / 2)
+    history = np.array(history)
+    own = np.array([k for name in lines for k in (ends[name, "first"], ends[name, "last"])], dtype=np.int64)
+    end_kinetic = 0.5 * (history[:-1, own] * np.array(u_mass)[own] * history[1:, own]).sum(axis=1) if own.size \
+        else np.zeros(n_steps + 1)
+    rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, left_of, dt,
+                         kept_steps)
     return rec, impact_force, e0, peak
 
 
@@ -1231,7 +1315,7 @@ class _GridReader:
         return self.probes[steps, self.columns[(kind, name, index)]]
 
 
-def _bar_measures(name, rod, grid, reader, distance, from_end, steps):
+def _bar_measures(name, rod, lines, reader, distance, from_end, steps):
     """Gauge strain and the two travelling waves at a bar's station [1], compression positive, at ``steps``.
 
     Returns ``strain, plus, minus`` (waves travelling +x and -x). On a delay
@@ -1241,7 +1325,7 @@ def _bar_measures(name, rod, grid, reader, distance, from_end, steps):
     i0, i1, w0, w1 = _gauge_weights(rod, distance, from_end)
     j0, j1, u0, u1, c = _directional_weights(rod, distance, from_end)
     i0, i1, j0, j1 = i0 - rod.node0, i1 - rod.node0, j0 - rod.node0, j1 - rod.node0
-    line = grid.lines.get(name)
+    line = lines.get(name)
     if line is not None:
         strain = w0 * line.strain(i0, steps) + w1 * line.strain(i1, steps)
         (r0, l0), (r1, l1) = line.node_waves(j0, steps), line.node_waves(j1, steps)
@@ -1257,21 +1341,21 @@ def _bar_measures(name, rod, grid, reader, distance, from_end, steps):
     return -strain, -plus, -minus
 
 
-def _records(spec, by_name, grid, reader, impulses, work, left_of, dt, kept_steps):
+def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, left_of, dt, kept_steps):
     """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods."""
     ks = kept_steps
     rec = np.full((ks.size, 15), np.nan)
     rec[:, 0] = ks * dt
-    strain, plus, minus = _bar_measures("incident", by_name["incident"], grid, reader,
+    strain, plus, minus = _bar_measures("incident", by_name["incident"], lines, reader,
                                         spec.gauge_incident_distance, True, ks)
     rec[:, 1], rec[:, 11], rec[:, 12] = strain, plus, minus
     if "transmitted" in by_name:
-        strain, plus, minus = _bar_measures("transmitted", by_name["transmitted"], grid, reader,
+        strain, plus, minus = _bar_measures("transmitted", by_name["transmitted"], lines, reader,
                                             spec.gauge_transmitted_distance, False, ks)
         rec[:, 2], rec[:, 13], rec[:, 14] = strain, plus, minus  # away from the specimen is +x
         i_front = left_of.get("specimen", left_of["transmitted"])
-        rec[:, 6] = impulses[ks, i_front] / dt
-        rec[:, 7] = impulses[ks, left_of["transmitted"]] / dt
+        rec[:, 6] = impulses[i_front, ks] / dt
+        rec[:, 7] = impulses[left_of["transmitted"], ks] / dt
     specimen = by_name.get("specimen")
     if specimen is not None:
         rec[:, 3] = -reader.mean_force["specimen"][ks] / specimen.spec.area
@@ -1282,8 +1366,8 @@ def _records(spec, by_name, grid, reader, impulses, work, left_of, dt, kept_step
                                                   0.0) for j in (0, n_el))
         # velocities at n: mean of the half steps on either side (the specimen starts at rest)
         rec[:, 5] = (0.5 * (v_front_before + v_front) - 0.5 * (v_back_before + v_back)) / specimen.spec.length
-    kinetic, strain_energy = reader.kinetic.copy(), reader.strain_energy.copy()
-    for line in grid.lines.values():
+    kinetic, strain_energy = reader.kinetic + end_kinetic, reader.strain_energy.copy()
+    for line in lines.values():
         k_line, s_line = line.energies(kinetic.size - 1)
         kinetic += k_line
         strain_energy += s_line
@@ -1294,52 +1378,122 @@ def _records(spec, by_name, grid, reader, impulses, work, left_of, dt, kept_step
 
 
 class _PlasticState:
-    """Plastic strain and dissipated work of one rod with a constitutive law (its elements on ``links``).
+    """Plastic strain and dissipated work of one rod with a constitutive law.
 
-    The step is :func:`radial_return`'s, with the quasi-static flow stress of
-    each element kept between steps: it changes only when the element's
-    plastic strain does, so the law is asked only while the rod flows.
+    ``eps`` and ``F`` are views of the grid's strains and forces of the rod's
+    elements. The step is :func:`radial_return`'s (the same equations and
+    convergence tests, :func:`_solve_increment`), arranged to ask the law as
+    seldom as possible:
+
+    * the quasi-static flow stress of each element is kept between steps (it
+      changes only when the element's plastic strain does), so an elastic
+      step does not ask the law at all;
+    * while every element flows, the increment is extrapolated
+      (quadratically) from the last three steps' and one Newton step is
+      taken from there with one call of the law (:meth:`_newton_from`); it
+      stands if it changes the increment by at most ``1e-5`` of itself (the
+      second convergence test of :func:`_solve_increment`), which it
+      usually does. Otherwise, and at the onset and the end of flow, the
+      general iteration takes over from where the step led.
     """
 
-    def __init__(self, rod: _Rod, links: slice):
+    def __init__(self, rod: _Rod, eps, F):
+        m = rod.n
         self.rod = rod
-        self.sl = links
+        self.eps, self.F = eps, F
         self.E = rod.spec.modulus
         self.A = rod.spec.area
-        self.eps_p = np.zeros(rod.n)  # signed plastic strain
-        self.p = np.zeros(rod.n)  # accumulated equivalent plastic strain
+        self.eps_p = np.zeros(m)  # signed plastic strain
+        self.p = np.zeros(m)  # accumulated equivalent plastic strain
         self.work = 0.0  # plastic work [J]
-        self.last_increment = np.zeros(rod.n)  # warm start of the return mapping
-        self.before_last = np.zeros(rod.n)
+        self.increments = [np.zeros(m) for _ in range(3)]  # the last three steps' increments, latest first
+        self.recent = 0  # how many of them may be non-zero
+        self.flowing = 0  # steps in a row in which every element flowed
+        self.flat = False  # the law's slope was zero everywhere in the last plastic step (perfect plasticity)
         self.flow = rod.law.flow_stress
-        self.quasi_static = np.array(self.flow(self.p, np.zeros(rod.n)), dtype=float)  # flow_stress(p, 0)
+        self.quasi_static = np.array(self.flow(self.p, np.zeros(m)), dtype=float)  # flow_stress(p, 0)
+        self.quasi_static_min = self.quasi_static.min()
         self.vol = rod.spec.area * rod.dx
+        self.trial, self.size, self.over = np.zeros(m), np.zeros(m), np.zeros(m, dtype=bool)
+        self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, see _flow_points
 
-    def update(self, eps, dt, F):
-        trial = self.E * (eps[self.sl] - self.eps_p)
-        yielding = np.flatnonzero(np.abs(trial) > self.quasi_static)
-        if not yielding.size:  # elastic step: the trial stress stands
-            if self.last_increment.any() or self.before_last.any():
-                self.before_last = self.last_increment
-                self.last_increment = np.zeros(self.rod.n)
-            np.multiply(trial, self.A, out=F[self.sl])
+    def update(self, dt):
+        trial, size = self.trial, self.size
+        np.subtract(self.eps, self.eps_p, out=trial)
+        trial *= self.E
+        np.abs(trial, out=size)
+        if size.max() <= self.quasi_static_min or not np.greater(size, self.quasi_static, out=self.over).any():
+            # elastic step: the trial stress stands
+            if self.recent:
+                self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
+                self.recent -= 1
+            self.flowing = 0
+            np.multiply(trial, self.A, out=self.F)
             return
-        size = np.abs(trial[yielding])
-        inc = np.zeros(self.rod.n)
-        last, before = self.last_increment[yielding], self.before_last[yielding]
-        guess = np.where((last > 0) & (before > 0), 2.0 * last - before, last)
-        inc[yielding], quasi_static = _solve_increment(size, self.p[yielding], self.E, self.flow, dt,
-                                                       guess, 1e-10, 60,
-                                                       self.quasi_static[yielding])
-        self.before_last = self.last_increment
-        stress = trial - np.sign(trial) * self.E * inc
-        self.last_increment = inc
-        self.eps_p += np.sign(trial) * inc
+        inc = quasi_static = guess = None
+        if self.over.all() and (self.flowing or self.flat):
+            x1, x2, x3 = self.increments
+            if self.flat:  # the rate-independent estimate is exact
+                guess = (size - self.quasi_static) / self.E
+            elif self.flowing >= 3:
+                guess = 3.0 * (x1 - x2) + x3
+            else:
+                guess = 2.0 * x1 - x2 if self.flowing == 2 else x1
+            if guess.min() > 0.0:
+                inc, quasi_static, guess = self._newton_from(guess, size, dt)
+        if inc is None:  # the general iteration, from the guess or from the last increments
+            yielding = np.flatnonzero(self.over)
+            if guess is None or yielding.size < self.rod.n:
+                x1, x2, x3 = (x[yielding] for x in self.increments)
+                guess = np.where((x1 > 0.0) & (x2 > 0.0),
+                                 np.where(x3 > 0.0, 3.0 * (x1 - x2) + x3, 2.0 * x1 - x2), x1)
+            inc = np.zeros(self.rod.n)
+            inc[yielding], quasi_static = _solve_increment(size[yielding], self.p[yielding], self.E, self.flow, dt,
+                                                           guess, 1e-10, 60, self.quasi_static[yielding])
+            self.flowing = self.flowing + 1 if yielding.size == self.rod.n else 0
+            self.quasi_static[yielding] = quasi_static
+        else:
+            self.flowing += 1
+            self.quasi_static = quasi_static
+        self.increments = [inc] + self.increments[:2]
+        self.recent = 3
+        signed = np.sign(trial)
+        signed *= inc
+        self.eps_p += signed
         self.p += inc
-        self.quasi_static[yielding] = quasi_static
+        self.quasi_static_min = self.quasi_static.min()
+        signed *= self.E
+        trial -= signed  # the returned stress
         # dissipated work: stress at the end of the step times plastic increment (first order)
-        self.work += float((np.abs(stress) * inc).sum()) * self.vol
-        F[self.sl] = stress * self.A
+        self.work += float(np.abs(trial) @ inc) * self.vol
+        np.multiply(trial, self.A, out=self.F)
+
+    def _newton_from(self, x, size, dt):
+        """One Newton step from ``x`` for every element: ``(increments, quasi-static flow stresses, None)``
+        if it converged (:func:`_solve_increment`'s step test), else ``(None, None, where it led)``."""
+        points, rates = self.points, self.rates
+        h = 1e-6 * x
+        np.add(self.p, x, out=points[0])
+        np.add(points[0], h, out=points[1])
+        points[2:] = points[:2]
+        np.divide(x, dt, out=rates[0])
+        np.multiply(rates[0], 1.0 + 1e-6, out=rates[1])
+        flow = np.asarray(self.flow(points.reshape(-1), rates.reshape(-1)), dtype=float).reshape(4, -1)
+        law_slope = flow[1] - flow[0]
+        law_slope /= h
+        self.flat = not law_slope.any()
+        g = size - self.E * x - flow[0]
+        slope = law_slope + self.E
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            dx = g / slope
+            if law_slope.max() > self.E:  # Newton on ln x there (see _solve_increment)
+                dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
+        if not (np.abs(dx) <= 1e-5 * x).all():
+            return None, None, x + dx
+        quasi_static = flow[3] - flow[2]
+        quasi_static *= dx / h
+        quasi_static += flow[2]
+        return x + dx, quasi_static, None
 
 
 def _directional_weights(rod, distance, from_end):
