@@ -424,8 +424,9 @@ def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter, quasi_stat
     below the rate-independent first guess). A step from one side of the
     root that overshoots the bracket is replaced by the step from the
     bracket's other end (the side from which Newton converges monotonically
-    for a residual convex in the variable), and failing that by bisection,
-    geometric across a bracket wider than a factor of 4.
+    for a residual convex in the variable), and failing that by bisection:
+    geometric across a bracket wider than a factor of 4, and down by
+    decades while no point below the root is known.
 
     An element has converged, and stops iterating, when
     ``|g| <= rtol |s_trial|``, or when a Newton step inside the bracket
@@ -490,7 +491,9 @@ def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter, quasi_stat
             with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
                 other = np.where(right, _newton_step(lo, ends[0], ends[1], ends[2], E),
                                  _newton_step(hi, ends[3], ends[4], ends[5], E))
-                mid = np.where((lo > 0.0) & (hi > 4.0 * lo), np.sqrt(lo * hi), 0.5 * (lo + hi))
+                # bisection, geometric across a bracket of more than a factor of 4, decades down from hi
+                # while nothing below the root is known
+                mid = np.where(lo > 0.0, np.where(hi > 4.0 * lo, np.sqrt(lo * hi), 0.5 * (lo + hi)), 0.01 * hi)
             other_in = (other > lo) & (other < hi) & np.isfinite(other)
             step = np.where(inside, step, np.where(other_in, other, mid))
         candidates = [step]
@@ -1014,7 +1017,7 @@ class _DelayLine:
         # u = N+k-j-1, m = k+j+N-1, u + m = 2k + 2N - 2, m - u = 2j in [0, 2N - 2]
         x = R[1:N + n_steps + 1]
         y = np.concatenate((np.zeros(N - 1), L[:N + n_steps]))
-        cross = _band_pair_sums(x, y, 2 * N - 2)[2 * k + 2 * N - 2]
+        cross = _band_pair_sums(x, y, 0, 2 * N - 2)[2 * k + 2 * N - 2]
         half = 0.5 * self.EA * self.rod.dx
         strain = half * (sum_r2 + sum_l2 + 2.0 * cross)
         kinetic = half * (sum_l_lag + sum_r_lag - 2.0 * cross + R[k + 1] * L[k + N - 1] + R[N + k] * L[k])
@@ -1056,18 +1059,37 @@ def _upper_pair_sums(x, y):
     return out[:2 * size - 1]
 
 
-def _band_pair_sums(x, y, width):
-    """``out[s] = sum of x[u] y[m] over u + m = s, 0 <= m - u <= width``, s = 0 .. len(x) + len(y) - 2."""
-    n = max(x.size, y.size)
+def _band_pair_sums(x, y, lo, hi):
+    """``out[s] = sum of x[u] y[m] over u + m = s, lo <= m - u <= hi``, s = 0 .. len(x) + len(y) - 2.
+
+    Only the spans between the first and last non-zero values of ``x`` and
+    ``y`` are paired (waves reach a bar's far part late, or never).
+    """
+    out = np.zeros(x.size + y.size - 1)
+    nonzero_x, nonzero_y = np.flatnonzero(x), np.flatnonzero(y)
+    if not nonzero_x.size or not nonzero_y.size:
+        return out
+    a0, b0 = nonzero_x[0], nonzero_y[0]
+    xs, ys = x[a0:nonzero_x[-1] + 1], y[b0:nonzero_y[-1] + 1]
+    lo, hi = max(lo - (b0 - a0), 1 - xs.size), min(hi - (b0 - a0), ys.size - 1)  # the band in the spans
+    if hi < lo:
+        return out
+    # shift y so that the band starts at m - u = 0
+    shifted = ys[lo:] if lo >= 0 else np.concatenate((np.zeros(-lo), ys))
+    n = max(xs.size, shifted.size)
     xp, yp = np.zeros(n), np.zeros(n)
-    xp[:x.size], yp[:y.size] = x, y
-    out = _upper_pair_sums(xp, yp)
-    # minus the pairs with m - u >= width + 1: m = m' + width + 1 with m' >= u
-    far = yp[width + 1:]
+    xp[:xs.size], yp[:shifted.size] = xs, shifted
+    core = _upper_pair_sums(xp, yp)
+    far = yp[hi - lo + 1:]  # minus the pairs beyond the band: m = m' + width + 1 with m' >= u
     if far.size:
-        shifted = np.zeros(n)
-        shifted[:far.size] = far
-        out[width + 1:] -= _upper_pair_sums(xp, shifted)[:out.size - width - 1]
+        beyond = np.zeros(n)
+        beyond[:far.size] = far
+        core[hi - lo + 1:] -= _upper_pair_sums(xp, beyond)[:core.size - (hi - lo + 1)]
+    start = lo + a0 + b0
+    if start < 0:
+        core, start = core[-start:], 0
+    stop = min(start + core.size, out.size)
+    out[start:stop] = core[:stop - start]
     return out
 
 
@@ -1377,6 +1399,18 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, le
     return rec, peak
 
 
+def _extrapolate(x1, x2=None, x3=None):
+    """The next plastic increment from the last one, two or three (latest first), all > 0: quadratic in
+    ``ln x`` (exact for the exponential growth of the increments where a rate term ``C ln(rate)`` holds the
+    flow stress, as good as quadratic in ``x`` for smooth flow, and positive)."""
+    if x2 is None:
+        return x1
+    ratio = x1 / x2
+    if x3 is None:
+        return x1 * ratio
+    return x1 * ratio ** 3 * (x3 / x1)
+
+
 class _PlasticState:
     """Plastic strain and dissipated work of one rod with a constitutive law.
 
@@ -1388,12 +1422,14 @@ class _PlasticState:
     * the quasi-static flow stress of each element is kept between steps (it
       changes only when the element's plastic strain does), so an elastic
       step does not ask the law at all;
-    * while every element flows, the increment is extrapolated
-      (quadratically) from the last three steps' and one Newton step is
+    * an element that flowed in the last step starts from its increment
+      extrapolated from its last three (:func:`_extrapolate`), or from the
+      rate-independent estimate if the law's slope was zero (perfect
+      plasticity, where that estimate is exact), and one Newton step is
       taken from there with one call of the law (:meth:`_newton_from`); it
       stands if it changes the increment by at most ``1e-5`` of itself (the
       second convergence test of :func:`_solve_increment`), which it
-      usually does. Otherwise, and at the onset and the end of flow, the
+      usually does. Otherwise, and where an element starts to flow, the
       general iteration takes over from where the step led.
     """
 
@@ -1407,73 +1443,83 @@ class _PlasticState:
         self.p = np.zeros(m)  # accumulated equivalent plastic strain
         self.work = 0.0  # plastic work [J]
         self.increments = [np.zeros(m) for _ in range(3)]  # the last three steps' increments, latest first
-        self.recent = 0  # how many of them may be non-zero
-        self.flowing = 0  # steps in a row in which every element flowed
-        self.flat = False  # the law's slope was zero everywhere in the last plastic step (perfect plasticity)
+        self.age = np.zeros(m, dtype=np.int64)  # steps in a row each element has flowed
+        self.flat = False  # the law's slope was zero in the last Newton step (perfect plasticity)
         self.flow = rod.law.flow_stress
         self.quasi_static = np.array(self.flow(self.p, np.zeros(m)), dtype=float)  # flow_stress(p, 0)
         self.quasi_static_min = self.quasi_static.min()
         self.vol = rod.spec.area * rod.dx
         self.trial, self.size, self.over = np.zeros(m), np.zeros(m), np.zeros(m, dtype=bool)
-        self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, see _flow_points
 
     def update(self, dt):
-        trial, size = self.trial, self.size
-        np.subtract(self.eps, self.eps_p, out=trial)
-        trial *= self.E
+        trial, size, over, E = self.trial, self.size, self.over, self.E
+        np.subtract(self.eps, self.eps_p, out=trial)  # the elastic strain, for now
         np.abs(trial, out=size)
-        if size.max() <= self.quasi_static_min or not np.greater(size, self.quasi_static, out=self.over).any():
-            # elastic step: the trial stress stands
-            if self.recent:
-                self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
-                self.recent -= 1
-            self.flowing = 0
-            np.multiply(trial, self.A, out=self.F)
+        if size.max() * E <= self.quasi_static_min:  # elastic step, surely: the trial stress stands
+            self._elastic(trial)
             return
-        inc = quasi_static = guess = None
-        if self.over.all() and (self.flowing or self.flat):
-            x1, x2, x3 = self.increments
-            if self.flat:  # the rate-independent estimate is exact
-                guess = (size - self.quasi_static) / self.E
-            elif self.flowing >= 3:
-                guess = 3.0 * (x1 - x2) + x3
-            else:
-                guess = 2.0 * x1 - x2 if self.flowing == 2 else x1
-            if guess.min() > 0.0:
-                inc, quasi_static, guess = self._newton_from(guess, size, dt)
-        if inc is None:  # the general iteration, from the guess or from the last increments
-            yielding = np.flatnonzero(self.over)
-            if guess is None or yielding.size < self.rod.n:
-                x1, x2, x3 = (x[yielding] for x in self.increments)
-                guess = np.where((x1 > 0.0) & (x2 > 0.0),
-                                 np.where(x3 > 0.0, 3.0 * (x1 - x2) + x3, 2.0 * x1 - x2), x1)
-            inc = np.zeros(self.rod.n)
-            inc[yielding], quasi_static = _solve_increment(size[yielding], self.p[yielding], self.E, self.flow, dt,
-                                                           guess, 1e-10, 60, self.quasi_static[yielding])
-            self.flowing = self.flowing + 1 if yielding.size == self.rod.n else 0
-            self.quasi_static[yielding] = quasi_static
-        else:
-            self.flowing += 1
+        trial *= E
+        size *= E
+        if not np.greater(size, self.quasi_static, out=over).any():
+            self._elastic(trial, E)
+            return
+        every = over.all()
+        flowing = slice(None) if every else np.flatnonzero(over)
+        size_f, p_f, quasi_static_f, age = size[flowing], self.p[flowing], self.quasi_static[flowing], self.age[flowing]
+        x1, x2, x3 = (x[flowing] for x in self.increments)
+        guess = inc = None
+        if self.flat:  # the rate-independent estimate is exact
+            guess = (size_f - quasi_static_f) / E
+        elif age.min() >= 3:
+            guess = _extrapolate(x1, x2, x3)
+        elif age.max() >= 1:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                guess = np.where(age >= 3, _extrapolate(x1, x2, x3), np.where(age == 2, _extrapolate(x1, x2), x1))
+            if age.min() == 0:
+                guess = None
+        if guess is not None:
+            inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)
+        if inc is None:  # the general iteration, from where the step led or from the last increments
+            if guess is None:
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    guess = np.where(x2 > 0.0, np.where(x3 > 0.0, _extrapolate(x1, x2, x3), _extrapolate(x1, x2)), x1)
+            inc, quasi_static = _solve_increment(size_f, p_f, E, self.flow, dt, guess, 1e-10, 60, quasi_static_f)
+        if every:
             self.quasi_static = quasi_static
+            self.age += 1
+        else:
+            self.quasi_static[flowing] = quasi_static
+            self.age += 1
+            self.age[~over] = 0
+            inc_f, inc = inc, np.zeros(self.rod.n)
+            inc[flowing] = inc_f
         self.increments = [inc] + self.increments[:2]
-        self.recent = 3
         signed = np.sign(trial)
         signed *= inc
         self.eps_p += signed
         self.p += inc
         self.quasi_static_min = self.quasi_static.min()
-        signed *= self.E
+        signed *= E
         trial -= signed  # the returned stress
         # dissipated work: stress at the end of the step times plastic increment (first order)
         self.work += float(np.abs(trial) @ inc) * self.vol
         np.multiply(trial, self.A, out=self.F)
 
-    def _newton_from(self, x, size, dt):
-        """One Newton step from ``x`` for every element: ``(increments, quasi-static flow stresses, None)``
-        if it converged (:func:`_solve_increment`'s step test), else ``(None, None, where it led)``."""
-        points, rates = self.points, self.rates
+    def _elastic(self, trial, scale=1.0):
+        """An elastic step: the forces from the trial (strain, or stress with ``scale = E``)."""
+        if self.age[0] or self.age.any():
+            self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
+            self.age[:] = 0
+        np.multiply(trial, self.E * self.A / scale, out=self.F)
+
+    def _newton_from(self, x, size, p, dt):
+        """One Newton step from ``x`` for the flowing elements (``size``, ``p`` theirs): ``(increments,
+        quasi-static flow stresses, None)`` if it converged (the step test of :func:`_solve_increment`),
+        else ``(None, None, where it led)``."""
+        m = x.size
+        points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
         h = 1e-6 * x
-        np.add(self.p, x, out=points[0])
+        np.add(p, x, out=points[0])
         np.add(points[0], h, out=points[1])
         points[2:] = points[:2]
         np.divide(x, dt, out=rates[0])
