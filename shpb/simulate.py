@@ -1025,7 +1025,8 @@ class _DelayLine:
 
 
 def _upper_pair_sums(x, y):
-    """``out[s] = sum of x[u] y[m] over u <= m, u + m = s`` for s = 0 .. 2 len - 2 (equal lengths).
+    """``out[..., s] = sum of x[..., u] y[..., m] over u <= m, u + m = s``, s = 0 .. 2 n - 2, along the last
+    axis (x and y of one shape, n long).
 
     Divide and conquer over the index range: the pairs with u in the left
     half of a block and m in its right half all count, and are one linear
@@ -1033,30 +1034,30 @@ def _upper_pair_sums(x, y):
     a half are left to the next level down, and the smallest blocks are summed
     directly. O(n log^2 n).
     """
-    from scipy import fft as sfft
-
-    size = x.size
+    rows, size = x.shape[:-1], x.shape[-1]
     base = 4
     total = base * 2 ** max(0, math.ceil(math.log2(max(size, 1) / base)))
-    xp, yp = np.zeros(total), np.zeros(total)
-    xp[:size], yp[:size] = x, y
-    out = np.zeros(3 * total)
+    xp, yp = np.zeros(rows + (total,)), np.zeros(rows + (total,))
+    xp[..., :size], yp[..., :size] = x, y
+    out = np.zeros(rows + (3 * total,))
     r = np.arange(base)
     upper = r[:, None] <= r[None, :]
     blocks = total // base
-    prod = (xp.reshape(blocks, base)[:, :, None] * yp.reshape(blocks, base)[:, None, :])[:, upper]
+    prod = (xp.reshape(rows + (blocks, base, 1)) * yp.reshape(rows + (blocks, 1, base)))[..., upper]
     where = ((2 * base) * np.arange(blocks))[:, None] + (r[:, None] + r[None, :])[upper][None, :]
-    out[:2 * total] = np.bincount(where.ravel(), prod.ravel(), minlength=2 * total)
+    flat = out.reshape(-1, 3 * total)
+    for i, part in enumerate(prod.reshape(-1, blocks, prod.shape[-1])):
+        flat[i, :2 * total] = np.bincount(where.ravel(), part.ravel(), minlength=2 * total)
     half = base
     while half < total:
         blocks = total // (2 * half)
-        left = xp.reshape(blocks, 2 * half)[:, :half]
-        right = yp.reshape(blocks, 2 * half)[:, half:]
-        conv = sfft.irfft(sfft.rfft(left, 2 * half, axis=1) * sfft.rfft(right, 2 * half, axis=1), 2 * half, axis=1)
+        left = xp.reshape(rows + (blocks, 2 * half))[..., :half]
+        right = yp.reshape(rows + (blocks, 2 * half))[..., half:]
+        conv = np.fft.irfft(np.fft.rfft(left, 2 * half) * np.fft.rfft(right, 2 * half), 2 * half)
         # u = 2 half b + i, m = 2 half b + half + k  ->  s = 4 half b + half + i + k
-        out[half:half + 4 * half * blocks].reshape(blocks, 4 * half)[:, :2 * half] += conv
+        out[..., half:half + 4 * half * blocks].reshape(rows + (blocks, 4 * half))[..., :2 * half] += conv
         half *= 2
-    return out[:2 * size - 1]
+    return out[..., :2 * size - 1]
 
 
 def _band_pair_sums(x, y, lo, hi):
@@ -1074,17 +1075,19 @@ def _band_pair_sums(x, y, lo, hi):
     lo, hi = max(lo - (b0 - a0), 1 - xs.size), min(hi - (b0 - a0), ys.size - 1)  # the band in the spans
     if hi < lo:
         return out
-    # shift y so that the band starts at m - u = 0
+    # shift y so that the band starts at m - u = 0; then the pairs with m - u >= 0, minus those beyond the
+    # band (m = m' + width + 1 with m' >= u): two sums of pairs in one call
     shifted = ys[lo:] if lo >= 0 else np.concatenate((np.zeros(-lo), ys))
+    width = hi - lo
     n = max(xs.size, shifted.size)
-    xp, yp = np.zeros(n), np.zeros(n)
-    xp[:xs.size], yp[:shifted.size] = xs, shifted
-    core = _upper_pair_sums(xp, yp)
-    far = yp[hi - lo + 1:]  # minus the pairs beyond the band: m = m' + width + 1 with m' >= u
-    if far.size:
-        beyond = np.zeros(n)
-        beyond[:far.size] = far
-        core[hi - lo + 1:] -= _upper_pair_sums(xp, beyond)[:core.size - (hi - lo + 1)]
+    xp, yp = np.zeros((2, n)), np.zeros((2, n))
+    xp[:, :xs.size] = xs
+    yp[0, :shifted.size] = shifted
+    far = shifted[width + 1:]
+    yp[1, :far.size] = far
+    pairs = _upper_pair_sums(xp, yp)
+    core = pairs[0]
+    core[width + 1:] -= pairs[1, :core.size - width - 1]
     start = lo + a0 + b0
     if start < 0:
         core, start = core[-start:], 0
