@@ -141,8 +141,9 @@ def whole_process(rounds):
     base, imports = times["python -c pass"], times["python -c 'import shpb.simulate'"]
     print(f"2. whole processes ({SETUP.name}); {rounds} rounds, min / median / max")
     for name, t in times.items():
-        print(f"  {name:36s} {spread(t)} s; ratio to python -c pass {spread([a / b for a, b in zip(t, base)], '{:.1f}')}"
-              f", to the import alone {spread([a / b for a, b in zip(t, imports)], '{:.2f}')}")
+        to_base = spread([a / b for a, b in zip(t, base)], "{:.1f}")
+        to_imports = spread([a / b for a, b in zip(t, imports)], "{:.2f}")
+        print(f"  {name:36s} {spread(t)} s; ratio to python -c pass {to_base}, to the import alone {to_imports}")
     whole = times["shpb simulate (with figure)"]
     print(f"  target: shpb simulate <= {TARGET_PROCESS_S:g} s; median {statistics.median(whole):.2f} s")
 

@@ -16,7 +16,7 @@ import math
 import numpy as np
 
 from shpb.errors import AnalysisError
-from shpb.simulate import (_assemble, _build_rods, _check_spec, _directional_weights, _gauge_weights,
+from shpb.simulate import (_Rod, _assemble, _build_rods, _check_spec, _directional_weights, _gauge_weights,
                            _time_step)
 
 
