@@ -40,11 +40,29 @@ and forces in elements at whole steps; lumped nodal masses.
   Courant < 1 (dispersive: oscillations trail every front) or sub-cycle
   the specimen (an interface-coupling error of the order of the bar step,
   where the reduction is most sensitive), the bar elements are shortened
-  to ``c0 dt`` so the bars stay exact. The price is grid size, cost
-  ~ ``1/dt**2``: for a 5 mm metal specimen on 1.5 m bars, about 13 000
-  nodes and 20 000 steps per millisecond, about two seconds (see
-  ``benchmarks/bench_simulate.py``). Without a specimen or shaper, ``dt`` is
-  the largest divisor of the sample interval not above ``max_time_step``.
+  to ``c0 dt`` so the bars stay exact. On the grid that would cost
+  ~ ``1/dt**2`` (for a 5 mm metal specimen on 1.5 m bars about 13 000
+  nodes and 20 000 steps per millisecond); the delay lines below make the
+  bars free, so the cost is that of the specimen, ~ ``1/dt``. Without a
+  specimen or shaper, ``dt`` is the largest divisor of the sample interval
+  not above ``max_time_step``.
+* **Elastic bars as delay lines.** At Courant 1 the scheme in an elastic
+  rod *is* the d'Alembert solution on the grid: each element's strain is
+  the sum of a wave travelling +x and one travelling -x, and each step both
+  move one element on unchanged (Graff 1975, ch. 2). So the striker and the
+  bars, when elastic, are not marched node by node: each is kept as the
+  histories of the two waves entering it at its ends
+  (:class:`_DelayLine`), and only its two end nodes are integrated, with
+  the same masses and forces as on the grid; the wave an end sends in
+  follows from its velocity by the characteristic relation
+  ``R_0(n+1) = L_0(n) - v_0(n+1/2) / c0`` (and its mirror at the other
+  end). The specimen, the shaper (not at Courant 1, or plastic), any rod
+  with a plastic law and the contacts are marched as below. The results
+  are those of the node-by-node march to round-off (checked against it in
+  the tests), at a cost per step independent of the bars' length; the gauge
+  strains, the two travelling waves at each gauge and the energies are read
+  from the wave histories afterwards (the energies' cross term
+  ``sum R_j L_j`` for every step at once by FFT, :func:`_band_pair_sums`).
 * **Recorder clock.** The model keeps the two steps around each sample time
   and interpolates linearly. At Courant 1 a bar element's strain is the
   element average, which varies linearly in time while a front crosses it,
@@ -77,7 +95,12 @@ and forces in elements at whole steps; lumped nodal masses.
   ``flow_stress(plastic_strain, plastic_strain_rate)``, with isotropic
   hardening; the rate term is implicit (backward Euler in the plastic
   increment), since an explicit rate term acts as an explicit viscosity
-  and goes unstable at the Courant-1 step.
+  and goes unstable at the Courant-1 step. The scalar equation for the
+  increment is solved by a safeguarded Newton iteration (on the logarithm
+  of the increment where a rate term dominates); the law is asked once per
+  iteration, and a flowing element starts from its increment extrapolated
+  from the last three steps, so a step of plastic flow usually costs one
+  call of the law (:func:`_solve_increment`, :class:`_PlasticState`).
 * **Small strain, engineering quantities.** The bars are small-strain and
   elastic. The specimen and shaper are modelled in engineering quantities:
   constant cross-section, element stress = force / initial area, strain =
@@ -981,7 +1004,14 @@ class _DelayLine:
 
     def node_waves(self, j, steps):
         """The two travelling waves at interior node j [1], tension positive: each one's mean over the
-        two elements beside the node, ``(R_(j-1) + R_j) / 2`` and ``(L_(j-1) + L_j) / 2``."""
+        two elements beside the node, ``(R_(j-1) + R_j) / 2`` and ``(L_(j-1) + L_j) / 2``.
+
+        In the grid's variables (``v_j = c0 (L_j - R_(j-1))``, element j right
+        of node j) these are ``(eps_j - v_j / c0) / 2`` and
+        ``(eps_(j-1) + v_j / c0) / 2``, and their sum is the mean strain at
+        the node: the split is exact on the grid, not an approximation of it
+        (the form :func:`_bar_measures` uses on a bar marched on the grid).
+        """
         R, L, N = self.right, self.left, self.N
         return 0.5 * (R[N + steps - j] + R[N + steps - j + 1]), 0.5 * (L[steps + j - 1] + L[steps + j])
 
@@ -1549,7 +1579,7 @@ def _directional_weights(rod, distance, from_end):
     """Two interior nodes around a station ``distance`` [m] from the specimen face, their weights, c0.
 
     The split of the bar strain into its two travelling waves is exact at a
-    node of a Courant-1 bar (see :func:`_directional_waves`); between the two
+    node of a Courant-1 bar (see :meth:`_DelayLine.node_waves`); between the two
     nodes it is interpolated linearly, like the gauge strain.
     """
     # interior nodes only: both neighbour elements exist
@@ -2145,7 +2175,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
     Runs the striker, shaper and incident bar alone (a free-end shot) at the
     time step the full shot would use, and reads the wave travelling away
     from the impact at a station ``station`` [m] before the far end (the
-    exact split of :func:`_directional_waves`), moved back to the impact
+    exact split of :meth:`_DelayLine.node_waves`), moved back to the impact
     face by its transit ``(L - station) / c0``. Until the echo of the far end
     returns to it (2 L / c0 after the impact) the impact face does not feel
     what lies beyond it, so this is the pulse the full shot receives too.
