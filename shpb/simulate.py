@@ -374,10 +374,13 @@ def radial_return(trial_stress, plastic_strain, modulus, flow_stress, dt, *, gue
     ``|sigma_trial| - E dg - flow_stress(eps_p + dg, dg / dt) = 0``
 
     for the plastic strain increment ``dg >= 0`` by a safeguarded Newton
-    iteration inside the bracket ``[0, |sigma_trial| / E]``. The rate passed
-    to the flow stress is the plastic strain rate ``dg / dt``, so rate
-    hardening is treated implicitly (an explicit rate term acts like an
-    explicit viscosity and goes unstable at the Courant-1 time step).
+    iteration inside the bracket ``[0, |sigma_trial| / E]`` (details in
+    :func:`_solve_increment`), until the residual is within ``rtol`` of the
+    trial stress or a Newton step changes ``dg`` by at most ``1e-5`` of
+    itself. The rate passed to the flow stress is the plastic strain rate
+    ``dg / dt``, so rate hardening is treated implicitly (an explicit rate
+    term acts like an explicit viscosity and goes unstable at the Courant-1
+    time step).
 
     Parameters
     ----------
@@ -417,7 +420,7 @@ def radial_return(trial_stress, plastic_strain, modulus, flow_stress, dt, *, gue
     size = np.abs(trial)
     p = np.asarray(plastic_strain, dtype=float)
     increment = np.zeros_like(trial)
-    quasi_static = flow_stress(p, np.zeros_like(p))
+    quasi_static = np.asarray(flow_stress(p, np.zeros_like(p)), dtype=float)
     yielding = np.flatnonzero(size > quasi_static)
     if yielding.size:
         x0 = None if guess is None else np.asarray(guess, dtype=float)[yielding]
@@ -967,8 +970,8 @@ class _DelayLine:
     ``L_j(n+1) = L_(j+1)(n)`` (substitute into the update
     ``v_j += c0 (eps_j - eps_(j-1))``, ``eps_j += (v_(j+1) - v_j) / c0``).
     Only the two end nodes are integrated: they carry the rod's end masses
-    and meet the contacts, the drive or a free end in the grid of
-    :func:`_run`, and the wave each sends in follows from its velocity,
+    and meet the contacts, the drive or a free end (:func:`_run`), and the
+    wave each sends in follows from its velocity,
     ``R_0(n+1) = L_0(n) - v_0(n+1/2) / c0`` and
     ``L_(N-1)(n+1) = R_(N-1)(n) + v_N(n+1/2) / c0`` (the same update at the
     end elements). The results are those of the node-by-node march, to
@@ -1244,13 +1247,17 @@ def _run(spec, rods, dt, kept_steps):
     dt_over_m, dt_over_dx, EA = grid.dt_over_m, grid.dt_over_dx, grid.EA
     node_force, dv = np.zeros(grid.n_nodes), np.zeros(grid.n_links)
     on_grid = grid.n_nodes > 0
+    drive_on_grid = drive is not None and not drive_on_line
+    # the plastic rods set their own forces: the elastic ones are needed only if the grid holds other rods
+    elastic_forces = sum(p.rod.n for p in plastic) < grid.n_links
+    contacts = [(k,) + c for k, c in enumerate(contacts)]
     state, kept = grid.state, np.empty((_CHUNK, grid.state.size))
     row = 0
     for n in range(n_steps + 1):
         # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
         if on_grid:
             np.subtract(F_right, F_left, out=node_force)
-            if drive is not None and not drive_on_line:
+            if drive_on_grid:
                 node_force[grid.first["incident"]] += drive[n]
             node_force *= dt_over_m
             v += node_force
@@ -1262,7 +1269,7 @@ def _run(spec, rods, dt, kept_steps):
         if drive_on_line:
             u[i_drive] += drive_kick[n]
         # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
-        for k, (a, b, inv_a, inv_b, inv_w) in enumerate(contacts):
+        for k, a, b, inv_a, inv_b, inv_w in contacts:
             va, vb = u[a], u[b]
             g = gaps[k] + dt * (vb - va)
             if g < 0.0:
@@ -1295,14 +1302,15 @@ def _run(spec, rods, dt, kept_steps):
             np.subtract(v_right, v_left, out=dv)
             dv *= dt_over_dx
             eps += dv
-            np.multiply(EA, eps, out=F)
+            if elastic_forces:
+                np.multiply(EA, eps, out=F)
             for p in plastic:
                 p.update(dt)
 
     for line in lines.values():
         line.finish()
     left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
-    impulses = np.array(impulses).reshape(len(contacts), n_steps + 1)
+    impulses = np.array(impulses).reshape(len(gaps), n_steps + 1)
     impact_force = drive if drive is not None else impulses[left_of["incident"]] / dt
     # kinetic energy of the delay lines' end nodes (leapfrog form m v(n-1/2) v(n+1/2) / 2)
     history = np.array(history)
