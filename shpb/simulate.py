@@ -1491,6 +1491,10 @@ class _PlasticState:
         self.quasi_static_min = self.quasi_static.min()
         self.vol = rod.spec.area * rod.dx
         self.trial, self.size, self.over = np.zeros(m), np.zeros(m), np.zeros(m, dtype=bool)
+        self.aged = False  # some element flowed in the last step
+        self.run = 0  # steps in a row in which every element flowed
+        self.work_buffer = np.zeros(m)
+        self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments (_newton_from)
 
     def update(self, dt):
         trial, size, over, E = self.trial, self.size, self.over, self.E
@@ -1505,13 +1509,18 @@ class _PlasticState:
             self._elastic(trial, E)
             return
         every = over.all()
-        flowing = slice(None) if every else np.flatnonzero(over)
-        size_f, p_f, quasi_static_f, age = size[flowing], self.p[flowing], self.quasi_static[flowing], self.age[flowing]
-        x1, x2, x3 = (x[flowing] for x in self.increments)
+        if every:  # the common case while the rod flows: no gathering
+            flowing, size_f, p_f, quasi_static_f, age = slice(None), size, self.p, self.quasi_static, self.age
+            x1, x2, x3 = self.increments
+        else:
+            flowing = np.flatnonzero(over)
+            size_f, p_f, quasi_static_f, age = size[flowing], self.p[flowing], self.quasi_static[flowing], \
+                self.age[flowing]
+            x1, x2, x3 = (x[flowing] for x in self.increments)
         guess = inc = None
         if self.flat:  # the rate-independent estimate is exact
             guess = (size_f - quasi_static_f) / E
-        elif age.min() >= 3:
+        elif self.run >= 3 or (not every and age.min() >= 3):
             guess = _extrapolate(x1, x2, x3)
         elif age.max() >= 1:
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -1525,32 +1534,35 @@ class _PlasticState:
                 with np.errstate(divide="ignore", invalid="ignore"):
                     guess = np.where(x2 > 0.0, np.where(x3 > 0.0, _extrapolate(x1, x2, x3), _extrapolate(x1, x2)), x1)
             inc, quasi_static = _solve_increment(size_f, p_f, E, self.flow, dt, guess, 1e-10, 60, quasi_static_f)
+        self.age += 1
         if every:
             self.quasi_static = quasi_static
-            self.age += 1
+            self.run += 1
         else:
             self.quasi_static[flowing] = quasi_static
-            self.age += 1
             self.age[~over] = 0
+            self.run = 0
             inc_f, inc = inc, np.zeros(self.rod.n)
             inc[flowing] = inc_f
+        self.aged = True
         self.increments = [inc] + self.increments[:2]
-        signed = np.sign(trial)
-        signed *= inc
-        self.eps_p += signed
+        returned = self.work_buffer
+        np.multiply(inc, E, out=returned)
+        np.subtract(size, returned, out=returned)  # |returned stress|
+        # dissipated work: stress at the end of the step times plastic increment (first order)
+        self.work += float(returned @ inc) * self.vol
+        self.eps_p += np.copysign(inc, trial)
         self.p += inc
         self.quasi_static_min = self.quasi_static.min()
-        signed *= E
-        trial -= signed  # the returned stress
-        # dissipated work: stress at the end of the step times plastic increment (first order)
-        self.work += float(np.abs(trial) @ inc) * self.vol
-        np.multiply(trial, self.A, out=self.F)
+        np.copysign(returned, trial, out=returned)
+        np.multiply(returned, self.A, out=self.F)
 
     def _elastic(self, trial, scale=1.0):
         """An elastic step: the forces from the trial (strain, or stress with ``scale = E``)."""
-        if self.age[0] or self.age.any():
+        if self.aged:
             self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
             self.age[:] = 0
+            self.aged, self.run = False, 0
         np.multiply(trial, self.E * self.A / scale, out=self.F)
 
     def _newton_from(self, x, size, p, dt):
@@ -1558,7 +1570,10 @@ class _PlasticState:
         quasi-static flow stresses, None)`` if it converged (the step test of :func:`_solve_increment`),
         else ``(None, None, where it led)``."""
         m = x.size
-        points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
+        if m == self.rod.n:
+            points, rates = self.points, self.rates
+        else:
+            points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
         h = 1e-6 * x
         np.add(p, x, out=points[0])
         np.add(points[0], h, out=points[1])
@@ -1572,10 +1587,16 @@ class _PlasticState:
         g = size - self.E * x - flow[0]
         slope = law_slope + self.E
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            dx = g / slope
-            if law_slope.max() > self.E:  # Newton on ln x there (see _solve_increment)
-                dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
-        if not (np.abs(dx) <= 1e-5 * x).all():
+            if law_slope.min() > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
+                change = np.expm1(g / (slope * x))
+                dx = x * change
+                converged = np.abs(change).max() <= 1e-5
+            else:
+                dx = g / slope
+                if law_slope.max() > self.E:
+                    dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
+                converged = (np.abs(dx) <= 1e-5 * x).all()
+        if not converged:
             return None, None, x + dx
         quasi_static = flow[3] - flow[2]
         quasi_static *= dx / h
