@@ -1018,6 +1018,18 @@ class _DelayLine:
         R, L, N = self.right, self.left, self.N
         return 0.5 * (R[N + steps - j] + R[N + steps - j + 1]), 0.5 * (L[steps + j - 1] + L[steps + j])
 
+    def strain_mean_and_min(self, steps, chunk=4096):
+        """Mean and smallest element strain [1] at the given steps, tension positive."""
+        N, R, L = self.N, self.right, self.left
+        j = np.arange(N)
+        mean, low = np.empty(steps.size), np.empty(steps.size)
+        for start in range(0, steps.size, chunk):
+            k = steps[start:start + chunk, None]
+            strains = R[N + k - j] + L[k + j]
+            mean[start:start + chunk] = strains.mean(axis=1)
+            low[start:start + chunk] = strains.min(axis=1)
+        return mean, low
+
     def energies(self, n_steps):
         """Kinetic energy of the interior nodes and strain energy of the elements [J] at steps 0..n_steps.
 
@@ -1193,8 +1205,9 @@ def _run(spec, rods, dt, kept_steps):
     """
     by_name = {r.name: r for r in rods}
     n_steps = int(kept_steps[-1])
-    lines = {r.name: _DelayLine(r, n_steps, spec.striker_speed if r.name == "striker" else 0.0)
-             for r in rods if r.law is None and r.name in _COURANT_ONE}
+    # elastic rods at Courant 1: the bars and the striker, and the specimen or shaper when it sets the step
+    lines = {r.name: _DelayLine(r, n_steps, spec.striker_speed if r.name == "striker" else 0.0) for r in rods
+             if r.law is None and (r.name in _COURANT_ONE or abs(r.spec.wave_speed * dt / r.dx - 1.0) < 1e-12)}
     grid = _Grid(spec, [r for r in rods if r.name not in lines], dt)
     incident, striker = by_name["incident"], by_name.get("striker")
     e0 = 0.0
@@ -1317,8 +1330,9 @@ def _run(spec, rods, dt, kept_steps):
     own = np.array([k for name in lines for k in (ends[name, "first"], ends[name, "last"])], dtype=np.int64)
     end_kinetic = 0.5 * (history[:-1, own] * np.array(u_mass)[own] * history[1:, own]).sum(axis=1) if own.size \
         else np.zeros(n_steps + 1)
-    rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, left_of, dt,
-                         kept_steps)
+    faces = {name: (history[:, ends[name, "first"]], history[:, ends[name, "last"]]) for name in lines}
+    rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, faces, left_of,
+                         dt, kept_steps)
     return rec, impact_force, e0, peak
 
 
@@ -1330,7 +1344,7 @@ class _GridReader:
         self.previous_v = grid.v.copy()  # v(-1/2): the initial velocities
         self.kinetic = np.zeros(n_steps + 1)
         self.strain_energy = np.zeros(n_steps + 1)
-        self.resolved = [r.name for r in rods if r.name in ("specimen", "shaper")]
+        self.resolved = [r.name for r in rods if r.name in ("specimen", "shaper") and r.name in grid.links]
         self.mean_strain = {name: np.zeros(n_steps + 1) for name in self.resolved}
         self.min_strain = {name: np.zeros(n_steps + 1) for name in self.resolved}
         self.mean_force = {name: np.zeros(n_steps + 1) for name in self.resolved}
@@ -1404,8 +1418,11 @@ def _bar_measures(name, rod, lines, reader, distance, from_end, steps):
     return -strain, -plus, -minus
 
 
-def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, left_of, dt, kept_steps):
-    """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods."""
+def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps):
+    """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods.
+
+    ``faces`` holds each delay line's end node velocities, v(-1/2) first.
+    """
     ks = kept_steps
     rec = np.full((ks.size, 15), np.nan)
     rec[:, 0] = ks * dt
@@ -1420,13 +1437,26 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, le
         rec[:, 6] = impulses[i_front, ks] / dt
         rec[:, 7] = impulses[left_of["transmitted"], ks] / dt
     specimen = by_name.get("specimen")
+    peak = {name: (max(0.0, float(np.max(-reader.mean_strain[name][ks]))),
+                   max(0.0, float(np.max(-reader.min_strain[name][ks])))) for name in reader.resolved}
+    for name in ("specimen", "shaper"):
+        if name in lines:  # elastic at Courant 1
+            mean, low = lines[name].strain_mean_and_min(ks)
+            peak[name] = (max(0.0, float(np.max(-mean))), max(0.0, float(np.max(-low))))
+            if name == "specimen":
+                rec[:, 3] = -specimen.spec.modulus * mean
+                rec[:, 4] = -mean
     if specimen is not None:
-        rec[:, 3] = -reader.mean_force["specimen"][ks] / specimen.spec.area
-        rec[:, 4] = -reader.mean_strain["specimen"][ks]
-        n_el = grid.links["specimen"].stop - grid.links["specimen"].start
-        v_front, v_back = (reader.probe("v", "specimen", j, ks) for j in (0, n_el))
-        v_front_before, v_back_before = (np.where(ks > 0, reader.probe("v", "specimen", j, np.maximum(ks - 1, 0)),
-                                                  0.0) for j in (0, n_el))
+        if "specimen" in lines:  # end node velocities v(n-1/2) and v(n+1/2) from the kept history
+            front, back = faces["specimen"]
+            v_front_before, v_front, v_back_before, v_back = front[ks], front[ks + 1], back[ks], back[ks + 1]
+        else:
+            rec[:, 3] = -reader.mean_force["specimen"][ks] / specimen.spec.area
+            rec[:, 4] = -reader.mean_strain["specimen"][ks]
+            n_el = grid.links["specimen"].stop - grid.links["specimen"].start
+            v_front, v_back = (reader.probe("v", "specimen", j, ks) for j in (0, n_el))
+            v_front_before, v_back_before = (np.where(ks > 0, reader.probe("v", "specimen", j, np.maximum(ks - 1, 0)),
+                                                      0.0) for j in (0, n_el))
         # velocities at n: mean of the half steps on either side (the specimen starts at rest)
         rec[:, 5] = (0.5 * (v_front_before + v_front) - 0.5 * (v_back_before + v_back)) / specimen.spec.length
     kinetic, strain_energy = reader.kinetic + end_kinetic, reader.strain_energy.copy()
@@ -1435,8 +1465,6 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, le
         kinetic += k_line
         strain_energy += s_line
     rec[:, 8], rec[:, 9], rec[:, 10] = kinetic[ks], strain_energy[ks], work[ks]
-    peak = {name: (max(0.0, float(np.max(-reader.mean_strain[name][ks]))),
-                   max(0.0, float(np.max(-reader.min_strain[name][ks])))) for name in reader.resolved}
     return rec, peak
 
 
