@@ -56,8 +56,10 @@ and forces in elements at whole steps; lumped nodal masses.
   the same masses and forces as on the grid; the wave an end sends in
   follows from its velocity by the characteristic relation
   ``R_0(n+1) = L_0(n) - v_0(n+1/2) / c0`` (and its mirror at the other
-  end). The specimen, the shaper (not at Courant 1, or plastic), any rod
-  with a plastic law and the contacts are marched as below. The results
+  end). An elastic specimen or shaper that runs at Courant 1 (the rod that
+  sets the step) is a delay line too. A plastic specimen or shaper, one
+  below Courant 1, any rod with a plastic law and the contacts are marched
+  as below. The results
   are those of the node-by-node march to round-off (checked against it in
   the tests), at a cost per step independent of the bars' length; the gauge
   strains, the two travelling waves at each gauge and the energies are read
