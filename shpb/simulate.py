@@ -1123,18 +1123,16 @@ def _band_pair_sums(x, y, lo, hi):
     if hi < lo:
         return out
     # shift y so that the band starts at m - u = 0; then the pairs with m - u >= 0, minus those beyond the
-    # band (m = m' + width + 1 with m' >= u): two sums of pairs in one call
+    # band (m = m' + width + 1 with m' >= u, so u < len(far))
     shifted = ys[lo:] if lo >= 0 else np.concatenate((np.zeros(-lo), ys))
     width = hi - lo
     n = max(xs.size, shifted.size)
-    xp, yp = np.zeros((2, n)), np.zeros((2, n))
-    xp[:, :xs.size] = xs
-    yp[0, :shifted.size] = shifted
-    far = shifted[width + 1:]
-    yp[1, :far.size] = far
-    pairs = _upper_pair_sums(xp, yp)
-    core = pairs[0]
-    core[width + 1:] -= pairs[1, :core.size - width - 1]
+    xp, yp = np.zeros(n), np.zeros(n)
+    xp[:xs.size], yp[:shifted.size] = xs, shifted
+    core = _upper_pair_sums(xp, yp)
+    far = yp[width + 1:]
+    if far.size:
+        core[width + 1:width + 2 * far.size] -= _upper_pair_sums(xp[:far.size], far)
     start = lo + a0 + b0
     if start < 0:
         core, start = core[-start:], 0
