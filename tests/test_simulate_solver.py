@@ -18,8 +18,8 @@ import numpy as np
 import pytest
 
 from reference_leapfrog import simulate_shot_reference
-from shpb.simulate import (IncidentPulse, JohnsonCookLaw, PerfectlyPlastic, RodSpec, TrueStressLaw,
-                           VirtualShotSpec, simulate_shot)
+from shpb.simulate import (FlowStressLaw, IncidentPulse, JohnsonCookLaw, PerfectlyPlastic, RodSpec,
+                           TrueStressLaw, VirtualShotSpec, simulate_shot)
 
 E_STEEL, RHO_STEEL = 200e9, 7850.0
 C0 = math.sqrt(E_STEEL / RHO_STEEL)
@@ -186,6 +186,11 @@ PLASTIC_RIGS = {
     "plastic striker (marched on the grid)": (rig(striker=RodSpec(0.1, 0.02, E_STEEL, RHO_STEEL,
                                                                   PerfectlyPlastic(150e6)), striker_speed=12.0),
                                               1e-8),
+    # bars with a hardening law are marched on the grid too, gauges and waves read from the grid's states
+    "hardening bars (marched on the grid)": (rig(
+        incident=RodSpec(0.6, 0.02, E_STEEL, RHO_STEEL, FlowStressLaw(lambda p, rate: 180e6 + 20e9 * p)),
+        transmitted=RodSpec(0.4, 0.02, E_STEEL, RHO_STEEL, FlowStressLaw(lambda p, rate: 180e6 + 20e9 * p)),
+        striker_speed=12.0, duration=0.2e-3), 1e-8),
 }
 
 
