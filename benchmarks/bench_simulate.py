@@ -1,91 +1,161 @@
-"""Speed of the virtual shot model (shpb.simulate) on a typical rig.
+"""Speed of the virtual shot (shpb.simulate): the delay-line solver against the old whole-rig march, and whole
+``shpb simulate`` processes beside their yardsticks.
 
-Run: ``python benchmarks/bench_simulate.py``. Prints the grid size, the wall
-time, the time per simulated microsecond and per node-step, and the ratio of
-the wall time to the target (a typical shot "in seconds": target 10 s), all
-measured in this one run. The rig is fictional: 0.3 m striker at 15 m/s,
-1.5 m steel bars of 20 mm, a 5 mm x 8 mm copper-like specimen (20 elements,
-Johnson-Cook law), 1 ms of record at 10 MHz; then the same with other
-specimen laws and a stiffer specimen. Last, the whole virtual record with
-Pochhammer–Chree dispersion (the striker's pulse, the dispersed drive, the
-run and the recorder) against the plain run, as a ratio.
+Run: ``python benchmarks/bench_simulate.py [--quick] [--rounds N]``. Everything is measured in this one run,
+in rounds that interleave the things compared (the machine is shared and noisy), and printed as
+min / median / max over the rounds.
+
+1. **In process**: ``simulate_shot`` against the old time stepping kept in ``tests/reference_leapfrog.py``
+   (the explicit leapfrog over every node of the rig, as before the delay lines), on fictional rigs:
+   0.3 m striker at 15 m/s, 1.5 m steel bars of 20 mm, a 5 mm x 8 mm copper-like specimen (20 elements;
+   Johnson-Cook, perfectly plastic, elastic), a bars-together shot, 1 ms at 10 MHz; and the whole
+   virtual shot of an example setup (striker pulse run, dispersed drive, run, dispersed record) with either
+   solver. Printed: the speed-up old / new per round (target: at least 10).
+2. **Whole process**: ``shpb simulate example_data/setups/HR-C10-1000-a.toml --out TMP`` (with and without
+   the figure) beside ``python -c pass`` and a process that only imports ``shpb.simulate``; times and
+   ratios (target: the whole command at most 1 s).
+
+``--quick`` runs shorter shots (0.3 ms) and two rounds.
 """
 
 from __future__ import annotations
 
-import time
-
+import argparse
 import dataclasses
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
 
-from shpb.setup import Gauge
-from shpb.simulate import (JohnsonCookLaw, PerfectlyPlastic, RecorderSpec, RodSpec, VirtualShotSpec, dispersed_drive,
-                           simulate_shot, virtual_record)
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT / "tests"))
 
-TARGET_SECONDS = 10.0
+from reference_leapfrog import simulate_shot_reference  # noqa: E402  (the old solver, tests/ only)
+
+import shpb.simulate as simulate  # noqa: E402
+import shpb.virtual as virtual  # noqa: E402
+from shpb.simulate import JohnsonCookLaw, PerfectlyPlastic, RodSpec, VirtualShotSpec  # noqa: E402
+
+SETUP = ROOT / "example_data" / "setups" / "HR-C10-1000-a.toml"
+TARGET_SPEED_UP = 10.0
+TARGET_PROCESS_S = 1.0
 
 
-def typical_spec(law, specimen_modulus=117e9, specimen_density=8960.0):
+def typical_spec(law, duration, specimen=True, specimen_modulus=117e9, specimen_density=8960.0):
     steel = dict(diameter=0.02, modulus=200e9, density=7850.0)
     return VirtualShotSpec(
         striker=RodSpec(length=0.3, **steel),
         incident=RodSpec(length=1.5, **steel),
         transmitted=RodSpec(length=1.5, **steel),
-        specimen=RodSpec(length=0.005, diameter=0.008, modulus=specimen_modulus, density=specimen_density, law=law),
+        specimen=RodSpec(length=0.005, diameter=0.008, modulus=specimen_modulus, density=specimen_density,
+                         law=law) if specimen else None,
         striker_speed=15.0,
         gauge_incident_distance=0.75,
         gauge_transmitted_distance=0.25,
-        duration=1e-3,
+        duration=duration,
         sample_rate=10e6,
     )
 
 
-def run(label, spec):
+def spread(values, fmt="{:.3f}"):
+    """'min / median / max' of a list."""
+    return " / ".join(fmt.format(v) for v in (min(values), statistics.median(values), max(values)))
+
+
+def timed(fn):
     start = time.perf_counter()
-    result = simulate_shot(spec)
-    wall = time.perf_counter() - start
-    grid = result.grid
-    simulated_us = spec.duration * 1e6
-    node_steps = grid["nodes"] * grid["steps"]
-    print(f"{label}")
-    counts = ", ".join(f"{name} {rod['elements']}" for name, rod in grid["rods"].items())
-    print(f"  grid: {grid['nodes']} nodes, {grid['steps']} steps of {grid['dt_s'] * 1e9:.2f} ns (elements: {counts})")
-    print(f"  wall time {wall:.2f} s for {simulated_us:.0f} us simulated: {wall / simulated_us * 1e3:.2f} ms per us, "
-          f"{wall / node_steps * 1e9:.1f} ns per node-step")
-    print(f"  ratio wall / target ({TARGET_SECONDS:.0f} s): {wall / TARGET_SECONDS:.2f}")
-    return wall
+    fn()
+    return time.perf_counter() - start
 
 
-def main():
+def virtual_shot(setup, solver):
+    """The whole virtual shot of a setup (pulse run, dispersed drive, run, record) with the given solver."""
+    saved = simulate.simulate_shot, virtual.simulate_shot
+    simulate.simulate_shot = virtual.simulate_shot = solver
+    try:
+        virtual.simulate_setup(setup)
+    finally:
+        simulate.simulate_shot, virtual.simulate_shot = saved
+
+
+def in_process(rounds, duration):
     jc = JohnsonCookLaw(A=90e6, B=292e6, n=0.31, C=0.025)
-    run("typical shot (Johnson-Cook specimen)", typical_spec(jc))
-    run("same, elastic-perfectly-plastic specimen", typical_spec(PerfectlyPlastic(300e6)))
-    run("same, elastic specimen", typical_spec(None))
-    # a faster specimen (steel-like, c0 ~ 5050 m/s) asks for a smaller step, hence finer bars
-    run("steel-like Johnson-Cook specimen (finest grid of the set)",
-        typical_spec(JohnsonCookLaw(A=792e6, B=510e6, n=0.26, C=0.014), 200e9, 7850.0))
-    dispersed_record(typical_spec(jc))
+    cases = {
+        "Johnson-Cook specimen": typical_spec(jc, duration),
+        "perfectly plastic specimen": typical_spec(PerfectlyPlastic(300e6), duration),
+        "elastic specimen": typical_spec(None, duration),
+        "bars together (no specimen)": typical_spec(None, duration, specimen=False),
+    }
+    setup = virtual.load_simulation(SETUP)
+    if duration < setup.recorder.duration:  # a shorter record, and the model run it needs
+        recorder = dataclasses.replace(setup.recorder, duration=duration)
+        run = simulate.model_duration(simulate.trigger_time(setup.spec, recorder), recorder)
+        setup = dataclasses.replace(setup, recorder=recorder, spec=dataclasses.replace(setup.spec, duration=run))
+    jobs = {name: (lambda s=spec: simulate_shot_reference(s), lambda s=spec: simulate.simulate_shot(s))
+            for name, spec in cases.items()}
+    new_solver = simulate.simulate_shot
+    jobs[f"whole virtual shot of {SETUP.name}"] = (lambda: virtual_shot(setup, simulate_shot_reference),
+                                                   lambda: virtual_shot(setup, new_solver))
+    for _, new in jobs.values():  # warm up: imports, the cached dispersion curve
+        new()
+    times = {name: ([], []) for name in jobs}
+    for _ in range(rounds):
+        for name, (old, new) in jobs.items():
+            times[name][0].append(timed(old))
+            times[name][1].append(timed(new))
+    print(f"1. in process, {duration * 1e3:g} ms shots at 10 MHz; {rounds} rounds, min / median / max")
+    for name, (old, new) in times.items():
+        ratios = [o / n for o, n in zip(old, new)]
+        print(f"  {name}")
+        print(f"    old march {spread(old)} s, delay lines {spread(new)} s; speed-up {spread(ratios, '{:.1f}')} "
+              f"(target >= {TARGET_SPEED_UP:g})")
+    grid = simulate.simulate_shot(cases["Johnson-Cook specimen"]).grid
+    print(f"  (Johnson-Cook shot: {grid['nodes']} nodes, {grid['steps']} steps of {grid['dt_s'] * 1e9:.2f} ns; "
+          f"the old march updates every node each step, the new one the specimen and the bar ends)")
 
 
-def dispersed_record(spec):
-    """Plain run + record against dispersed drive + run + dispersed record, same shot."""
-    gauge = Gauge(0.75, "half-bending", 2.1, 10.0, 100.0)
-    recorder = RecorderSpec(duration=0.8e-3, pre_trigger=0.0, trigger="impact", noise_volts=(2e-3, 2e-3), seed=1)
-    start = time.perf_counter()
-    plain = simulate_shot(spec)
-    virtual_record(plain, recorder, gauge, gauge, incident_poisson=0.29, transmitted_poisson=0.29)
-    t_plain = time.perf_counter() - start
-    start = time.perf_counter()
-    run_spec = dispersed_drive(spec, 0.29)
-    lead = run_spec.incident_pulse.impact_time
-    result = simulate_shot(dataclasses.replace(run_spec, duration=spec.duration + lead))
-    virtual_record(result, recorder, gauge, gauge, incident_poisson=0.29, transmitted_poisson=0.29,
-                   dispersion="specimen", trigger=lead)
-    t_disp = time.perf_counter() - start
-    print("virtual record of the typical shot, 0.8 ms at 10 MHz")
-    print(f"  plain run + record {t_plain:.2f} s; with dispersion (pulse run, dispersed drive, run, dispersed "
-          f"record) {t_disp:.2f} s")
-    print(f"  ratio dispersed / plain: {t_disp / t_plain:.2f}; ratio to the target ({TARGET_SECONDS:.0f} s): "
-          f"{t_disp / TARGET_SECONDS:.2f}")
+def whole_process(rounds):
+    bin_dir = Path(sys.executable).parent
+    cli = [str(bin_dir / "shpb")] if (bin_dir / "shpb").exists() else [sys.executable, "-m", "shpb.cli"]
+    out = Path(tempfile.mkdtemp(prefix="bench_simulate_"))
+    commands = {
+        "python -c pass": [sys.executable, "-c", "pass"],
+        "python -c 'import shpb.simulate'": [sys.executable, "-c", "import shpb.simulate"],
+        "shpb simulate (with figure)": cli + ["simulate", str(SETUP), "--out", str(out)],
+        "shpb simulate --no-figure": cli + ["simulate", str(SETUP), "--out", str(out), "--no-figure"],
+    }
+    env = dict(os.environ, MPLBACKEND="Agg")
+    times = {name: [] for name in commands}
+    try:
+        for _ in range(rounds):
+            for name, cmd in commands.items():
+                start = time.perf_counter()
+                subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL, env=env, cwd=ROOT)
+                times[name].append(time.perf_counter() - start)
+    finally:
+        shutil.rmtree(out, ignore_errors=True)
+    base, imports = times["python -c pass"], times["python -c 'import shpb.simulate'"]
+    print(f"2. whole processes ({SETUP.name}); {rounds} rounds, min / median / max")
+    for name, t in times.items():
+        to_base = spread([a / b for a, b in zip(t, base)], "{:.1f}")
+        to_imports = spread([a / b for a, b in zip(t, imports)], "{:.2f}")
+        print(f"  {name:36s} {spread(t)} s; ratio to python -c pass {to_base}, to the import alone {to_imports}")
+    whole = times["shpb simulate (with figure)"]
+    print(f"  target: shpb simulate <= {TARGET_PROCESS_S:g} s; median {statistics.median(whole):.2f} s")
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="0.3 ms shots, two rounds")
+    ap.add_argument("--rounds", type=int, default=None, help="rounds of each comparison (default 5, quick 2)")
+    a = ap.parse_args(argv)
+    rounds = a.rounds or (2 if a.quick else 5)
+    in_process(rounds, 0.3e-3 if a.quick else 1e-3)
+    whole_process(rounds)
 
 
 if __name__ == "__main__":

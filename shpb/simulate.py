@@ -40,11 +40,31 @@ and forces in elements at whole steps; lumped nodal masses.
   Courant < 1 (dispersive: oscillations trail every front) or sub-cycle
   the specimen (an interface-coupling error of the order of the bar step,
   where the reduction is most sensitive), the bar elements are shortened
-  to ``c0 dt`` so the bars stay exact. The price is grid size, cost
-  ~ ``1/dt**2``: for a 5 mm metal specimen on 1.5 m bars, about 13 000
-  nodes and 20 000 steps per millisecond, about two seconds (see
-  ``benchmarks/bench_simulate.py``). Without a specimen or shaper, ``dt`` is
-  the largest divisor of the sample interval not above ``max_time_step``.
+  to ``c0 dt`` so the bars stay exact. On the grid that would cost
+  ~ ``1/dt**2`` (for a 5 mm metal specimen on 1.5 m bars about 13 000
+  nodes and 20 000 steps per millisecond); the delay lines below make the
+  bars free, so the cost is that of the specimen, ~ ``1/dt``. Without a
+  specimen or shaper, ``dt`` is the largest divisor of the sample interval
+  not above ``max_time_step``.
+* **Elastic bars as delay lines.** At Courant 1 the scheme in an elastic
+  rod *is* the d'Alembert solution on the grid: each element's strain is
+  the sum of a wave travelling +x and one travelling -x, and each step both
+  move one element on unchanged (Graff 1975, ch. 2). So the striker and the
+  bars, when elastic, are not marched node by node: each is kept as the
+  histories of the two waves entering it at its ends
+  (:class:`_DelayLine`), and only its two end nodes are integrated, with
+  the same masses and forces as on the grid; the wave an end sends in
+  follows from its velocity by the characteristic relation
+  ``R_0(n+1) = L_0(n) - v_0(n+1/2) / c0`` (and its mirror at the other
+  end). An elastic specimen or shaper that runs at Courant 1 (the rod that
+  sets the step) is a delay line too. A plastic specimen or shaper, one
+  below Courant 1, any rod with a plastic law and the contacts are marched
+  as below. The results
+  are those of the node-by-node march to round-off (checked against it in
+  the tests), at a cost per step independent of the bars' length; the gauge
+  strains, the two travelling waves at each gauge and the energies are read
+  from the wave histories afterwards (the energies' cross term
+  ``sum R_j L_j`` for every step at once by FFT, :func:`_band_pair_sums`).
 * **Recorder clock.** The model keeps the two steps around each sample time
   and interpolates linearly. At Courant 1 a bar element's strain is the
   element average, which varies linearly in time while a front crosses it,
@@ -77,7 +97,12 @@ and forces in elements at whole steps; lumped nodal masses.
   ``flow_stress(plastic_strain, plastic_strain_rate)``, with isotropic
   hardening; the rate term is implicit (backward Euler in the plastic
   increment), since an explicit rate term acts as an explicit viscosity
-  and goes unstable at the Courant-1 step.
+  and goes unstable at the Courant-1 step. The scalar equation for the
+  increment is solved by a safeguarded Newton iteration (on the logarithm
+  of the increment where a rate term dominates); the law is asked once per
+  iteration, and a flowing element starts from its increment extrapolated
+  from the last three steps, so a step of plastic flow usually costs one
+  call of the law (:func:`_solve_increment`, :class:`_PlasticState`).
 * **Small strain, engineering quantities.** The bars are small-strain and
   elastic. The specimen and shaper are modelled in engineering quantities:
   constant cross-section, element stress = force / initial area, strain =
@@ -320,10 +345,13 @@ def radial_return(trial_stress, plastic_strain, modulus, flow_stress, dt, *, gue
     ``|sigma_trial| - E dg - flow_stress(eps_p + dg, dg / dt) = 0``
 
     for the plastic strain increment ``dg >= 0`` by a safeguarded Newton
-    iteration inside the bracket ``[0, |sigma_trial| / E]``. The rate passed
-    to the flow stress is the plastic strain rate ``dg / dt``, so rate
-    hardening is treated implicitly (an explicit rate term acts like an
-    explicit viscosity and goes unstable at the Courant-1 time step).
+    iteration inside the bracket ``[0, |sigma_trial| / E]`` (details in
+    :func:`_solve_increment`), until the residual is within ``rtol`` of the
+    trial stress or a Newton step changes ``dg`` by at most ``1e-5`` of
+    itself. The rate passed to the flow stress is the plastic strain rate
+    ``dg / dt``, so rate hardening is treated implicitly (an explicit rate
+    term acts like an explicit viscosity and goes unstable at the Courant-1
+    time step).
 
     Parameters
     ----------
@@ -363,36 +391,149 @@ def radial_return(trial_stress, plastic_strain, modulus, flow_stress, dt, *, gue
     size = np.abs(trial)
     p = np.asarray(plastic_strain, dtype=float)
     increment = np.zeros_like(trial)
-    yielding = np.flatnonzero(size > flow_stress(p, np.zeros_like(p)))
+    quasi_static = np.asarray(flow_stress(p, np.zeros_like(p)), dtype=float)
+    yielding = np.flatnonzero(size > quasi_static)
     if yielding.size:
         x0 = None if guess is None else np.asarray(guess, dtype=float)[yielding]
-        increment[yielding] = _solve_increment(size[yielding], p[yielding], modulus, flow_stress, dt, x0,
-                                               rtol, max_iter)
+        increment[yielding], _ = _solve_increment(size[yielding], p[yielding], modulus, flow_stress, dt, x0,
+                                                  rtol, max_iter, quasi_static[yielding])
     return trial - np.sign(trial) * modulus * increment, increment
 
 
-def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter):
-    # g(x) = |s_trial| - E x - s_y(p + x, x/dt) has g(0) > 0 (the yield check) and g(|s_trial|/E) <= 0
-    # since s_y >= 0: the root is bracketed, so bisection can always take over from Newton.
-    lo = np.zeros_like(size)
-    hi = size / E
-    x = (size - flow_stress(p, np.zeros_like(p))) / E  # exact for a rate-independent perfectly plastic law
-    if x0 is not None:  # warm start from the previous step where it lies inside the bracket
-        x = np.where((x0 > 0.0) & (x0 < hi), x0, x)
+def _solve_increment(size, p, E, flow_stress, dt, x0, rtol, max_iter, quasi_static):
+    """The plastic increments of :func:`radial_return` and the quasi-static flow stress after them.
+
+    ``quasi_static`` is ``flow_stress(p, 0)`` (the yield check's). Each
+    iteration asks the law once (:func:`_flow_points`): at the iterate ``x``
+    and at ``x + h`` (``h = 1e-6 x``), at the plastic rate (residual and
+    forward-difference slope) and at zero rate (the quasi-static flow stress
+    after the step, returned so that a caller can keep it for the next yield
+    check). The first iteration tries both starting points, the guess and
+    the rate-independent estimate ``(|s_trial| - quasi_static) / E`` (exact
+    for perfect plasticity), and goes on from the better one.
+
+    The residual ``g(x) = |s_trial| - E x - s_y(p + x, x / dt)`` falls
+    monotonically from ``g(0+) > 0`` (the yield check) to
+    ``g(|s_trial| / E) <= 0`` (``s_y >= 0``), so the root stays bracketed.
+    Newton steps are taken on ``x``, or on ``ln x`` where the law's slope
+    exceeds E (a rate term in ``ln x`` then dominates and ``g`` is nearly
+    linear in ``ln x``; roots at the onset of flow lie orders of magnitude
+    below the rate-independent first guess). A step from one side of the
+    root that overshoots the bracket is replaced by the step from the
+    bracket's other end (the side from which Newton converges monotonically
+    for a residual convex in the variable), and failing that by bisection:
+    geometric across a bracket wider than a factor of 4, and down by
+    decades while no point below the root is known.
+
+    An element has converged, and stops iterating, when
+    ``|g| <= rtol |s_trial|``, or when a Newton step inside the bracket
+    changes ``x`` by at most ``1e-5 x``: the residual after it is then about
+    ``g'' dx**2 / 2``, below ``5e-11 x**2 |g''|`` (for a Johnson-Cook rate
+    term ``x**2 g''`` is about ``C sigma``, a few MPa: some 1e-4 Pa), so the
+    step is taken without asking the law again, and the quasi-static flow
+    stress is carried to it along its forward-difference slope. The second
+    test also ends the iteration where the law's own round-off keeps
+    ``|g|`` above the tolerance.
+    """
+    n = size.size
+    x_out, quasi_static_out = np.empty(n), np.empty(n)
+    active = np.arange(n)  # elements still iterating
+    lo, hi = np.zeros_like(size), size / E
     tol = rtol * size
+    ends = np.full((6, n), np.nan)  # residual, slope and law slope at lo, then at hi (NaN: not evaluated there)
+    x = (size - quasi_static) / E  # exact for a rate-independent perfectly plastic law
+    candidates = [x]
+    if x0 is not None:  # warm start from the previous step where it lies inside the bracket
+        usable = (x0 > 0.0) & (x0 < hi)
+        if usable.any():
+            candidates.append(np.where(usable, x0, x))
     for _ in range(max_iter):
-        g = size - E * x - flow_stress(p + x, x / dt)
-        if np.all(np.abs(g) <= tol):
-            break
-        lo = np.where(g > 0.0, x, lo)
-        hi = np.where(g > 0.0, hi, x)
-        h = np.maximum(1e-6 * x, 1e-15)
-        slope = E + (flow_stress(p + x + h, (x + h) / dt) - flow_stress(p + x, x / dt)) / h
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = x + g / slope
+        k, m = len(candidates), active.size
+        xs = np.concatenate(candidates) if k > 1 else candidates[0]
+        h, flow, ahead, base, beyond = _flow_points(flow_stress, np.concatenate((p, p)) if k > 1 else p, xs, dt)
+        g = (np.concatenate((size, size)) if k > 1 else size) - E * xs - flow
+        law_slope = (ahead - flow) / h
+        if k > 1:  # go on from the candidate with the smaller residual; both narrow the bracket (below)
+            pick = np.argmin(np.abs(g).reshape(k, m), axis=0) * m + np.arange(m)
+            points = xs, g, law_slope
+            x, g, h, law_slope, base, beyond = xs[pick], g[pick], h[pick], law_slope[pick], base[pick], beyond[pick]
+        else:
+            x = points = xs
+        slope = E + law_slope
+        small = np.abs(g) <= tol
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            step = _newton_step(x, g, slope, law_slope, E)
         inside = (step > lo) & (step < hi) & np.isfinite(step)
-        x = np.where(inside, step, 0.5 * (lo + hi))
-    return x
+        done = small | (inside & (np.abs(step - x) <= 1e-5 * x))
+        if done.any():  # small steps are taken; the quasi-static flow stress follows along its slope
+            x_new = np.where(small, x, step)[done]
+            x_out[active[done]] = x_new
+            quasi_static_out[active[done]] = base[done] + (beyond[done] - base[done]) / h[done] * (x_new - x[done])
+            if done.all():
+                return x_out, quasi_static_out
+        if k > 1:
+            for j in range(k):  # every evaluated point narrows the bracket
+                cut = slice(j * m, (j + 1) * m)
+                _narrow(lo, hi, ends, points[0][cut], points[1][cut], points[2][cut], E)
+        else:
+            _narrow(lo, hi, ends, x, g, law_slope, E)
+        if done.any():
+            keep = ~done
+            active, size, p, lo, hi, tol, ends = active[keep], size[keep], p[keep], lo[keep], hi[keep], tol[keep], \
+                ends[:, keep]
+            x, step = x[keep], step[keep]
+        inside = (step > lo) & (step < hi) & np.isfinite(step)  # in the narrowed bracket
+        if not inside.all():
+            right = x >= hi  # the iterate is the bracket's upper end
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                other = np.where(right, _newton_step(lo, ends[0], ends[1], ends[2], E),
+                                 _newton_step(hi, ends[3], ends[4], ends[5], E))
+                # bisection, geometric across a bracket of more than a factor of 4, decades down from hi
+                # while nothing below the root is known
+                mid = np.where(lo > 0.0, np.where(hi > 4.0 * lo, np.sqrt(lo * hi), 0.5 * (lo + hi)), 0.01 * hi)
+            other_in = (other > lo) & (other < hi) & np.isfinite(other)
+            step = np.where(inside, step, np.where(other_in, other, mid))
+        candidates = [step]
+    x = candidates[0]
+    x_out[active] = x
+    quasi_static_out[active] = flow_stress(p + x, np.zeros_like(x))
+    return x_out, quasi_static_out
+
+
+def _flow_points(flow_stress, p, x, dt):
+    """One call of the law for the return mapping: ``h = 1e-6 x`` and the flow stresses [Pa] at ``(p + x,
+    x / dt)``, ``(p + x + h, (x + h) / dt)``, ``(p + x, 0)`` and ``(p + x + h, 0)``."""
+    m = x.size
+    h = 1e-6 * x  # x > 0 throughout: every iterate lies inside the bracket (0, |s_trial| / E)
+    strains, rates = np.empty(4 * m), np.zeros(4 * m)
+    np.add(p, x, out=strains[:m])
+    np.add(strains[:m], h, out=strains[m:2 * m])
+    strains[2 * m:] = strains[:2 * m]
+    np.divide(x, dt, out=rates[:m])
+    np.divide(x + h, dt, out=rates[m:2 * m])
+    flow = np.asarray(flow_stress(strains, rates), dtype=float)
+    return h, flow[:m], flow[m:2 * m], flow[2 * m:3 * m], flow[3 * m:]
+
+
+def _narrow(lo, hi, ends, x, g, law_slope, E):
+    """Narrow the bracket ``(lo, hi)`` around the root with a point ``x`` and its residual ``g``, in place,
+    keeping the residual, slope and law slope at each end in ``ends``."""
+    below = (g > 0.0) & (x > lo)
+    above = (g <= 0.0) & (x < hi)
+    np.copyto(lo, x, where=below)
+    np.copyto(hi, x, where=above)
+    for row, value in enumerate((g, E + law_slope, law_slope)):
+        np.copyto(ends[row], value, where=below)
+        np.copyto(ends[row + 3], value, where=above)
+
+
+def _newton_step(x, g, slope, law_slope, E):
+    """Newton step for ``g(x) = 0`` with ``g' = -slope``: on ``ln x`` where the law's slope exceeds E."""
+    linear = x + g / slope
+    on_log = law_slope > E
+    if on_log.any():
+        return np.where(on_log, x * np.exp(g / (slope * x)), linear)
+    return linear
 
 
 # --------------------------------------------------------------------------- specifications
@@ -781,136 +922,690 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
     return _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak)
 
 
-def _masses_and_stiffness(rods, n_nodes, dt):
-    """Lumped nodal masses [kg] and per-link EA [N], dt/dx [s/m], dx/(EA) [m/N]; zero on the joints."""
-    mass = np.zeros(n_nodes)
-    EA, dt_over_dx, dx_over_EA = np.zeros(n_nodes - 1), np.zeros(n_nodes - 1), np.zeros(n_nodes - 1)
-    for r in rods:
-        s = r.spec
-        m_el = s.density * s.area * r.dx
-        mass[r.node0:r.last_node] += 0.5 * m_el
-        mass[r.node0 + 1:r.last_node + 1] += 0.5 * m_el
-        mass[r.node0] += 0.5 * m_el * r.cap_start  # a capped end carries a whole element
-        mass[r.last_node] += 0.5 * m_el * r.cap_end
-        EA[r.links] = s.modulus * s.area
-        dt_over_dx[r.links] = dt / r.dx
-        dx_over_EA[r.links] = r.dx / (s.modulus * s.area)
-    return mass, EA, dt_over_dx, dx_over_EA
+# --------------------------------------------------------------------------- the solver
+#: Rods that run at Courant number exactly 1 (``_build_rods``); elastic ones are solved as delay lines.
+_COURANT_ONE = ("striker", "incident", "transmitted")
+#: Steps of grid state kept at a time before they are reduced to the recorded quantities.
+_CHUNK = 1024
+
+
+class _DelayLine:
+    """An elastic rod at Courant number 1, solved exactly as two shift registers of its travelling waves.
+
+    At Courant 1 the staggered scheme of a uniform rod is the d'Alembert
+    solution on the grid: with ``R_j(n)`` the strain of the wave travelling
+    +x in element j at step n and ``L_j(n)`` that of the wave travelling -x
+    (tension positive), an element's strain is ``R_j + L_j``, an interior
+    node's velocity is ``v_j(n+1/2) = c0 (L_j(n) - R_(j-1)(n))``, and each
+    step every wave moves one element unchanged: ``R_j(n+1) = R_(j-1)(n)``,
+    ``L_j(n+1) = L_(j+1)(n)`` (substitute into the update
+    ``v_j += c0 (eps_j - eps_(j-1))``, ``eps_j += (v_(j+1) - v_j) / c0``).
+    Only the two end nodes are integrated: they carry the rod's end masses
+    and meet the contacts, the drive or a free end (:func:`_run`), and the
+    wave each sends in follows from its velocity,
+    ``R_0(n+1) = L_0(n) - v_0(n+1/2) / c0`` and
+    ``L_(N-1)(n+1) = R_(N-1)(n) + v_N(n+1/2) / c0`` (the same update at the
+    end elements). The results are those of the node-by-node march, to
+    round-off, at a cost independent of the rod's length.
+
+    Storage: ``R_j(n) = right[N + n - j]`` and ``L_j(n) = left[n + j]``, so
+    the whole history stays available for the records and energies after the
+    run. The end nodes belong to :func:`_run`.
+
+    References
+    ----------
+    .. [1] K. F. Graff, Wave Motion in Elastic Solids, Oxford Univ. Press,
+       1975, ch. 2 (d'Alembert solution; v = -c0 eps for a wave travelling +x).
+    """
+
+    def __init__(self, rod: _Rod, n_steps: int, speed: float = 0.0):
+        self.rod = rod
+        self.N = N = rod.n
+        self.c = rod.spec.wave_speed
+        self.EA = rod.spec.modulus * rod.spec.area
+        # Python lists while marching (one element read or written at a time), arrays after (finish)
+        # a rod moving at `speed` without strain: eps = R + L = 0 and v = c0 (L - R) = speed
+        self.right = [-speed / (2.0 * self.c)] * (N + 1) + [0.0] * (n_steps + 1)
+        self.left = [speed / (2.0 * self.c)] * N + [0.0] * (n_steps + 2)
+
+    def finish(self):
+        """The histories as arrays, for the records."""
+        self.right, self.left = np.array(self.right), np.array(self.left)
+
+    def strain(self, j, steps):
+        """Strain of element j [1] at the given steps, tension positive."""
+        return self.right[self.N + steps - j] + self.left[steps + j]
+
+    def node_waves(self, j, steps):
+        """The two travelling waves at interior node j [1], tension positive: each one's mean over the
+        two elements beside the node, ``(R_(j-1) + R_j) / 2`` and ``(L_(j-1) + L_j) / 2``.
+
+        In the grid's variables (``v_j = c0 (L_j - R_(j-1))``, element j right
+        of node j) these are ``(eps_j - v_j / c0) / 2`` and
+        ``(eps_(j-1) + v_j / c0) / 2``, and their sum is the mean strain at
+        the node: the split is exact on the grid, not an approximation of it
+        (the form :func:`_bar_measures` uses on a bar marched on the grid).
+        """
+        R, L, N = self.right, self.left, self.N
+        return 0.5 * (R[N + steps - j] + R[N + steps - j + 1]), 0.5 * (L[steps + j - 1] + L[steps + j])
+
+    def strain_mean_and_min(self, steps, chunk=4096):
+        """Mean and smallest element strain [1] at the given steps, tension positive."""
+        N, R, L = self.N, self.right, self.left
+        j = np.arange(N)
+        mean, low = np.empty(steps.size), np.empty(steps.size)
+        for start in range(0, steps.size, chunk):
+            k = steps[start:start + chunk, None]
+            strains = R[N + k - j] + L[k + j]
+            mean[start:start + chunk] = strains.mean(axis=1)
+            low[start:start + chunk] = strains.min(axis=1)
+        return mean, low
+
+    def energies(self, n_steps):
+        """Kinetic energy of the interior nodes and strain energy of the elements [J] at steps 0..n_steps.
+
+        The same discrete energies as the node-by-node march (kinetic
+        ``m v(n-1/2) v(n+1/2) / 2`` per node, strain ``F**2 dx / (2 EA)`` per
+        element), written in the waves: with ``m c0**2 = EA dx`` and
+        ``a_k = R`` history, ``b_k = L`` history,
+
+            strain  = EA dx / 2 * sum_j (R_j + L_j)**2
+            kinetic = EA dx / 2 * sum_(j=1..N-1) (L_j(n-1) - R_(j-1)(n-1)) (L_j(n) - R_(j-1)(n)).
+
+        Squares and lag products are window sums (cumulative sums); the
+        cross term ``sum_j R_j(n) L_j(n)`` pairs the two histories along
+        anti-diagonals and is computed for every step at once
+        (:func:`_band_pair_sums`).
+        """
+        N, R, L = self.N, self.right, self.left
+        k = np.arange(n_steps + 1)
+
+        def cumulative(x):
+            return np.concatenate(([0.0], np.cumsum(x)))
+
+        r2, l2 = cumulative(R * R), cumulative(L * L)
+        r_lag, l_lag = cumulative(R[:-1] * R[1:]), cumulative(L[:-1] * L[1:])
+        sum_r2 = r2[N + k + 1] - r2[k + 1]  # right[k+1 .. N+k]: R_j(k) for j = N-1 .. 0
+        sum_l2 = l2[k + N] - l2[k]  # left[k .. k+N-1]
+        sum_r_lag = r_lag[k + N] - r_lag[k + 1]  # R_(j-1)(k) R_j(k) for j = 1 .. N-1
+        sum_l_lag = l_lag[k + N - 1] - l_lag[k]
+        # cross term: right[N+k-j] left[k+j] = x[u] y[m] with x = right[1:], y = N-1 zeros then left:
+        # u = N+k-j-1, m = k+j+N-1, u + m = 2k + 2N - 2, m - u = 2j in [0, 2N - 2]
+        x = R[1:N + n_steps + 1]
+        y = np.concatenate((np.zeros(N - 1), L[:N + n_steps]))
+        cross = _band_pair_sums(x, y, 0, 2 * N - 2)[2 * k + 2 * N - 2]
+        half = 0.5 * self.EA * self.rod.dx
+        strain = half * (sum_r2 + sum_l2 + 2.0 * cross)
+        kinetic = half * (sum_l_lag + sum_r_lag - 2.0 * cross + R[k + 1] * L[k + N - 1] + R[N + k] * L[k])
+        return kinetic, strain
+
+
+def _upper_pair_sums(x, y):
+    """``out[..., s] = sum of x[..., u] y[..., m] over u <= m, u + m = s``, s = 0 .. 2 n - 2, along the last
+    axis (x and y of one shape, n long).
+
+    Divide and conquer over the index range: the pairs with u in the left
+    half of a block and m in its right half all count, and are one linear
+    convolution (by FFT, batched over the blocks of a level); the pairs within
+    a half are left to the next level down, and the smallest blocks are summed
+    directly. O(n log^2 n).
+    """
+    rows, size = x.shape[:-1], x.shape[-1]
+    base = 4
+    total = base * 2 ** max(0, math.ceil(math.log2(max(size, 1) / base)))
+    xp, yp = np.zeros(rows + (total,)), np.zeros(rows + (total,))
+    xp[..., :size], yp[..., :size] = x, y
+    out = np.zeros(rows + (3 * total,))
+    r = np.arange(base)
+    upper = r[:, None] <= r[None, :]
+    blocks = total // base
+    prod = (xp.reshape(rows + (blocks, base, 1)) * yp.reshape(rows + (blocks, 1, base)))[..., upper]
+    where = ((2 * base) * np.arange(blocks))[:, None] + (r[:, None] + r[None, :])[upper][None, :]
+    flat = out.reshape(-1, 3 * total)
+    for i, part in enumerate(prod.reshape(-1, blocks, prod.shape[-1])):
+        flat[i, :2 * total] = np.bincount(where.ravel(), part.ravel(), minlength=2 * total)
+    half = base
+    while half < total:
+        blocks = total // (2 * half)
+        left = xp.reshape(rows + (blocks, 2 * half))[..., :half]
+        right = yp.reshape(rows + (blocks, 2 * half))[..., half:]
+        conv = np.fft.irfft(np.fft.rfft(left, 2 * half) * np.fft.rfft(right, 2 * half), 2 * half)
+        # u = 2 half b + i, m = 2 half b + half + k  ->  s = 4 half b + half + i + k
+        out[..., half:half + 4 * half * blocks].reshape(rows + (blocks, 4 * half))[..., :2 * half] += conv
+        half *= 2
+    return out[..., :2 * size - 1]
+
+
+def _band_pair_sums(x, y, lo, hi):
+    """``out[s] = sum of x[u] y[m] over u + m = s, lo <= m - u <= hi``, s = 0 .. len(x) + len(y) - 2.
+
+    Only the spans between the first and last non-zero values of ``x`` and
+    ``y`` are paired (waves reach a bar's far part late, or never).
+    """
+    out = np.zeros(x.size + y.size - 1)
+    nonzero_x, nonzero_y = np.flatnonzero(x), np.flatnonzero(y)
+    if not nonzero_x.size or not nonzero_y.size:
+        return out
+    a0, b0 = nonzero_x[0], nonzero_y[0]
+    xs, ys = x[a0:nonzero_x[-1] + 1], y[b0:nonzero_y[-1] + 1]
+    lo, hi = max(lo - (b0 - a0), 1 - xs.size), min(hi - (b0 - a0), ys.size - 1)  # the band in the spans
+    if hi < lo:
+        return out
+    # shift y so that the band starts at m - u = 0; then the pairs with m - u >= 0, minus those beyond the
+    # band (m = m' + width + 1 with m' >= u, so u < len(far))
+    shifted = ys[lo:] if lo >= 0 else np.concatenate((np.zeros(-lo), ys))
+    width = hi - lo
+    n = max(xs.size, shifted.size)
+    xp, yp = np.zeros(n), np.zeros(n)
+    xp[:xs.size], yp[:shifted.size] = xs, shifted
+    core = _upper_pair_sums(xp, yp)
+    far = yp[width + 1:]
+    if far.size:
+        core[width + 1:width + 2 * far.size] -= _upper_pair_sums(xp[:far.size], far)
+    start = lo + a0 + b0
+    if start < 0:
+        core, start = core[-start:], 0
+    stop = min(start + core.size, out.size)
+    out[start:stop] = core[:stop - start]
+    return out
+
+
+class _Grid:
+    """The rods marched node by node: the specimen, the shaper and any striker or bar with a plastic law.
+
+    Their nodes and elements, rod after rod along the chain, in one state
+    array ``[v (nodes), eps (links), 0, F (links), 0]``: a step's state is
+    kept in one copy, and the node forces are one difference of the padded
+    force array. Consecutive rods are joined by a link of zero stiffness:
+    they interact only through the contact impulses (their end nodes are
+    the contacts' business, see :func:`_run`).
+    """
+
+    def __init__(self, spec, rods, dt):
+        self.first, self.last, self.links = {}, {}, {}
+        mass, EA, dt_over_dx, dx_over_EA = [], [], [], []
+        for r in rods:
+            s = r.spec
+            if mass:  # joint to the previous rod on the grid
+                EA.append(0.0)
+                dt_over_dx.append(0.0)
+                dx_over_EA.append(0.0)
+            m_el = s.density * s.area * r.dx
+            self.first[r.name] = len(mass)
+            mass += [0.5 * m_el * (1 + r.cap_start)] + [m_el] * (r.n - 1) + [0.5 * m_el * (1 + r.cap_end)]
+            self.last[r.name] = len(mass) - 1
+            self.links[r.name] = slice(len(EA), len(EA) + r.n)
+            EA += [s.modulus * s.area] * r.n
+            dt_over_dx += [dt / r.dx] * r.n
+            dx_over_EA += [r.dx / (s.modulus * s.area)] * r.n
+        self.mass = np.array(mass)
+        self.dt_over_m = dt / self.mass if mass else self.mass
+        self.EA, self.dt_over_dx, self.dx_over_EA = np.array(EA), np.array(dt_over_dx), np.array(dx_over_EA)
+        self.n_nodes, self.n_links = len(mass), len(EA)
+        nn, nl = self.n_nodes, self.n_links
+        self.state = np.zeros(nn + 2 * nl + 2)
+        self.v = self.state[:nn]
+        self.eps = self.state[nn:nn + nl]
+        self.F_pad = self.state[nn + nl:nn + 2 * nl + 2]  # a zero beyond each end
+        self.F = self.F_pad[1:-1]
+        if "striker" in self.first:
+            self.v[self.first["striker"]:self.last["striker"] + 1] = spec.striker_speed
+
+    def column(self, kind, name, index):
+        """Column of the state array holding node ``index`` (``kind = "v"``) or element ``index``
+        (``"eps"``) of rod ``name``."""
+        if kind == "v":
+            return self.first[name] + index
+        return self.n_nodes + self.links[name].start + index
 
 
 def _run(spec, rods, dt, kept_steps):
-    """March the leapfrog scheme; return the kept rows, the force entering the incident bar, E0, peak strains."""
-    by_name = {r.name: r for r in rods}
-    n_nodes = rods[-1].last_node + 1
-    n_steps = int(kept_steps[-1])
-    row_of_step = np.full(n_steps + 1, -1, dtype=np.int64)
-    row_of_step[kept_steps] = np.arange(kept_steps.size)
-    mass, EA, dt_over_dx, dx_over_EA = _masses_and_stiffness(rods, n_nodes, dt)
-    dt_over_m = dt / mass
+    """March the model; return the kept rows, the force entering the incident bar, E0, peak strains.
 
-    # state: tension positive, x from the striker towards the transmitted bar
-    v = np.zeros(n_nodes)
-    striker = by_name.get("striker")
+    Per step: the grid's node velocities from its element forces and the
+    delay lines' end nodes from their end elements' (the drive, if any, on
+    the incident bar's impact face); the contact impulses between the end
+    nodes of neighbouring rods; then the waves the delay lines' ends send in
+    and the grid's element strains and forces (radial return in the plastic
+    rods). The end nodes and the contacts are a handful of scalars, kept as
+    Python floats; the grid is numpy. What the records need is read
+    afterwards from the delay lines' histories and from the grid states,
+    kept step by step.
+    """
+    by_name = {r.name: r for r in rods}
+    n_steps = int(kept_steps[-1])
+    # elastic rods at Courant 1: the bars and the striker, and the specimen or shaper when it sets the step
+    lines = {r.name: _DelayLine(r, n_steps, spec.striker_speed if r.name == "striker" else 0.0) for r in rods
+             if r.law is None and (r.name in _COURANT_ONE or abs(r.spec.wave_speed * dt / r.dx - 1.0) < 1e-12)}
+    grid = _Grid(spec, [r for r in rods if r.name not in lines], dt)
+    incident, striker = by_name["incident"], by_name.get("striker")
+    e0 = 0.0
     if striker is not None:
-        v[striker.node0:striker.last_node + 1] = spec.striker_speed
-    e0 = 0.5 * float(np.sum(mass * v * v))
-    incident = by_name["incident"]
+        m_el = striker.spec.density * striker.spec.area * striker.dx
+        e0 = 0.5 * m_el * (striker.n + 0.5 * (striker.cap_start + striker.cap_end)) * spec.striker_speed ** 2
     drive = None
     if spec.incident_pulse is not None:  # force on the impact face, compression pushing +x, per step
         p = spec.incident_pulse
         strain = np.asarray(p.strain, dtype=float)
         drive = incident.spec.modulus * incident.spec.area * np.interp(
             np.arange(n_steps + 1) * dt, np.arange(strain.size) * p.dt, strain, left=0.0, right=0.0)
-    eps = np.zeros(n_nodes - 1)
-    F_pad = np.zeros(n_nodes + 1)  # element forces with a zero beyond each end of the chain
-    F = F_pad[1:-1]
-    node_force, dv, v_old = np.zeros(n_nodes), np.zeros(n_nodes - 1), np.zeros(n_nodes)
-    plastic = [_PlasticState(r) for r in rods if r.law is not None]
 
-    # contacts between consecutive rods: (left rod's last node, right rod's first node)
-    a_idx = np.array([r.last_node for r in rods[:-1]], dtype=np.int64)
-    b_idx = np.array([r.node0 for r in rods[1:]], dtype=np.int64)
-    inv_ma, inv_mb = 1.0 / mass[a_idx], 1.0 / mass[b_idx]
-    inv_w = 1.0 / (dt * (inv_ma + inv_mb))
-    gap = np.zeros(a_idx.size)
-    left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
-    i_impact = left_of.get("incident")  # None when a prescribed pulse drives the incident bar
-    # a free-end shot (no transmitted bar) has no contact beyond the incident bar
-    i_front = left_of.get("specimen", left_of.get("transmitted"))
-    i_back = left_of.get("transmitted")
-    impact_force = np.zeros(n_steps + 1)
+    # the end nodes of every rod as Python floats: a delay line's own, a grid rod's copies of its grid nodes
+    u, u_mass, ends, copies = [], [], {}, []
+    for r in rods:
+        m_el = r.spec.density * r.spec.area * r.dx
+        for side, cap in (("first", r.cap_start), ("last", r.cap_end)):
+            ends[r.name, side] = len(u)
+            if r.name in lines:
+                u.append(float(spec.striker_speed if r.name == "striker" else 0.0))
+                u_mass.append(0.5 * m_el * (1 + cap))
+            else:
+                node = getattr(grid, side)[r.name]
+                copies.append((len(u), node))
+                u.append(float(grid.v[node]))
+                u_mass.append(float(grid.mass[node]))
+    line_steps = [(line.right, line.left, line.N, 1.0 / line.c, dt / u_mass[ends[name, "first"]] * line.EA,
+                   dt / u_mass[ends[name, "last"]] * line.EA, ends[name, "first"], ends[name, "last"])
+                  for name, line in lines.items()]
+    # contacts between consecutive rods: (left rod's last node, right rod's first node, 1/m_a, 1/m_b, 1/w)
+    contacts = []
+    for a, b in zip(rods[:-1], rods[1:]):
+        ia, ib = ends[a.name, "last"], ends[b.name, "first"]
+        inv_a, inv_b = 1.0 / u_mass[ia], 1.0 / u_mass[ib]
+        contacts.append((ia, ib, inv_a, inv_b, 1.0 / (dt * (inv_a + inv_b))))
+    gaps = [0.0] * len(contacts)
+    impulses = [[0.0] * (n_steps + 1) for _ in contacts]
+    i_drive = ends["incident", "first"]
+    drive_on_line = drive is not None and "incident" in lines
+    drive_kick = (drive * (dt / u_mass[i_drive])).tolist() if drive_on_line else None
+    plastic = [_PlasticState(r, grid.eps[grid.links[r.name]], grid.F[grid.links[r.name]]) for r in rods
+               if r.law is not None]
+    work = [0.0] * (n_steps + 1)
+    reader = _GridReader(grid, rods, spec, n_steps)
+    history = [tuple(u)]  # end node velocities, v(-1/2) first
 
-    gauge_inc = _gauge_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
-    waves_inc = _directional_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
-    transmitted = by_name.get("transmitted")
-    if transmitted is not None:
-        gauge_tra = _gauge_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
-        waves_tra = _directional_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
-    specimen = by_name.get("specimen")
-    resolved = [r for r in rods if r.name in ("specimen", "shaper")]
-    peak = {r.name: (0.0, 0.0) for r in resolved}
-    rec = np.full((kept_steps.size, 15), np.nan)
-
+    v, eps, F = grid.v, grid.eps, grid.F
+    F_right, F_left, v_right, v_left = grid.F_pad[1:], grid.F_pad[:-1], v[1:], v[:-1]
+    dt_over_m, dt_over_dx, EA = grid.dt_over_m, grid.dt_over_dx, grid.EA
+    node_force, dv = np.zeros(grid.n_nodes), np.zeros(grid.n_links)
+    on_grid = grid.n_nodes > 0
+    drive_on_grid = drive is not None and not drive_on_line
+    # the plastic rods set their own forces: the elastic ones are needed only if the grid holds other rods
+    elastic_forces = sum(p.rod.n for p in plastic) < grid.n_links
+    contacts = [(k,) + c for k, c in enumerate(contacts)]
+    state, kept = grid.state, np.empty((_CHUNK, grid.state.size))
+    row = 0
     for n in range(n_steps + 1):
-        i_row = row_of_step[n]
-        if i_row >= 0:
-            v_old[:] = v
         # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
-        np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
-        if drive is not None:
-            node_force[incident.node0] += drive[n]
-        node_force *= dt_over_m
-        v += node_force
+        if on_grid:
+            np.subtract(F_right, F_left, out=node_force)
+            if drive_on_grid:
+                node_force[grid.first["incident"]] += drive[n]
+            node_force *= dt_over_m
+            v += node_force
+            for k, node in copies:
+                u[k] = v.item(node)
+        for R, L, N, _, kick_first, kick_last, first, last in line_steps:
+            u[first] += kick_first * (R[N + n] + L[n])
+            u[last] -= kick_last * (R[n + 1] + L[n + N - 1])
+        if drive_on_line:
+            u[i_drive] += drive_kick[n]
         # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
-        va, vb = v[a_idx], v[b_idx]
-        g = gap + dt * (vb - va)
-        impulse = np.maximum(-g, 0.0) * inv_w
-        v[a_idx] = va - impulse * inv_ma
-        v[b_idx] = vb + impulse * inv_mb
-        np.maximum(g, 0.0, out=gap)
-        impact_force[n] = impulse[i_impact] / dt if drive is None else drive[n]
-        if i_row >= 0:
-            row = rec[i_row]
-            row[0] = n * dt
-            row[1] = -(gauge_inc[2] * eps[gauge_inc[0]] + gauge_inc[3] * eps[gauge_inc[1]])
-            row[11:13] = _directional_waves(eps, v, waves_inc)
-            if transmitted is not None:
-                row[2] = -(gauge_tra[2] * eps[gauge_tra[0]] + gauge_tra[3] * eps[gauge_tra[1]])
-                row[6:8] = impulse[[i_front, i_back]] / dt
-                row[13:15] = _directional_waves(eps, v, waves_tra)
-            if specimen is not None:
-                sl = specimen.links
-                row[3] = -F[sl].mean() / specimen.spec.area
-                row[4] = -eps[sl].mean()
-                # velocities at n: mean of the half steps on either side
-                v_front = 0.5 * (v_old[specimen.node0] + v[specimen.node0])
-                v_back = 0.5 * (v_old[specimen.last_node] + v[specimen.last_node])
-                row[5] = (v_front - v_back) / specimen.spec.length
-            # multiply-and-sum rather than np.dot: BLAS threads stall on small shared machines
-            row[8] = 0.5 * float(np.multiply(np.multiply(mass, v_old, out=v_old), v, out=v_old).sum())
-            row[9] = 0.5 * float(np.multiply(np.multiply(F, F, out=dv), dx_over_EA, out=dv).sum())
-            row[10] = sum(p.work for p in plastic)
-            for r in resolved:  # largest mean and element compressions, to catch a crushed rod
-                mean_peak, element_peak = peak[r.name]
-                strains = eps[r.links]
-                peak[r.name] = (max(mean_peak, -float(strains.mean())), max(element_peak, -float(strains.min())))
+        for k, a, b, inv_a, inv_b, inv_w in contacts:
+            va, vb = u[a], u[b]
+            g = gaps[k] + dt * (vb - va)
+            if g < 0.0:
+                impulse = -g * inv_w
+                u[a] = va - impulse * inv_a
+                u[b] = vb + impulse * inv_b
+                impulses[k][n] = impulse
+                gaps[k] = 0.0
+            else:
+                gaps[k] = g
+        history.append(tuple(u))
+        if on_grid:
+            for k, node in copies:
+                v[node] = u[k]
+            kept[row] = state
+            row += 1
+            if row == _CHUNK or n == n_steps:
+                reader.read(kept[:row], n + 1 - row)
+                row = 0
+        for p in plastic:
+            work[n] += p.work
         if n == n_steps:
             break
-        # elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
-        np.subtract(v[1:], v[:-1], out=dv)
-        dv *= dt_over_dx
-        eps += dv
-        np.multiply(EA, eps, out=F)
-        for p in plastic:
-            p.update(eps, dt, F)
+        # delay lines: the waves their end nodes send in at n+1
+        for R, L, N, inv_c, _, _, first, last in line_steps:
+            R[N + n + 1] = L[n] - u[first] * inv_c
+            L[n + N] = R[n + 1] + u[last] * inv_c
+        # grid elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
+        if on_grid:
+            np.subtract(v_right, v_left, out=dv)
+            dv *= dt_over_dx
+            eps += dv
+            if elastic_forces:
+                np.multiply(EA, eps, out=F)
+            for p in plastic:
+                p.update(dt)
+
+    for line in lines.values():
+        line.finish()
+    left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
+    impulses = np.array(impulses).reshape(len(gaps), n_steps + 1)
+    impact_force = drive if drive is not None else impulses[left_of["incident"]] / dt
+    # kinetic energy of the delay lines' end nodes (leapfrog form m v(n-1/2) v(n+1/2) / 2)
+    history = np.array(history)
+    own = np.array([k for name in lines for k in (ends[name, "first"], ends[name, "last"])], dtype=np.int64)
+    end_kinetic = 0.5 * (history[:-1, own] * np.array(u_mass)[own] * history[1:, own]).sum(axis=1) if own.size \
+        else np.zeros(n_steps + 1)
+    faces = {name: (history[:, ends[name, "first"]], history[:, ends[name, "last"]]) for name in lines}
+    rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, faces, left_of,
+                         dt, kept_steps)
     return rec, impact_force, e0, peak
+
+
+class _GridReader:
+    """Reduces the kept grid states, chunk by chunk, to what the records need at every step."""
+
+    def __init__(self, grid: _Grid, rods, spec, n_steps):
+        self.grid = grid
+        self.previous_v = grid.v.copy()  # v(-1/2): the initial velocities
+        self.kinetic = np.zeros(n_steps + 1)
+        self.strain_energy = np.zeros(n_steps + 1)
+        self.resolved = [r.name for r in rods if r.name in ("specimen", "shaper") and r.name in grid.links]
+        self.mean_strain = {name: np.zeros(n_steps + 1) for name in self.resolved}
+        self.min_strain = {name: np.zeros(n_steps + 1) for name in self.resolved}
+        self.mean_force = {name: np.zeros(n_steps + 1) for name in self.resolved}
+        self.columns = {}  # (kind, rod, index) -> position in self.probes
+        wanted = []
+        if "specimen" in grid.links:
+            wanted += [("v", "specimen", 0), ("v", "specimen", grid.links["specimen"].stop
+                                                    - grid.links["specimen"].start)]
+        for name, distance, from_end in (("incident", spec.gauge_incident_distance, True),
+                                         ("transmitted", spec.gauge_transmitted_distance, False)):
+            if name in grid.links:  # a bar with a plastic law is marched on the grid
+                rod = next(r for r in rods if r.name == name)
+                i0, i1, _, _ = _gauge_weights(rod, distance, from_end)
+                j0, j1, _, _, _ = _directional_weights(rod, distance, from_end)
+                for j in (j0, j1):
+                    wanted += [("v", name, j - rod.node0), ("eps", name, j - rod.node0),
+                               ("eps", name, j - 1 - rod.node0)]
+                wanted += [("eps", name, i0 - rod.node0), ("eps", name, i1 - rod.node0)]
+        for key in wanted:
+            self.columns.setdefault(key, len(self.columns))
+        self.probe_index = np.array([grid.column(*key) for key in self.columns], dtype=np.int64)
+        self.probes = np.zeros((n_steps + 1, len(self.columns)))
+
+    def read(self, states, start):
+        """Take the grid states of steps ``start ..`` (one row per step)."""
+        g = self.grid
+        nn, nl = g.n_nodes, g.n_links
+        stop = start + states.shape[0]
+        v = states[:, :nn]
+        v_before = np.vstack((self.previous_v[None, :], v[:-1]))
+        self.previous_v = v[-1].copy()
+        self.kinetic[start:stop] = 0.5 * ((v_before * g.mass) * v).sum(axis=1)
+        F = states[:, nn + nl + 1:nn + 2 * nl + 1]
+        self.strain_energy[start:stop] = 0.5 * (F * F * g.dx_over_EA).sum(axis=1)
+        for name in self.resolved:
+            sl = g.links[name]
+            e = states[:, nn + sl.start:nn + sl.stop]
+            self.mean_strain[name][start:stop] = e.mean(axis=1)
+            self.min_strain[name][start:stop] = e.min(axis=1)
+            self.mean_force[name][start:stop] = F[:, sl].mean(axis=1)
+        if self.probe_index.size:
+            self.probes[start:stop] = states[:, self.probe_index]
+
+    def probe(self, kind, name, index, steps):
+        return self.probes[steps, self.columns[(kind, name, index)]]
+
+
+def _bar_measures(name, rod, lines, reader, distance, from_end, steps):
+    """Gauge strain and the two travelling waves at a bar's station [1], compression positive, at ``steps``.
+
+    Returns ``strain, plus, minus`` (waves travelling +x and -x). On a delay
+    line, read from its histories; on a bar marched on the grid, from the
+    kept states (the split of :func:`_directional_weights`, exact at a node).
+    """
+    i0, i1, w0, w1 = _gauge_weights(rod, distance, from_end)
+    j0, j1, u0, u1, c = _directional_weights(rod, distance, from_end)
+    i0, i1, j0, j1 = i0 - rod.node0, i1 - rod.node0, j0 - rod.node0, j1 - rod.node0
+    line = lines.get(name)
+    if line is not None:
+        strain = w0 * line.strain(i0, steps) + w1 * line.strain(i1, steps)
+        (r0, l0), (r1, l1) = line.node_waves(j0, steps), line.node_waves(j1, steps)
+        plus, minus = u0 * r0 + u1 * r1, u0 * l0 + u1 * l1
+    else:
+        def probe(kind, index):
+            return reader.probe(kind, name, index, steps)
+
+        strain = w0 * probe("eps", i0) + w1 * probe("eps", i1)
+        waves = [(0.5 * (probe("eps", j) - probe("v", j) / c), 0.5 * (probe("eps", j - 1) + probe("v", j) / c))
+                 for j in (j0, j1)]
+        plus, minus = u0 * waves[0][0] + u1 * waves[1][0], u0 * waves[0][1] + u1 * waves[1][1]
+    return -strain, -plus, -minus
+
+
+def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps):
+    """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods.
+
+    ``faces`` holds each delay line's end node velocities, v(-1/2) first.
+    """
+    ks = kept_steps
+    rec = np.full((ks.size, 15), np.nan)
+    rec[:, 0] = ks * dt
+    strain, plus, minus = _bar_measures("incident", by_name["incident"], lines, reader,
+                                        spec.gauge_incident_distance, True, ks)
+    rec[:, 1], rec[:, 11], rec[:, 12] = strain, plus, minus
+    if "transmitted" in by_name:
+        strain, plus, minus = _bar_measures("transmitted", by_name["transmitted"], lines, reader,
+                                            spec.gauge_transmitted_distance, False, ks)
+        rec[:, 2], rec[:, 13], rec[:, 14] = strain, plus, minus  # away from the specimen is +x
+        i_front = left_of.get("specimen", left_of["transmitted"])
+        rec[:, 6] = impulses[i_front, ks] / dt
+        rec[:, 7] = impulses[left_of["transmitted"], ks] / dt
+    specimen = by_name.get("specimen")
+    peak = {name: (max(0.0, float(np.max(-reader.mean_strain[name][ks]))),
+                   max(0.0, float(np.max(-reader.min_strain[name][ks])))) for name in reader.resolved}
+    for name in ("specimen", "shaper"):
+        if name in lines:  # elastic at Courant 1
+            mean, low = lines[name].strain_mean_and_min(ks)
+            peak[name] = (max(0.0, float(np.max(-mean))), max(0.0, float(np.max(-low))))
+            if name == "specimen":
+                rec[:, 3] = -specimen.spec.modulus * mean
+                rec[:, 4] = -mean
+    if specimen is not None:
+        if "specimen" in lines:  # end node velocities v(n-1/2) and v(n+1/2) from the kept history
+            front, back = faces["specimen"]
+            v_front_before, v_front, v_back_before, v_back = front[ks], front[ks + 1], back[ks], back[ks + 1]
+        else:
+            rec[:, 3] = -reader.mean_force["specimen"][ks] / specimen.spec.area
+            rec[:, 4] = -reader.mean_strain["specimen"][ks]
+            n_el = grid.links["specimen"].stop - grid.links["specimen"].start
+            v_front, v_back = (reader.probe("v", "specimen", j, ks) for j in (0, n_el))
+            v_front_before, v_back_before = (np.where(ks > 0, reader.probe("v", "specimen", j, np.maximum(ks - 1, 0)),
+                                                      0.0) for j in (0, n_el))
+        # velocities at n: mean of the half steps on either side (the specimen starts at rest)
+        rec[:, 5] = (0.5 * (v_front_before + v_front) - 0.5 * (v_back_before + v_back)) / specimen.spec.length
+    kinetic, strain_energy = reader.kinetic + end_kinetic, reader.strain_energy.copy()
+    for line in lines.values():
+        k_line, s_line = line.energies(kinetic.size - 1)
+        kinetic += k_line
+        strain_energy += s_line
+    rec[:, 8], rec[:, 9], rec[:, 10] = kinetic[ks], strain_energy[ks], work[ks]
+    return rec, peak
+
+
+def _extrapolate(x1, x2=None, x3=None):
+    """The next plastic increment from the last one, two or three (latest first), all > 0: quadratic in
+    ``ln x`` (exact for the exponential growth of the increments where a rate term ``C ln(rate)`` holds the
+    flow stress, as good as quadratic in ``x`` for smooth flow, and positive)."""
+    if x2 is None:
+        return x1
+    ratio = x1 / x2
+    if x3 is None:
+        return x1 * ratio
+    return x1 * ratio ** 3 * (x3 / x1)
+
+
+class _PlasticState:
+    """Plastic strain and dissipated work of one rod with a constitutive law.
+
+    ``eps`` and ``F`` are views of the grid's strains and forces of the rod's
+    elements. The step is :func:`radial_return`'s (the same equations and
+    convergence tests, :func:`_solve_increment`), arranged to ask the law as
+    seldom as possible:
+
+    * the quasi-static flow stress of each element is kept between steps (it
+      changes only when the element's plastic strain does), so an elastic
+      step does not ask the law at all;
+    * an element that flowed in the last step starts from its increment
+      extrapolated from its last three (:func:`_extrapolate`), or from the
+      rate-independent estimate if the law's slope was zero (perfect
+      plasticity, where that estimate is exact), and one Newton step is
+      taken from there with one call of the law (:meth:`_newton_from`); it
+      stands if it changes the increment by at most ``1e-5`` of itself (the
+      second convergence test of :func:`_solve_increment`), which it
+      usually does. Otherwise, and where an element starts to flow, the
+      general iteration takes over from where the step led.
+    """
+
+    def __init__(self, rod: _Rod, eps, F):
+        m = rod.n
+        self.rod = rod
+        self.eps, self.F = eps, F
+        self.E = rod.spec.modulus
+        self.A = rod.spec.area
+        self.eps_p = np.zeros(m)  # signed plastic strain
+        self.p = np.zeros(m)  # accumulated equivalent plastic strain
+        self.work = 0.0  # plastic work [J]
+        self.increments = [np.zeros(m) for _ in range(3)]  # the last three steps' increments, latest first
+        self.age = np.zeros(m, dtype=np.int64)  # steps in a row each element has flowed
+        self.flat = False  # the law's slope was zero in the last Newton step (perfect plasticity)
+        self.flow = rod.law.flow_stress
+        self.quasi_static = np.array(self.flow(self.p, np.zeros(m)), dtype=float)  # flow_stress(p, 0)
+        self.quasi_static_min = self.quasi_static.min()
+        self.vol = rod.spec.area * rod.dx
+        self.trial, self.size, self.over = np.zeros(m), np.zeros(m), np.zeros(m, dtype=bool)
+        self.aged = False  # some element flowed in the last step
+        self.run = 0  # steps in a row in which every element flowed
+        self.work_buffer = np.zeros(m)
+        self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments (_newton_from)
+
+    def update(self, dt):
+        trial, size, over, E = self.trial, self.size, self.over, self.E
+        np.subtract(self.eps, self.eps_p, out=trial)  # the elastic strain, for now
+        np.abs(trial, out=size)
+        if size.max() * E <= self.quasi_static_min:  # elastic step, surely: the trial stress stands
+            self._elastic(trial)
+            return
+        trial *= E
+        size *= E
+        if not np.greater(size, self.quasi_static, out=over).any():
+            self._elastic(trial, E)
+            return
+        every = over.all()
+        if every:  # the common case while the rod flows: no gathering
+            flowing, size_f, p_f, quasi_static_f, age = slice(None), size, self.p, self.quasi_static, self.age
+            x1, x2, x3 = self.increments
+        else:
+            flowing = np.flatnonzero(over)
+            size_f, p_f, quasi_static_f, age = size[flowing], self.p[flowing], self.quasi_static[flowing], \
+                self.age[flowing]
+            x1, x2, x3 = (x[flowing] for x in self.increments)
+        guess = inc = None
+        if self.flat:  # the rate-independent estimate is exact
+            guess = (size_f - quasi_static_f) / E
+        elif self.run >= 3 or (not every and age.min() >= 3):
+            guess = _extrapolate(x1, x2, x3)
+        elif age.max() >= 1:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                guess = np.where(age >= 3, _extrapolate(x1, x2, x3), np.where(age == 2, _extrapolate(x1, x2), x1))
+            if age.min() == 0:
+                guess = None
+        if guess is not None:
+            inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)
+        if inc is None:  # the general iteration, from where the step led or from the last increments
+            if guess is None:
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    guess = np.where(x2 > 0.0, np.where(x3 > 0.0, _extrapolate(x1, x2, x3), _extrapolate(x1, x2)), x1)
+            inc, quasi_static = _solve_increment(size_f, p_f, E, self.flow, dt, guess, 1e-10, 60, quasi_static_f)
+        self.age += 1
+        if every:
+            self.quasi_static = quasi_static
+            self.run += 1
+        else:
+            self.quasi_static[flowing] = quasi_static
+            self.age[~over] = 0
+            self.run = 0
+            inc_f, inc = inc, np.zeros(self.rod.n)
+            inc[flowing] = inc_f
+        self.aged = True
+        self.increments = [inc] + self.increments[:2]
+        returned = self.work_buffer
+        np.multiply(inc, E, out=returned)
+        np.subtract(size, returned, out=returned)  # |returned stress|
+        # dissipated work: stress at the end of the step times plastic increment (first order)
+        self.work += float(returned @ inc) * self.vol
+        self.eps_p += np.copysign(inc, trial)
+        self.p += inc
+        self.quasi_static_min = self.quasi_static.min()
+        np.copysign(returned, trial, out=returned)
+        np.multiply(returned, self.A, out=self.F)
+
+    def _elastic(self, trial, scale=1.0):
+        """An elastic step: the forces from the trial (strain, or stress with ``scale = E``)."""
+        if self.aged:
+            self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
+            self.age[:] = 0
+            self.aged, self.run = False, 0
+        np.multiply(trial, self.E * self.A / scale, out=self.F)
+
+    def _newton_from(self, x, size, p, dt):
+        """One Newton step from ``x`` for the flowing elements (``size``, ``p`` theirs): ``(increments,
+        quasi-static flow stresses, None)`` if it converged (the step test of :func:`_solve_increment`),
+        else ``(None, None, where it led)``."""
+        m = x.size
+        if m == self.rod.n:
+            points, rates = self.points, self.rates
+        else:
+            points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
+        h = 1e-6 * x
+        np.add(p, x, out=points[0])
+        np.add(points[0], h, out=points[1])
+        points[2:] = points[:2]
+        np.divide(x, dt, out=rates[0])
+        np.multiply(rates[0], 1.0 + 1e-6, out=rates[1])
+        flow = np.asarray(self.flow(points.reshape(-1), rates.reshape(-1)), dtype=float).reshape(4, -1)
+        law_slope = flow[1] - flow[0]
+        law_slope /= h
+        self.flat = not law_slope.any()
+        g = size - self.E * x - flow[0]
+        slope = law_slope + self.E
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            if law_slope.min() > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
+                change = np.expm1(g / (slope * x))
+                dx = x * change
+                converged = np.abs(change).max() <= 1e-5
+            else:
+                dx = g / slope
+                if law_slope.max() > self.E:
+                    dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
+                converged = (np.abs(dx) <= 1e-5 * x).all()
+        if not converged:
+            return None, None, x + dx
+        quasi_static = flow[3] - flow[2]
+        quasi_static *= dx / h
+        quasi_static += flow[2]
+        return x + dx, quasi_static, None
 
 
 def _directional_weights(rod, distance, from_end):
     """Two interior nodes around a station ``distance`` [m] from the specimen face, their weights, c0.
 
     The split of the bar strain into its two travelling waves is exact at a
-    node of a Courant-1 bar (see :func:`_directional_waves`); between the two
+    node of a Courant-1 bar (see :meth:`_DelayLine.node_waves`); between the two
     nodes it is interpolated linearly, like the gauge strain.
     """
     # interior nodes only: both neighbour elements exist
@@ -918,34 +1613,6 @@ def _directional_weights(rod, distance, from_end):
     j = min(int(math.floor(x)), rod.n - 2)
     w = x - j
     return rod.node0 + j, rod.node0 + j + 1, 1.0 - w, w, rod.spec.wave_speed
-
-
-def _directional_waves(eps, v, weights):
-    """Strain of the wave travelling +x and of the wave travelling -x at a station, compression positive.
-
-    At Courant 1 in a uniform bar, node velocities v_j(n+1/2) and element
-    strains eps_j(n) (element j right of node j) satisfy, for a wave R
-    travelling +x and a wave L travelling -x (d'Alembert; tension positive),
-    ``v_j = c0 (L_j - R_(j-1))``, so that
-
-        R at node j = (eps_j - v_j / c0) / 2,   L at node j = (eps_(j-1) + v_j / c0) / 2,
-
-    each the mean of the wave over the two elements beside the node, and
-    R + L the mean strain there. This follows from the update itself
-    (``v`` gains ``c0 (eps_j - eps_(j-1))`` per step at Courant 1, and
-    ``R_j(n) = R_(j-1)(n-1)``, ``L_j(n) = L_(j+1)(n-1)``), so the split is
-    exact on the grid, not an approximation of it. Called when ``v`` holds
-    v(n+1/2) and ``eps`` holds eps(n).
-
-    References
-    ----------
-    .. [1] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2
-       (d'Alembert solution; v = -c0 eps for a wave travelling +x).
-    """
-    j0, j1, w0, w1, c = weights
-    plus = w0 * (eps[j0] - v[j0] / c) + w1 * (eps[j1] - v[j1] / c)
-    minus = w0 * (eps[j0 - 1] + v[j0] / c) + w1 * (eps[j1 - 1] + v[j1] / c)
-    return -0.5 * plus, -0.5 * minus
 
 
 def _station_position(rod, distance, from_end):
@@ -966,33 +1633,6 @@ def _gauge_weights(rod, distance, from_end):
     w = x - i
     j = min(i + 1, rod.n - 1)
     return rod.node0 + i, rod.node0 + j, 1.0 - w, w
-
-
-class _PlasticState:
-    """Plastic strain and dissipated work of one rod with a constitutive law."""
-
-    def __init__(self, rod: _Rod):
-        self.rod = rod
-        self.sl = rod.links
-        self.E = rod.spec.modulus
-        self.A = rod.spec.area
-        self.eps_p = np.zeros(rod.n)  # signed plastic strain
-        self.p = np.zeros(rod.n)  # accumulated equivalent plastic strain
-        self.work = 0.0  # plastic work [J]
-        self.last_increment = np.zeros(rod.n)  # warm start of the return mapping
-        self.flow = rod.law.flow_stress
-        self.vol = rod.spec.area * rod.dx
-
-    def update(self, eps, dt, F):
-        trial = self.E * (eps[self.sl] - self.eps_p)
-        stress, inc = radial_return(trial, self.p, self.E, self.flow, dt, guess=self.last_increment)
-        self.last_increment = inc
-        if inc.any():
-            self.eps_p += np.sign(trial) * inc
-            self.p += inc
-            # dissipated work: stress at the end of the step times plastic increment (first order)
-            self.work += float((np.abs(stress) * inc).sum()) * self.vol
-        F[self.sl] = stress * self.A
 
 
 def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak):
@@ -1561,7 +2201,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
     Runs the striker, shaper and incident bar alone (a free-end shot) at the
     time step the full shot would use, and reads the wave travelling away
     from the impact at a station ``station`` [m] before the far end (the
-    exact split of :func:`_directional_waves`), moved back to the impact
+    exact split of :meth:`_DelayLine.node_waves`), moved back to the impact
     face by its transit ``(L - station) / c0``. Until the echo of the far end
     returns to it (2 L / c0 after the impact) the impact face does not feel
     what lies beyond it, so this is the pulse the full shot receives too.
