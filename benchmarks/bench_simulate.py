@@ -54,8 +54,8 @@ def typical_spec(law, duration, specimen=True, specimen_modulus=117e9, specimen_
         specimen=RodSpec(length=0.005, diameter=0.008, modulus=specimen_modulus, density=specimen_density,
                          law=law) if specimen else None,
         striker_speed=15.0,
-        gauge_incident_distance=0.75,
-        gauge_transmitted_distance=0.25,
+        incident_gauge_distance=0.75,
+        transmitted_gauge_distance=0.25,
         duration=duration,
         sample_rate=10e6,
     )

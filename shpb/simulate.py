@@ -598,9 +598,9 @@ class VirtualShotSpec:
         Specimen between the bars; None for a bars-together shot.
     striker_speed : float
         Impact speed of the striker [m/s] (> 0; not used with ``incident_pulse``).
-    gauge_incident_distance : float
+    incident_gauge_distance : float
         Gauge station on the incident bar, distance from its specimen face [m].
-    gauge_transmitted_distance : float
+    transmitted_gauge_distance : float
         Gauge station on the transmitted bar, distance from its specimen face [m].
     duration : float
         Record length after impact [s].
@@ -634,8 +634,8 @@ class VirtualShotSpec:
     transmitted: Optional[RodSpec]
     specimen: Optional[RodSpec]
     striker_speed: float
-    gauge_incident_distance: float
-    gauge_transmitted_distance: float
+    incident_gauge_distance: float
+    transmitted_gauge_distance: float
     duration: float
     sample_rate: float
     shaper: Optional[RodSpec] = None
@@ -777,7 +777,7 @@ def _check_spec(spec):
         value = getattr(spec, name)
         if not (_is_number(value) and math.isfinite(value) and value > 0):
             raise InputError(f"expected a positive finite number, got {value!r}", f"VirtualShotSpec.{name}")
-    for name, bar in (("gauge_incident_distance", spec.incident), ("gauge_transmitted_distance", spec.transmitted)):
+    for name, bar in (("incident_gauge_distance", spec.incident), ("transmitted_gauge_distance", spec.transmitted)):
         if bar is None:
             continue
         d = getattr(spec, name)
@@ -1322,8 +1322,8 @@ class _GridReader:
         if "specimen" in grid.links:
             wanted += [("v", "specimen", 0), ("v", "specimen", grid.links["specimen"].stop
                                                     - grid.links["specimen"].start)]
-        for name, distance, from_end in (("incident", spec.gauge_incident_distance, True),
-                                         ("transmitted", spec.gauge_transmitted_distance, False)):
+        for name, distance, from_end in (("incident", spec.incident_gauge_distance, True),
+                                         ("transmitted", spec.transmitted_gauge_distance, False)):
             if name in grid.links:  # a bar with a plastic law is marched on the grid
                 rod = next(r for r in rods if r.name == name)
                 i0, i1, _, _ = _gauge_weights(rod, distance, from_end)
@@ -1396,11 +1396,11 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, fa
     rec = np.full((ks.size, 15), np.nan)
     rec[:, 0] = ks * dt
     strain, plus, minus = _bar_measures("incident", by_name["incident"], lines, reader,
-                                        spec.gauge_incident_distance, True, ks)
+                                        spec.incident_gauge_distance, True, ks)
     rec[:, 1], rec[:, 11], rec[:, 12] = strain, plus, minus
     if "transmitted" in by_name:
         strain, plus, minus = _bar_measures("transmitted", by_name["transmitted"], lines, reader,
-                                            spec.gauge_transmitted_distance, False, ks)
+                                            spec.transmitted_gauge_distance, False, ks)
         rec[:, 2], rec[:, 13], rec[:, 14] = strain, plus, minus  # away from the specimen is +x
         i_front = left_of.get("specimen", left_of["transmitted"])
         rec[:, 6] = impulses[i_front, ks] / dt
@@ -1777,7 +1777,7 @@ def trigger_time(spec: VirtualShotSpec, recorder: RecorderSpec) -> float:
         raise InputError(f"expected one of {', '.join(TRIGGERS)}, got {recorder.trigger!r}", "RecorderSpec.trigger")
     t = 0.0 if spec.incident_pulse is None else spec.incident_pulse.impact_time
     if recorder.trigger == "incident-gauge":
-        t += (spec.incident.length - spec.gauge_incident_distance) / spec.incident.wave_speed
+        t += (spec.incident.length - spec.incident_gauge_distance) / spec.incident.wave_speed
         if spec.shaper is not None:
             t += spec.shaper.length / spec.shaper.wave_speed
     return round(t * recorder.sample_rate) / recorder.sample_rate
@@ -1927,7 +1927,7 @@ def _fourier_delay(x, dt, delay):
     return sfft.irfft(spectrum, total)[:n]
 
 
-def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson):
+def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio):
     """Pochhammer–Chree dispersion over a distance, without the bulk delay ``distance / c0``.
 
     ``propagate`` (Follansbee & Frantz 1983) delays each harmonic by
@@ -1948,7 +1948,7 @@ def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson)
         Bar radius a [m].
     bar_wave_speed : float
         Bar wave speed c0 [m/s].
-    poisson : float
+    poisson_ratio : float
         Poisson ratio of the bar [1].
 
     Returns
@@ -1971,7 +1971,7 @@ def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson)
     # brings back what lay up to |d| / c0 beyond an end; 2 |d| / c0 leaves a margin
     pad = int(math.ceil(2.0 * abs(distance) / bar_wave_speed / dt)) + 64
     padded = np.concatenate([np.full(pad, x[0]), x, np.full(pad, x[-1])])
-    moved = dispersion.propagate(padded, dt, distance, bar_radius, bar_wave_speed, poisson)
+    moved = dispersion.propagate(padded, dt, distance, bar_radius, bar_wave_speed, poisson_ratio)
     return _fourier_delay(moved, dt, -distance / bar_wave_speed)[pad:pad + x.size]
 
 
@@ -1985,7 +1985,7 @@ _WAVE_PATHS = (
 )
 
 
-def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson, transmitted_poisson=None,
+def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson_ratio, transmitted_poisson_ratio=None,
                             undispersed_at="specimen"):
     """Gauge strains of a virtual shot with Pochhammer–Chree dispersion added over each wave's path.
 
@@ -2013,7 +2013,7 @@ def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson, tran
     Parameters
     ----------
     result : VirtualShotResult
-    incident_poisson, transmitted_poisson : float
+    incident_poisson_ratio, transmitted_poisson_ratio : float
         Poisson ratios of the bars [1].
     undispersed_at : {"specimen", "impact"}
 
@@ -2051,11 +2051,11 @@ def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson, tran
     t = result.time
     li = rods["incident"]["length_m"]
     lt = rods["transmitted"]["length_m"] if "transmitted" in rods else 0.0
-    bars = {"incident": (spec.incident, incident_poisson, li)}
+    bars = {"incident": (spec.incident, incident_poisson_ratio, li)}
     if spec.transmitted is not None:
-        if transmitted_poisson is None:
-            raise InputError("the transmitted bar's Poisson ratio is needed", "transmitted_poisson")
-        bars["transmitted"] = (spec.transmitted, transmitted_poisson, lt)
+        if transmitted_poisson_ratio is None:
+            raise InputError("the transmitted bar's Poisson ratio is needed", "transmitted_poisson_ratio")
+        bars["transmitted"] = (spec.transmitted, transmitted_poisson_ratio, lt)
     t_face = result.foot_arrival_time
     out = {"incident": np.zeros_like(t), "transmitted": np.zeros_like(t) if "transmitted" in bars else None}
     for name, bar_name, first in _WAVE_PATHS:
@@ -2064,7 +2064,7 @@ def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson, tran
         rod, _, length = bars[bar_name]
         c = rod.wave_speed
         wave = result.gauge_waves[name]
-        p1 = first(li, lt, spec.gauge_incident_distance, spec.gauge_transmitted_distance)
+        p1 = first(li, lt, spec.incident_gauge_distance, spec.transmitted_gauge_distance)
         margin = 0.1 * 2 * length / c
         arrivals = []
         k = 0
@@ -2106,15 +2106,15 @@ def _segments(bar_name, path, incident_length, undispersed_at):
     return [("incident", incident_length), ("transmitted", path - incident_length)]
 
 
-def _channel_volts(strain, gauge, poisson):
+def _channel_volts(strain, gauge, poisson_ratio):
     from .bridge import bar_volts
 
     return bar_volts(strain, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor, excitation=gauge.excitation,
-                     gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson_ratio=poisson)
+                     gain=gauge.gain, polarity=gauge.polarity, scale=gauge.scale, poisson_ratio=poisson_ratio)
 
 
 def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_gauge, transmitted_gauge=None, *,
-                   incident_poisson, transmitted_poisson=None, dispersion=None, trigger=None) -> VirtualRecord:
+                   incident_poisson_ratio, transmitted_poisson_ratio=None, dispersion=None, trigger=None) -> VirtualRecord:
     """Turn a virtual shot's gauge strains into a digitised record.
 
     Steps: (1) the bar strain at each gauge, with Pochhammer–Chree
@@ -2134,7 +2134,7 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
     recorder : RecorderSpec
     incident_gauge, transmitted_gauge : shpb.setup.Gauge
         Bridge settings of each channel (transmitted None in a free-end shot).
-    incident_poisson, transmitted_poisson : float
+    incident_poisson_ratio, transmitted_poisson_ratio : float
         Poisson ratios of the bars [1] (bridge transverse gauges, dispersion).
     dispersion : None, "specimen" or "impact"
         None: the model's non-dispersive strains; otherwise the plane at which
@@ -2155,8 +2155,8 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
     if dispersion is None:
         strains = [result.strain_incident_gauge, result.strain_transmitted_gauge]
     else:
-        strains = list(dispersed_gauge_strains(result, incident_poisson=incident_poisson,
-                                               transmitted_poisson=transmitted_poisson,
+        strains = list(dispersed_gauge_strains(result, incident_poisson_ratio=incident_poisson_ratio,
+                                               transmitted_poisson_ratio=transmitted_poisson_ratio,
                                                undispersed_at=dispersion))
     trig = trigger_time(spec, recorder) if trigger is None else trigger
     n = int(round(recorder.duration * fs))
@@ -2167,7 +2167,7 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
     before = k < 0  # the bars are at rest before the impact
     kk = np.maximum(k, 0)
     rng = np.random.default_rng(recorder.seed)
-    channels = [("incident", incident_gauge, incident_poisson), ("transmitted", transmitted_gauge, transmitted_poisson)]
+    channels = [("incident", incident_gauge, incident_poisson_ratio), ("transmitted", transmitted_gauge, transmitted_poisson_ratio)]
     volts, clean, info = {}, {}, {"noise_std_V": {}, "offset_V": {}, "clipped_samples": {}}
     for i, (name, gauge, nu) in enumerate(channels):
         if gauge is None or spec.transmitted is None and name == "transmitted":
@@ -2238,7 +2238,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
     if spec.shaper is not None:
         estimate += 20 * spec.shaper.length / spec.shaper.wave_speed
     span = 2 * estimate + 30e-6
-    base = dataclasses.replace(spec, transmitted=None, specimen=None, gauge_incident_distance=station,
+    base = dataclasses.replace(spec, transmitted=None, specimen=None, incident_gauge_distance=station,
                                sample_rate=1.0 / dt, max_time_step=dt)
     while True:
         duration = min(transit + span, limit)
@@ -2256,7 +2256,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
         span *= 2
 
 
-def dispersed_drive(spec: VirtualShotSpec, incident_poisson) -> VirtualShotSpec:
+def dispersed_drive(spec: VirtualShotSpec, incident_poisson_ratio) -> VirtualShotSpec:
     """The shot with its striker and shaper replaced by their pulse, dispersed over the incident bar.
 
     The striker's pulse (:func:`incident_pulse`) is given the
@@ -2273,7 +2273,7 @@ def dispersed_drive(spec: VirtualShotSpec, incident_poisson) -> VirtualShotSpec:
     ----------
     spec : VirtualShotSpec
         A shot with a striker.
-    incident_poisson : float
+    incident_poisson_ratio : float
         Poisson ratio of the incident bar [1].
 
     Returns
@@ -2294,6 +2294,6 @@ def dispersed_drive(spec: VirtualShotSpec, incident_poisson) -> VirtualShotSpec:
     # by up to ~1.6 L / c0 behind the pulse, so 2 L / c0 of room keeps the whole dispersed tail.
     extra = int(math.ceil(2.0 * bar.length / bar.wave_speed / pulse.dt)) + 64
     strain = np.concatenate([pulse.strain, np.zeros(extra)])
-    dispersed = excess_dispersion(strain, pulse.dt, bar.length, 0.5 * bar.diameter, bar.wave_speed, incident_poisson)
+    dispersed = excess_dispersion(strain, pulse.dt, bar.length, 0.5 * bar.diameter, bar.wave_speed, incident_poisson_ratio)
     return dataclasses.replace(spec, striker=None, shaper=None,
                                incident_pulse=IncidentPulse(pulse.dt, dispersed, pulse.impact_time))

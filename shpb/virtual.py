@@ -283,8 +283,8 @@ def load_simulation(path) -> SimulationSetup:
     transmitted = None if kind == "free-end" else bar_rod(bs.transmitted)
     spec = VirtualShotSpec(striker=striker, incident=bar_rod(bs.incident), transmitted=transmitted,
                            specimen=specimen, striker_speed=speed,
-                           gauge_incident_distance=bs.incident_gauge.distance,
-                           gauge_transmitted_distance=bs.transmitted_gauge.distance,
+                           incident_gauge_distance=bs.incident_gauge.distance,
+                           transmitted_gauge_distance=bs.transmitted_gauge.distance,
                            duration=1.0, sample_rate=recorder.sample_rate, shaper=shaper,
                            specimen_elements=elements, shaper_elements=shaper_elements)
     try:
@@ -333,7 +333,7 @@ def simulate_setup(setup: SimulationSetup, *, allow_bar_yield=False) -> VirtualS
     result = simulate_shot(run)
     record = virtual_record(result, rec, bs.incident_gauge,
                             None if setup.kind == "free-end" else bs.transmitted_gauge,
-                            incident_poisson=nu_i, transmitted_poisson=nu_t, dispersion=mode, trigger=trigger)
+                            incident_poisson_ratio=nu_i, transmitted_poisson_ratio=nu_t, dispersion=mode, trigger=trigger)
     return VirtualShot(setup=setup, plan=plan, result=result, record=record)
 
 

@@ -180,12 +180,12 @@ def _run(spec, rods, dt, kept_steps):
     i_back = left_of.get("transmitted")
     impact_force = np.zeros(n_steps + 1)
 
-    gauge_inc = _gauge_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
-    waves_inc = _directional_weights(by_name["incident"], spec.gauge_incident_distance, from_end=True)
+    gauge_inc = _gauge_weights(by_name["incident"], spec.incident_gauge_distance, from_end=True)
+    waves_inc = _directional_weights(by_name["incident"], spec.incident_gauge_distance, from_end=True)
     transmitted = by_name.get("transmitted")
     if transmitted is not None:
-        gauge_tra = _gauge_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
-        waves_tra = _directional_weights(transmitted, spec.gauge_transmitted_distance, from_end=False)
+        gauge_tra = _gauge_weights(transmitted, spec.transmitted_gauge_distance, from_end=False)
+        waves_tra = _directional_weights(transmitted, spec.transmitted_gauge_distance, from_end=False)
     specimen = by_name.get("specimen")
     resolved = [r for r in rods if r.name in ("specimen", "shaper")]
     peak = {r.name: (0.0, 0.0) for r in resolved}

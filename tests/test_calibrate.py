@@ -170,8 +170,8 @@ def test_free_end_on_virtual_shot():
     bar = S.RodSpec(length=1.5, diameter=0.02, modulus=E, density=RHO)
     spec = S.VirtualShotSpec(striker=S.RodSpec(length=0.3, diameter=0.02, modulus=E, density=RHO), incident=bar,
                              transmitted=S.RodSpec(length=0.05, diameter=1e-4, modulus=E, density=RHO),
-                             specimen=None, striker_speed=10.0, gauge_incident_distance=0.75,
-                             gauge_transmitted_distance=0.01, duration=1.6e-3, sample_rate=10e6)
+                             specimen=None, striker_speed=10.0, incident_gauge_distance=0.75,
+                             transmitted_gauge_distance=0.01, duration=1.6e-3, sample_rate=10e6)
     v = S.simulate_shot(spec)
     s = np.concatenate([np.zeros(200), v.strain_incident_gauge])  # a pre-trigger
     L = v.grid["rods"]["incident"]["length_m"]  # the modelled length (whole elements)
@@ -301,8 +301,8 @@ def test_bars_together_virtual_shot(d_t):
     rod = S.RodSpec(length=1.5, diameter=0.02, modulus=E, density=RHO)
     rod_t = S.RodSpec(length=1.5, diameter=d_t, modulus=E, density=RHO)
     spec = S.VirtualShotSpec(striker=S.RodSpec(length=0.3, diameter=0.02, modulus=E, density=RHO), incident=rod,
-                             transmitted=rod_t, specimen=None, striker_speed=10.0, gauge_incident_distance=0.75,
-                             gauge_transmitted_distance=0.5, duration=1.2e-3, sample_rate=10e6)
+                             transmitted=rod_t, specimen=None, striker_speed=10.0, incident_gauge_distance=0.75,
+                             transmitted_gauge_distance=0.5, duration=1.2e-3, sample_rate=10e6)
     v = S.simulate_shot(spec)
     ratio, refl = C.junction_ratios(rod.impedance, rod_t.impedance, E * rod.area, E * rod_t.area)
     r = C.bars_together(v.strain_incident_gauge, v.strain_transmitted_gauge, v.time[1] - v.time[0], 0.75, 0.5,
@@ -344,7 +344,7 @@ def test_striker_unmatched_against_virtual_shot():
     striker = S.RodSpec(length=0.2, diameter=0.02, modulus=114e9, density=4430.0)
     rod = S.RodSpec(length=1.5, diameter=0.02, modulus=E, density=RHO)
     spec = S.VirtualShotSpec(striker=striker, incident=rod, transmitted=rod, specimen=None, striker_speed=12.0,
-                             gauge_incident_distance=0.75, gauge_transmitted_distance=0.5, duration=0.4e-3,
+                             incident_gauge_distance=0.75, transmitted_gauge_distance=0.5, duration=0.4e-3,
                              sample_rate=10e6)
     v = S.simulate_shot(spec)
     r = C.striker_check(v.strain_incident_gauge, v.time[1] - v.time[0], 12.0, bar_wave_speed=C0, bar_modulus=E,

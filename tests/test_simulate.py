@@ -38,7 +38,7 @@ def steel(length, diameter=0.02):
 def shot(**changes):
     """A bars-together shot on a short steel rig; keyword arguments override fields."""
     fields = dict(striker=steel(0.3), incident=steel(1.0), transmitted=steel(1.0), specimen=None,
-                  striker_speed=10.0, gauge_incident_distance=0.5, gauge_transmitted_distance=0.25,
+                  striker_speed=10.0, incident_gauge_distance=0.5, transmitted_gauge_distance=0.25,
                   duration=0.30e-3, sample_rate=10e6)
     fields.update(changes)
     return VirtualShotSpec(**fields)
@@ -173,7 +173,7 @@ def test_energy_is_conserved_in_an_elastic_run():
     # (momentum conservation, elementary mechanics).
     specimen = RodSpec(0.005, 0.01, 70e9, 2700.0)
     res = simulate_shot(shot(striker=steel(0.1), incident=steel(0.5), transmitted=steel(0.5), specimen=specimen,
-                             gauge_incident_distance=0.25, duration=0.2e-3))
+                             incident_gauge_distance=0.25, duration=0.2e-3))
     energy = res.energies
     e0 = res.grid["initial_kinetic_J"]
     # both striker and incident end nodes carry half an element of the same steel bar
@@ -193,7 +193,7 @@ def perfectly_plastic_shot():
     # aluminium-like specimen, 5 mm x 10 mm, yield 300 MPa, between 20 mm steel bars
     specimen = RodSpec(0.005, 0.01, 70e9, 2700.0, PerfectlyPlastic(300e6))
     return simulate_shot(shot(striker=steel(0.15), incident=steel(0.5), transmitted=steel(0.5),
-                              specimen=specimen, gauge_incident_distance=0.25, duration=0.17e-3))
+                              specimen=specimen, incident_gauge_distance=0.25, duration=0.17e-3))
 
 
 def test_perfectly_plastic_specimen_flows_at_its_yield_stress(perfectly_plastic_shot):
@@ -281,7 +281,7 @@ def test_rate_dependent_specimen_follows_johnson_cook():
     # Equilibrium per Ravichandran & Subhash (1994): R <= 0.05.
     specimen = RodSpec(0.005, 0.01, 117e9, 8960.0, JohnsonCookLaw(90e6, 292e6, 0.31, 0.025))
     res = simulate_shot(shot(striker=steel(0.2), incident=steel(0.5), transmitted=steel(0.5),
-                             specimen=specimen, gauge_incident_distance=0.25, duration=0.2e-3))
+                             specimen=specimen, incident_gauge_distance=0.25, duration=0.2e-3))
     truth = res.truth
     flow = truth[(truth.time_us > 10) & (truth.time_us < 75)]
     stress = flow.stress_MPa.to_numpy() * 1e6
@@ -302,7 +302,7 @@ def test_pulse_shaper_caps_the_incident_force():
     # elastic transit L / sqrt(E/rho).
     shaper = RodSpec(0.001, 0.005, 117e9, 8960.0, PerfectlyPlastic(200e6))
     res = simulate_shot(shot(striker=steel(0.3), incident=steel(0.5), transmitted=steel(0.5), shaper=shaper,
-                             gauge_incident_distance=0.45, gauge_transmitted_distance=0.25, duration=40e-6))
+                             incident_gauge_distance=0.45, transmitted_gauge_distance=0.25, duration=40e-6))
     cap = 200e6 * shaper.area / (E_STEEL * steel(0.5).area)
     rods = res.grid["rods"]
     foot_at_gauge = res.foot_arrival_time - 0.45 / C0
@@ -341,7 +341,7 @@ def test_no_grid_ringing_where_the_specimen_drives_a_bar():
     specimen = RodSpec(0.005, 0.01, 70e9, 2700.0, PerfectlyPlastic(300e6))
     dt = 0.005 / 20 / specimen.wave_speed
     res = simulate_shot(shot(striker=steel(0.15), incident=steel(0.5), transmitted=steel(0.5), specimen=specimen,
-                             gauge_incident_distance=0.25, duration=160e-6, sample_rate=1 / dt))
+                             incident_gauge_distance=0.25, duration=160e-6, sample_rate=1 / dt))
     assert res.grid["dt_s"] == pytest.approx(dt, rel=1e-12)
     final = 300e6 * specimen.area / (E_STEEL * steel(0.5).area)
     eps_t = res.strain_transmitted_gauge
@@ -353,7 +353,7 @@ def test_no_grid_ringing_where_the_specimen_drives_a_bar():
 # --------------------------------------------------------------------------- bad input
 @pytest.mark.parametrize("changes, field", [
     (dict(specimen=RodSpec(0.005, 0.01, 70e9, 2700.0), specimen_elements=10), "specimen_elements"),
-    (dict(gauge_incident_distance=1.5), "gauge_incident_distance"),
+    (dict(incident_gauge_distance=1.5), "incident_gauge_distance"),
     (dict(striker_speed=0.0), "striker_speed"),
     (dict(incident=RodSpec(1.0, -0.02, E_STEEL, RHO_STEEL)), "incident.diameter"),
     (dict(specimen=RodSpec(0.005, 0.01, 70e9, 2700.0, law="soft")), "specimen.law"),
@@ -368,4 +368,4 @@ def test_crushed_shaper_is_an_analysis_error():
     shaper = RodSpec(0.001, 0.005, 117e9, 8960.0, PerfectlyPlastic(200e6))
     with pytest.raises(AnalysisError, match="shaper was crushed"):
         simulate_shot(shot(striker=steel(0.3), incident=steel(0.3), transmitted=steel(0.3), shaper=shaper,
-                           gauge_incident_distance=0.15, gauge_transmitted_distance=0.15, duration=150e-6))
+                           incident_gauge_distance=0.15, transmitted_gauge_distance=0.15, duration=150e-6))

@@ -63,7 +63,7 @@ def jc_true(eps_p, rate):
 
 def make_spec(specimen, striker=0.15, speed=20.0, shaper=SHAPER):
     spec = VirtualShotSpec(striker=bar(striker), incident=bar(L_INC), transmitted=bar(L_TRA), specimen=specimen,
-                           striker_speed=speed, gauge_incident_distance=D_INC, gauge_transmitted_distance=D_TRA,
+                           striker_speed=speed, incident_gauge_distance=D_INC, transmitted_gauge_distance=D_TRA,
                            duration=1.0, sample_rate=10e6, shaper=shaper, shaper_elements=4)
     return dataclasses.replace(spec, duration=model_duration(trigger_time(spec, RECORDER), RECORDER))
 
@@ -75,7 +75,7 @@ def jc_specimen():
 
 def reduce_virtual(result, spec, *, dispersion_in_record=None, trigger=None, striker=0.15, **analysis):
     """Record a model result and reduce it; the bar set is the rig's (Kolsky analysis of the volts)."""
-    rec = virtual_record(result, RECORDER, GAUGE_I, GAUGE_T, incident_poisson=NU_BAR, transmitted_poisson=NU_BAR,
+    rec = virtual_record(result, RECORDER, GAUGE_I, GAUGE_T, incident_poisson_ratio=NU_BAR, transmitted_poisson_ratio=NU_BAR,
                          dispersion=dispersion_in_record, trigger=trigger)
     bs = BarSet("test rig", Bar(MATERIAL, D_BAR, L_INC), Bar(MATERIAL, D_BAR, L_TRA), GAUGE_I, GAUGE_T,
                 Striker(striker, D_BAR, MATERIAL))
@@ -136,7 +136,7 @@ def test_gauge_waves_split_into_travelling_waves():
     # d'Alembert (Graff 1975, Wave Motion in Elastic Solids, ch. 2): the bar strain is the sum of a wave
     # travelling each way; a matched striker sends eps = v / (2 c0) for 2 L / c0 (Kolsky 1949; Kolsky 1963). Bars together (identical bars, R = 0, T = 1): nothing travels back towards the striker.
     spec = VirtualShotSpec(striker=bar(0.15), incident=bar(L_INC), transmitted=bar(L_TRA), specimen=None,
-                           striker_speed=10.0, gauge_incident_distance=D_INC, gauge_transmitted_distance=D_TRA,
+                           striker_speed=10.0, incident_gauge_distance=D_INC, transmitted_gauge_distance=D_TRA,
                            duration=0.3e-3, sample_rate=10e6)
     res = simulate_shot(spec)
     t, w = res.time, res.gauge_waves
@@ -358,7 +358,7 @@ def test_noise_in_microstrain_goes_through_the_bridge(plain_shot):
     _, result, _ = plain_shot
     rec = RecorderSpec(duration=0.45e-3, pre_trigger=50e-6, bits=None, full_scale=(None, None),
                        noise_strain=(3e-6, 3e-6), seed=3)
-    vr = virtual_record(result, rec, GAUGE_I, GAUGE_T, incident_poisson=NU_BAR, transmitted_poisson=NU_BAR)
+    vr = virtual_record(result, rec, GAUGE_I, GAUGE_T, incident_poisson_ratio=NU_BAR, transmitted_poisson_ratio=NU_BAR)
     quiet = vr.time < 0  # before the trigger: no pulse at either gauge
     for channel in (vr.volts_incident, vr.volts_transmitted):
         assert np.std(channel[quiet]) == pytest.approx(3e-6 * 100 * 10 * 2.1 / 2, rel=0.1)
@@ -373,7 +373,7 @@ def test_planned_bar_stress_matches_the_striker_relations():
     steel = RodSpec(0.3, 0.02, 200e9, 7850.0)
     spec = VirtualShotSpec(striker=steel, incident=RodSpec(1.0, 0.02, 200e9, 7850.0),
                            transmitted=RodSpec(1.0, 0.02, 200e9, 7850.0), specimen=None, striker_speed=10.0,
-                           gauge_incident_distance=0.5, gauge_transmitted_distance=0.25, duration=1e-4,
+                           incident_gauge_distance=0.5, transmitted_gauge_distance=0.25, duration=1e-4,
                            sample_rate=10e6)
     plan = plan_shot(spec, 1500e6)
     assert plan["incident_bar_stress_MPa"] == pytest.approx(198.12, abs=0.01)

@@ -31,7 +31,7 @@ def steel(length, diameter=0.02):
 
 def rig(**changes):
     fields = dict(striker=steel(0.1), incident=steel(0.6), transmitted=steel(0.4), specimen=None,
-                  striker_speed=10.0, gauge_incident_distance=0.3, gauge_transmitted_distance=0.15,
+                  striker_speed=10.0, incident_gauge_distance=0.3, transmitted_gauge_distance=0.15,
                   duration=0.25e-3, sample_rate=10e6)
     fields.update(changes)
     return VirtualShotSpec(**fields)
@@ -50,7 +50,7 @@ def test_free_end_bar_follows_dalembert():
     # the compression passes at (L - d) / c0 after impact and returns as tension at (L + d) / c0; the impact
     # end, left free when the striker has stopped (equal impedances: it stops dead), sends it back as
     # compression at (3 L - d) / c0.
-    res = simulate_shot(rig(transmitted=None, incident=steel(1.0), gauge_incident_distance=0.3,
+    res = simulate_shot(rig(transmitted=None, incident=steel(1.0), incident_gauge_distance=0.3,
                             duration=0.7e-3))
     length = res.grid["rods"]["incident"]["length_m"]
     amplitude = 10.0 / (2 * C0)
@@ -88,7 +88,7 @@ def test_elastic_specimen_rings_up_geometrically():
     specimen = RodSpec(0.005, 0.01, 70e9, 2700.0)
     dt = 0.005 / 20 / specimen.wave_speed
     res = simulate_shot(rig(striker=steel(0.3), incident=steel(0.5), transmitted=steel(0.5), specimen=specimen,
-                            gauge_incident_distance=0.25, gauge_transmitted_distance=0.25, duration=175e-6,
+                            incident_gauge_distance=0.25, transmitted_gauge_distance=0.25, duration=175e-6,
                             sample_rate=1 / dt))
     zb, zs = steel(0.5).impedance, specimen.impedance
     reflection = (zb - zs) / (zb + zs)
@@ -211,7 +211,7 @@ def test_specimen_crushed_in_either_solver_is_an_analysis_error():
 
     shaper = RodSpec(0.001, 0.005, 117e9, 8960.0, PerfectlyPlastic(200e6))
     spec = rig(striker=steel(0.3), incident=steel(0.3), transmitted=steel(0.3), shaper=shaper,
-               gauge_incident_distance=0.15, gauge_transmitted_distance=0.15, duration=150e-6)
+               incident_gauge_distance=0.15, transmitted_gauge_distance=0.15, duration=150e-6)
     for solver in (simulate_shot, simulate_shot_reference):
         with pytest.raises(AnalysisError, match="shaper was crushed"):
             solver(spec)
