@@ -218,8 +218,9 @@ def carry_wave(channel, dt, start, stop, travel_time, ramp, mover=None):
     plain = delay(seg, dt, travel_time)
     moved = plain if mover is None else mover(seg)
     full, full_plain = np.zeros(n), np.zeros(n)
-    full[lo:hi] = moved[lo - a : hi - a]
-    full_plain[lo:hi] = plain[lo - a : hi - a]
+    if hi > lo:  # a window wholly outside the record carries nothing (the verdict flags it)
+        full[lo:hi] = moved[lo - a : hi - a]
+        full_plain[lo:hi] = plain[lo - a : hi - a]
     return full, full_plain
 
 
