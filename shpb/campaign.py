@@ -597,8 +597,8 @@ def shot_key(shot: Shot, record_hashes: dict, base_dir) -> str:
     base_dir = Path(base_dir)
     payload = {
         "package_version": _package_version(),
-        # where the setup was read from ("source") does not change the result; NaN kept as JSON's NaN
-        "setup": to_plain(shot, nonfinite="keep", path=lambda p: _rel(p, base_dir), skip_fields={"source"}),
+        # where the setup was read from ("source") and the sample ceiling do not change the result; NaN kept
+        "setup": to_plain(shot, nonfinite="keep", path=lambda p: _rel(p, base_dir), skip_fields={"source", "max_samples"}),
         "records": {_rel(p, base_dir): h for p, h in sorted(record_hashes.items())},
     }
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"), default=str)

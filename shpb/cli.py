@@ -81,14 +81,16 @@ def main(argv=None) -> int:
         app(args=argv, standalone_mode=True)
     except SystemExit as exc:  # normal end, typer.Exit and usage errors
         code = exc.code
+        interrupt = _interrupt_behind(exc)
+        if interrupt is not None:  # the parser library turns Ctrl-C into a bare status 130: say what happened
+            _say_interrupted(interrupt)
+            return EXIT_INTERRUPTED
         return code if isinstance(code, int) else (0 if code is None else 1)
     except ShpbError as exc:
         typer.echo(f"error: {exc}", err=True)
         return EXIT_INPUT
     except KeyboardInterrupt as exc:
-        what = str(exc).strip() or ("interrupted; outputs are written whole (temporary file, then rename), so "
-                                    "nothing half-written is left; rerun the same command to complete it")
-        typer.echo(what if what.startswith("interrupted") else f"interrupted: {what}", err=True)
+        _say_interrupted(exc)
         return EXIT_INTERRUPTED
     except OSError as exc:  # the machine's word (disk full, permission), not a bug: one line
         name = exc.filename if exc.filename is not None else ""
@@ -100,6 +102,23 @@ def main(argv=None) -> int:
         if old_term is not None:
             signal.signal(signal.SIGTERM, old_term)
     return 0
+
+
+def _interrupt_behind(exc: BaseException):
+    """The KeyboardInterrupt an exit status was made from, if any (followed through causes and contexts)."""
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        seen.add(id(exc))
+        if isinstance(exc, KeyboardInterrupt):
+            return exc
+        exc = exc.__cause__ or exc.__context__
+    return None
+
+
+def _say_interrupted(exc: BaseException) -> None:
+    what = str(exc).strip() or ("interrupted; outputs are written whole (temporary file, then rename), so "
+                                "nothing half-written is left; rerun the same command to complete it")
+    typer.echo(what if what.startswith("interrupted") else f"interrupted: {what}", err=True)
 
 
 def _terminated(signum, frame):
