@@ -379,6 +379,8 @@ class _Table:
 def read_toml(path) -> dict:
     """Read a TOML file; a missing or malformed file is an :class:`InputError`."""
     path = Path(path)
+    if path.is_dir():
+        raise InputError("is a folder; expected a TOML file", str(path))
     if not path.is_file():
         raise InputError("file not found", str(path))
     try:
@@ -386,6 +388,8 @@ def read_toml(path) -> dict:
             return tomllib.load(fh)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML ({exc})", str(path)) from None
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", str(path)) from None
 
 
 _MATERIAL_KEYS = {"name", "modulus", "density", "poisson_ratio", "yield_strength"}
@@ -588,9 +592,9 @@ def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
         raise InputError("give either 'time' (a time column) or 'sample_interval'", where)
     unit = data.get("time_unit", "s")
     time_unit = to_si(f"1 {unit}" if isinstance(unit, str) else unit, "time", f"{where}.time_unit")
-    if not time_unit > 0:
+    if not 0 < time_unit < math.inf:
         raise InputError(f"expected a positive time unit (s, ms, us, ns), got {unit!r}", f"{where}.time_unit")
-    if dt is not None and not dt > 0:
+    if dt is not None and not 0 < dt < math.inf:
         raise InputError(f"expected a positive sample interval, got {data.get('sample_interval')!r}",
                          f"{where}.sample_interval")
     max_samples = data.get("max_samples")
@@ -639,8 +643,10 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
     top = _Table(data, f"{source}:")
     top.check_keys({"name", "barset", "specimen", "record", "analysis"})
     if "barset" in data:
-        bs_path = base_dir / top.string("barset")
-        barset = load_barset(bs_path)
+        name = top.string("barset")
+        if not name.strip():
+            raise InputError("expected the path of a bar set file, got an empty string", f"{source}: barset")
+        barset = load_barset(base_dir / name)
     elif barset is None:
         raise InputError("missing key 'barset' (path of the bar set file)", source)
     specimen = specimen_from_dict(top.table("specimen").data, f"{source}: specimen")
