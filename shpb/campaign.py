@@ -741,7 +741,8 @@ def _worker_main(conn, parent_pid: int) -> None:
             os._exit(0)  # the coordinator closed the pipe
         if msg is None:
             os._exit(0)
-        res = reduce_task(*msg)
+        kind, args = msg  # looked up by name here, at call time: "shot" or "figure"
+        res = (reduce_task if kind == "shot" else _figure_task)(*args)
         try:
             conn.send(res)
         except (OSError, ValueError):
@@ -794,7 +795,7 @@ def _clean_scratch(pid) -> None:
         shutil.rmtree(d, ignore_errors=True)
 
 
-def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: "_StopFlag"):
+def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: "_StopFlag", tail=None):
     """Yield task results as they complete, from worker processes (or in this process when jobs = 1).
 
     Each worker has its own pipe, so the coordinator always knows which shot
@@ -802,6 +803,11 @@ def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: "_St
     replaced; its shot is given once more to a fresh worker, and a shot that
     ends two workers is recorded as failed with the cause. The other shots
     are not touched.
+
+    ``tail()``, called once every shot result has been taken, returns more
+    work for the same (warm) workers: ``(name, "figure", args)`` items whose
+    results are yielded too (the campaign figures). A tail item whose worker
+    dies is yielded as ``{"figure": name, "error": ...}``.
     """
     if jobs <= 1 or len(tasks) <= 1:
         for shot in tasks:
@@ -826,7 +832,7 @@ def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: "_St
                     w = _Worker(ctx)
                     workers.append(w)
                 w.shot = queue.popleft()
-                w.conn.send((w.shot, figures, base_dir, flow_strains))
+                w.conn.send(("shot", (w.shot, figures, base_dir, flow_strains)))
             busy = [w for w in workers if w.shot is not None]
             wait([w.conn for w in busy] + [w.proc.sentinel for w in busy], timeout=0.2)
             for w in busy:
@@ -853,12 +859,50 @@ def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: "_St
                                                        f"{deaths[shot.name][0]})")
                 else:
                     queue.appendleft(shot)
+        if tail is not None:
+            yield from _tail_on_workers(tail(), workers, stop, wait)
     finally:
         for w in workers:
             if w.shot is not None:
                 w.proc.terminate()  # stopped: the shot unwinds and its temporary folder is removed
         for w in workers:
             w.stop(10.0)
+
+
+def _tail_on_workers(items, workers, stop, wait):
+    """Run ``(name, kind, args)`` items on idle live workers; yield their results (or an error marker)."""
+    import collections
+
+    items = collections.deque(items)
+    pending: dict = {}
+    while items or pending:
+        stop.check()
+        for w in workers:
+            if items and w not in pending and w.proc.is_alive():
+                name, kind, args = items.popleft()
+                w.shot = name
+                try:
+                    w.conn.send((kind, args))
+                except (OSError, ValueError):
+                    w.shot = None
+                    yield {"figure": name, "error": "the worker process is gone"}
+                    continue
+                pending[w] = name
+        if not pending:
+            break  # no live worker left
+        wait([w.conn for w in pending] + [w.proc.sentinel for w in pending], timeout=0.2)
+        for w, name in list(pending.items()):
+            try:
+                res = w.conn.recv() if w.conn.poll() else None
+            except (EOFError, OSError):
+                res = None
+            if res is None and w.proc.is_alive():
+                continue
+            del pending[w]
+            w.shot = None
+            yield res if res is not None else {"figure": name, "error": _death_cause(w.proc.exitcode)}
+    for name, _, _ in items:
+        yield {"figure": name, "error": "no worker process left"}
 
 
 # --------------------------------------------------------------------------- the campaign run
@@ -1266,15 +1310,37 @@ def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignRepor
 
     by_id = {r.id: r for r in todo}
     flow = tuple(campaign.flow_strains)
+    done_tables: dict = {}
+    figure_files = {name: out / FIGURES_DIR / name for name in CAMPAIGN_FIGURES}
+
+    def tables():
+        """Every shot is in: the campaign tables now; the figures to draw (on the warm workers, if any)."""
+        nonlocal changed
+        ordered = [outcomes[r.id] for r in campaign.rows]
+        table = _campaign_table(campaign, ordered, rows)
+        written, files_out = _write_tables(out, table, ordered, campaign)
+        changed |= written
+        done_tables.update(ordered=ordered, table=table, files=files_out)
+        if figures and (changed or not all(p.is_file() for p in figure_files.values())):
+            changed = True
+            return [(name, "figure", (name, campaign, table, curves)) for name in CAMPAIGN_FIGURES]
+        return []
+
+    drawn: dict = {}
     with _StopFlag() as stop:
         shots = [r.shot for r in todo]
         if client is not None:
             results = _dask_results(shots, client, figures, str(base_dir), flow, stop)
         else:
-            results = _local_results(shots, jobs, figures, str(base_dir), flow, stop)
+            results = _local_results(shots, jobs, figures, str(base_dir), flow, stop, tail=tables)
         try:
             for res in results:
                 stop.check()  # after a signal, results still coming in are dropped, not written
+                if "figure" in res:
+                    if "png" in res:
+                        atomic_write_bytes(figure_files[res["figure"]], res["png"])
+                        drawn[res["figure"]] = figure_files[res["figure"]]
+                    continue
                 row = by_id[res["id"]]
                 folder = shots_dir / row.id
                 if res["status"] == FAILED:
@@ -1289,21 +1355,20 @@ def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignRepor
             kept = sum(1 for o in outcomes.values() if o.status != FAILED)
             new = sum(1 for o in outcomes.values() if o.status != FAILED and not o.skipped)
             raise Interrupted(f"interrupted: {kept} of {total} shots have complete results in {out} ({new} "
-                              f"written by this run); the campaign tables were not written; rerun the same "
+                              f"written by this run); the campaign "
+                              f"{'figures' if done_tables else 'tables'} were not written; rerun the same "
                               f"command to complete the rest") from None
         finally:
             results.close()
 
-    ordered = [outcomes[r.id] for r in campaign.rows]
-    table = _campaign_table(campaign, ordered, rows)
-    written, files_out = _write_tables(out, table, ordered, campaign)
-    changed |= written
+    todo_figures = tables() if not done_tables else \
+        [(n, None, None) for n in CAMPAIGN_FIGURES if figures and n not in drawn and (changed or not
+                                                                                      figure_files[n].is_file())]
+    ordered, table, files_out = done_tables["ordered"], done_tables["table"], done_tables["files"]
+    for name, _, _ in todo_figures:  # in this process: one job, Dask, or a figure whose worker died
+        atomic_savefig(_DRAWINGS[name](campaign, table, curves), figure_files[name], dpi=110)
     if figures:
-        figs = {f"{name[:-4]}_png": out / FIGURES_DIR / name for name in CAMPAIGN_FIGURES}
-        if changed or not all(p.is_file() for p in figs.values()):
-            figs = campaign_figures(campaign, table, curves, out / FIGURES_DIR)
-            changed = True
-        files_out.update(figs)
+        files_out.update({f"{name[:-4]}_png": path for name, path in figure_files.items()})
     result = CampaignReport(campaign=campaign, out_dir=out, outcomes=ordered, table=table, files=files_out,
                             set_aside=set_aside, rewritten=changed)
     if not any(r.error for r in campaign.rows) and not any(o.stage in ("worker", "write") for o in ordered):
@@ -1595,6 +1660,21 @@ def plot_repeatability(campaign: Campaign, table: pd.DataFrame):
     return fig
 
 
+_DRAWINGS = {"stress_strain.png": lambda c, t, curves: plot_stress_strain(c, t, curves),
+             "rate_sensitivity.png": lambda c, t, curves: plot_rate_sensitivity(c, t),
+             "repeatability.png": lambda c, t, curves: plot_repeatability(c, t)}
+
+
+def _figure_task(name: str, campaign: Campaign, table: pd.DataFrame, curves: dict) -> dict:
+    """One campaign figure as PNG bytes (runs on a worker, never raising): ``{"figure", "png"}`` or ``"error"``."""
+    try:
+        buf = _io.BytesIO()
+        _DRAWINGS[name](campaign, table, curves).savefig(buf, format="png", dpi=110)
+        return {"figure": name, "png": buf.getvalue()}
+    except Exception as exc:  # noqa: BLE001 - the coordinator draws it again and reports a real error
+        return {"figure": name, "error": _one_line(exc)}
+
+
 def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, folder) -> dict:
     """Write the overlay figures of a campaign into ``folder`` (PNG, 110 dpi, each atomically).
 
@@ -1608,11 +1688,8 @@ def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, fold
         ``stress_strain_png``, ``rate_sensitivity_png``, ``repeatability_png`` -> Path.
     """
     folder = Path(folder)
-    drawings = {"stress_strain": lambda: plot_stress_strain(campaign, table, curves),
-                "rate_sensitivity": lambda: plot_rate_sensitivity(campaign, table),
-                "repeatability": lambda: plot_repeatability(campaign, table)}
     files = {}
-    for name, draw in drawings.items():  # one figure in memory at a time
-        files[f"{name}_png"] = folder / f"{name}.png"
-        atomic_savefig(draw(), files[f"{name}_png"], dpi=110)
+    for name, draw in _DRAWINGS.items():  # one figure in memory at a time
+        files[f"{name[:-4]}_png"] = folder / name
+        atomic_savefig(draw(campaign, table, curves), folder / name, dpi=110)
     return files
