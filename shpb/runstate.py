@@ -41,15 +41,12 @@ def slug(text: str) -> str:
     return s or "campaign"
 
 
-def sha256_file(path, chunk=1 << 20) -> str:
-    """SHA-256 of a file's content (hex)."""
+def sha256_file(path) -> str:
+    """SHA-256 of a file's content (hex); the same digest as :func:`shpb.io.sha256_file`, without numpy."""
     h = hashlib.sha256()
     with open(path, "rb") as fh:
-        while True:
-            b = fh.read(chunk)
-            if not b:
-                break
-            h.update(b)
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
     return h.hexdigest()
 
 

@@ -33,7 +33,10 @@ def _nothing_to_do(campaign: Path, out: Optional[Path], figure: bool):
     on this path: a rerun with nothing to do costs about what ``shpb --help``
     costs.
     """
-    import tomllib
+    try:
+        import tomllib
+    except ImportError:  # Python 3.10
+        import tomli as tomllib
 
     from .. import __version__
     from ..runstate import FolderLock, slug, unchanged
