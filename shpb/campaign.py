@@ -50,7 +50,7 @@ import pandas as pd
 from .errors import InputError, Interrupted, ShpbError
 from .runstate import MARKER_FILE, FolderLock, forget_state, input_hashes, slug as _slug, write_state
 from .reduce import ShotResult
-from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_text, sha256_file,
+from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_text, figure_bytes, sha256_file,
                  to_plain)
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
@@ -1668,9 +1668,7 @@ _DRAWINGS = {"stress_strain.png": lambda c, t, curves: plot_stress_strain(c, t, 
 def _figure_task(name: str, campaign: Campaign, table: pd.DataFrame, curves: dict) -> dict:
     """One campaign figure as PNG bytes (runs on a worker, never raising): ``{"figure", "png"}`` or ``"error"``."""
     try:
-        buf = _io.BytesIO()
-        _DRAWINGS[name](campaign, table, curves).savefig(buf, format="png", dpi=110)
-        return {"figure": name, "png": buf.getvalue()}
+        return {"figure": name, "png": figure_bytes(_DRAWINGS[name](campaign, table, curves), "png", dpi=110)}
     except Exception as exc:  # noqa: BLE001 - the coordinator draws it again and reports a real error
         return {"figure": name, "error": _one_line(exc)}
 

@@ -497,12 +497,16 @@ def atomic_write_csv(path, df, float_format="%.6g") -> None:
     atomic_write_text(path, buf.getvalue())
 
 
+def figure_bytes(fig, fmt: str = "png", **kwargs) -> bytes:
+    """A matplotlib figure rendered to bytes (e.g. on a worker process, for the coordinator to write)."""
+    buf = _io.BytesIO()
+    fig.savefig(buf, format=fmt, **kwargs)
+    return buf.getvalue()
+
+
 def atomic_savefig(fig, path, **kwargs) -> None:
     """Save a matplotlib figure atomically (format from the suffix)."""
-    buf = _io.BytesIO()
-    fmt = Path(path).suffix.lstrip(".") or "png"
-    fig.savefig(buf, format=fmt, **kwargs)
-    atomic_write_bytes(path, buf.getvalue())
+    atomic_write_bytes(path, figure_bytes(fig, Path(path).suffix.lstrip(".") or "png", **kwargs))
 
 
 _OMIT = object()  # marks a value to_plain leaves out
