@@ -36,8 +36,10 @@ import math
 import os
 import re
 import signal
+import sys
 import tempfile
 import threading
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Iterable, Optional
@@ -45,9 +47,10 @@ from typing import Any, Callable, Iterable, Optional
 import numpy as np
 import pandas as pd
 
-from .errors import InputError, ShpbError
+from .errors import InputError, Interrupted, ShpbError
+from .runstate import MARKER_FILE, FolderLock, forget_state, input_hashes, slug as _slug, write_state
 from .reduce import ShotResult
-from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_csv, atomic_write_text, sha256_file,
+from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_text, figure_bytes, sha256_file,
                  to_plain)
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
@@ -160,12 +163,6 @@ def shot_folders(out_dir) -> list:
     """The shot result folders of a campaign output folder (``<out>/shots/<id>/``), sorted by name."""
     shots = Path(out_dir) / SHOTS_DIR
     return sorted(p for p in shots.iterdir() if p.is_dir()) if shots.is_dir() else []
-
-
-def _slug(text: str) -> str:
-    """A folder name from free text: runs of characters other than letters, digits, ``._-`` become ``-``."""
-    s = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-.")
-    return s or "campaign"
 
 
 def _check_id(shot_id: str, where: str) -> None:
@@ -600,8 +597,8 @@ def shot_key(shot: Shot, record_hashes: dict, base_dir) -> str:
     base_dir = Path(base_dir)
     payload = {
         "package_version": _package_version(),
-        # where the setup was read from ("source") does not change the result; NaN kept as JSON's NaN
-        "setup": to_plain(shot, nonfinite="keep", path=lambda p: _rel(p, base_dir), skip_fields={"source"}),
+        # where the setup was read from ("source") and the sample ceiling do not change the result; NaN kept
+        "setup": to_plain(shot, nonfinite="keep", path=lambda p: _rel(p, base_dir), skip_fields={"source", "max_samples"}),
         "records": {_rel(p, base_dir): h for p, h in sorted(record_hashes.items())},
     }
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"), default=str)
@@ -667,7 +664,7 @@ def _reduce_task(shot, figures, base_dir, flow_strains):
     except Exception as exc:  # noqa: BLE001
         return _failed(shot.name, "reduce", _one_line(exc))
     try:
-        with tempfile.TemporaryDirectory(prefix="shpb-shot-", dir=_scratch_dir()) as tmp:
+        with tempfile.TemporaryDirectory(prefix=f"shpb-shot-{os.getpid()}-", dir=_scratch_dir()) as tmp:
             result.write(tmp, figure=figures)  # the figure sheet uses no pyplot: thread-safe
             files = {p.name: p.read_bytes() for p in Path(tmp).iterdir() if p.name in _SHOT_FILES}
         # the table row is made from the written bytes, exactly as a rerun reads them back from disk
@@ -684,23 +681,228 @@ def _reduce_task(shot, figures, base_dir, flow_strains):
             "files": files, "key": key, "row": row, "curve": curve}
 
 
-class _WorkerTerminated(ShpbError):
-    """A pool worker got SIGTERM during a shot: the shot stops (its temporary folder is cleaned) and fails."""
-
-
-_in_task = False  # True while a pool worker is inside reduce_task
+_in_task = False  # True while a worker process is inside reduce_task
 
 
 def _worker_terminated(signum, frame):
     if _in_task:
-        raise _WorkerTerminated("the worker process was terminated during this shot")
+        raise SystemExit(128 + signum)  # unwinds the shot: its temporary folder is removed on the way out
     os._exit(128 + signum)  # idle: nothing to clean up
 
 
-def _worker_init():
-    """Pool workers leave Ctrl-C to the coordinator (it stops the campaign between shots)."""
+def _set_parent_death_signal(sig) -> bool:
+    """Linux: have the kernel send ``sig`` to this process when the thread that created it ends.
+
+    ``prctl(PR_SET_PDEATHSIG)`` fires on the death of the creating *thread*;
+    the workers are started from the thread that runs the campaign, which
+    outlives them (they are shut down before :func:`run_campaign` returns).
+    """
+    if not sys.platform.startswith("linux"):
+        return False
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        return libc.prctl(1, int(sig), 0, 0, 0) == 0  # 1 = PR_SET_PDEATHSIG (linux/prctl.h)
+    except (OSError, AttributeError):
+        return False
+
+
+def _watch_parent(parent_pid: int, interval: float = 0.5) -> None:
+    """Everywhere (and behind the death signal): end this worker once its parent is gone."""
+    def watch():
+        while True:
+            time.sleep(interval)
+            if os.getppid() != parent_pid:
+                os.kill(os.getpid(), signal.SIGTERM)  # unwinds a running shot (its temporary folder goes)
+                time.sleep(5.0)
+                os._exit(1)
+
+    threading.Thread(target=watch, name="shpb-parent-watch", daemon=True).start()
+
+
+def _worker_init(parent_pid: int) -> None:
+    """A worker: Ctrl-C is the coordinator's to handle; it dies with the coordinator, however that dies."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, _worker_terminated)
+    _set_parent_death_signal(signal.SIGTERM)
+    if os.getppid() != parent_pid:  # the coordinator died before the death signal was armed
+        os._exit(1)
+    _watch_parent(parent_pid)
+
+
+def _worker_main(conn, parent_pid: int) -> None:
+    """A worker process: run the shots the coordinator sends over ``conn``, one at a time."""
+    _worker_init(parent_pid)
+    while True:
+        try:
+            msg = conn.recv()
+        except (EOFError, OSError):
+            os._exit(0)  # the coordinator closed the pipe
+        if msg is None:
+            os._exit(0)
+        kind, args = msg  # looked up by name here, at call time: "shot" or "figure"
+        res = (reduce_task if kind == "shot" else _figure_task)(*args)
+        try:
+            conn.send(res)
+        except (OSError, ValueError):
+            os._exit(0)
+
+
+def _death_cause(exitcode) -> str:
+    """What ended a worker process, in words."""
+    if exitcode is None:
+        return "the worker process stopped answering"
+    if exitcode < 0:
+        try:
+            name = signal.Signals(-exitcode).name
+        except ValueError:
+            name = f"signal {-exitcode}"
+        if -exitcode == signal.SIGKILL:
+            return f"the worker process was killed by {name} (the out-of-memory killer sends it, as does kill -9)"
+        return f"the worker process was ended by {name}"
+    return f"the worker process exited with status {exitcode}"
+
+
+class _Worker:
+    def __init__(self, ctx):
+        self.conn, child = ctx.Pipe(duplex=True)
+        self.proc = ctx.Process(target=_worker_main, args=(child, os.getpid()), name="shpb-worker", daemon=True)
+        self.proc.start()
+        child.close()
+        self.shot = None  # the shot it runs now
+
+    def stop(self, timeout: float) -> None:
+        if self.proc.is_alive():
+            try:
+                self.conn.send(None) if self.shot is None else self.proc.terminate()
+            except (OSError, ValueError):
+                self.proc.terminate()
+        self.proc.join(timeout)
+        if self.proc.is_alive():
+            self.proc.kill()
+            self.proc.join(5.0)
+        self.conn.close()
+        _clean_scratch(self.proc.pid)
+
+
+def _clean_scratch(pid) -> None:
+    """Remove the temporary folders a dead worker left (its shots' private copies)."""
+    import glob
+    import shutil
+
+    for d in glob.glob(os.path.join(_scratch_dir() or tempfile.gettempdir(), f"shpb-shot-{pid}-*")):
+        shutil.rmtree(d, ignore_errors=True)
+
+
+def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: "_StopFlag", tail=None):
+    """Yield task results as they complete, from worker processes (or in this process when jobs = 1).
+
+    Each worker has its own pipe, so the coordinator always knows which shot
+    each one runs. A worker that dies (killed, out of memory, crashed) is
+    replaced; its shot is given once more to a fresh worker, and a shot that
+    ends two workers is recorded as failed with the cause. The other shots
+    are not touched.
+
+    ``tail()``, called once every shot result has been taken, returns more
+    work for the same (warm) workers: ``(name, "figure", args)`` items whose
+    results are yielded too (the campaign figures). A tail item whose worker
+    dies is yielded as ``{"figure": name, "error": ...}``.
+    """
+    if jobs <= 1 or len(tasks) <= 1:
+        for shot in tasks:
+            stop.check()
+            yield reduce_task(shot, figures, base_dir, flow_strains)
+        return
+    import collections
+    import multiprocessing
+    from multiprocessing.connection import wait
+
+    ctx = multiprocessing.get_context()
+    queue = collections.deque(tasks)
+    deaths: dict = {}
+    workers: list = []
+    n = min(jobs, len(tasks))
+    try:
+        while queue or any(w.shot is not None for w in workers):
+            stop.check()
+            while queue and (len(workers) < n or any(w.shot is None for w in workers)):
+                w = next((w for w in workers if w.shot is None), None)
+                if w is None:
+                    w = _Worker(ctx)
+                    workers.append(w)
+                w.shot = queue.popleft()
+                w.conn.send(("shot", (w.shot, figures, base_dir, flow_strains)))
+            busy = [w for w in workers if w.shot is not None]
+            wait([w.conn for w in busy] + [w.proc.sentinel for w in busy], timeout=0.2)
+            for w in busy:
+                res = None
+                try:
+                    if w.conn.poll():
+                        res = w.conn.recv()
+                except (EOFError, OSError):
+                    res = None
+                if res is not None:
+                    w.shot = None
+                    yield res
+                    continue
+                if w.proc.is_alive():
+                    continue
+                # the worker died with a shot: replace it; the shot gets one more worker
+                shot, w.shot = w.shot, None
+                workers.remove(w)
+                w.stop(1.0)
+                cause = _death_cause(w.proc.exitcode)
+                deaths.setdefault(shot.name, []).append(cause)
+                if len(deaths[shot.name]) >= 2:
+                    yield _failed(shot.name, "worker", f"{cause}, twice on this shot (first: "
+                                                       f"{deaths[shot.name][0]})")
+                else:
+                    queue.appendleft(shot)
+        if tail is not None:
+            yield from _tail_on_workers(tail(), workers, stop, wait)
+    finally:
+        for w in workers:
+            if w.shot is not None:
+                w.proc.terminate()  # stopped: the shot unwinds and its temporary folder is removed
+        for w in workers:
+            w.stop(10.0)
+
+
+def _tail_on_workers(items, workers, stop, wait):
+    """Run ``(name, kind, args)`` items on idle live workers; yield their results (or an error marker)."""
+    import collections
+
+    items = collections.deque(items)
+    pending: dict = {}
+    while items or pending:
+        stop.check()
+        for w in workers:
+            if items and w not in pending and w.proc.is_alive():
+                name, kind, args = items.popleft()
+                w.shot = name
+                try:
+                    w.conn.send((kind, args))
+                except (OSError, ValueError):
+                    w.shot = None
+                    yield {"figure": name, "error": "the worker process is gone"}
+                    continue
+                pending[w] = name
+        if not pending:
+            break  # no live worker left
+        wait([w.conn for w in pending] + [w.proc.sentinel for w in pending], timeout=0.2)
+        for w, name in list(pending.items()):
+            try:
+                res = w.conn.recv() if w.conn.poll() else None
+            except (EOFError, OSError):
+                res = None
+            if res is None and w.proc.is_alive():
+                continue
+            del pending[w]
+            w.shot = None
+            yield res if res is not None else {"figure": name, "error": _death_cause(w.proc.exitcode)}
+    for name, _, _ in items:
+        yield {"figure": name, "error": "no worker process left"}
 
 
 # --------------------------------------------------------------------------- the campaign run
@@ -723,6 +925,9 @@ class ShotOutcome:
         One line (the error, or the error flags).
     skipped : bool
         True when the shot's outputs were up to date and were kept.
+    stale : bool
+        True when the shot's record cannot be read now and its last good
+        result was kept (``status`` is that result's).
     """
 
     id: str
@@ -731,6 +936,7 @@ class ShotOutcome:
     stage: str = ""
     reason: str = ""
     skipped: bool = False
+    stale: bool = False
 
 
 @dataclass
@@ -747,6 +953,12 @@ class CampaignReport:
         The campaign summary table (also written as CSV).
     files : dict
         Campaign-level output name -> path.
+    set_aside : list of Path
+        Shot folders of ids no longer in the shots table, moved out of
+        ``shots/`` by this run (not deleted).
+    rewritten : bool
+        False when the campaign tables and figures already described the
+        shot folders and were left alone.
     """
 
     campaign: Campaign
@@ -754,6 +966,8 @@ class CampaignReport:
     outcomes: list
     table: pd.DataFrame
     files: dict = field(default_factory=dict)
+    set_aside: list = field(default_factory=list)
+    rewritten: bool = True
 
     def _ids(self, pred):
         return [o.id for o in self.outcomes if pred(o)]
@@ -784,9 +998,31 @@ class CampaignReport:
         return self._ids(lambda o: not o.skipped)
 
     @property
+    def stale(self) -> list:
+        """Ids of shots whose record cannot be read now; their last good result was kept."""
+        return self._ids(lambda o: o.stale)
+
+    @property
     def exit_code(self) -> int:
-        """0 when every shot is valid, else 1."""
-        return 0 if all(o.status == OK for o in self.outcomes) else 1
+        """0 when every shot is valid and up to date, else 1."""
+        return 0 if all(o.status == OK and not o.stale for o in self.outcomes) else 1
+
+    def lines(self) -> list:
+        """What ``shpb batch`` prints at the end of a run."""
+        from .reduce import DESIGN_CAUTION
+
+        n = len(self.outcomes)
+        text = [f"campaign {self.campaign.name}: {len(self.ok)}/{n} shots valid, {len(self.invalid)} not valid, "
+                f"{len(self.failed)} failed ({len(self.skipped)} up to date, kept"
+                + (f"; {len(self.stale)} stale: record unreachable, last good result kept" if self.stale else "")
+                + ")"]
+        if self.set_aside:
+            text.append(f"moved aside (no longer in the shots table): {', '.join(p.name for p in self.set_aside)} "
+                        f"-> {self.set_aside[0].parent}")
+        text.append(f"written to {self.out_dir}" if self.rewritten else
+                    f"campaign files in {self.out_dir} already up to date (left as they were)")
+        text.append(f"note: {DESIGN_CAUTION}")
+        return text
 
 
 class _StopFlag:
@@ -814,7 +1050,7 @@ class _StopFlag:
 
     def check(self):
         if self.set:
-            raise KeyboardInterrupt("campaign interrupted")
+            raise KeyboardInterrupt
 
 
 def _remove_temporaries(out: Path) -> None:
@@ -859,44 +1095,45 @@ def _store(folder: Path, res: dict) -> None:
     atomic_write_text(key, res["key"] + "\n")
 
 
-def _discard(folder: Path) -> None:
-    """Remove a shot folder of ours whose result no longer stands (the shot now fails)."""
+def _discard(folder: Path) -> bool:
+    """Remove a shot folder of ours whose result no longer stands (the shot now fails); True if anything went."""
+    gone = False
     if folder.is_dir():
         if (folder / KEY_FILE).exists():
             (folder / KEY_FILE).unlink()
+            gone = True
         for name in _SHOT_FILES:
             if (folder / name).exists():
                 (folder / name).unlink()
+                gone = True
         try:
             folder.rmdir()
         except OSError:
             pass  # the user put other files there: leave them
+    return gone
 
 
-def _local_results(tasks, jobs: int, figures, base_dir, flow_strains, stop: _StopFlag):
-    """Yield task results as they complete, from a process pool (or in this process when jobs = 1)."""
-    if jobs <= 1 or len(tasks) <= 1:
-        for shot in tasks:
-            stop.check()
-            yield reduce_task(shot, figures, base_dir, flow_strains)
-        return
-    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
-    from concurrent.futures.process import BrokenProcessPool
+#: Folder of an output folder where shot folders of ids no longer in the table are moved.
+SET_ASIDE_DIR = "set-aside"
 
-    ex = ProcessPoolExecutor(max_workers=min(jobs, len(tasks)), initializer=_worker_init)
-    try:
-        pending = {ex.submit(reduce_task, shot, figures, base_dir, flow_strains): shot for shot in tasks}
-        while pending:
-            stop.check()
-            done, _ = wait(pending, timeout=0.2, return_when=FIRST_COMPLETED)
-            for fut in done:
-                shot = pending.pop(fut)
-                try:
-                    yield fut.result()
-                except BrokenProcessPool as exc:
-                    yield _failed(shot.name, "reduce", f"the worker process died ({exc})")
-    finally:
-        ex.shutdown(wait=True, cancel_futures=True)
+
+def _set_aside(out: Path, ids) -> list:
+    """Move the shot folders whose id is no longer in the table to ``set-aside/<date-time>/`` (never delete)."""
+    gone = [p for p in shot_folders(out) if p.name not in ids]
+    if not gone:
+        return []
+    dest = out / SET_ASIDE_DIR / time.strftime("%Y%m%d-%H%M%S")
+    k = 2
+    while dest.exists():
+        dest = dest.with_name(f"{dest.name.split('~')[0]}~{k}")
+        k += 1
+    dest.mkdir(parents=True)
+    moved = []
+    for p in gone:
+        target = dest / p.name
+        os.replace(p, target)
+        moved.append(target)
+    return moved
 
 
 def _dask_client(scheduler):
@@ -969,31 +1206,49 @@ def run_campaign(campaign: Campaign, out_dir=None, jobs: Optional[int] = None, f
 
     Raises
     ------
-    KeyboardInterrupt
-        On SIGINT or SIGTERM, after the running shots finish; shots written
-        so far are complete and a rerun keeps them.
+    shpb.errors.InputError
+        Another run is writing ``out_dir`` (its lock names the holder).
+    shpb.errors.Interrupted
+        On SIGINT or SIGTERM: the running shots are stopped, the shots
+        written so far are complete and a rerun keeps them; the message says
+        how many.
     """
     out = Path(out_dir) if out_dir is not None else campaign.default_out
     jobs = max(1, int(jobs or os.cpu_count() or 1))
     client, own_client = _dask_client(scheduler) if scheduler is not None else (None, False)
     try:
-        return _run(campaign, out, jobs, force, client, figures, progress)
+        out.mkdir(parents=True, exist_ok=True)
+        with FolderLock(out, f"shpb batch {campaign.path.name}"):
+            return _run(campaign, out, jobs, force, client, figures, progress)
     finally:
         if own_client:
             client.close()
 
 
+def _read_back(folder: Path, flow_strains):
+    """The table row and overlay curve of a complete shot folder (raises OSError/ValueError if unreadable)."""
+    summary = ShotResult.read_summary(folder)
+    cdf = pd.read_csv(folder / ShotResult.CURVES_FILE, usecols=list(_ROW_COLUMNS))
+    return summary, shot_row(summary, cdf, flow_strains), _overlay_curve(cdf)
+
+
+def _error_flags(summary: dict) -> str:
+    return "; ".join(f"{f['code']}: {f['message']}" for f in summary.get("flags", []) if f.get("severity") == "error")
+
+
+def _campaign_files(out: Path) -> list:
+    return [out / n for n in (SUMMARY_TABLE, SUMMARY_PARQUET, FAILURES_TABLE, REPEATABILITY_TABLE,
+                               *(f"{FIGURES_DIR}/{f}" for f in CAMPAIGN_FIGURES))]
+
+
 def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignReport:
-    """:func:`run_campaign` once the scheduler (if any) is connected."""
+    """:func:`run_campaign` with the folder locked and the scheduler (if any) connected."""
     shots_dir = out / SHOTS_DIR
     base_dir = campaign.base_dir.resolve()
-    out.mkdir(parents=True, exist_ok=True)
+    atomic_write_text(out / MARKER_FILE, "shpb campaign output folder\n")
     _remove_temporaries(out)
-    # campaign-level files are rewritten at the end; their presence means a finished run
-    for name in (SUMMARY_TABLE, SUMMARY_PARQUET, FAILURES_TABLE, REPEATABILITY_TABLE,
-                 *(f"{FIGURES_DIR}/{f}" for f in CAMPAIGN_FIGURES)):
-        if (out / name).exists():
-            (out / name).unlink()
+    set_aside = _set_aside(out, {r.id for r in campaign.rows})
+    changed = bool(set_aside)  # anything in the shot folders that the campaign files do not describe yet
 
     total = len(campaign.rows)
     outcomes: dict = {}
@@ -1012,40 +1267,80 @@ def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignRepor
         folder = shots_dir / row.id
         if row.error:
             if not row.id.startswith("line-"):
-                _discard(folder)  # an old result of this id no longer matches its row
+                changed |= _discard(folder)  # an old result of this id no longer matches its row
             outcomes[row.id] = ShotOutcome(row.id, row.line, FAILED, "setup", row.error)
             report(outcomes[row.id])
             continue
-        stored = None if force else _stored_key(folder, figures)
-        if stored is not None and stored == _current_key(row.shot, base_dir):
+        current = _current_key(row.shot, base_dir)
+        kept = _stored_key(folder, figures=False)
+        if current is None and kept is not None:
+            # the record cannot be read now (an unmounted share): the last good result stays, marked stale
             try:
-                summary = ShotResult.read_summary(folder)
-                cdf = pd.read_csv(folder / ShotResult.CURVES_FILE, usecols=list(_ROW_COLUMNS))
+                summary, rows[row.id], curves[row.id] = _read_back(folder, campaign.flow_strains)
+            except (OSError, ValueError):
+                todo.append(row)
+                continue
+            why = _unreachable(row.shot)
+            outcomes[row.id] = ShotOutcome(row.id, row.line, OK if summary.get("valid") else INVALID, "read",
+                                           f"{why}; the last good result is kept (stale)", skipped=True, stale=True)
+            report(outcomes[row.id])
+            continue
+        stored = None if force else _stored_key(folder, figures)
+        if stored is not None and stored == current:
+            try:
+                summary, rows[row.id], curves[row.id] = _read_back(folder, campaign.flow_strains)
             except (OSError, ValueError):  # InputError is a ValueError
                 todo.append(row)  # unreadable despite the key: redo it
                 continue
-            rows[row.id] = shot_row(summary, cdf, campaign.flow_strains)
-            curves[row.id] = _overlay_curve(cdf)
-            status = OK if summary.get("valid") else INVALID
-            reason = "; ".join(f"{f['code']}: {f['message']}" for f in summary.get("flags", [])
-                               if f.get("severity") == "error")
-            outcomes[row.id] = ShotOutcome(row.id, row.line, status, "validity" if reason else "", reason,
-                                           skipped=True)
+            reason = _error_flags(summary)
+            outcomes[row.id] = ShotOutcome(row.id, row.line, OK if summary.get("valid") else INVALID,
+                                           "validity" if reason else "", reason, skipped=True)
             report(outcomes[row.id])
             continue
         todo.append(row)
 
+    files = _campaign_files(out)
+    if todo or changed:
+        # the shot folders are about to change: no campaign file may describe them meanwhile
+        forget_state(out)
+        for f in files:
+            if f.exists():
+                f.unlink()
+        changed = True
+
     by_id = {r.id: r for r in todo}
     flow = tuple(campaign.flow_strains)
+    done_tables: dict = {}
+    figure_files = {name: out / FIGURES_DIR / name for name in CAMPAIGN_FIGURES}
+
+    def tables():
+        """Every shot is in: the campaign tables now; the figures to draw (on the warm workers, if any)."""
+        nonlocal changed
+        ordered = [outcomes[r.id] for r in campaign.rows]
+        table = _campaign_table(campaign, ordered, rows)
+        written, files_out = _write_tables(out, table, ordered, campaign)
+        changed |= written
+        done_tables.update(ordered=ordered, table=table, files=files_out)
+        if figures and (changed or not all(p.is_file() for p in figure_files.values())):
+            changed = True
+            return [(name, "figure", (name, campaign, table, curves)) for name in CAMPAIGN_FIGURES]
+        return []
+
+    drawn: dict = {}
     with _StopFlag() as stop:
         shots = [r.shot for r in todo]
         if client is not None:
             results = _dask_results(shots, client, figures, str(base_dir), flow, stop)
         else:
-            results = _local_results(shots, jobs, figures, str(base_dir), flow, stop)
+            results = _local_results(shots, jobs, figures, str(base_dir), flow, stop, tail=tables)
         try:
             for res in results:
                 stop.check()  # after a signal, results still coming in are dropped, not written
+                if "figure" in res:
+                    if "png" in res:
+                        atomic_write_bytes(figure_files[res["figure"]], res["png"])
+                        drawn[res["figure"]] = figure_files[res["figure"]]
+                    continue
                 row = by_id[res["id"]]
                 folder = shots_dir / row.id
                 if res["status"] == FAILED:
@@ -1056,15 +1351,70 @@ def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignRepor
                     curves[row.id] = res["curve"]
                 outcomes[row.id] = ShotOutcome(row.id, row.line, res["status"], res["stage"], res["reason"])
                 report(outcomes[row.id])
+        except KeyboardInterrupt:
+            kept = sum(1 for o in outcomes.values() if o.status != FAILED)
+            new = sum(1 for o in outcomes.values() if o.status != FAILED and not o.skipped)
+            raise Interrupted(f"interrupted: {kept} of {total} shots have complete results in {out} ({new} "
+                              f"written by this run); the campaign "
+                              f"{'figures' if done_tables else 'tables'} were not written; rerun the same "
+                              f"command to complete the rest") from None
         finally:
             results.close()
 
-    ordered = [outcomes[r.id] for r in campaign.rows]
-    table = _campaign_table(campaign, ordered, rows)
-    files = _write_tables(out, table, ordered, campaign)
+    todo_figures = tables() if not done_tables else \
+        [(n, None, None) for n in CAMPAIGN_FIGURES if figures and n not in drawn and (changed or not
+                                                                                      figure_files[n].is_file())]
+    ordered, table, files_out = done_tables["ordered"], done_tables["table"], done_tables["files"]
+    for name, _, _ in todo_figures:  # in this process: one job, Dask, or a figure whose worker died
+        atomic_savefig(_DRAWINGS[name](campaign, table, curves), figure_files[name], dpi=110)
     if figures:
-        files.update(campaign_figures(campaign, table, curves, out / FIGURES_DIR))
-    return CampaignReport(campaign=campaign, out_dir=out, outcomes=ordered, table=table, files=files)
+        files_out.update({f"{name[:-4]}_png": path for name, path in figure_files.items()})
+    result = CampaignReport(campaign=campaign, out_dir=out, outcomes=ordered, table=table, files=files_out,
+                            set_aside=set_aside, rewritten=changed)
+    if not any(r.error for r in campaign.rows) and not any(o.stage in ("worker", "write") for o in ordered):
+        # every input is known and no failure was the machine's: a rerun with the same inputs has nothing to do
+        _remember(out, campaign, figures, result)
+    return result
+
+
+def _unreachable(shot: Shot) -> str:
+    """Why a shot's record cannot be read now (one line)."""
+    for f in record_files(shot):
+        try:
+            with open(f, "rb"):
+                pass
+        except OSError as exc:
+            return f"record {f}: {exc.strerror or type(exc).__name__}"
+    return "record unreachable"
+
+
+def _input_files(campaign: Campaign) -> list:
+    """Every file the campaign's results depend on: campaign file, table, bar sets, calibration files, records."""
+    files = {campaign.path, campaign.shots_path}
+    for row in campaign.rows:
+        if row.shot is None:
+            continue
+        bs = row.shot.barset
+        if bs.source:
+            files.add(Path(bs.source).absolute())
+            cal = bs.calibration.get("file") if bs.calibration else None
+            if cal:
+                files.add((Path(bs.source).parent / cal).absolute())
+        files.update(Path(f).absolute() for f in record_files(row.shot))
+    return sorted(files)
+
+
+def _remember(out: Path, campaign: Campaign, figures: bool, report: CampaignReport) -> None:
+    outputs = [p for p in _campaign_files(out) if p.is_file()] + [out / MARKER_FILE]
+    for folder in shot_folders(out):
+        outputs += [p for p in folder.iterdir() if p.is_file()]
+    lines = [ln.replace(" up to date, kept", " up to date, kept; nothing to do") if i == 0 else ln
+             for i, ln in enumerate(report.lines())]
+    lines = [ln for ln in lines if not ln.startswith("moved aside")]
+    lines = [f"campaign files in {out} already up to date (left as they were)" if ln.startswith("written to")
+             else ln for ln in lines]
+    write_state(out, version=_package_version(), figures=figures, inputs=input_hashes(_input_files(campaign)),
+                outputs=outputs, lines=lines, exit_code=report.exit_code)
 
 
 # --------------------------------------------------------------------------- campaign outputs
@@ -1098,7 +1448,8 @@ def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
             if c != "temperature_K":
                 rec[c] = data.get(c, float("nan"))
         rec.update({"flags": data["flags"], "valid": bool(data["valid"]) and o.status == OK,
-                    "calibration": data["calibration"], "stage": o.stage, "reason": o.reason})
+                    "calibration": data["calibration"], "stage": o.stage, "reason": o.reason,
+                    "stale": o.stale, **_record_paths(crow, campaign.base_dir)})
         records.append(rec)
     table = pd.DataFrame.from_records(records)
     table["rate_group"] = rate_groups(table["mean_strain_rate_per_s"].where(table["status"] == OK),
@@ -1106,29 +1457,64 @@ def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
     return table
 
 
-def _write_tables(out: Path, table: pd.DataFrame, outcomes, campaign: Campaign) -> dict:
-    files = {}
-    atomic_write_csv(out / SUMMARY_TABLE, table)
-    files["summary_csv"] = out / SUMMARY_TABLE
-    buf = _io.BytesIO()
-    t = table.copy()
-    for c in campaign.tag_columns:
-        t[c] = t[c].astype(str)
+def _record_paths(row: CampaignRow, base_dir: Path) -> dict:
+    """``record_file`` (absolute, resolved) and ``record_file_relative`` (to the campaign file) of a row.
+
+    Two files (one per channel) are joined with ``;``; empty for a row that
+    could not be built.
+    """
+    if row.shot is None:
+        return {"record_file": "", "record_file_relative": ""}
+    files = [Path(f).resolve() for f in record_files(row.shot)]
+    return {"record_file": ";".join(str(f) for f in files),
+            "record_file_relative": ";".join(_rel(f, base_dir.resolve()) for f in files)}
+
+
+def _csv_bytes(df: pd.DataFrame) -> bytes:
+    buf = _io.StringIO()
+    df.to_csv(buf, index=False, float_format="%.6g")
+    return buf.getvalue().encode("utf-8")
+
+
+def _write_if_changed(path: Path, data: bytes) -> bool:
+    """Write ``data`` atomically unless the file already holds exactly it; True when written."""
     try:
-        t.to_parquet(buf, index=False)
-    except ImportError:
-        pass  # no parquet engine (pyarrow) installed: the CSV table only
-    else:
-        atomic_write_bytes(out / SUMMARY_PARQUET, buf.getvalue())
-        files["summary_parquet"] = out / SUMMARY_PARQUET
+        if path.read_bytes() == data:
+            return False
+    except OSError:
+        pass
+    atomic_write_bytes(path, data)
+    return True
+
+
+def _write_tables(out: Path, table: pd.DataFrame, outcomes, campaign: Campaign):
+    """The campaign tables; files that already hold the same bytes are left alone. Returns (any written, files)."""
+    files = {"summary_csv": out / SUMMARY_TABLE, "failures_csv": out / FAILURES_TABLE,
+             "repeatability_csv": out / REPEATABILITY_TABLE}
     fails = pd.DataFrame([{"id": o.id, "line": o.line, "status": o.status, "stage": o.stage, "reason": o.reason}
-                          for o in outcomes if o.status != OK], columns=["id", "line", "status", "stage", "reason"])
-    atomic_write_csv(out / FAILURES_TABLE, fails)
-    files["failures_csv"] = out / FAILURES_TABLE
+                          for o in outcomes if o.status != OK or o.stale],
+                         columns=["id", "line", "status", "stage", "reason"])
     rep = repeatability_table(table, campaign.rate_plot_strain)
-    atomic_write_csv(out / REPEATABILITY_TABLE, rep)
-    files["repeatability_csv"] = out / REPEATABILITY_TABLE
-    return files
+    written = False
+    for name, df in (("failures_csv", fails), ("repeatability_csv", rep)):
+        written |= _write_if_changed(files[name], _csv_bytes(df))
+    summary = _csv_bytes(table)
+    parquet = out / SUMMARY_PARQUET
+    if _write_if_changed(files["summary_csv"], summary) or not parquet.is_file():
+        written = True
+        buf = _io.BytesIO()
+        t = table.copy()
+        for c in campaign.tag_columns:
+            t[c] = t[c].astype(str)
+        try:
+            t.to_parquet(buf, index=False)
+        except ImportError:
+            pass  # no parquet engine (pyarrow) installed: the CSV table only
+        else:
+            atomic_write_bytes(parquet, buf.getvalue())
+    if parquet.is_file():
+        files["summary_parquet"] = parquet
+    return written, files
 
 
 def repeatability_table(table: pd.DataFrame, strain: float) -> pd.DataFrame:
@@ -1274,6 +1660,19 @@ def plot_repeatability(campaign: Campaign, table: pd.DataFrame):
     return fig
 
 
+_DRAWINGS = {"stress_strain.png": lambda c, t, curves: plot_stress_strain(c, t, curves),
+             "rate_sensitivity.png": lambda c, t, curves: plot_rate_sensitivity(c, t),
+             "repeatability.png": lambda c, t, curves: plot_repeatability(c, t)}
+
+
+def _figure_task(name: str, campaign: Campaign, table: pd.DataFrame, curves: dict) -> dict:
+    """One campaign figure as PNG bytes (runs on a worker, never raising): ``{"figure", "png"}`` or ``"error"``."""
+    try:
+        return {"figure": name, "png": figure_bytes(_DRAWINGS[name](campaign, table, curves), "png", dpi=110)}
+    except Exception as exc:  # noqa: BLE001 - the coordinator draws it again and reports a real error
+        return {"figure": name, "error": _one_line(exc)}
+
+
 def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, folder) -> dict:
     """Write the overlay figures of a campaign into ``folder`` (PNG, 110 dpi, each atomically).
 
@@ -1287,11 +1686,8 @@ def campaign_figures(campaign: Campaign, table: pd.DataFrame, curves: dict, fold
         ``stress_strain_png``, ``rate_sensitivity_png``, ``repeatability_png`` -> Path.
     """
     folder = Path(folder)
-    drawings = {"stress_strain": lambda: plot_stress_strain(campaign, table, curves),
-                "rate_sensitivity": lambda: plot_rate_sensitivity(campaign, table),
-                "repeatability": lambda: plot_repeatability(campaign, table)}
     files = {}
-    for name, draw in drawings.items():  # one figure in memory at a time
-        files[f"{name}_png"] = folder / f"{name}.png"
-        atomic_savefig(draw(), files[f"{name}_png"], dpi=110)
+    for name, draw in _DRAWINGS.items():  # one figure in memory at a time
+        files[f"{name[:-4]}_png"] = folder / name
+        atomic_savefig(draw(campaign, table, curves), folder / name, dpi=110)
     return files

@@ -26,3 +26,19 @@ class InputError(ShpbError, ValueError):
 
 class AnalysisError(ShpbError):
     """The data were read but cannot be reduced (e.g. no pulse found)."""
+
+
+class Interrupted(KeyboardInterrupt):
+    """A run stopped by SIGINT or SIGTERM; the message says what was finished.
+
+    A subclass of :class:`KeyboardInterrupt`, so code that stops on Ctrl-C
+    stops on it too. The CLI prints the message and exits with status 130.
+    """
+
+
+#: Exit statuses of every ``shpb`` command (README "Exit status"); the CLI is their only user.
+EXIT_VALID = 0
+EXIT_NOT_VALID = 1
+EXIT_INPUT = 2
+EXIT_INTERNAL = 3
+EXIT_INTERRUPTED = 130

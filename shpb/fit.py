@@ -616,6 +616,43 @@ def _shot_folders(path: Path):
     )
 
 
+def incomplete_reason(folder: Path):
+    """Why a shot result folder is not a complete result, or None when it is.
+
+    A folder of a campaign output (``OUT/shots/<id>/`` beside the campaign
+    marker file) is complete when its key file ``inputs.sha256`` is there
+    (written last) and, when the campaign summary is present, that summary
+    lists it as reduced. A folder of ``shpb reduce`` is complete when its
+    ``summary.json`` is there (written last).
+    """
+    from .campaign import FAILED, KEY_FILE, SHOTS_DIR, SUMMARY_TABLE
+    from .runstate import MARKER_FILE
+
+    folder = Path(folder)
+    if not (folder / ShotResult.SUMMARY_FILE).is_file():
+        return f"no {ShotResult.SUMMARY_FILE} (written last): the result is incomplete"
+    out = folder.parent.parent
+    if folder.parent.name != SHOTS_DIR or not (out / MARKER_FILE).is_file():
+        return None
+    if not (folder / KEY_FILE).is_file():
+        return f"no {KEY_FILE} (a campaign shot folder's completion key, written last): the result is incomplete"
+    table = out / SUMMARY_TABLE
+    if table.is_file():
+        status = _campaign_status(table).get(folder.name)
+        if status is None:
+            return f"not in {table} (the campaign's table does not list this shot)"
+        if status == FAILED:
+            return f"{table} says this shot failed"
+    return None
+
+
+def _campaign_status(table: Path) -> dict:
+    import csv
+
+    with open(table, newline="", encoding="utf-8") as fh:
+        return {row.get("id"): row.get("status") for row in csv.DictReader(fh)}
+
+
 def _check_consistency(curves, levels, allow_mixed_materials):
     """Mixed units and mixed materials across curves -> InputError.
 
@@ -653,6 +690,7 @@ def load_curves(
     grid_step=GRID_STEP,
     include_invalid_shots=False,
     allow_mixed_materials=False,
+    include_incomplete=False,
 ):
     """Load reduced shots (and reference curves) as plastic-strain flow curves.
 
@@ -679,6 +717,9 @@ def load_curves(
         rows only).
     allow_mixed_materials : bool
         Do not refuse curves of different materials.
+    include_incomplete : bool
+        Also use shot folders that are not complete results
+        (:func:`incomplete_reason`); each is named in ``.notes``.
 
     Returns
     -------
@@ -705,6 +746,12 @@ def load_curves(
             if not (folder / ShotResult.CURVES_FILE).is_file():
                 notes.append(f"{folder.name}: no {ShotResult.CURVES_FILE} in {folder}; skipped")
                 continue
+            why = incomplete_reason(folder)
+            if why is not None:
+                if not include_incomplete:
+                    raise InputError(f"not a complete result: {why} (--include-incomplete uses it anyway)",
+                                     str(folder))
+                notes.append(f"{folder.name}: used although {why}")
             js = folder / ShotResult.SUMMARY_FILE
             if js.is_file() and not include_invalid_shots:
                 if ShotResult.read_summary(folder).get("valid", True) is False:

@@ -267,6 +267,113 @@ class _Cache:
         return _check_finite(cols[i], names[i], first, path)
 
 
+# --------------------------------------------------------------------------- plausibility before allocation
+#: Default ceiling on samples per channel (``[record] max_samples`` raises it): about 160 MB a channel read.
+MAX_SAMPLES = 20_000_000
+
+
+def _npz_length(path: Path, key) -> int:
+    """Samples of one array of a .npz archive, from its header (nothing loaded)."""
+    import zipfile
+
+    with zipfile.ZipFile(path) as z, z.open(f"{key}.npy") as fh:
+        version = np.lib.format.read_magic(fh)
+        shape = (np.lib.format.read_array_header_1_0(fh) if version == (1, 0)
+                 else np.lib.format.read_array_header_2_0(fh))[0]
+    return int(np.prod(shape)) if shape else 1
+
+
+def _text_length(path: Path, sample_bytes: int = 1 << 16) -> int:
+    """Rows of a delimited text file, estimated from its size and the length of its first lines."""
+    size = path.stat().st_size
+    with open(path, "rb") as fh:
+        head = fh.read(sample_bytes)
+    lines = head.splitlines()[:-1] or head.splitlines()
+    body = lines[len(lines) // 2:] or lines  # the second half: data rows, past any header
+    per_line = max(1.0, sum(len(x) + 1 for x in body) / max(1, len(body)))
+    return int(size / per_line)
+
+
+def check_record_size(spec) -> None:
+    """Refuse, before reading it, a record with more samples per channel than the ceiling.
+
+    The ceiling is ``spec.max_samples`` (the ``[record]`` key ``max_samples``,
+    default :data:`MAX_SAMPLES`); text files are measured from their size and
+    the length of their first lines, ``.npz`` arrays from their headers.
+
+    Raises
+    ------
+    InputError
+        Naming the file and the key ``record.max_samples``.
+    """
+    limit = int(getattr(spec, "max_samples", None) or MAX_SAMPLES)
+    for ch in (spec.incident, spec.transmitted):
+        path = Path(ch.file)
+        if not path.is_file():
+            continue  # the reader says so
+        try:
+            n = _npz_length(path, ch.column) if path.suffix.lower() == ".npz" else _text_length(path)
+        except (OSError, KeyError, ValueError, EOFError, __import__("zipfile").BadZipFile):
+            continue  # unreadable here: the reader gives the precise message
+        if n > 1.05 * limit:
+            raise InputError(f"about {n:,} samples per channel, over the ceiling of {limit:,} (raise it with "
+                             f"record.max_samples if the record is meant to be this long)", str(path))
+
+
+def check_time_base(record: "Record", shot) -> None:
+    """Check a record's time base against the bars before anything sized by it is allocated.
+
+    A unit typo (a time column in seconds read as microseconds, a sample
+    interval in ns for us) makes the sample interval wrong by a factor of
+    1000 or more. The reduction sizes its arrays by the bars' transit times
+    and the pulse length divided by the sample interval, so the interval is
+    checked against them first:
+
+    * the shortest of the incident pulse (2 L / c of the striker, or the
+      analysis ``window_length``) and the incident wave's round trip from its
+      gauge to the specimen (2 d / c0) must span at least 8 samples;
+    * the span the reduction works on (that round trip, the transmitted
+      gauge's transit and the pulse) must fit within ``record.max_samples``
+      samples;
+    * the record must last at least a tenth of that shortest time.
+
+    Raises
+    ------
+    InputError
+        One line naming the unit key (``record.time_unit`` for a time column,
+        else ``record.sample_interval``) and the times compared.
+    """
+    spec, bs = shot.record, shot.barset
+    if bs is None:
+        return
+    key = "time_unit" if spec is not None and spec.time is not None else "sample_interval"
+    where = f"{shot.source or shot.name}: record.{key}"
+    if spec is not None:
+        where += f" (record {Path(spec.incident.file).name})"
+    dt, n = float(record.dt), int(record.incident.size)
+    c_i, c_t = bs.incident.wave_speed, bs.transmitted.wave_speed
+    round_trip = 2.0 * bs.incident_gauge.distance / c_i
+    pulse = bs.striker.pulse_duration if bs.striker is not None else shot.analysis.window_length
+    scales = [("the incident wave's round trip from its gauge to the specimen", round_trip)]
+    if pulse:
+        scales.append(("the incident pulse", float(pulse)))
+    name, shortest = min(scales, key=lambda x: x[1])
+    limit = int(getattr(spec, "max_samples", None) or MAX_SAMPLES)
+    hint = f"is record.{key} right?"
+    if shortest / dt < 8:
+        raise InputError(f"a sample interval of {dt:.4g} s gives {shortest / dt:.2g} samples over {name} "
+                         f"({shortest * 1e6:.0f} us); a bar record has hundreds; {hint}", where)
+    span = round_trip + bs.transmitted_gauge.distance / c_t + bs.incident_gauge.distance / c_i + (pulse or
+                                                                                                    round_trip)
+    if span / dt > limit:
+        raise InputError(f"a sample interval of {dt:.4g} s would take {span / dt:.3g} samples a channel to hold "
+                         f"the waves (~{span * 1e6:.0f} us), over the ceiling of {limit:,} (record.max_samples); "
+                         f"{hint}", where)
+    if n * dt < 0.1 * shortest:
+        raise InputError(f"the record lasts {n * dt * 1e6:.3g} us ({n} samples of {dt:.4g} s), far shorter than "
+                         f"{name} ({shortest * 1e6:.0f} us); {hint}", where)
+
+
 def read_record(spec) -> Record:
     """Read the channels named by a :class:`shpb.setup.RecordSpec`.
 
@@ -274,9 +381,12 @@ def read_record(spec) -> Record:
     ------
     InputError
         Unreadable file, unknown column, channels of unequal length,
-        non-monotonic or non-uniform time, NaN.
+        non-monotonic or non-uniform time, NaN, more samples than the
+        ceiling (:func:`check_record_size`).
     """
     from concurrent.futures import ThreadPoolExecutor
+
+    check_record_size(spec)
 
     # hash the files on a second thread while they are parsed (hashlib releases the GIL)
     paths = sorted({spec.incident.file, spec.transmitted.file}, key=str)
@@ -387,12 +497,16 @@ def atomic_write_csv(path, df, float_format="%.6g") -> None:
     atomic_write_text(path, buf.getvalue())
 
 
+def figure_bytes(fig, fmt: str = "png", **kwargs) -> bytes:
+    """A matplotlib figure rendered to bytes (e.g. on a worker process, for the coordinator to write)."""
+    buf = _io.BytesIO()
+    fig.savefig(buf, format=fmt, **kwargs)
+    return buf.getvalue()
+
+
 def atomic_savefig(fig, path, **kwargs) -> None:
     """Save a matplotlib figure atomically (format from the suffix)."""
-    buf = _io.BytesIO()
-    fmt = Path(path).suffix.lstrip(".") or "png"
-    fig.savefig(buf, format=fmt, **kwargs)
-    atomic_write_bytes(path, buf.getvalue())
+    atomic_write_bytes(path, figure_bytes(fig, Path(path).suffix.lstrip(".") or "png", **kwargs))
 
 
 _OMIT = object()  # marks a value to_plain leaves out

@@ -226,8 +226,9 @@ def carry_wave(channel: ArrayLike, dt: float, start: float, stop: float, travel_
     plain = delay(seg, dt, travel_time)
     moved = plain if mover is None else mover(seg)
     full, full_plain = np.zeros(n), np.zeros(n)
-    full[lo:hi] = moved[lo - a : hi - a]
-    full_plain[lo:hi] = plain[lo - a : hi - a]
+    if hi > lo:  # a window wholly outside the record carries nothing (the verdict flags it)
+        full[lo:hi] = moved[lo - a : hi - a]
+        full_plain[lo:hi] = plain[lo - a : hi - a]
     return full, full_plain
 
 

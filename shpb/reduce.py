@@ -24,7 +24,7 @@ import pandas as pd
 
 from . import __version__, kolsky, pulses, validity
 from .errors import AnalysisError, InputError
-from .io import Record, atomic_write_csv, atomic_write_json, read_record
+from .io import Record, atomic_write_csv, atomic_write_json, check_time_base, read_record
 from .setup import Bar, Gauge, Shot
 from .validity import Flag
 
@@ -179,6 +179,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
             if shot.record is None:
                 raise InputError("no record: give the shot a [record] table or pass a Record", "record")
             record = read_record(shot.record)
+        check_time_base(record, shot)  # a unit typo is refused before the stages size anything by it
         strains = pulses.condition_record(record, bs, opt)
         plan = pulses.plan_analysis(strains, bs, opt)
         waves = pulses.waves_at_faces(strains, plan, bs, opt)
@@ -221,7 +222,7 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
         "results": results,
         "flags": [f.as_dict() for f in v.flags],
         "inputs": _inputs(shot),
-        "records": st.record.files,
+        "records": {_resolved(k): v for k, v in st.record.files.items()},
         "provenance": provenance,
         "columns": COLUMN_NOTES,
         "caution": DESIGN_CAUTION,
@@ -283,8 +284,13 @@ def _speed_source(barset, which) -> str:
     return "measured (bar set)" if getattr(barset, which).measured_wave_speed else "sqrt(E/rho)"
 
 
+def _resolved(path) -> Optional[str]:
+    """An input path as the summary gives it: absolute, symbolic links resolved (None stays None)."""
+    return None if path is None else str(Path(path).resolve())
+
+
 def _inputs(shot: Shot) -> dict:
-    """The resolved setup, SI, for the summary."""
+    """The resolved setup, SI, for the summary; every input path absolute and resolved."""
     bs = shot.barset
 
     def bar(b: Bar, g: Gauge):
@@ -294,18 +300,27 @@ def _inputs(shot: Shot) -> dict:
 
     sp = shot.specimen
     return {
-        "barset": {"name": bs.name, "source": bs.source, "calibration": bs.calibration,
+        "barset": {"name": bs.name, "source": _source(bs.source), "calibration": bs.calibration,
                    "incident": bar(bs.incident, bs.incident_gauge),
                    "transmitted": bar(bs.transmitted, bs.transmitted_gauge),
                    "striker": (asdict(bs.striker) if bs.striker else None)},
         "specimen": {"length_m": sp.length, "diameter_m": sp.diameter, "material": sp.material,
                      "temperature_K": sp.temperature, "modulus_Pa": sp.modulus, "density_kg_per_m3": sp.density},
         "record": None if shot.record is None else {
-            "incident": str(shot.record.incident.file), "incident_column": shot.record.incident.column,
-            "transmitted": str(shot.record.transmitted.file), "transmitted_column": shot.record.transmitted.column},
+            "incident": _resolved(shot.record.incident.file), "incident_column": shot.record.incident.column,
+            "transmitted": _resolved(shot.record.transmitted.file),
+            "transmitted_column": shot.record.transmitted.column},
         "analysis": asdict(shot.analysis),
-        "source": shot.source,
+        "source": _source(shot.source),
     }
+
+
+def _source(source):
+    """A shot file's path, absolute and resolved; a campaign row's name (``shots.csv line 3 (shot X)``) as it is."""
+    if source is None:
+        return None
+    p = Path(str(source))
+    return str(p.resolve()) if p.suffix.lower() == ".toml" and p.exists() else str(source)
 
 
 def reduce_file(shot_path, out_dir=None, figure=True, **analysis_changes) -> ShotResult:

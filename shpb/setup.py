@@ -246,6 +246,9 @@ class RecordSpec:
         Seconds per unit of the time column [s].
     sample_interval : float or None
         Sample interval [s] when there is no time column.
+    max_samples : int or None
+        Ceiling on samples per channel [default: ``shpb.io.MAX_SAMPLES``];
+        a longer record is refused before it is read.
     """
 
     incident: Channel
@@ -253,6 +256,7 @@ class RecordSpec:
     time: Union[str, int, None] = None
     time_unit: float = 1.0
     sample_interval: Optional[float] = None
+    max_samples: Optional[int] = None
 
 
 @dataclass(frozen=True)
@@ -375,6 +379,8 @@ class _Table:
 def read_toml(path) -> dict:
     """Read a TOML file; a missing or malformed file is an :class:`InputError`."""
     path = Path(path)
+    if path.is_dir():
+        raise InputError("is a folder; expected a TOML file", str(path))
     if not path.is_file():
         raise InputError("file not found", str(path))
     try:
@@ -382,6 +388,8 @@ def read_toml(path) -> dict:
             return tomllib.load(fh)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML ({exc})", str(path)) from None
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", str(path)) from None
 
 
 _MATERIAL_KEYS = {"name", "modulus", "density", "poisson_ratio", "yield_strength"}
@@ -573,7 +581,7 @@ def _channel(value, common_file, base_dir: Path, where: str) -> Channel:
 def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
     """A :class:`RecordSpec` from the ``[record]`` mapping; paths relative to ``base_dir``."""
     t = _Table(data, where)
-    t.check_keys({"file", "incident", "transmitted", "time", "time_unit", "sample_interval"})
+    t.check_keys({"file", "incident", "transmitted", "time", "time_unit", "sample_interval", "max_samples"})
     common = data.get("file")
     for key in ("incident", "transmitted"):
         if key not in data:
@@ -584,12 +592,23 @@ def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
         raise InputError("give either 'time' (a time column) or 'sample_interval'", where)
     unit = data.get("time_unit", "s")
     time_unit = to_si(f"1 {unit}" if isinstance(unit, str) else unit, "time", f"{where}.time_unit")
+    if not 0 < time_unit < math.inf:
+        raise InputError(f"expected a positive time unit (s, ms, us, ns), got {unit!r}", f"{where}.time_unit")
+    if dt is not None and not 0 < dt < math.inf:
+        raise InputError(f"expected a positive sample interval, got {data.get('sample_interval')!r}",
+                         f"{where}.sample_interval")
+    max_samples = data.get("max_samples")
+    if max_samples is not None and (isinstance(max_samples, bool) or not isinstance(max_samples, int)
+                                    or max_samples < 16):
+        raise InputError(f"expected a whole number of samples (at least 16), got {max_samples!r}",
+                         f"{where}.max_samples")
     return RecordSpec(
         incident=_channel(data["incident"], common, base_dir, f"{where}.incident"),
         transmitted=_channel(data["transmitted"], common, base_dir, f"{where}.transmitted"),
         time=time,
         time_unit=time_unit,
         sample_interval=dt,
+        max_samples=max_samples,
     )
 
 
@@ -624,8 +643,10 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
     top = _Table(data, f"{source}:")
     top.check_keys({"name", "barset", "specimen", "record", "analysis"})
     if "barset" in data:
-        bs_path = base_dir / top.string("barset")
-        barset = load_barset(bs_path)
+        name = top.string("barset")
+        if not name.strip():
+            raise InputError("expected the path of a bar set file, got an empty string", f"{source}: barset")
+        barset = load_barset(base_dir / name)
     elif barset is None:
         raise InputError("missing key 'barset' (path of the bar set file)", source)
     specimen = specimen_from_dict(top.table("specimen").data, f"{source}: specimen")

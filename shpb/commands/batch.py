@@ -2,40 +2,59 @@
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 from typing import Optional
 
 import typer
 
-from .common import INTEGER, Command, figure_switch, out_option
+from .common import INTEGER, Command, Progress, check_out_dir, figure_switch, out_option, quiet_option
 
 
-class _Progress:
-    """``12/40 shots`` on stderr, updated in place on a terminal; one line per shot that is not valid."""
+class _ShotProgress:
+    """``progress(done, total, outcome)`` for :func:`shpb.campaign.run_campaign`: the count, and one line per shot
+    that is not valid or failed."""
 
-    def __init__(self, stream=None):
-        self.stream = stream or sys.stderr
-        self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
-        self.width = 0
-
-    def _clear(self):
-        if self.tty and self.width:
-            self.stream.write("\r" + " " * self.width + "\r")
+    def __init__(self, progress: Progress):
+        self.progress = progress
 
     def __call__(self, done, total, outcome):
-        if outcome.status != "ok":
-            self._clear()
+        if outcome.stale:
+            self.progress.note(f"shot {outcome.id}: stale: {outcome.reason}")
+        elif outcome.status != "ok":
             what = "not valid" if outcome.status == "invalid" else f"failed ({outcome.stage})"
-            self.stream.write(f"shot {outcome.id}: {what}: {outcome.reason}\n")
-        if self.tty:
-            text = f"{done}/{total} shots"
-            self.stream.write("\r" + text)
-            self.width = len(text)
-            if done == total:
-                self.stream.write("\n")
-                self.width = 0
-        self.stream.flush()
+            self.progress.note(f"shot {outcome.id}: {what}: {outcome.reason}")
+        self.progress.update(done, total)
+
+
+def _nothing_to_do(campaign: Path, out: Optional[Path], figure: bool):
+    """The record of the last complete run into the output folder, when it still holds (standard library only).
+
+    Returns ``(out, state)`` or None. No numpy, pandas or pint is imported
+    on this path: a rerun with nothing to do costs about what ``shpb --help``
+    costs.
+    """
+    try:
+        import tomllib
+    except ImportError:  # Python 3.10
+        import tomli as tomllib
+
+    from .. import __version__
+    from ..runstate import FolderLock, slug, unchanged
+
+    path = campaign.absolute()
+    if out is None:
+        try:
+            with open(path, "rb") as fh:
+                name = tomllib.load(fh).get("name", path.stem)
+        except (OSError, tomllib.TOMLDecodeError):
+            return None  # the full path says what is wrong
+        out = path.parent / "results" / slug(str(name))
+    state = unchanged(out, version=__version__, figures=figure, extra_inputs=[path])
+    if state is None:
+        return None
+    if FolderLock(out).holder() is not None:
+        return None  # another run is writing the folder: the full path refuses with the holder's name
+    return out, state
 
 
 def register(app: typer.Typer) -> None:
@@ -52,20 +71,30 @@ def register(app: typer.Typer) -> None:
                                                      "tcp://10.0.0.5:8786): run the shots there."),
         figure: bool = figure_switch("Write the figures: each shot's sheet and the campaign's overlays "
                                      "(--no-figure is much faster)."),
+        quiet: bool = quiet_option(),
     ):
         """Reduce every shot of a campaign. Writes shots/<id>/ (curves, summary, figure), campaign_summary.csv,
-        failures.csv, repeatability.csv and overlay figures. Exit status: 0 all shots valid, 1 some not valid
-        or failed, 2 campaign-level input error, 130 interrupted (a rerun completes what is missing)."""
+        failures.csv, repeatability.csv and overlay figures; one run at a time per output folder (a lock); a
+        rerun redoes only what changed, moves aside the folders of rows no longer in the table, and keeps the
+        last good result of a shot whose record cannot be read (marked stale). Exit status 1: some shot not
+        valid, failed or stale."""
+        if not force:
+            hit = _nothing_to_do(campaign, out, figure)
+            if hit is not None:
+                for line in hit[1]["lines"]:
+                    typer.echo(line)
+                raise typer.Exit(int(hit[1]["exit_code"]))
+        check_out_dir(out)
         from ..campaign import load_campaign, run_campaign
 
         camp = load_campaign(campaign)
-        report = run_campaign(camp, out_dir=out, jobs=jobs, force=force, scheduler=scheduler,
-                              figures=figure, progress=_Progress())
-        n = len(report.outcomes)
-        typer.echo(f"campaign {camp.name}: {len(report.ok)}/{n} shots valid, {len(report.invalid)} not valid, "
-                   f"{len(report.failed)} failed ({len(report.skipped)} up to date, kept)")
-        typer.echo(f"written to {report.out_dir}")
-        from ..reduce import DESIGN_CAUTION
-
-        typer.echo(f"note: {DESIGN_CAUTION}")
+        check_out_dir(out or camp.default_out)
+        progress = Progress("batch", "shots", quiet=quiet)
+        try:
+            report = run_campaign(camp, out_dir=out, jobs=jobs, force=force, scheduler=scheduler,
+                                  figures=figure, progress=_ShotProgress(progress))
+        finally:
+            progress.close()
+        for line in report.lines():
+            typer.echo(line)
         raise typer.Exit(report.exit_code)

@@ -131,6 +131,10 @@ class Command(TyperCommand):
     placeholders above as metavars.
     """
 
+    def parse_args(self, ctx, args):
+        _plain_coercion(self.get_params(ctx))
+        return super().parse_args(ctx, args)
+
     def collect_usage_pieces(self, ctx):
         pieces = [self.options_metavar] if self.options_metavar else []
         pieces += [_argument_name(p) for p in self.get_params(ctx) if p.param_type_name == "argument"]
@@ -150,3 +154,284 @@ class Command(TyperCommand):
             if rows:
                 with formatter.section(title):
                     formatter.write_dl(rows)
+
+    def format_epilog(self, ctx, formatter):
+        super().format_epilog(ctx, formatter)
+        formatter.write_paragraph()
+        formatter.write_text(EXIT_STATUS_HELP)
+
+
+# --------------------------------------------------------------------------- exit statuses, in every --help
+#: The exit statuses of every command (decided in one place, :func:`shpb.cli.main`).
+EXIT_STATUS_HELP = ("Exit status: 0 done (every shot valid); 1 done, a shot not valid; 2 bad input or unusable "
+                    "output location (checked before computing); 3 internal error (one line, the traceback in a "
+                    "log file); 130 interrupted (a rerun completes it).")
+
+
+def quiet_option():
+    """``--quiet``/``-q``: no progress bar or progress lines (results and errors are still printed)."""
+    return typer.Option(False, "--quiet", "-q", help="No progress (a live bar on a terminal, a line every few "
+                                                      "seconds in a log).")
+
+
+# --------------------------------------------------------------------------- output locations, checked first
+def _nearest_existing(path):
+    from pathlib import Path
+
+    p = Path(path).absolute()
+    while not p.exists() and p != p.parent:
+        p = p.parent
+    return p
+
+
+def _probe_writable(folder, where: str) -> None:
+    """Create and remove a temporary entry in ``folder``: the only test that holds for root and read-only mounts."""
+    import tempfile
+
+    from ..errors import InputError
+
+    try:
+        os_dir = tempfile.mkdtemp(prefix=".shpb-probe-", dir=folder)
+    except OSError as exc:
+        raise InputError(f"cannot write in {folder} ({exc.strerror or exc})", where) from None
+    import os
+
+    os.rmdir(os_dir)
+
+
+def check_out_dir(path, option: str = "--out") -> None:
+    """Refuse an output folder that cannot be written, before any computing (exit status 2).
+
+    The folder itself is not created: its nearest existing parent must be a
+    folder in which this process can create entries.
+    """
+    from ..errors import InputError
+
+    where = f"{option} {path}"
+    if path is None:
+        return
+    from pathlib import Path
+
+    p = Path(path)
+    if p.exists() and not p.is_dir():
+        raise InputError("is a file, not a folder", where)
+    base = _nearest_existing(p)
+    if not base.is_dir():
+        raise InputError(f"{base} is a file, so no folder can be made under it", where)
+    _probe_writable(base, where)
+
+
+def check_out_file(path, option: str) -> None:
+    """Refuse an output file that cannot be written (a folder, or a folder that cannot be written), before computing."""
+    from ..errors import InputError
+
+    if path is None:
+        return
+    from pathlib import Path
+
+    p = Path(path)
+    where = f"{option} {path}"
+    if p.is_dir():
+        raise InputError("is a folder; expected a file name", where)
+    base = _nearest_existing(p.parent)
+    if not base.is_dir():
+        raise InputError(f"{base} is a file, so no folder can be made under it", where)
+    _probe_writable(base, where)
+
+
+# --------------------------------------------------------------------------- progress
+class Progress:
+    """Progress on stderr: a live bar on a terminal, a line every few seconds in a log, nothing when quiet.
+
+    ``update(done, total)`` counts items (shots); ``note(text)`` prints a line
+    above the bar; ``with progress.running(): ...`` keeps a single long task
+    alive on screen (elapsed time) from a background thread. The interval of
+    log lines is ``interval`` seconds (environment ``SHPB_PROGRESS_INTERVAL``
+    overrides it).
+    """
+
+    def __init__(self, label: str, unit: str = "", quiet: bool = False, stream=None, interval: float = 5.0):
+        import os
+        import sys
+        import threading
+        import time
+
+        self.stream = stream or sys.stderr
+        self.label, self.unit, self.quiet = label, unit, quiet
+        self.tty = not quiet and hasattr(self.stream, "isatty") and self.stream.isatty()
+        self.interval = float(os.environ.get("SHPB_PROGRESS_INTERVAL", interval))
+        self._clock = time.monotonic
+        self.t0 = self._clock()
+        self._last = self.t0
+        self.done, self.total = 0, None
+        self.width = 0
+        self._lock = threading.Lock()
+        self._stop = None
+
+    # ---- items
+    def _status(self) -> str:
+        elapsed = self._clock() - self.t0
+        if self.total is None:
+            return f"{self.label}: {elapsed:.0f} s"
+        text = f"{self.label}: {self.done}/{self.total}{' ' + self.unit if self.unit else ''}"
+        if self.done and elapsed > 0:
+            rate = self.done / elapsed
+            left = (self.total - self.done) / rate
+            text += f", {rate * 60:.1f}/min, about {left:.0f} s left" if self.done < self.total else \
+                f" in {elapsed:.0f} s"
+        return text
+
+    def _bar(self) -> str:
+        if self.total:
+            n = 24
+            k = int(round(n * self.done / self.total))
+            return f"[{'#' * k}{'.' * (n - k)}] " + self._status()
+        spin = "|/-\\"[int(self._clock() * 4) % 4]
+        return f"{spin} " + self._status()
+
+    def _clear(self):
+        if self.tty and self.width:
+            self.stream.write("\r" + " " * self.width + "\r")
+            self.width = 0
+
+    def _draw(self, force_line: bool = False):
+        if self.quiet:
+            return
+        if self.tty:
+            text = self._bar()
+            pad = max(0, self.width - len(text))
+            self.stream.write("\r" + text + " " * pad)
+            self.width = len(text)
+        elif force_line or self._clock() - self._last >= self.interval:
+            self.stream.write(self._status() + "\n")
+            self._last = self._clock()
+        self.stream.flush()
+
+    def update(self, done: int, total: int) -> None:
+        with self._lock:
+            self.done, self.total = done, total
+            self._draw(force_line=False)
+
+    def note(self, text: str) -> None:
+        """A line of its own (a shot that is not valid), kept above the bar; printed even when quiet."""
+        with self._lock:
+            self._clear()
+            self.stream.write(text + "\n")
+            self._draw()
+            self.stream.flush()
+
+    def close(self) -> None:
+        with self._lock:
+            if self.tty and self.width:
+                self.stream.write("\n")
+                self.width = 0
+                self.stream.flush()
+
+    # ---- one long task
+    def running(self):
+        """Context manager: elapsed time on screen while a single long task runs."""
+        import contextlib
+        import threading
+
+        @contextlib.contextmanager
+        def _ctx():
+            if self.quiet:
+                yield self
+                return
+            stop = threading.Event()
+
+            def beat():
+                step = 0.25 if self.tty else min(self.interval, 1.0)
+                while not stop.wait(step):
+                    with self._lock:
+                        self._draw()
+
+            t = threading.Thread(target=beat, name="shpb-progress", daemon=True)
+            t.start()
+            try:
+                yield self
+            finally:
+                stop.set()
+                t.join()
+                with self._lock:
+                    self._clear()
+                    self.stream.flush()
+
+        return _ctx()
+
+
+# --------------------------------------------------------------------------- option values without a validation library
+def _plain_type(annotation):
+    """``str``, ``int``, ``float``, ``bool``, ``Path`` or an enum behind ``Optional[...]``/``List[...]``; else None."""
+    import enum
+    import pathlib
+    import typing
+
+    many = False
+    for _ in range(2):
+        origin = typing.get_origin(annotation)
+        args = [a for a in typing.get_args(annotation) if a is not type(None)]
+        if origin is typing.Union and len(args) == 1:
+            annotation = args[0]
+        elif origin is list and len(args) == 1 and not many:
+            annotation, many = args[0], True
+    if annotation in (str, int, float, bool, pathlib.Path) or (isinstance(annotation, type)
+                                                         and issubclass(annotation, enum.Enum)):
+        return annotation, many
+    return None
+
+
+def _plain_coercion(params) -> None:
+    """Convert this command's option values with plain Python, not through the parser library's validator.
+
+    Recent versions of the parser library pass every given value (a path, a
+    number) through a validation library that takes ~0.1 s to import: as long
+    as ``shpb --help`` itself. The values here are simple (text, paths,
+    numbers with bounds, a choice of words), so each is converted in a line;
+    any other annotation keeps the library's own conversion. Reaches into the
+    library's parameter objects through two attributes; where they are not
+    there (another version), nothing changes.
+    """
+    try:
+        from typer._coercion import RuntimeParam
+        from typer.core import _TyperParameter
+    except ImportError:
+        return
+
+    class _Plain(RuntimeParam):
+        def _coerce_value(self, value, param, ctx):
+            import enum
+
+            from typer._click.exceptions import BadParameter
+
+            kind, many = _plain_type(self.annotation)
+
+            def one(v):
+                if isinstance(v, kind):
+                    return v
+                try:
+                    if isinstance(kind, type) and issubclass(kind, enum.Enum):
+                        return kind(v)
+                    out = kind(v)
+                except (TypeError, ValueError):
+                    if isinstance(kind, type) and issubclass(kind, enum.Enum):
+                        raise BadParameter(f"{v!r} is not one of {', '.join(repr(m.value) for m in kind)}.",
+                                           ctx=ctx, param=param) from None
+                    raise BadParameter(f"{v!r} is not a valid {kind.__name__}.", ctx=ctx, param=param) from None
+                info = self.parameter_info
+                lo, hi = getattr(info, "min", None), getattr(info, "max", None)
+                if kind in (int, float) and ((lo is not None and out < lo) or (hi is not None and out > hi)):
+                    raise BadParameter(f"{v} is not in the range {lo if lo is not None else ''}"
+                                       f"..{hi if hi is not None else ''}.", ctx=ctx, param=param)
+                return out
+
+            if many:
+                return [one(v) for v in (value if isinstance(value, (list, tuple)) else [value])]
+            return one(value)
+
+    for p in params:
+        desc = getattr(p, "type_descriptor", None)
+        if not isinstance(p, _TyperParameter) or desc is None or getattr(p, "_runtime_param", 1) is not None:
+            continue
+        if desc.file_annotation is None and _plain_type(desc.annotation) is not None:
+            p._runtime_param = _Plain(parameter_info=desc.parameter_info, annotation=desc.annotation)

@@ -14,7 +14,7 @@ from typing import Optional
 import typer
 
 from .common import FILE, INTEGER, NUMBER, QUANTITY, BarName, Command, bar_option, bar_value, barset_argument, \
-    figure_file_option
+    check_out_file, figure_file_option
 
 #: Rows of the CSV file and points of the figure.
 FILE_ROWS = 501
@@ -102,6 +102,8 @@ def register(app: typer.Typer) -> None:
         from ..errors import InputError
         from ..units import to_si
 
+        check_out_file(csv, "--csv")
+        check_out_file(figure, "--figure")
         radius, nu, c0 = _bar_from_options(barset, bar_value(bar), diameter, poisson, wave_speed)
         curve = _disp.normalized_curve(nu)
         if max_frequency is None:

@@ -7,7 +7,7 @@ from typing import List, Optional
 
 import typer
 
-from .common import FILE, NAME, NUMBER, QUANTITY, Command, figure_switch, out_option
+from .common import FILE, NAME, NUMBER, QUANTITY, Command, check_out_dir, figure_switch, out_option
 
 
 def _list(text: Optional[str]):
@@ -73,12 +73,17 @@ def register(app: typer.Typer) -> None:
         include_invalid: bool = typer.Option(False, "--include-invalid",
                                              help="Also use shots whose summary says not valid."),
         mixed_materials: bool = typer.Option(False, "--mixed-materials", help="Allow curves of different materials."),
+        include_incomplete: bool = typer.Option(False, "--include-incomplete",
+                                                help="Also use shot folders that are not complete results: a "
+                                                     "campaign shot folder without its key file "
+                                                     "(inputs.sha256), or one its campaign summary does not list."),
         out: Optional[Path] = out_option("fit-<model>"),
         figure: bool = figure_switch("Write the PNG figure sheet."),
     ):
         """Fit a constitutive model to reduced curves.
 
         One fit to the valid part of all curves at once; writes the parameters, model curves and a figure."""
+        check_out_dir(out or Path(f"fit-{model}"))
         import numpy as np
 
         from .. import fit as F
@@ -88,7 +93,7 @@ def register(app: typer.Typer) -> None:
             results, quasi_static=quasi_static, modulus=modulus, room_temperature=room_temperature,
             quasi_static_rate=quasi_static_rate, quasi_static_temperature=quasi_static_temperature,
             grid_step=grid_step, include_invalid_shots=include_invalid,
-            allow_mixed_materials=mixed_materials,
+            allow_mixed_materials=mixed_materials, include_incomplete=include_incomplete,
         )
         if adiabatic:
             if specific_heat is None:

@@ -7,7 +7,7 @@ from typing import Optional
 
 import typer
 
-from .common import Command, figure_switch, out_option
+from .common import Command, Progress, check_out_dir, figure_switch, out_option, quiet_option
 
 
 def register(app: typer.Typer) -> None:
@@ -26,6 +26,7 @@ def register(app: typer.Typer) -> None:
                                                 "window_length='120 us' or --set equilibrium_threshold=0.03; "
                                                 "repeatable (keys: docs/setup-files.md)."),
         figure: bool = figure_switch("Write the PNG figure sheet."),
+        quiet: bool = quiet_option(),
     ):
         """Reduce one shot to stress-strain curves and validity checks.
 
@@ -46,7 +47,9 @@ def register(app: typer.Typer) -> None:
 
         name = load_shot(shot).name
         out_dir = out or shot.parent / "results" / name
-        result = reduce_file(shot, out_dir, figure=figure, **changes)
+        check_out_dir(out_dir)
+        with Progress(f"reducing shot {name}", quiet=quiet).running():
+            result = reduce_file(shot, out_dir, figure=figure, **changes)
         typer.echo(format_result(result, out_dir))
         raise typer.Exit(0 if result.valid else 1)
 

@@ -7,7 +7,7 @@ from typing import Optional
 
 import typer
 
-from .common import Command, figure_switch, out_option
+from .common import Command, Progress, check_out_dir, figure_switch, out_option, quiet_option
 
 SAFETY = ("caution: this tool does not replace the laboratory's safety rules, its gas-gun procedures or its "
           "own limits for bars, strikers and specimens; a virtual shot is not a clearance to fire.")
@@ -23,6 +23,7 @@ def register(app: typer.Typer) -> None:
                                              help="Simulate even if the planned bar stress reaches the bar's "
                                                   "yield strength."),
         figure: bool = figure_switch(),
+        quiet: bool = quiet_option(),
     ):
         """Simulate a shot and record it as a scope would.
 
@@ -33,11 +34,13 @@ def register(app: typer.Typer) -> None:
         from ..virtual import DISPERSION_LABELS, load_simulation, simulate_setup, write_virtual_shot
 
         sim = load_simulation(setup)
+        out_dir = out or setup.parent / sim.name
+        check_out_dir(out_dir)
         plan = plan_shot(sim.spec, sim.yield_strength)
         typer.echo("\n".join(format_plan(sim.name, plan)))
-        shot = simulate_setup(sim, allow_bar_yield=allow_bar_yield)  # refuses a yielding bar before simulating
-        out_dir = out or setup.parent / sim.name
-        written = write_virtual_shot(shot, out_dir, figure=figure)
+        with Progress(f"simulating {sim.name}", quiet=quiet).running():
+            shot = simulate_setup(sim, allow_bar_yield=allow_bar_yield)  # refuses a yielding bar before simulating
+            written = write_virtual_shot(shot, out_dir, figure=figure)
         grid = shot.result.grid
         typer.echo(f"simulated {grid['steps']} steps of {grid['dt_s'] * 1e9:.1f} ns on {grid['nodes']} nodes; "
                    f"dispersion in the record: {DISPERSION_LABELS[shot.record.info['dispersion']]}")
