@@ -153,15 +153,23 @@ def test_fft_length_is_the_smallest_even_fast_length():
         assert m == ref, n
 
 
-def test_a_warm_cache_reduces_without_scipy(cache_dir):
-    # the example's tables solved here; a fresh process then reduces the example shot with numpy only
+def test_start_up_with_a_warm_cache_needs_neither_pint_nor_scipy(cache_dir):
+    # the example's tables solved here; a fresh process then loads the example shot without pint (its units
+    # are common forms) and reduces it with numpy only; an uncommon unit then loads pint, without dask
     from shpb.setup import load_shot
 
     bars = load_shot(ROOT / "configs" / "example_shot.toml").barset
     for bar in (bars.incident, bars.transmitted):
         D.dispersion_info(bar.radius, bar.wave_speed, bar.poisson_ratio)
-    code = ("import sys\nfrom shpb.reduce import reduce_file\nreduce_file('configs/example_shot.toml')\n"
-            "print(sorted(m for m in sys.modules if m.split('.')[0] in ('scipy', 'pint')))")
+    code = ("import sys\nfrom shpb.setup import load_shot\nfrom shpb.reduce import reduce_shot\n"
+            "def loaded(*names):\n    return sorted(m for m in sys.modules if m.split('.')[0] in names)\n"
+            "shot = load_shot('configs/example_shot.toml')\nprint(loaded('pint'))\n"
+            "reduce_shot(shot)\nprint(loaded('scipy', 'pint'))\n"
+            "from shpb.units import to_si\nprint(to_si('1 yard', 'length'))\n"
+            "print('pint' in sys.modules, 'dask' in sys.modules)")
     p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT)
     assert p.returncode == 0, p.stderr
-    assert p.stdout.strip() == "[]"
+    lines = p.stdout.splitlines()
+    assert lines[:2] == ["[]", "[]"]
+    assert float(lines[2]) == pytest.approx(0.9144, rel=1e-12)  # 1 yd = 0.9144 m exactly (NIST SP 811, App. B)
+    assert lines[3] == "True False"
