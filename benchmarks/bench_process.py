@@ -29,7 +29,12 @@ Last, the in-process breakdown: a fresh process runs the steps of
 ``shpb reduce`` one by one and prints the time of each (imports, set-up files,
 record, dispersion tables, reduction, files, figure).
 
-    python benchmarks/bench_process.py [--rounds 5] [--long] [--long-samples 5000000] [--data DIR]
+``--before DIR`` adds, to the same rounds, the two ``shpb reduce`` processes
+and the breakdown of another source tree put first on ``PYTHONPATH`` (e.g. an
+older commit: ``git archive BASE | tar -x -C DIR``): before and after,
+measured side by side.
+
+    python benchmarks/bench_process.py [--rounds 5] [--long] [--long-samples 5000000] [--data DIR] [--before DIR]
     python benchmarks/bench_process.py --quick     # one round of the example: shows it runs (CI)
 """
 
@@ -96,8 +101,15 @@ def long_record(folder: Path, samples: int) -> Path:
 
 
 # --------------------------------------------------------------------------- the processes
-def cases(shot: Path, out: Path) -> dict:
-    """Name -> argv of each timed process of a round (the interpreter alone first)."""
+def before_env(before):
+    """The environment of a process that runs the source tree ``before`` (None: this one)."""
+    if before is None:
+        return None
+    return {**os.environ, "PYTHONPATH": os.pathsep.join([str(before), os.environ.get("PYTHONPATH", "")])}
+
+
+def cases(shot: Path, out: Path, before=None) -> dict:
+    """Name -> (argv, environment) of each timed process of a round (the interpreter alone first)."""
     record, header = record_layout(shot)
     shpb, _ = shpb_command()
     py = sys.executable
@@ -109,8 +121,11 @@ def cases(shot: Path, out: Path) -> dict:
         out_cases["pyarrow yardstick"] = [
             py, "-c", f"import pyarrow.csv as c; c.read_csv({str(record)!r}, "
                       f"read_options=c.ReadOptions(skip_rows={header}))"]
-    out_cases["shpb reduce --no-figure"] = shpb + ["reduce", str(shot), "--out", str(out / "a"), "--no-figure"]
-    out_cases["shpb reduce"] = shpb + ["reduce", str(shot), "--out", str(out / "b")]
+    out_cases = {name: (argv, None) for name, argv in out_cases.items()}
+    for label, env in [("", None)] + ([("before: ", before_env(before))] if before else []):
+        out_cases[f"{label}shpb reduce --no-figure"] = (
+            shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}a"), "--no-figure"], env)
+        out_cases[f"{label}shpb reduce"] = (shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}b")], env)
     return out_cases
 
 
@@ -118,12 +133,12 @@ def measure(commands: dict, rounds: int, warm_up: bool) -> dict:
     """Name -> list of (wall [s], peak memory [bytes]), one per round, the processes of a round interleaved."""
     ok = (0, 1)  # shpb reduce exits 1 for a shot judged not valid: a finished run all the same
     if warm_up:  # not counted: compiled bytecode, the file cache and the dispersion cache are in place
-        for argv in commands.values():
-            run_process(argv, ok)
+        for argv, env in commands.values():
+            run_process(argv, ok, env)
     runs = {name: [] for name in commands}
     for _ in range(rounds):
-        for name, argv in commands.items():
-            runs[name].append(run_process(argv, ok))
+        for name, (argv, env) in commands.items():
+            runs[name].append(run_process(argv, ok, env))
     return runs
 
 
@@ -133,11 +148,11 @@ def report(label: str, runs: dict, file_size: int) -> list:
     parsers = [n for n in ("pandas yardstick", "pyarrow yardstick") if n in runs]
     fastest = [min(runs[n][i][0] for n in parsers) for i in range(len(base))]
     lines = [f"{label}: record {file_size / 1e6:.1f} MB; {len(base)} round(s), interleaved; min / median / max",
-             f"{'process':<25} | {'wall [s]':^17} | {'peak memory [MB]':^17} | {'/ pandas yardstick':^17} | "
+             f"{'process':<31} | {'wall [s]':^17} | {'peak memory [MB]':^17} | {'/ pandas yardstick':^17} | "
              f"{'/ fastest parser':^17}"]
     for name, r in runs.items():
         wall, mem = [w for w, _ in r], [m / 1e6 for _, m in r]
-        lines.append(f"{name:<25} | {mmm(wall, '5.2f'):>17} | {mmm(mem, '5.0f'):>17} | "
+        lines.append(f"{name:<31} | {mmm(wall, '5.2f'):>17} | {mmm(mem, '5.0f'):>17} | "
                      f"{mmm([a / b for a, b in zip(wall, base)], '5.2f'):>17} | "
                      f"{mmm([a / b for a, b in zip(wall, fastest)], '5.2f'):>17}")
     return lines
@@ -146,7 +161,7 @@ def report(label: str, runs: dict, file_size: int) -> list:
 def verdicts(results: dict) -> list:
     """The target lines: each measured median ratio beside its target."""
     lines = []
-    for (label, name), target in TARGETS.items():
+    for (label, name), target in TARGETS.items():  # this tree's processes (not those of --before)
         if label not in results:
             continue
         runs, size = results[label]
@@ -162,16 +177,17 @@ def verdicts(results: dict) -> list:
 
 
 # --------------------------------------------------------------------------- the breakdown
-def breakdown(shot: Path) -> list:
-    """Run the steps of ``shpb reduce`` in a fresh process; lines of (step, time)."""
+def breakdown(shot: Path, before=None) -> list:
+    """Run the steps of ``shpb reduce`` in a fresh process (of the tree ``before`` if given); lines of (step, time)."""
     with tempfile.TemporaryDirectory() as tmp:
         p = subprocess.run([sys.executable, __file__, "--breakdown-child", str(shot), tmp],
-                           capture_output=True, text=True)
+                           capture_output=True, text=True, env=before_env(before))
     if p.returncode != 0:
         raise SystemExit(f"breakdown failed: {p.stderr.strip()}")
     steps = json.loads(p.stdout.strip().splitlines()[-1])
     total = sum(t for _, t in steps)
-    lines = [f"in-process breakdown of shpb reduce {shot.name} (one fresh process, steps in order):"]
+    whose = f" of {before}" if before else ""
+    lines = [f"in-process breakdown{whose} of shpb reduce {shot.name} (one fresh process, steps in order):"]
     lines += [f"  {name:<58} {1e3 * t:7.0f} ms" for name, t in steps]
     lines.append(f"  {'total':<58} {1e3 * total:7.0f} ms")
     return lines
@@ -227,6 +243,7 @@ def main(argv=None) -> int:
     ap.add_argument("--long", action="store_true", help="also the long synthetic record")
     ap.add_argument("--long-samples", type=int, default=5_000_000, help="its length [default: 5000000]")
     ap.add_argument("--data", type=Path, help="folder to keep the long record in and reuse [default: temporary]")
+    ap.add_argument("--before", type=Path, help="also the shpb reduce processes of this source tree")
     ap.add_argument("--quick", action="store_true", help="one round of the example, no warm-up: shows it runs")
     ap.add_argument("--breakdown-child", nargs=2, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
@@ -244,11 +261,13 @@ def main(argv=None) -> int:
             data.mkdir(parents=True, exist_ok=True)
             records["long"] = long_record(data, args.long_samples)
         for name, shot in records.items():
-            runs = measure(cases(shot, Path(tmp) / name), rounds, warm_up=not args.quick)
+            runs = measure(cases(shot, Path(tmp) / name, args.before), rounds, warm_up=not args.quick)
             size = record_layout(shot)[0].stat().st_size
             results[name] = (runs, size)
             print("\n".join(report(f"{name} ({shot.name})", runs, size)))
     print("\n".join(verdicts(results)))
+    if args.before:
+        print("\n".join(breakdown(EXAMPLE, args.before)))
     print("\n".join(breakdown(EXAMPLE)))
     return 0
 
