@@ -27,7 +27,8 @@ at most 1.5x, its peak memory at most 2x the record's file size.
 
 Last, the in-process breakdown: a fresh process runs the steps of
 ``shpb reduce`` one by one and prints the time of each (imports, set-up files,
-record, dispersion tables, reduction, files, figure).
+record, dispersion tables, reduction, files, figure); three such processes,
+min/median/max per step.
 
 ``--before DIR`` adds, to the same rounds, the two ``shpb reduce`` processes
 and the breakdown of another source tree put first on ``PYTHONPATH`` (e.g. an
@@ -177,19 +178,25 @@ def verdicts(results: dict) -> list:
 
 
 # --------------------------------------------------------------------------- the breakdown
-def breakdown(shot: Path, before=None) -> list:
-    """Run the steps of ``shpb reduce`` in a fresh process (of the tree ``before`` if given); lines of (step, time)."""
-    with tempfile.TemporaryDirectory() as tmp:
-        p = subprocess.run([sys.executable, __file__, "--breakdown-child", str(shot), tmp],
-                           capture_output=True, text=True, env=before_env(before))
-    if p.returncode != 0:
-        raise SystemExit(f"breakdown failed: {p.stderr.strip()}")
-    steps = json.loads(p.stdout.strip().splitlines()[-1])
-    total = sum(t for _, t in steps)
+def breakdown(shot: Path, before=None, repeats=3) -> list:
+    """Run the steps of ``shpb reduce`` in ``repeats`` fresh processes (of the tree ``before`` if given).
+
+    Lines of (step, min / median / max time over the processes).
+    """
+    runs = []
+    for _ in range(repeats):
+        with tempfile.TemporaryDirectory() as tmp:
+            p = subprocess.run([sys.executable, __file__, "--breakdown-child", str(shot), tmp],
+                               capture_output=True, text=True, env=before_env(before))
+        if p.returncode != 0:
+            raise SystemExit(f"breakdown failed: {p.stderr.strip()}")
+        runs.append(json.loads(p.stdout.strip().splitlines()[-1]))
     whose = f" of {before}" if before else ""
-    lines = [f"in-process breakdown{whose} of shpb reduce {shot.name} (one fresh process, steps in order):"]
-    lines += [f"  {name:<58} {1e3 * t:7.0f} ms" for name, t in steps]
-    lines.append(f"  {'total':<58} {1e3 * total:7.0f} ms")
+    lines = [f"in-process breakdown{whose} of shpb reduce {shot.name} ({repeats} fresh process(es), steps in "
+             f"order; min / median / max [ms]):"]
+    for i, (name, _) in enumerate(runs[0]):
+        lines.append(f"  {name:<52} {mmm([1e3 * r[i][1] for r in runs], '6.0f')}")
+    lines.append(f"  {'total':<52} {mmm([1e3 * sum(t for _, t in r) for r in runs], '6.0f')}")
     return lines
 
 
@@ -266,9 +273,10 @@ def main(argv=None) -> int:
             results[name] = (runs, size)
             print("\n".join(report(f"{name} ({shot.name})", runs, size)))
     print("\n".join(verdicts(results)))
+    repeats = 1 if args.quick else 3
     if args.before:
-        print("\n".join(breakdown(EXAMPLE, args.before)))
-    print("\n".join(breakdown(EXAMPLE)))
+        print("\n".join(breakdown(EXAMPLE, args.before, repeats)))
+    print("\n".join(breakdown(EXAMPLE, None, repeats)))
     return 0
 
 
