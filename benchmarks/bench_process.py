@@ -36,7 +36,7 @@ older commit: ``git archive BASE | tar -x -C DIR``): before and after,
 measured side by side.
 
     python benchmarks/bench_process.py [--rounds 5] [--long] [--long-samples 5000000] [--data DIR] [--before DIR]
-    python benchmarks/bench_process.py --quick     # one round of the example: shows it runs (CI)
+    python benchmarks/bench_process.py --quick     # one round of the example, a breakdown without the figure: it runs (CI)
 """
 
 from __future__ import annotations
@@ -178,7 +178,7 @@ def verdicts(results: dict) -> list:
 
 
 # --------------------------------------------------------------------------- the breakdown
-def breakdown(shot: Path, before=None, repeats=3) -> list:
+def breakdown(shot: Path, before=None, repeats=3, figure=True) -> list:
     """Run the steps of ``shpb reduce`` in ``repeats`` fresh processes (of the tree ``before`` if given).
 
     Lines of (step, min / median / max time over the processes).
@@ -186,7 +186,8 @@ def breakdown(shot: Path, before=None, repeats=3) -> list:
     runs = []
     for _ in range(repeats):
         with tempfile.TemporaryDirectory() as tmp:
-            p = subprocess.run([sys.executable, __file__, "--breakdown-child", str(shot), tmp],
+            child = ["--breakdown-child", str(shot), tmp] + ([] if figure else ["--no-figure"])
+            p = subprocess.run([sys.executable, __file__, *child],
                                capture_output=True, text=True, env=before_env(before))
         if p.returncode != 0:
             raise SystemExit(f"breakdown failed: {p.stderr.strip()}")
@@ -200,7 +201,7 @@ def breakdown(shot: Path, before=None, repeats=3) -> list:
     return lines
 
 
-def _breakdown_child(shot_path: str, out: str) -> None:
+def _breakdown_child(shot_path: str, out: str, figure: bool = True) -> None:
     """The steps of ``shpb reduce``, each timed; prints a JSON list of [step, seconds]."""
     steps = []
     clock = [time.perf_counter()]
@@ -233,6 +234,9 @@ def _breakdown_child(shot_path: str, out: str) -> None:
     folder = Path(out)
     io.atomic_write_csv(folder / result.CURVES_FILE, result.curves)
     step("write curves.csv")
+    if not figure:
+        print(json.dumps(steps))
+        return
     from shpb import report
     step("import shpb.report (matplotlib)")
     fig = report.plot_shot(result)
@@ -253,9 +257,10 @@ def main(argv=None) -> int:
     ap.add_argument("--before", type=Path, help="also the shpb reduce processes of this source tree")
     ap.add_argument("--quick", action="store_true", help="one round of the example, no warm-up: shows it runs")
     ap.add_argument("--breakdown-child", nargs=2, help=argparse.SUPPRESS)
+    ap.add_argument("--no-figure", action="store_true", help=argparse.SUPPRESS)  # of the breakdown child
     args = ap.parse_args(argv)
     if args.breakdown_child:
-        _breakdown_child(*args.breakdown_child)
+        _breakdown_child(*args.breakdown_child, figure=not args.no_figure)
         return 0
     rounds = 1 if args.quick else max(1, args.rounds)
     _, label = shpb_command()
@@ -273,10 +278,10 @@ def main(argv=None) -> int:
             results[name] = (runs, size)
             print("\n".join(report(f"{name} ({shot.name})", runs, size)))
     print("\n".join(verdicts(results)))
-    repeats = 1 if args.quick else 3
+    repeats = 1 if args.quick else 3  # quick: one breakdown, without the figure steps (timed above already)
     if args.before:
-        print("\n".join(breakdown(EXAMPLE, args.before, repeats)))
-    print("\n".join(breakdown(EXAMPLE, None, repeats)))
+        print("\n".join(breakdown(EXAMPLE, args.before, repeats, figure=not args.quick)))
+    print("\n".join(breakdown(EXAMPLE, None, repeats, figure=not args.quick)))
     return 0
 
 
