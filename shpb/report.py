@@ -16,12 +16,12 @@ from matplotlib.figure import Figure  # no pyplot: no global state, thread-safe,
 
 _SEVERITY_MARK = {"error": "ERROR", "warning": "warning", "info": "note"}
 
-#: The shot sheet's panel grid: margins [inch] and gaps [fraction of a panel], fixed rather than found
-#: by a layout engine, which would draw the whole sheet once more to measure it (doubling the time of
-#: savefig). They are the positions the constrained layout gives the example shot, with room for
-#: five-character tick labels and an axis label on either side of each panel, and for the R(t) axis
-#: between the columns.
-_SHEET_GRID = dict(left=0.82, right=0.18, bottom=0.47, top=0.47, wspace=0.333, hspace=0.368)
+#: The shot sheet's panel grid: margins and gaps between the panels [inch], fixed rather than found by a
+#: layout engine, which would draw the whole sheet once more to measure it (doubling the time of savefig).
+#: About the positions the constrained layout gives the example shot, with room on the left of each panel
+#: for six-character tick labels ("−10000", "100000") and the axis label, and between the columns for
+#: the R(t) axis.
+_SHEET_GRID = dict(left=0.95, right=0.18, bottom=0.47, top=0.47, column_gap=1.68, row_gap=0.72)
 #: A line of more points than this is drawn through its min/max envelope (see :func:`envelope`).
 MAX_LINE_POINTS = 4000
 
@@ -86,8 +86,10 @@ def plot_shot(result) -> Figure:
     width, height = 11.7, 8.3
     fig = Figure(figsize=(width, height))
     g = _SHEET_GRID
+    panel_w = (width - g["left"] - g["right"] - g["column_gap"]) / 2
+    panel_h = (height - g["bottom"] - g["top"] - 2 * g["row_gap"]) / 3
     gs = fig.add_gridspec(3, 2, left=g["left"] / width, right=1 - g["right"] / width, bottom=g["bottom"] / height,
-                          top=1 - g["top"] / height, wspace=g["wspace"], hspace=g["hspace"])
+                          top=1 - g["top"] / height, wspace=g["column_gap"] / panel_w, hspace=g["row_gap"] / panel_h)
     t_us = tr["time"] * 1e6
 
     ax = fig.add_subplot(gs[0, 0])
