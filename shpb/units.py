@@ -85,7 +85,7 @@ def _read_common(s: str, dimension: str):
     m = _NUMBER_UNIT.fullmatch(s)
     if m is None:
         return None
-    sign, _, fraction, bare_fraction, exponent, space, unit = m.groups()
+    _, _, fraction, bare_fraction, exponent, space, unit = m.groups()
     if not space and unit[:1] in ("j", "J"):
         return None
     text = s[:m.end(5) if exponent else m.end(2)]
