@@ -1,0 +1,411 @@
+"""Signal conditioning of bar records: glitches, baselines over quiet spans, mains hum, zero-phase low-pass.
+
+Pure functions on numpy arrays, used by the reduction's first stage
+(:func:`shpb.pulses.condition_record`). A record channel is a sum of
+
+* a baseline: the amplifier's offset, a slow drift and, on some rigs, mains
+  hum; it is seen alone wherever no pulse passes the gauge, i.e. before the
+  incident pulse and in the gaps between the passes of the waves, so it is
+  fitted over every such quiet span (:func:`fit_baseline`, :func:`quiet_baseline`)
+  with the lowest order the data justify (Schwarz's information criterion);
+* isolated glitches (single-sample spikes from the digitiser or the cable),
+  found against their neighbours and repaired (:func:`find_glitches`);
+* broadband noise, cut by a zero-phase Butterworth low-pass
+  (:func:`lowpass`) whose cutoff comes from the physics
+  (:func:`lowpass_cutoff`): the bar's second-mode onset, above which the bar
+  carries nothing a one-mode analysis can use, and which lies above the
+  incident pulse's rise content (that is checked and reported).
+
+Units: volts or strain in, the same out; times in seconds, frequencies in hertz.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Optional
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+#: Order of the Butterworth low-pass (applied forwards and backwards: twice this order in magnitude, no phase).
+LOWPASS_ORDER = 4
+#: Highest polynomial order of a baseline.
+MAX_BASELINE_ORDER = 3
+#: Harmonics of the mains frequency fitted when a hum frequency is given.
+HUM_HARMONICS = 3
+#: Time over which the residual is averaged to tell a pulse from noise [s].
+QUIET_SMOOTHING = 2e-6
+#: A glitch stands out of its neighbours by this many noise standard deviations.
+GLITCH_SIGMA = 8.0
+
+
+def running_mean(values: ArrayLike, n: int) -> np.ndarray:
+    """Centred running mean over ``n`` samples (shorter at the ends), O(N) by cumulative sums."""
+    x = np.asarray(values, dtype=float)
+    n = max(int(n), 1)
+    if n == 1 or x.size == 0:
+        return x.copy()
+    c = np.concatenate(([0.0], np.cumsum(x)))
+    i = np.arange(x.size)
+    lo = np.clip(i - n // 2, 0, x.size)
+    hi = np.clip(i - n // 2 + n, 0, x.size)
+    return (c[hi] - c[lo]) / (hi - lo)
+
+
+def _dilate(mask: np.ndarray, n: int) -> np.ndarray:
+    """Grow the True runs of a boolean mask by ``n`` samples on each side."""
+    if n <= 0 or not mask.any():
+        return mask.copy()
+    c = np.concatenate(([0], np.cumsum(mask.astype(np.int64))))
+    i = np.arange(mask.size)
+    lo = np.clip(i - n, 0, mask.size)
+    hi = np.clip(i + n + 1, 0, mask.size)
+    return (c[hi] - c[lo]) > 0
+
+
+# --------------------------------------------------------------------------- glitches
+def find_glitches(signal: ArrayLike, sigma: float, *, k_sigma: float = GLITCH_SIGMA, floor: float = 0.0) -> np.ndarray:
+    """Indices of isolated single-sample spikes.
+
+    A sample is a glitch when it departs from the median of its four
+    neighbours (two each side) by more than ``k_sigma`` noise standard
+    deviations (and ``floor``), and by more than three times the spread of
+    those neighbours: a pulse's rise, however fast, moves its neighbours
+    with it; a spike does not.
+
+    Parameters
+    ----------
+    signal : array_like
+        A record channel [V].
+    sigma : float
+        Its noise standard deviation [V] (e.g. :func:`shpb.pulses.robust_noise`).
+    k_sigma : float
+        Threshold in noise standard deviations.
+    floor : float
+        Smallest departure counted [V].
+
+    Returns
+    -------
+    ndarray of int
+    """
+    x = np.asarray(signal, dtype=float)
+    if x.size < 5:
+        return np.zeros(0, dtype=int)
+    nb = np.stack([x[:-4], x[1:-3], x[3:-1], x[4:]])
+    mid = x[2:-2]
+    med = np.median(nb, axis=0)
+    spread = nb.max(axis=0) - nb.min(axis=0)
+    dev = np.abs(mid - med)
+    hit = (dev > max(k_sigma * sigma, floor)) & (dev > 3.0 * spread)
+    return np.flatnonzero(hit) + 2
+
+
+def repair_glitches(signal: ArrayLike, indices: ArrayLike) -> np.ndarray:
+    """A copy of ``signal`` with each glitch replaced by the mean of its two neighbours."""
+    x = np.array(signal, dtype=float)
+    idx = np.asarray(indices, dtype=int)
+    if idx.size:
+        x[idx] = 0.5 * (x[idx - 1] + x[idx + 1])
+    return x
+
+
+# --------------------------------------------------------------------------- baselines
+def baseline_basis(n: int, order: int, dt: float = 1.0, hum_frequency: Optional[float] = None,
+                   harmonics: int = HUM_HARMONICS) -> np.ndarray:
+    """Columns of a baseline model over ``n`` samples: Legendre polynomials to ``order`` on [-1, 1], then
+    cos/sin of the hum frequency and its harmonics (when given).
+
+    Returns
+    -------
+    ndarray, shape (n, order + 1 [+ 2 harmonics])
+    """
+    u = np.linspace(-1.0, 1.0, n) if n > 1 else np.zeros(n)
+    cols = [np.polynomial.legendre.legval(u, np.eye(order + 1)[k]) for k in range(order + 1)]
+    if hum_frequency:
+        t = np.arange(n) * dt
+        for h in range(1, harmonics + 1):
+            w = 2.0 * np.pi * h * hum_frequency * t
+            cols += [np.cos(w), np.sin(w)]
+    return np.column_stack(cols)
+
+
+def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_frequency: Optional[float] = None,
+                 max_order: int = MAX_BASELINE_ORDER, fixed_order: Optional[int] = None) -> tuple[np.ndarray, dict]:
+    """Least-squares baseline over the quiet samples, of the lowest order the data justify.
+
+    Polynomials of order 0 to ``max_order`` (plus the hum terms, when a hum
+    frequency is given) are fitted to the samples where ``quiet`` is True;
+    the order with the smallest Schwarz (Bayesian) information criterion
+    BIC = n ln(RSS/n) + p ln n is kept (Schwarz 1978), so a higher order is
+    taken only when it lowers the residual by more than chance would. The
+    highest order tried is capped by how much of the record the quiet samples
+    span (order 0 below a tenth, 1 below a half), since the baseline is
+    extrapolated beyond them.
+
+    Parameters
+    ----------
+    signal : array_like
+        A record channel [V].
+    quiet : array_like of bool
+        Samples that hold no pulse.
+    dt : float
+        Sample interval [s] (for the hum terms).
+    hum_frequency : float, optional
+        Mains frequency [Hz]; its first :data:`HUM_HARMONICS` harmonics are fitted too.
+    max_order : int
+        Highest polynomial order tried.
+    fixed_order : int, optional
+        Use this order instead of choosing one.
+
+    Returns
+    -------
+    baseline : ndarray
+        The fitted baseline at every sample [V].
+    info : dict
+        ``order``, ``quiet_samples``, ``rms_V`` (residual standard deviation
+        over the quiet samples) and ``hum_amplitude_V`` (with a hum frequency).
+
+    References
+    ----------
+    .. [1] G. Schwarz, "Estimating the dimension of a model", Ann. Statist. 6,
+       461-464 (1978), doi:10.1214/aos/1176344136.
+    """
+    x = np.asarray(signal, dtype=float)
+    q = np.asarray(quiet, dtype=bool)
+    idx = np.flatnonzero(q)
+    if idx.size < 2:
+        idx = np.arange(min(x.size, 2))
+    # a polynomial is trusted only where quiet samples pin it down: fitted on the record's start alone, it
+    # would be extrapolated over the rest, so the order is capped by the share of the record they span
+    extent = (idx[-1] - idx[0]) / max(x.size - 1, 1)
+    max_order = min(max_order, 0 if extent < 0.1 else 1 if extent < 0.5 else max_order)
+    step = max(1, idx.size // 100_000)  # a strided subset keeps very long records cheap
+    idx = idx[::step]
+    orders = [fixed_order] if fixed_order is not None else range(max_order + 1)
+    best = None
+    for order in orders:
+        basis = baseline_basis(x.size, order, dt, hum_frequency)
+        a = basis[idx]
+        if a.shape[1] >= idx.size:
+            break
+        coef, *_ = np.linalg.lstsq(a, x[idx], rcond=None)
+        rss = float(np.sum((x[idx] - a @ coef) ** 2))
+        bic = idx.size * math.log(max(rss, 1e-300) / idx.size) + a.shape[1] * math.log(idx.size)
+        if best is None or bic < best[0]:
+            best = (bic, order, coef, basis, rss)
+    if best is None:  # too few quiet samples for any model: their mean
+        level = float(np.mean(x[idx]))
+        return np.full(x.size, level), {"order": 0, "quiet_samples": int(q.sum()), "rms_V": 0.0}
+    _, order, coef, basis, rss = best
+    info = {"order": int(order), "quiet_samples": int(q.sum()),
+            "rms_V": math.sqrt(rss / idx.size)}
+    if hum_frequency:
+        hum = coef[order + 1:]
+        info["hum_amplitude_V"] = [float(math.hypot(hum[2 * h], hum[2 * h + 1])) for h in range(hum.size // 2)]
+    return basis @ coef, info
+
+
+def quiet_mask(residual: ArrayLike, sigma: float, n_smooth: int, *, k_sigma: float = 4.0) -> np.ndarray:
+    """Samples where no pulse passes: the residual's running mean stays within noise.
+
+    A sample is active when the running mean of the residual over
+    ``n_smooth`` samples exceeds ``k_sigma`` times its own noise
+    sigma / sqrt(n_smooth); active runs are widened by ``2 n_smooth`` samples
+    each side so the feet and tails of the pulses stay out.
+
+    Returns
+    -------
+    ndarray of bool
+        True where quiet.
+    """
+    r = np.asarray(residual, dtype=float)
+    level = k_sigma * max(sigma, 1e-300) / math.sqrt(max(n_smooth, 1))
+    active = np.abs(running_mean(r, n_smooth)) > level
+    return ~_dilate(active, 2 * int(n_smooth))
+
+
+def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLike, *,
+                   hum_frequency: Optional[float] = None, iterations: int = 5,
+                   search: bool = True) -> tuple[np.ndarray, np.ndarray, dict]:
+    """Baseline of a channel fitted over all its quiet spans, found by iteration.
+
+    Starting from the median of the ``initial`` span (the record before the
+    incident foot), the quiet samples of the whole record are found against
+    the current baseline (:func:`quiet_mask`) and the baseline is refitted on
+    them (:func:`fit_baseline`), until the quiet samples stop changing. A drift
+    that the first span only hints at is thus confirmed by the gaps between
+    the passes of the waves, and fitted over all of them.
+
+    Parameters
+    ----------
+    signal : array_like
+        A record channel [V], glitches repaired.
+    sigma : float
+        Its noise standard deviation [V].
+    dt : float
+        Sample interval [s].
+    initial : array_like of bool
+        Samples known to be pulse-free.
+    hum_frequency : float, optional
+        Mains frequency [Hz] to fit with the baseline.
+    iterations : int
+        Largest number of refits.
+    search : bool
+        False: fit over the ``initial`` samples only, all of them (a span the
+        user gives as quiet).
+
+    Returns
+    -------
+    baseline : ndarray
+        [V] at every sample.
+    quiet : ndarray of bool
+        The samples it was fitted on.
+    info : dict
+        As :func:`fit_baseline`, with ``quiet_fraction`` and ``iterations``.
+    """
+    x = np.asarray(signal, dtype=float)
+    init = np.asarray(initial, dtype=bool)
+    if not search:  # the span is quiet on the user's word
+        base, info = fit_baseline(x, init, dt=dt, hum_frequency=hum_frequency)
+        info.update(iterations=1, quiet_fraction=float(init.mean()) if init.size else 0.0)
+        return base, init.copy(), info
+    n_smooth = max(8, int(round(QUIET_SMOOTHING / dt)))
+    base = np.full(x.size, float(np.median(x[init])) if init.any() else float(np.median(x)))
+    quiet = init.copy()
+    info: dict = {}
+    for it in range(1, iterations + 1):
+        new = quiet_mask(x - base, sigma, n_smooth)
+        if not new[init].any():  # keep at least the known-quiet span
+            new = init.copy()
+        if it > 1 and np.array_equal(new, quiet):
+            break
+        quiet = new
+        base, info = fit_baseline(x, quiet, dt=dt, hum_frequency=hum_frequency)
+        info["iterations"] = it
+    info["quiet_fraction"] = float(quiet.mean()) if quiet.size else 0.0
+    return base, quiet, info
+
+
+# --------------------------------------------------------------------------- channel diagnosis
+def first_excursion(signal: ArrayLike, sigma: float, *, k_sigma: float = 8.0,
+                    min_fraction: float = 0.2) -> Optional[tuple[int, int]]:
+    """Index and sign of the first pulse on a baseline-free channel, whatever its sign.
+
+    The first sample whose magnitude exceeds ``k_sigma`` noise standard
+    deviations and ``min_fraction`` of the channel's largest magnitude.
+
+    Returns
+    -------
+    (index, sign) or None
+        None when nothing stands out of the noise.
+    """
+    x = np.asarray(signal, dtype=float)
+    if x.size == 0:
+        return None
+    peak = float(np.max(np.abs(x)))
+    level = max(k_sigma * sigma, min_fraction * peak)
+    if peak <= level or peak == 0.0:
+        return None
+    i = int(np.argmax(np.abs(x) > level))
+    return i, int(np.sign(x[i]))
+
+
+# --------------------------------------------------------------------------- the low-pass
+def rise_time(signal: ArrayLike, start: float, dt: float, *, low: float = 0.1, high: float = 0.9) -> Optional[float]:
+    """10-90 % rise time of the first positive pulse after ``start`` [s].
+
+    The pulse's height is its largest value before the signal first turns
+    negative after rising through half of the record's maximum after ``start``.
+
+    Returns
+    -------
+    float or None
+        None when the pulse cannot be found.
+    """
+    s = np.asarray(signal, dtype=float)
+    i0 = max(int(math.floor(start)), 0)
+    seg = s[i0:]
+    if seg.size < 3 or not np.max(seg) > 0:
+        return None
+    det = int(np.argmax(seg > 0.5 * np.max(seg)))
+    neg = np.flatnonzero(seg[det:] < 0)
+    stop = det + (int(neg[0]) if neg.size else seg.size - det)
+    height = float(np.max(seg[:stop]))
+    i_lo = int(np.argmax(seg[:stop] >= low * height))
+    i_hi = int(np.argmax(seg[:stop] >= high * height))
+    return max(i_hi - i_lo, 1) * dt
+
+
+def lowpass_cutoff(rise: Optional[float], second_mode: float, nyquist: float) -> tuple[float, str]:
+    """The automatic cutoff of the low-pass [Hz] and why it was chosen.
+
+    The bar's second-mode onset: above it a bar carries energy in more than
+    one mode, which neither a delay nor a one-mode dispersion correction moves
+    to the faces, so nothing there is signal to a Kolsky analysis; below it
+    lies the content of every wave a bar delivers whole, including what is
+    faster than the incident rise (the specimen's yield knee and ring-up in the
+    reflected and transmitted waves: a cutoff at a few times the incident
+    rise's bandwidth rounds the yield knee off). At most 0.8 of the Nyquist
+    frequency. The incident rise's bandwidth 0.35 / t_rise (common practice
+    for the 10-90 % rise of a band-limited step) is reported beside it; a
+    rise faster than the cutoff is one the bar itself has already blunted.
+
+    Parameters
+    ----------
+    rise : float or None
+        10-90 % rise time of the incident pulse [s].
+    second_mode : float
+        The bar's second-mode onset [Hz] (:func:`shpb.dispersion.second_mode_onset`).
+    nyquist : float
+        Half the sample rate [Hz].
+
+    Returns
+    -------
+    cutoff : float
+        [Hz].
+    reason : str
+        One line for the summary.
+    """
+    top, why = ((second_mode, "the bars' second-mode onset") if second_mode <= 0.8 * nyquist
+                else (0.8 * nyquist, "0.8 of the Nyquist frequency (below the bars' second-mode onset)"))
+    if rise is None:
+        return top, f"{top / 1e3:.0f} kHz: {why}; no incident rise measured"
+    band = 0.35 / rise
+    where = "below it" if band < top else "above it: the bar has blunted the rise"
+    return top, (f"{top / 1e3:.0f} kHz: {why}; the incident rise ({rise * 1e6:.2f} us, 10-90 %) has its "
+                 f"bandwidth 0.35/t_rise = {band / 1e3:.0f} kHz {where}")
+
+
+def lowpass(signal: ArrayLike, dt: float, cutoff: float, order: int = LOWPASS_ORDER) -> np.ndarray:
+    """Zero-phase Butterworth low-pass: second-order sections applied forwards and backwards.
+
+    The magnitude response is that of the Butterworth filter squared,
+    |H(f)|^2 = 1 / (1 + (tan(pi f dt) / tan(pi f_c dt))^(2 N)) with the
+    bilinear transform's frequency warping; the phase is zero, so every
+    channel filtered alike keeps its timing.
+
+    Parameters
+    ----------
+    signal : array_like
+        Samples (baseline removed, so the ends start near zero).
+    dt : float
+        Sample interval [s].
+    cutoff : float
+        Cutoff frequency f_c [Hz] (the single pass's -3 dB point; -6 dB after both).
+    order : int
+        Butterworth order N of one pass.
+
+    References
+    ----------
+    .. [1] S. Butterworth, "On the theory of filter amplifiers", Wireless
+       Engineer 7, 536-541 (1930).
+    .. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal
+       Processing*, 3rd ed., Pearson (2010), sec. 7.2 (bilinear transformation).
+    .. [3] F. Gustafsson, "Determining the initial states in forward-backward
+       filtering", IEEE Trans. Signal Process. 44, 988-992 (1996).
+    """
+    from scipy.signal import butter, sosfiltfilt
+
+    x = np.asarray(signal, dtype=float)
+    sos = butter(int(order), cutoff, btype="low", output="sos", fs=1.0 / dt)
+    return sosfiltfilt(sos, x)
