@@ -35,6 +35,8 @@ MAX_BASELINE_ORDER = 3
 HUM_HARMONICS = 3
 #: Time over which the residual is averaged to tell a pulse from noise [s].
 QUIET_SMOOTHING = 2e-6
+#: A pulse stands out of a baseline by more than this share of the channel's largest swing (and the noise).
+QUIET_FLOOR = 0.005
 #: A glitch stands out of its neighbours by this many noise standard deviations.
 GLITCH_SIGMA = 8.0
 
@@ -179,6 +181,8 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
     # would be extrapolated over the rest, so the order is capped by the share of the record they span
     extent = (idx[-1] - idx[0]) / max(x.size - 1, 1)
     max_order = min(max_order, 0 if extent < 0.1 else 1 if extent < 0.5 else max_order)
+    if extent < 0.5:  # a hum's phase is pinned down only by quiet samples on both sides of the pulses
+        hum_frequency = None
     step = max(1, idx.size // 100_000)  # a strided subset keeps very long records cheap
     idx = idx[::step]
     orders = [fixed_order] if fixed_order is not None else range(max_order + 1)
@@ -189,29 +193,34 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
         if a.shape[1] >= idx.size:
             break
         coef, *_ = np.linalg.lstsq(a, x[idx], rcond=None)
+        fitted = basis @ coef
+        if np.ptp(fitted) > 2.0 * np.ptp(x[idx]):  # swings between its samples more than they do: extrapolating
+            continue
         rss = float(np.sum((x[idx] - a @ coef) ** 2))
         bic = idx.size * math.log(max(rss, 1e-300) / idx.size) + a.shape[1] * math.log(idx.size)
         if best is None or bic < best[0]:
-            best = (bic, order, coef, basis, rss)
+            best = (bic, order, coef, fitted, rss)
     if best is None:  # too few quiet samples for any model: their mean
         level = float(np.mean(x[idx]))
         return np.full(x.size, level), {"order": 0, "quiet_samples": int(q.sum()), "rms_V": 0.0}
-    _, order, coef, basis, rss = best
+    _, order, coef, fitted, rss = best
     info = {"order": int(order), "quiet_samples": int(q.sum()),
             "rms_V": math.sqrt(rss / idx.size)}
     if hum_frequency:
         hum = coef[order + 1:]
         info["hum_amplitude_V"] = [float(math.hypot(hum[2 * h], hum[2 * h + 1])) for h in range(hum.size // 2)]
-    return basis @ coef, info
+    return fitted, info
 
 
-def quiet_mask(residual: ArrayLike, sigma: float, n_smooth: int, *, k_sigma: float = 4.0) -> np.ndarray:
+def quiet_mask(residual: ArrayLike, sigma: float, n_smooth: int, *, k_sigma: float = 4.0,
+               floor: float = 0.0) -> np.ndarray:
     """Samples where no pulse passes: the residual's running mean stays within noise.
 
     A sample is active when the running mean of the residual over
     ``n_smooth`` samples exceeds ``k_sigma`` times its own noise
-    sigma / sqrt(n_smooth); active runs are widened by ``2 n_smooth`` samples
-    each side so the feet and tails of the pulses stay out.
+    sigma / sqrt(n_smooth) and ``floor``; active runs are widened by
+    ``2 n_smooth`` samples each side so the feet and tails of the pulses stay
+    out.
 
     Returns
     -------
@@ -219,7 +228,7 @@ def quiet_mask(residual: ArrayLike, sigma: float, n_smooth: int, *, k_sigma: flo
         True where quiet.
     """
     r = np.asarray(residual, dtype=float)
-    level = k_sigma * max(sigma, 1e-300) / math.sqrt(max(n_smooth, 1))
+    level = max(k_sigma * max(sigma, 1e-300) / math.sqrt(max(n_smooth, 1)), floor)
     active = np.abs(running_mean(r, n_smooth)) > level
     return ~_dilate(active, 2 * int(n_smooth))
 
@@ -270,20 +279,39 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
         info.update(iterations=1, quiet_fraction=float(init.mean()) if init.size else 0.0)
         return base, init.copy(), info
     n_smooth = max(8, int(round(QUIET_SMOOTHING / dt)))
-    base = np.full(x.size, float(np.median(x[init])) if init.any() else float(np.median(x)))
-    quiet = init.copy()
-    info: dict = {}
+    if not init.any():
+        init = np.ones(x.size, dtype=bool)
+    # a pulse stands out by more than the noise and by more than a part in 200 of the channel's largest swing;
+    # the ringing tails of dispersed pulses below that average out in a baseline fit
+    floor = QUIET_FLOOR * float(np.ptp(x))
+    # start from the known-quiet span, fitted once, then once more without what stands out of it (pickup)
+    base, info = fit_baseline(x, init, dt=dt, hum_frequency=hum_frequency)
+    quiet = quiet_mask(x - base, sigma, n_smooth, floor=floor) & init
+    if quiet.sum() >= 2:
+        base, info = fit_baseline(x, quiet, dt=dt, hum_frequency=hum_frequency)
+    else:
+        quiet = init.copy()
+    info["iterations"] = 0
     for it in range(1, iterations + 1):
-        new = quiet_mask(x - base, sigma, n_smooth)
+        new = quiet_mask(x - base, sigma, n_smooth, floor=floor)
         if not new[init].any():  # keep at least the known-quiet span
             new = init.copy()
-        if it > 1 and np.array_equal(new, quiet):
+        if np.array_equal(new, quiet) and it > 1:
             break
         quiet = new
         base, info = fit_baseline(x, quiet, dt=dt, hum_frequency=hum_frequency)
         info["iterations"] = it
     info["quiet_fraction"] = float(quiet.mean()) if quiet.size else 0.0
     return base, quiet, info
+
+
+def noise_samples(signal: ArrayLike, baseline: ArrayLike, sigma: float, dt: float, quiet: ArrayLike) -> np.ndarray:
+    """The quiet samples where the residual stays within the noise itself (no ringing tail of a pulse): where
+    a channel's noise is measured."""
+    n_smooth = max(8, int(round(QUIET_SMOOTHING / dt)))
+    r = np.asarray(signal, dtype=float) - np.asarray(baseline, dtype=float)
+    strict = quiet_mask(r, sigma, n_smooth) & np.asarray(quiet, dtype=bool)
+    return strict if strict.sum() >= 16 else np.asarray(quiet, dtype=bool)
 
 
 # --------------------------------------------------------------------------- channel diagnosis

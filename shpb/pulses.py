@@ -317,7 +317,8 @@ class GaugeStrains:
     foot_source : str
         ``found`` or ``given`` (the analysis option ``incident_start``).
     quiet_incident, quiet_transmitted : ndarray of bool or None
-        The samples each baseline was fitted on.
+        Quiet samples of each channel where its noise is measured (those the
+        baseline was fitted on, less any ringing tail of a pulse).
     pulses : dict
         Channel name -> ``(time [s], sign)`` of the first pulse on the channel,
         the sign relative to the gauge's polarity (+1: compressive, as it must
@@ -443,11 +444,18 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
                             f"pre-trigger baseline (record at least {MIN_BASELINE_SAMPLES} samples before the pulse)")
     n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
     initial = np.arange(n) < n_base
+    gaps = {k: initial for k in gauges}
+    if not analysis.pre_trigger:  # where the bars' geometry says no wave passes a gauge: where the search starts
+        x = gauges["incident"].polarity * clean["incident"]
+        end = pulse_end(x - robust_noise(x)[0], foot0, fraction=0.05)
+        if end is not None:
+            gaps = _expected_gaps(foot0, (end - foot0) * dt, dt, n, barset)
     volts, bases, quiet = {}, {}, {}
     for name in ("incident", "transmitted"):
-        bases[name], quiet[name], binfo = cond.quiet_baseline(
-            clean[name], sigma[name], dt, initial, hum_frequency=analysis.hum_frequency,
+        bases[name], fit_set, binfo = cond.quiet_baseline(
+            clean[name], sigma[name], dt, initial | gaps[name], hum_frequency=analysis.hum_frequency,
             search=not analysis.pre_trigger)
+        quiet[name] = cond.noise_samples(clean[name], bases[name], sigma[name], dt, fit_set)
         volts[name] = clean[name] - bases[name]
         info[name].update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
                            "noise_V": float(sigma[name])})
@@ -477,6 +485,36 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
                         noise_incident=noise["incident"], noise_transmitted=noise["transmitted"], foot=foot,
                         foot_source=source, quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"],
                         pulses=pulses, conditioning=info)
+
+
+def _expected_gaps(foot: float, duration: float, dt: float, n: int, barset: "BarSet") -> dict:
+    """Channel -> samples where the bars' geometry puts no wave at the gauge (the middle of each gap).
+
+    Incident gauge: between the incident pulse's end and the reflected wave's
+    arrival (2 d_i / c_i after the foot), and between the reflected wave's end
+    and its return from the impact end (2 (L_i - d_i) / c_i later).
+    Transmitted gauge: before the transmitted wave arrives ((d_i + d_t) / c
+    after the foot) and between its end and the far end's echo
+    (2 (L_t - d_t) / c_t later). Only the middle half of each gap is taken, so
+    a wrong distance, a pulse's tail or a specimen transit stays out.
+    """
+    bi, bt = barset.incident, barset.transmitted
+    ti, tt = barset.incident_gauge.distance / bi.wave_speed, barset.transmitted_gauge.distance / bt.wave_speed
+    ret_i = 2 * (bi.length - barset.incident_gauge.distance) / bi.wave_speed
+    echo_t = 2 * (bt.length - barset.transmitted_gauge.distance) / bt.wave_speed
+    arrive = foot * dt + ti + tt  # the transmitted foot, in record time from the first sample
+    spans = {"incident": [(foot * dt + duration, foot * dt + 2 * ti),
+                          (foot * dt + 2 * ti + duration, foot * dt + 2 * ti + ret_i)],
+             "transmitted": [(foot * dt, arrive), (arrive + duration, arrive + echo_t)]}
+    k = np.arange(n) * dt
+    out = {}
+    for name, pairs in spans.items():
+        mask = np.zeros(n, dtype=bool)
+        for a, b in pairs:
+            if b > a:
+                mask |= (k > a + 0.25 * (b - a)) & (k < b - 0.25 * (b - a))
+        out[name] = mask
+    return out
 
 
 def _first_pulses(clean, sigma, gauges, dt, t0) -> dict:
@@ -561,6 +599,10 @@ class WindowPlan:
         How the window length was chosen.
     span : (int, int)
         Half-open sample range of the window at the faces (record samples).
+    carry_span : (int, int)
+        Half-open sample range over which the waves are cut and carried
+        (record samples at the faces): the span, or longer when a given
+        window is shorter than the automatic one.
     ramp : int
         Raised-cosine taper at each end of a wave's window [samples].
     duration : float
@@ -593,6 +635,7 @@ class WindowPlan:
     distances: dict = field(default_factory=dict)
     travel_times: dict = field(default_factory=dict)
     adjusts: dict = field(default_factory=dict)
+    carry_span: tuple = ()
 
     @property
     def k0(self) -> int:
@@ -654,7 +697,10 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     incident_length, transmitted_length : float
         Bar lengths [m].
     window_length : float, optional
-        A given window length [s] (used as is).
+        A given window length [s]: the curves end there. The waves are still
+        cut at their gauges over the automatic window when that is longer, so
+        no window edge falls inside a pulse (a wave cut mid-pulse rings through
+        the dispersion correction and breaks the force balance).
 
     Returns
     -------
@@ -672,17 +718,19 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
         lead = max(gap, ramp_time(duration, dt) + 2 * dt)
     t_foot = t_start + foot * dt
     t_face0 = t_foot + di / ci
-    if window_length:
-        source = "given"
+    auto, source = max(min(3 * duration, 0.97 * w_free - lead), duration), "automatic"
+    w_rec = t_end - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
+    if w_rec < auto:
+        auto, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
+    if window_length:  # a given window crops the curves; the waves are still cut whole (no edge to ring)
+        source, carry = "given", max(window_length, auto)
     else:
-        window_length, source = max(min(3 * duration, 0.97 * w_free - lead), duration), "automatic"
-        w_rec = t_end - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
-        if w_rec < window_length:
-            window_length, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
+        window_length = carry = auto
     k0 = int(np.ceil((t_face0 - lead - t_start) / dt))
     k1 = int(np.floor((t_face0 + window_length - t_start) / dt)) + 1
+    kc = int(np.floor((t_face0 + carry - t_start) / dt)) + 1
     ramp = max(2, int(ramp_time(duration, dt) / dt))
-    return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration)
+    return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration, carry_span=(k0, kc))
 
 
 def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions") -> WindowPlan:
@@ -726,7 +774,7 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
         travel[name] = distances[name] / getattr(barset, bar_name).wave_speed
         # a hand adjustment of the alignment: the wave is taken `adjust` seconds later at its gauge
         shift = travel[name] / dt - adjusts[name] / dt
-        spans[name] = (plan.k0 - shift, plan.k1 - shift)
+        spans[name] = (plan.carry_span[0] - shift, plan.carry_span[1] - shift)
     return replace(plan, duration_source=source, gauge_spans=spans, distances=distances, travel_times=travel,
                    adjusts=adjusts)
 
@@ -783,15 +831,16 @@ def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset: "BarSet", an
     """Stage 3: cut each wave out at its gauge and carry it to its specimen face.
 
     Each wave is moved over its gauge distance with the bar's
-    Pochhammer-Chree dispersion (:func:`shpb.dispersion.propagate`) when the
-    analysis option ``dispersion`` is on, else by a pure sub-sample delay;
-    a hand adjustment moves it further by a pure delay.
+    Pochhammer-Chree dispersion (:func:`shpb.dispersion.propagate`, the
+    fundamental mode's phase velocity up to the bar's second-mode onset and
+    held there above) when the analysis option ``dispersion`` is on, else by a
+    pure sub-sample delay; a hand adjustment moves it further by a pure delay.
 
     Returns
     -------
     FaceWaves
     """
-    dt, (k0, k1) = strains.dt, plan.span
+    dt, (k0, k1), kc = strains.dt, plan.span, plan.carry_span[1]
     use_disp = bool(analysis.dispersion)
     faces, plains = {}, {}
     for name, bar_name, _ in WAVES:
@@ -805,21 +854,26 @@ def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset: "BarSet", an
         adjust = plan.adjusts[name]
         if adjust:
             face, plain = delay(face, dt, -adjust), delay(plain, dt, -adjust)
-        if k1 > face.size:  # the window runs past the record's end: zeros there (flagged by the verdict)
-            face, plain = np.pad(face, (0, k1 - face.size)), np.pad(plain, (0, k1 - plain.size))
+        if max(k1, kc) > face.size:  # the window runs past the record's end: zeros there (flagged by the verdict)
+            face = np.pad(face, (0, max(k1, kc) - face.size))
+            plain = np.pad(plain, (0, max(k1, kc) - plain.size))
         faces[name], plains[name] = face[k0:k1], plain[k0:k1]
     time = float(strains.time[0]) + np.arange(k0, k1) * dt - plan.t_face0
     return FaceWaves(time=time, dt=dt, **faces, plain=plains,
                      dispersion=_dispersion_record(use_disp, barset, analysis, dt, plan, faces, plains),
-                     weight=taper_window(k1 - k0, 0.0, float(k1 - k0), plan.ramp))
+                     weight=taper_window(kc - k0, 0.0, float(kc - k0), plan.ramp)[: k1 - k0])
 
 
 def _dispersion_mover(dt, distance, bar, amplitude_factors):
-    from .dispersion import propagate
+    from .dispersion import propagate, second_mode_onset
+
+    # above the second mode's onset a fundamental-mode phase shift is not the whole story: those components
+    # are moved rigidly (the phase velocity held at the onset's), not "corrected" as fundamental mode
+    onset = second_mode_onset(bar.radius, bar.wave_speed, bar.poisson_ratio)
 
     def mover(segment):
         return propagate(segment, dt, distance, bar.radius, bar.wave_speed, bar.poisson_ratio,
-                         amplitude_factors=amplitude_factors)
+                         amplitude_factors=amplitude_factors, max_frequency=onset)
 
     return mover
 
@@ -829,15 +883,17 @@ def _dispersion_record(applied, barset, analysis, dt, plan, faces, plains) -> di
     info = {"applied": applied}
     if not applied:
         return info
-    from .dispersion import dispersion_info
+    from .dispersion import dispersion_info, second_mode_onset
 
     bi, bt = barset.incident, barset.transmitted
     info.update(dispersion_info(bi.radius, bi.wave_speed, bi.poisson_ratio, dt=dt,
-                                amplitude_factors=analysis.amplitude_factors))
+                                amplitude_factors=analysis.amplitude_factors,
+                                max_frequency=second_mode_onset(bi.radius, bi.wave_speed, bi.poisson_ratio)))
     info["distances_m"] = dict(plan.distances)
     if (bt.radius, bt.wave_speed, bt.poisson_ratio) != (bi.radius, bi.wave_speed, bi.poisson_ratio):
-        info["transmitted_bar"] = dispersion_info(bt.radius, bt.wave_speed, bt.poisson_ratio, dt=dt,
-                                                  amplitude_factors=analysis.amplitude_factors)
+        info["transmitted_bar"] = dispersion_info(
+            bt.radius, bt.wave_speed, bt.poisson_ratio, dt=dt, amplitude_factors=analysis.amplitude_factors,
+            max_frequency=second_mode_onset(bt.radius, bt.wave_speed, bt.poisson_ratio))
     peak = max(float(np.max(np.abs(faces["incident"]))), 1e-30)
     for k in faces:
         info[f"max_change_{k}_percent_of_incident_peak"] = float(100 * np.max(np.abs(faces[k] - plains[k])) / peak)

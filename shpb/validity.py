@@ -45,6 +45,9 @@ MODULUS_EXCESS = 1.5
 #: Front/back force lag over the rise beyond [0, transit] [s]: warning above the first, error above the second
 #: (a 10 mm error in a gauge distance on steel bars is 2 us).
 ALIGNMENT_WARNING, ALIGNMENT_ERROR = 0.6e-6, 1.5e-6
+#: Largest lead of the reflected wave's rise over the incident wave's at the front face [s] (a reflection
+#: starts with its incident wave; the margin covers the two waves' different shapes: common practice).
+REFLECTED_LEAD = 1.0e-6
 #: Steady back/front force ratio over the loading beyond which a scale is wrong (common practice).
 FORCE_RATIO_LIMIT = 1.2
 #: Measured incident peak over the striker's prediction: outside the first pair a warning, outside the second
@@ -624,7 +627,7 @@ def striker_flag(peak_strain: float, striker_speed: float, bar_wave_speed: float
     Parameters
     ----------
     peak_strain : float
-        Peak of the incident pulse [1].
+        Plateau of the incident pulse [1] (the median of its top fifth).
     striker_speed : float
         Impact speed [m/s].
     bar_wave_speed : float
@@ -721,21 +724,22 @@ def _longest_run(mask: np.ndarray) -> int:
     return int(np.max(edges[1::2] - edges[0::2])) if edges.size else 0
 
 
-def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optional[float], force_noise: float,
-                    bar_wave_speed: float) -> tuple[list, dict]:
-    """The front and back forces over the rise: do they arrive in the order and at the times physics allows?
+def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optional[float], bar_wave_speed: float,
+                    waves: Optional["FaceWaves"] = None) -> tuple[list, dict]:
+    """The waves at the faces: do they arrive in the order and at the times physics allows?
 
     The back-face force lags the front-face force by less than a specimen
     transit (:func:`alignment_lag`, over the rise from t = 0 to 60 % of the
-    peak force); and the front-face force, the sum of the incident and
-    reflected waves, cannot pull (go negative) before the loading: a reflected
-    wave that starts before its incident wave arrives was carried too far.
+    peak force); and the reflected wave cannot rise before the incident wave
+    it reflects (each read where it first reaches a tenth of its peak, so the
+    same low-pass's ringing shifts both alike): one that does was carried too
+    far back, the incident gauge distance being too long.
 
     Returns
     -------
     flags : list of Flag
     results : dict
-        ``force_lag_us``.
+        ``force_lag_us`` and ``reflected_lead_us``.
     """
     flags, results = [], {}
     t, f1, f2 = curves.time, curves.force_front, curves.force_back
@@ -758,14 +762,30 @@ def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optiona
                           f"over the rise the back-face force {where}: the waves are misaligned; check the gauge "
                           f"distances and the bars' wave speeds (a 10 mm error in a gauge distance is "
                           f"{0.01 / bar_wave_speed * 1e6:.1f} us here)"))
-    early = f1[:i1]
-    low = float(np.min(early)) if early.size else 0.0
-    if low < -max(4 * force_noise, 0.1 * float(np.max(f1))):
-        flags.append(Flag("reflected_early", "error",
-                          f"the front-face force pulls ({low / 1e3:.1f} kN) before the specimen is loaded: the "
-                          f"reflected wave starts before its incident wave arrives; check the incident gauge distance "
-                          f"(too long?) and the incident bar's wave speed"))
+    if waves is not None:
+        ti = _first_crossing(waves.incident, 0.1, dt)
+        tr = _first_crossing(-waves.reflected, 0.1, dt)
+        if ti is not None and tr is not None:
+            results["reflected_lead_us"] = (ti - tr) * 1e6
+            if ti - tr > REFLECTED_LEAD + 2 * dt:
+                flags.append(Flag("reflected_early", "error",
+                                  f"the reflected wave reaches a tenth of its peak {(ti - tr) * 1e6:.1f} us before the "
+                                  f"incident wave reaches a tenth of its own: a reflection cannot come before the wave it "
+                                  f"reflects; check the incident gauge distance (too long?) and the incident bar's "
+                                  f"wave speed"))
     return flags, results
+
+
+def _first_crossing(signal: np.ndarray, fraction: float, dt: float) -> Optional[float]:
+    """Time [s, from the window's start] where a signal first rises through ``fraction`` of its peak."""
+    x = np.asarray(signal, dtype=float)
+    if not x.size or not np.max(x) > 0:
+        return None
+    level = fraction * float(np.max(x))
+    j = int(np.argmax(x >= level))
+    if j == 0:
+        return 0.0
+    return (j - 1 + (level - x[j - 1]) / (x[j] - x[j - 1])) * dt
 
 
 def force_ratio_flag(curves: "KolskyCurves", region: Optional[tuple]) -> tuple[Optional[Flag], Optional[float]]:
@@ -983,8 +1003,8 @@ def bar_flags(strains: "GaugeStrains", plan: "WindowPlan", barset: "BarSet") -> 
     return [f for f in flags if f is not None], results
 
 
-def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", curves: "KolskyCurves", barset: "BarSet",
-                      specimen: "Specimen", region: Optional[tuple], force_noise: float,
+def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curves: "KolskyCurves",
+                      barset: "BarSet", specimen: "Specimen", region: Optional[tuple],
                       striker_speed: Optional[float]) -> tuple[list, dict]:
     """Checks that catch a wrong setup: front and back forces (timing and scale), the striker's pulse.
 
@@ -993,8 +1013,7 @@ def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", curves: "Kols
     flags : list of Flag
     results : dict
     """
-    flags, results = alignment_flags(curves, strains.dt, specimen.transit_time, force_noise,
-                                     barset.incident.wave_speed)
+    flags, results = alignment_flags(curves, strains.dt, specimen.transit_time, barset.incident.wave_speed, waves)
     flag, q = force_ratio_flag(curves, region)
     flags.append(flag)
     if q is not None:
@@ -1006,8 +1025,9 @@ def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", curves: "Kols
         z_striker = (striker.material.density * striker.material.bar_wave_speed * striker.area if striker
                      else bi.impedance)
         f0 = max(int(strains.foot), 0)
-        peak = float(np.max(strains.incident[f0:f0 + max(int(plan.duration / strains.dt), 1)]))
-        flag, ratio = striker_flag(peak, speed, bi.wave_speed, bi.impedance, z_striker)
+        pulse = strains.incident[f0:f0 + max(int(plan.duration / strains.dt), 1)]
+        top = pulse[pulse >= 0.8 * np.max(pulse)]  # its plateau: a filter's or the bar's overshoot is no part
+        flag, ratio = striker_flag(float(np.median(top)), speed, bi.wave_speed, bi.impedance, z_striker)
         flags.append(flag)
         results["striker_speed_m_per_s"] = speed
         results["incident_peak_over_striker"] = ratio
@@ -1061,7 +1081,7 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
     failed = any(f.code in ("no_equilibrium", "short_equilibrium") for f in judged.flags)
     bflags = [_confirm_flat_top(f, failed) if f.code == "flat_top" else f for f in bflags]
     region = _region_of(judged, curves.time)
-    cflags, cresults = consistency_flags(strains, plan, curves, barset, specimen, region, u1, striker_speed)
+    cflags, cresults = consistency_flags(strains, plan, waves, curves, barset, specimen, region, striker_speed)
     return Verdict(valid=judged.valid, equilibrium_ratio=judged.equilibrium_ratio,
                    results={**judged.results, **bresults, **cresults},
                    flags=tuple(record_flags(strains, plan, waves, barset) + cflags + judged.flags + bflags),
