@@ -31,12 +31,12 @@ from numpy.typing import ArrayLike
 LOWPASS_ORDER = 4
 #: Highest polynomial order of a baseline.
 MAX_BASELINE_ORDER = 3
+#: With a hum frequency given, the first pass takes samples within this share of the channel's swing as quiet.
+HUM_COARSE = 0.05
 #: Harmonics of the mains frequency fitted when a hum frequency is given.
 HUM_HARMONICS = 3
 #: Time over which the residual is averaged to tell a pulse from noise [s].
 QUIET_SMOOTHING = 2e-6
-#: A pulse stands out of a baseline by more than this share of the channel's largest swing (and the noise).
-QUIET_FLOOR = 0.005
 #: A glitch stands out of its neighbours by this many noise standard deviations.
 GLITCH_SIGMA = 8.0
 
@@ -141,7 +141,7 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
     BIC = n ln(RSS/n) + p ln n is kept (Schwarz 1978), so a higher order is
     taken only when it lowers the residual by more than chance would. The
     highest order tried is capped by how much of the record the quiet samples
-    span (order 0 below a tenth, 1 below a half), since the baseline is
+    span (order 0 below a twentieth, 1 below a half), since the baseline is
     extrapolated beyond them.
 
     Parameters
@@ -180,7 +180,7 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
     # a polynomial is trusted only where quiet samples pin it down: fitted on the record's start alone, it
     # would be extrapolated over the rest, so the order is capped by the share of the record they span
     extent = (idx[-1] - idx[0]) / max(x.size - 1, 1)
-    max_order = min(max_order, 0 if extent < 0.1 else 1 if extent < 0.5 else max_order)
+    max_order = min(max_order, 0 if extent < 0.05 else 1 if extent < 0.5 else max_order)
     if extent < 0.5:  # a hum's phase is pinned down only by quiet samples on both sides of the pulses
         hum_frequency = None
     step = max(1, idx.size // 100_000)  # a strided subset keeps very long records cheap
@@ -194,7 +194,7 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
             break
         coef, *_ = np.linalg.lstsq(a, x[idx], rcond=None)
         fitted = basis @ coef
-        if np.ptp(fitted) > 2.0 * np.ptp(x[idx]):  # swings between its samples more than they do: extrapolating
+        if np.ptp(fitted) > 10.0 * np.ptp(x[idx]):  # swings far beyond its samples: extrapolating wildly
             continue
         rss = float(np.sum((x[idx] - a @ coef) ** 2))
         bic = idx.size * math.log(max(rss, 1e-300) / idx.size) + a.shape[1] * math.log(idx.size)
@@ -238,12 +238,14 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
                    search: bool = True) -> tuple[np.ndarray, np.ndarray, dict]:
     """Baseline of a channel fitted over all its quiet spans, found by iteration.
 
-    Starting from the median of the ``initial`` span (the record before the
+    Starting from a fit of the ``initial`` span (the record before the
     incident foot), the quiet samples of the whole record are found against
     the current baseline (:func:`quiet_mask`) and the baseline is refitted on
     them (:func:`fit_baseline`), until the quiet samples stop changing. A drift
     that the first span only hints at is thus confirmed by the gaps between
-    the passes of the waves, and fitted over all of them.
+    the passes of the waves, and fitted over all of them. The search also
+    starts from the span's median (pickup inside the span then stands out of
+    it), and the start that finds more quiet samples wins.
 
     Parameters
     ----------
@@ -256,7 +258,10 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
     initial : array_like of bool
         Samples known to be pulse-free.
     hum_frequency : float, optional
-        Mains frequency [Hz] to fit with the baseline.
+        Mains frequency [Hz] to fit with the baseline. A hum bends the
+        baseline by many times the noise, so the search then starts from a
+        coarse pass (every sample within :data:`HUM_COARSE` of the channel's
+        swing from the first fit) before the noise-tight one.
     iterations : int
         Largest number of refits.
     search : bool
@@ -281,19 +286,28 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
     n_smooth = max(8, int(round(QUIET_SMOOTHING / dt)))
     if not init.any():
         init = np.ones(x.size, dtype=bool)
-    # a pulse stands out by more than the noise and by more than a part in 200 of the channel's largest swing;
-    # the ringing tails of dispersed pulses below that average out in a baseline fit
-    floor = QUIET_FLOOR * float(np.ptp(x))
-    # start from the known-quiet span, fitted once, then once more without what stands out of it (pickup)
-    base, info = fit_baseline(x, init, dt=dt, hum_frequency=hum_frequency)
-    quiet = quiet_mask(x - base, sigma, n_smooth, floor=floor) & init
+    # two starts: the known-quiet span's fit (follows a drift) and its median (blind to pickup inside it); the
+    # search keeps the baseline that finds the more quiet samples, the one that agrees with the record
+    starts = [fit_baseline(x, init, dt=dt)[0], np.full(x.size, float(np.median(x[init])))]
+    found = [_grow(x, sigma, dt, n_smooth, b, init, hum_frequency, iterations) for b in starts]
+    return max(found, key=lambda f: int(f[1].sum()))
+
+
+def _grow(x, sigma, dt, n_smooth, base, init, hum_frequency, iterations):
+    """From a first baseline, alternate finding the quiet samples and refitting on them until they settle."""
+    quiet = quiet_mask(x - base, sigma, n_smooth) & init
     if quiet.sum() >= 2:
-        base, info = fit_baseline(x, quiet, dt=dt, hum_frequency=hum_frequency)
+        base, info = fit_baseline(x, quiet, dt=dt)
     else:
         quiet = init.copy()
+        base, info = fit_baseline(x, quiet, dt=dt)
+    if hum_frequency:  # a hum bends the baseline more than a noise-tight test lets through: first a coarse pass,
+        # every sample within a twentieth of the channel's swing taken (the pulses stand far out), then the tight one
+        coarse = np.abs(x - base) < HUM_COARSE * float(np.ptp(x))
+        base, info = fit_baseline(x, coarse | quiet, dt=dt, hum_frequency=hum_frequency)
     info["iterations"] = 0
     for it in range(1, iterations + 1):
-        new = quiet_mask(x - base, sigma, n_smooth, floor=floor)
+        new = quiet_mask(x - base, sigma, n_smooth)
         if not new[init].any():  # keep at least the known-quiet span
             new = init.copy()
         if np.array_equal(new, quiet) and it > 1:

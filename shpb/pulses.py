@@ -444,16 +444,10 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
                             f"pre-trigger baseline (record at least {MIN_BASELINE_SAMPLES} samples before the pulse)")
     n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
     initial = np.arange(n) < n_base
-    gaps = {k: initial for k in gauges}
-    if not analysis.pre_trigger:  # where the bars' geometry says no wave passes a gauge: where the search starts
-        x = gauges["incident"].polarity * clean["incident"]
-        end = pulse_end(x - robust_noise(x)[0], foot0, fraction=0.05)
-        if end is not None:
-            gaps = _expected_gaps(foot0, (end - foot0) * dt, dt, n, barset)
     volts, bases, quiet = {}, {}, {}
     for name in ("incident", "transmitted"):
         bases[name], fit_set, binfo = cond.quiet_baseline(
-            clean[name], sigma[name], dt, initial | gaps[name], hum_frequency=analysis.hum_frequency,
+            clean[name], sigma[name], dt, initial, hum_frequency=analysis.hum_frequency,
             search=not analysis.pre_trigger)
         quiet[name] = cond.noise_samples(clean[name], bases[name], sigma[name], dt, fit_set)
         volts[name] = clean[name] - bases[name]
@@ -485,36 +479,6 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
                         noise_incident=noise["incident"], noise_transmitted=noise["transmitted"], foot=foot,
                         foot_source=source, quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"],
                         pulses=pulses, conditioning=info)
-
-
-def _expected_gaps(foot: float, duration: float, dt: float, n: int, barset: "BarSet") -> dict:
-    """Channel -> samples where the bars' geometry puts no wave at the gauge (the middle of each gap).
-
-    Incident gauge: between the incident pulse's end and the reflected wave's
-    arrival (2 d_i / c_i after the foot), and between the reflected wave's end
-    and its return from the impact end (2 (L_i - d_i) / c_i later).
-    Transmitted gauge: before the transmitted wave arrives ((d_i + d_t) / c
-    after the foot) and between its end and the far end's echo
-    (2 (L_t - d_t) / c_t later). Only the middle half of each gap is taken, so
-    a wrong distance, a pulse's tail or a specimen transit stays out.
-    """
-    bi, bt = barset.incident, barset.transmitted
-    ti, tt = barset.incident_gauge.distance / bi.wave_speed, barset.transmitted_gauge.distance / bt.wave_speed
-    ret_i = 2 * (bi.length - barset.incident_gauge.distance) / bi.wave_speed
-    echo_t = 2 * (bt.length - barset.transmitted_gauge.distance) / bt.wave_speed
-    arrive = foot * dt + ti + tt  # the transmitted foot, in record time from the first sample
-    spans = {"incident": [(foot * dt + duration, foot * dt + 2 * ti),
-                          (foot * dt + 2 * ti + duration, foot * dt + 2 * ti + ret_i)],
-             "transmitted": [(foot * dt, arrive), (arrive + duration, arrive + echo_t)]}
-    k = np.arange(n) * dt
-    out = {}
-    for name, pairs in spans.items():
-        mask = np.zeros(n, dtype=bool)
-        for a, b in pairs:
-            if b > a:
-                mask |= (k > a + 0.25 * (b - a)) & (k < b - 0.25 * (b - a))
-        out[name] = mask
-    return out
 
 
 def _first_pulses(clean, sigma, gauges, dt, t0) -> dict:
