@@ -22,6 +22,7 @@ Units: volts or strain in, the same out; times in seconds, frequencies in hertz.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
@@ -93,11 +94,12 @@ def find_glitches(signal: ArrayLike, sigma: float, *, k_sigma: float = GLITCH_SI
     x = np.asarray(signal, dtype=float)
     if x.size < 5:
         return np.zeros(0, dtype=int)
-    nb = np.stack([x[:-4], x[1:-3], x[3:-1], x[4:]])
-    mid = x[2:-2]
-    med = np.median(nb, axis=0)
-    spread = nb.max(axis=0) - nb.min(axis=0)
-    dev = np.abs(mid - med)
+    a, b, c, d = x[:-4], x[1:-3], x[3:-1], x[4:]
+    hi = np.maximum(np.maximum(a, b), np.maximum(c, d))
+    lo = np.minimum(np.minimum(a, b), np.minimum(c, d))
+    med = 0.5 * (a + b + c + d - hi - lo)  # the median of four: the mean of the middle two
+    spread = hi - lo
+    dev = np.abs(x[2:-2] - med)
     hit = (dev > max(k_sigma * sigma, floor)) & (dev > 3.0 * spread)
     return np.flatnonzero(hit) + 2
 
@@ -112,23 +114,59 @@ def repair_glitches(signal: ArrayLike, indices: ArrayLike) -> np.ndarray:
 
 
 # --------------------------------------------------------------------------- baselines
-def baseline_basis(n: int, order: int, dt: float = 1.0, hum_frequency: Optional[float] = None,
+def baseline_basis(positions: ArrayLike, n: int, order: int, dt: float = 1.0, hum_frequency: Optional[float] = None,
                    harmonics: int = HUM_HARMONICS) -> np.ndarray:
-    """Columns of a baseline model over ``n`` samples: Legendre polynomials to ``order`` on [-1, 1], then
-    cos/sin of the hum frequency and its harmonics (when given).
+    """Columns of a baseline model at sample ``positions`` of an ``n``-sample record: Legendre polynomials to
+    ``order`` in the record's time mapped onto [-1, 1], then cos/sin of the hum frequency and its harmonics.
 
     Returns
     -------
-    ndarray, shape (n, order + 1 [+ 2 harmonics])
+    ndarray, shape (len(positions), order + 1 [+ 2 harmonics])
     """
-    u = np.linspace(-1.0, 1.0, n) if n > 1 else np.zeros(n)
-    cols = [np.polynomial.legendre.legval(u, np.eye(order + 1)[k]) for k in range(order + 1)]
+    k = np.asarray(positions, dtype=float)
+    u = 2.0 * k / (n - 1) - 1.0 if n > 1 else np.zeros(k.size)
+    cols = [np.polynomial.legendre.legvander(u, order)]
     if hum_frequency:
-        t = np.arange(n) * dt
-        for h in range(1, harmonics + 1):
-            w = 2.0 * np.pi * h * hum_frequency * t
-            cols += [np.cos(w), np.sin(w)]
-    return np.column_stack(cols)
+        w = 2.0 * np.pi * hum_frequency * k * dt
+        cols += [f(h * w)[:, None] for h in range(1, harmonics + 1) for f in (np.cos, np.sin)]
+    return np.hstack(cols)
+
+
+def _fit(k, y, n, dt, hum_frequency, max_order, fixed_order):
+    """Choose and fit the baseline model on samples ``y`` at positions ``k``: (order, coefficients, hum, rss)."""
+    # a polynomial is trusted only where quiet samples pin it down: fitted on the record's start alone, it
+    # would be extrapolated over the rest, so the order is capped by the share of the record they span
+    extent = (k[-1] - k[0]) / max(n - 1, 1)
+    max_order = min(max_order, 0 if extent < 0.05 else 1 if extent < 0.5 else max_order)
+    if extent < 0.5:  # a hum's phase is pinned down only by quiet samples on both sides of the pulses
+        hum_frequency = None
+    grid = np.linspace(0.0, n - 1.0, 512)
+    best = None
+    for order in ([fixed_order] if fixed_order is not None else range(max_order + 1)):
+        a = baseline_basis(k, n, order, dt, hum_frequency)
+        if a.shape[1] >= k.size:
+            break
+        coef, *_ = np.linalg.lstsq(a, y, rcond=None)
+        if np.ptp(baseline_basis(grid, n, order, dt, hum_frequency) @ coef) > 10.0 * np.ptp(y):
+            continue  # swings far beyond its samples: extrapolating wildly
+        rss = float(np.sum((y - a @ coef) ** 2))
+        bic = k.size * math.log(max(rss, 1e-300) / k.size) + a.shape[1] * math.log(k.size)
+        if best is None or bic < best[0]:
+            best = (bic, order, coef, hum_frequency, rss)
+    return None if best is None else best[1:]
+
+
+def _baseline_from(k, y, n, dt, hum_frequency, max_order=MAX_BASELINE_ORDER, fixed_order=None):
+    """(baseline at every sample, info) from samples ``y`` at positions ``k``."""
+    model = _fit(k, y, n, dt, hum_frequency, max_order, fixed_order)
+    if model is None:  # too few quiet samples for any model: their mean
+        return np.full(n, float(np.mean(y))), {"order": 0, "rms_V": 0.0}
+    order, coef, hum, rss = model
+    info = {"order": int(order), "rms_V": math.sqrt(rss / k.size)}
+    if hum:
+        amp = coef[order + 1:]
+        info["hum_amplitude_V"] = [float(math.hypot(amp[2 * h], amp[2 * h + 1])) for h in range(amp.size // 2)]
+    return baseline_basis(np.arange(n), n, order, dt, hum) @ coef, info
 
 
 def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_frequency: Optional[float] = None,
@@ -142,7 +180,8 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
     taken only when it lowers the residual by more than chance would. The
     highest order tried is capped by how much of the record the quiet samples
     span (order 0 below a twentieth, 1 below a half), since the baseline is
-    extrapolated beyond them.
+    extrapolated beyond them; a model that swings ten times further than its
+    samples between them is not taken.
 
     Parameters
     ----------
@@ -177,39 +216,10 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
     idx = np.flatnonzero(q)
     if idx.size < 2:
         idx = np.arange(min(x.size, 2))
-    # a polynomial is trusted only where quiet samples pin it down: fitted on the record's start alone, it
-    # would be extrapolated over the rest, so the order is capped by the share of the record they span
-    extent = (idx[-1] - idx[0]) / max(x.size - 1, 1)
-    max_order = min(max_order, 0 if extent < 0.05 else 1 if extent < 0.5 else max_order)
-    if extent < 0.5:  # a hum's phase is pinned down only by quiet samples on both sides of the pulses
-        hum_frequency = None
-    step = max(1, idx.size // 100_000)  # a strided subset keeps very long records cheap
-    idx = idx[::step]
-    orders = [fixed_order] if fixed_order is not None else range(max_order + 1)
-    best = None
-    for order in orders:
-        basis = baseline_basis(x.size, order, dt, hum_frequency)
-        a = basis[idx]
-        if a.shape[1] >= idx.size:
-            break
-        coef, *_ = np.linalg.lstsq(a, x[idx], rcond=None)
-        fitted = basis @ coef
-        if np.ptp(fitted) > 10.0 * np.ptp(x[idx]):  # swings far beyond its samples: extrapolating wildly
-            continue
-        rss = float(np.sum((x[idx] - a @ coef) ** 2))
-        bic = idx.size * math.log(max(rss, 1e-300) / idx.size) + a.shape[1] * math.log(idx.size)
-        if best is None or bic < best[0]:
-            best = (bic, order, coef, fitted, rss)
-    if best is None:  # too few quiet samples for any model: their mean
-        level = float(np.mean(x[idx]))
-        return np.full(x.size, level), {"order": 0, "quiet_samples": int(q.sum()), "rms_V": 0.0}
-    _, order, coef, fitted, rss = best
-    info = {"order": int(order), "quiet_samples": int(q.sum()),
-            "rms_V": math.sqrt(rss / idx.size)}
-    if hum_frequency:
-        hum = coef[order + 1:]
-        info["hum_amplitude_V"] = [float(math.hypot(hum[2 * h], hum[2 * h + 1])) for h in range(hum.size // 2)]
-    return fitted, info
+    idx = idx[:: max(1, idx.size // 20_000)]  # a strided subset keeps very long records cheap
+    base, info = _baseline_from(idx.astype(float), x[idx], x.size, dt, hum_frequency, max_order, fixed_order)
+    info["quiet_samples"] = int(q.sum())
+    return base, info
 
 
 def quiet_mask(residual: ArrayLike, sigma: float, n_smooth: int, *, k_sigma: float = 4.0,
@@ -240,8 +250,9 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
 
     Starting from a fit of the ``initial`` span (the record before the
     incident foot), the quiet samples of the whole record are found against
-    the current baseline (:func:`quiet_mask`) and the baseline is refitted on
-    them (:func:`fit_baseline`), until the quiet samples stop changing. A drift
+    the current baseline (:func:`quiet_mask`, here on the means of blocks of
+    2 us, which is what it reads) and the baseline is refitted on them
+    (:func:`fit_baseline`), until the quiet samples stop changing. A drift
     that the first span only hints at is thus confirmed by the gaps between
     the passes of the waves, and fitted over all of them. The search also
     starts from the span's median (pickup inside the span then stands out of
@@ -283,58 +294,83 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
         base, info = fit_baseline(x, init, dt=dt, hum_frequency=hum_frequency)
         info.update(iterations=1, quiet_fraction=float(init.mean()) if init.size else 0.0)
         return base, init.copy(), info
-    n_smooth = max(8, int(round(QUIET_SMOOTHING / dt)))
     if not init.any():
         init = np.ones(x.size, dtype=bool)
-    # two starts: the known-quiet span's fit (follows a drift) and its median (blind to pickup inside it); the
-    # search keeps the baseline that finds the more quiet samples, the one that agrees with the record
-    starts = [fit_baseline(x, init, dt=dt)[0], np.full(x.size, float(np.median(x[init])))]
-    found = [_grow(x, sigma, dt, n_smooth, b, init, hum_frequency, iterations) for b in starts]
-    return max(found, key=lambda f: int(f[1].sum()))
-
-
-def _grow(x, sigma, dt, n_smooth, base, init, hum_frequency, iterations):
-    """From a first baseline, alternate finding the quiet samples and refitting on them until they settle."""
-    quiet = quiet_mask(x - base, sigma, n_smooth) & init
-    if quiet.sum() >= 2:
-        base, info = fit_baseline(x, quiet, dt=dt)
-    else:
-        quiet = init.copy()
-        base, info = fit_baseline(x, quiet, dt=dt)
-    if hum_frequency:  # a hum bends the baseline more than a noise-tight test lets through: first a coarse pass,
-        # every sample within a twentieth of the channel's swing taken (the pulses stand far out), then the tight one
-        coarse = np.abs(x - base) < HUM_COARSE * float(np.ptp(x))
-        base, info = fit_baseline(x, coarse | quiet, dt=dt, hum_frequency=hum_frequency)
-    info["iterations"] = 0
-    for it in range(1, iterations + 1):
-        new = quiet_mask(x - base, sigma, n_smooth)
-        if not new[init].any():  # keep at least the known-quiet span
-            new = init.copy()
-        if np.array_equal(new, quiet) and it > 1:
-            break
-        quiet = new
-        base, info = fit_baseline(x, quiet, dt=dt, hum_frequency=hum_frequency)
-        info["iterations"] = it
-    info["quiet_fraction"] = float(quiet.mean()) if quiet.size else 0.0
+    # block means: the running mean the quiet test reads, at one value per block (cheap on long records)
+    m = max(8, int(round(QUIET_SMOOTHING / dt)))
+    starts = np.arange(0, x.size, m)
+    count = np.diff(np.append(starts, x.size))
+    blocks = _Blocks(np.add.reduceat(x, starts) / count, starts + 0.5 * (count - 1), x.size, dt,
+                     sigma / np.sqrt(count), np.add.reduceat(init.astype(np.int64), starts) == count)
+    if not blocks.init.any():
+        blocks.init[0] = True
+    k0 = blocks.k[blocks.init]
+    first = [_model_at(blocks, k0, blocks.y[blocks.init], None), np.full(blocks.y.size, float(np.median(x[init])))]
+    found = [_grow(blocks, b, hum_frequency, iterations) for b in first]
+    quiet_b, _ = max(found, key=lambda f: int(f[0].sum()))
+    k, y = blocks.k[quiet_b], blocks.y[quiet_b]
+    base, info = _baseline_from(k, y, x.size, dt, hum_frequency)
+    quiet = np.repeat(quiet_b, count)
+    info.update(quiet_samples=int(quiet.sum()), quiet_fraction=float(quiet.mean()), iterations=found[0][1])
     return base, quiet, info
 
 
-def noise_samples(signal: ArrayLike, baseline: ArrayLike, sigma: float, dt: float, quiet: ArrayLike) -> np.ndarray:
-    """The quiet samples where the residual stays within the noise itself (no ringing tail of a pulse): where
-    a channel's noise is measured."""
-    n_smooth = max(8, int(round(QUIET_SMOOTHING / dt)))
-    r = np.asarray(signal, dtype=float) - np.asarray(baseline, dtype=float)
-    strict = quiet_mask(r, sigma, n_smooth) & np.asarray(quiet, dtype=bool)
-    return strict if strict.sum() >= 16 else np.asarray(quiet, dtype=bool)
+@dataclass
+class _Blocks:
+    y: np.ndarray      # block means [V]
+    k: np.ndarray      # block centres [samples]
+    n: int             # samples in the record
+    dt: float
+    sigma: np.ndarray  # noise of each block mean [V]
+    init: np.ndarray   # blocks wholly inside the known-quiet span
+
+
+def _model_at(blocks, k, y, hum_frequency):
+    """The baseline fitted on (k, y), at every block."""
+    model = _fit(k, y, blocks.n, blocks.dt, hum_frequency, MAX_BASELINE_ORDER, None)
+    if model is None:
+        return np.full(blocks.y.size, float(np.mean(y)))
+    order, coef, hum, _ = model
+    return baseline_basis(blocks.k, blocks.n, order, blocks.dt, hum) @ coef
+
+
+def _quiet_blocks(blocks, base):
+    """Blocks whose mean stands within 4 noise units of the baseline, less two blocks round each active one."""
+    active = np.abs(blocks.y - base) > 4.0 * blocks.sigma
+    return ~_dilate(active, 2)
+
+
+def _grow(blocks, base, hum_frequency, iterations):
+    """From a first baseline, alternate finding the quiet blocks and refitting on them until they settle."""
+    quiet = _quiet_blocks(blocks, base) & blocks.init
+    if quiet.sum() < 2:
+        quiet = blocks.init.copy()
+    base = _model_at(blocks, blocks.k[quiet], blocks.y[quiet], None)
+    if hum_frequency:  # a hum bends the baseline more than a noise-tight test lets through: first a coarse pass,
+        # every block within a twentieth of the channel's swing taken (the pulses stand far out), then the tight one
+        coarse = (np.abs(blocks.y - base) < HUM_COARSE * float(np.ptp(blocks.y))) | quiet
+        base = _model_at(blocks, blocks.k[coarse], blocks.y[coarse], hum_frequency)
+    done = 0
+    for done in range(1, iterations + 1):
+        new = _quiet_blocks(blocks, base)
+        if not new[blocks.init].any():  # keep at least the known-quiet span
+            new = blocks.init.copy()
+        if np.array_equal(new, quiet) and done > 1:
+            break
+        quiet = new
+        base = _model_at(blocks, blocks.k[quiet], blocks.y[quiet], hum_frequency)
+    return quiet, done
 
 
 # --------------------------------------------------------------------------- channel diagnosis
-def first_excursion(signal: ArrayLike, sigma: float, *, k_sigma: float = 8.0,
-                    min_fraction: float = 0.2) -> Optional[tuple[int, int]]:
+def first_excursion(signal: ArrayLike, sigma: float, *, k_sigma: float = 8.0, min_fraction: float = 0.2,
+                    persist: int = 1) -> Optional[tuple[int, int]]:
     """Index and sign of the first pulse on a baseline-free channel, whatever its sign.
 
-    The first sample whose magnitude exceeds ``k_sigma`` noise standard
-    deviations and ``min_fraction`` of the channel's largest magnitude.
+    The first sample from which the magnitude stays above ``k_sigma`` noise
+    standard deviations and ``min_fraction`` of the channel's largest
+    magnitude held over three samples (not a glitch's height) for ``persist``
+    samples with one sign: a spike or a short burst is not a pulse.
 
     Returns
     -------
@@ -342,14 +378,35 @@ def first_excursion(signal: ArrayLike, sigma: float, *, k_sigma: float = 8.0,
         None when nothing stands out of the noise.
     """
     x = np.asarray(signal, dtype=float)
-    if x.size == 0:
+    if x.size <= persist:
         return None
-    peak = float(np.max(np.abs(x)))
-    level = max(k_sigma * sigma, min_fraction * peak)
-    if peak <= level or peak == 0.0:
+    mag = np.abs(x)
+    # the largest magnitude held for three samples in a row (a single spike does not set the level)
+    held = float(np.minimum(np.minimum(mag[:-2], mag[1:-1]), mag[2:]).max()) if x.size > 2 else float(mag.max())
+    level = max(k_sigma * sigma, min_fraction * held)
+    if not held > level:
         return None
-    i = int(np.argmax(np.abs(x) > level))
-    return i, int(np.sign(x[i]))
+    i_up, i_down = first_run(x > level, persist), first_run(x < -level, persist)
+    if i_up is None and i_down is None:
+        return None
+    if i_down is None or (i_up is not None and i_up < i_down):
+        return i_up, 1
+    return i_down, -1
+
+
+def first_run(mask: ArrayLike, length: int) -> Optional[int]:
+    """First index from which ``mask`` holds for ``length`` samples in a row (None if nowhere)."""
+    idx = np.flatnonzero(np.asarray(mask, dtype=bool))
+    length = max(int(length), 1)
+    if idx.size < length:
+        return None
+    if length == 1:
+        return int(idx[0])
+    # runs of consecutive indices: where one breaks, the next starts
+    starts = np.concatenate(([0], np.flatnonzero(np.diff(idx) != 1) + 1))
+    ends = np.append(starts[1:], idx.size)
+    long_enough = np.flatnonzero(ends - starts >= length)
+    return int(idx[starts[long_enough[0]]]) if long_enough.size else None
 
 
 # --------------------------------------------------------------------------- the low-pass

@@ -111,13 +111,12 @@ def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: f
     if peak <= 0 or peak < k_sigma * sigma:
         return None
     level = max(k_sigma * sigma, min_fraction * peak)
-    above = s[n_baseline:] > level
-    if persist > 1:  # samples that start a run of `persist` samples above the level
-        run = np.convolve(above.astype(np.int32), np.ones(int(persist), dtype=np.int32), mode="full")
-        above = run[int(persist) - 1:] >= int(persist)
-    if not above.any():
+    from .conditioning import first_run
+
+    start = first_run(s[n_baseline:] > level, persist)  # where the signal stays above the level `persist` samples
+    if start is None:
         return None
-    i1 = int(np.argmax(above)) + n_baseline
+    i1 = start + n_baseline
     foot_level = max(3.0 * sigma, foot_fraction * peak)
     below = np.flatnonzero(s[:i1] <= foot_level)
     if below.size == 0:
@@ -317,8 +316,8 @@ class GaugeStrains:
     foot_source : str
         ``found`` or ``given`` (the analysis option ``incident_start``).
     quiet_incident, quiet_transmitted : ndarray of bool or None
-        Quiet samples of each channel where its noise is measured (those the
-        baseline was fitted on, less any ringing tail of a pulse).
+        Quiet samples of each channel: those the baseline was fitted on, where
+        the channel's noise is measured.
     pulses : dict
         Channel name -> ``(time [s], sign)`` of the first pulse on the channel,
         the sign relative to the gauge's polarity (+1: compressive, as it must
@@ -412,15 +411,10 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     n_pre = None
     gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
     info: dict = {"incident": {}, "transmitted": {}}
-    clean, sigma = {}, {}
-    for name, raw in (("incident", record.incident), ("transmitted", record.transmitted)):
-        level, sig = robust_noise(raw)
-        hits = cond.find_glitches(raw, sig, floor=0.005 * float(np.max(np.abs(raw - level))))
-        clean[name], sigma[name] = cond.repair_glitches(raw, hits), sig
-        info[name]["glitches"] = int(hits.size)
-        if hits.size:
-            info[name]["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
-    pulses = _first_pulses(clean, sigma, gauges, dt, t0)
+    raw = {"incident": record.incident, "transmitted": record.transmitted}
+    noise = {k: robust_noise(v) for k, v in raw.items()}  # (level, sigma), record-wide
+    persist = max(3, int(round(1e-6 / dt)))  # a pulse lasts; a glitch or a burst of pickup does not
+    pulses = _first_pulses(raw, noise, gauges, dt, t0, persist)
     _check_channels(pulses, barset)
 
     if analysis.pre_trigger:
@@ -431,9 +425,8 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
             raise InputError(f"{analysis.incident_start * 1e6:g} us is outside the record "
                              f"({t0 * 1e6:g} to {record.time[-1] * 1e6:g} us)", "analysis.incident_start")
     else:  # first pass: on the sign-corrected volts (the bridge is monotonic), level and noise record-wide
-        x = gauges["incident"].polarity * clean["incident"]
-        level = noise_floor(x, n_pre)[0] if analysis.pre_trigger else robust_noise(x)[0]
-        persist = max(3, int(round(1e-6 / dt)))  # a pulse lasts; a glitch or a burst of pickup does not
+        x = gauges["incident"].polarity * raw["incident"]
+        level = noise_floor(x, n_pre)[0] if analysis.pre_trigger else gauges["incident"].polarity * noise["incident"][0]
         found, source = find_foot(x - level, n_pre if analysis.pre_trigger else None, persist=persist), "found"
         if found is None:
             raise AnalysisError("no incident pulse found on the incident channel (nothing rises above 8x its "
@@ -442,14 +435,25 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     if foot0 < MIN_BASELINE_SAMPLES:
         raise AnalysisError(f"the incident pulse starts {foot0:.0f} samples into the record: no "
                             f"pre-trigger baseline (record at least {MIN_BASELINE_SAMPLES} samples before the pulse)")
+    # the rest of the work only on the part of the record the analysis can read (a long record is baseline after)
+    n = min(n, int(math.ceil(foot0 + _analysis_reach(barset, analysis) / dt)))
+    time = record.time[:n]
+    clean, sigma = {}, {}
+    for name, v in raw.items():
+        v = v[:n]
+        hits = cond.find_glitches(v, noise[name][1], floor=0.005 * float(np.max(np.abs(v - noise[name][0]))))
+        clean[name], sigma[name] = cond.repair_glitches(v, hits), noise[name][1]
+        info[name]["glitches"] = int(hits.size)
+        if hits.size:
+            info[name]["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
+    info["samples_used"] = n
     n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
     initial = np.arange(n) < n_base
     volts, bases, quiet = {}, {}, {}
     for name in ("incident", "transmitted"):
-        bases[name], fit_set, binfo = cond.quiet_baseline(
+        bases[name], quiet[name], binfo = cond.quiet_baseline(
             clean[name], sigma[name], dt, initial, hum_frequency=analysis.hum_frequency,
             search=not analysis.pre_trigger)
-        quiet[name] = cond.noise_samples(clean[name], bases[name], sigma[name], dt, fit_set)
         volts[name] = clean[name] - bases[name]
         info[name].update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
                            "noise_V": float(sigma[name])})
@@ -473,21 +477,35 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
              for k, v in (("incident", si), ("transmitted", st))}
     for k in noise:
         info[k]["noise_strain"] = noise[k]
-    return GaugeStrains(time=record.time, dt=dt, incident=si, transmitted=st, volts_incident=record.incident,
-                        volts_transmitted=record.transmitted, baseline_incident=bases["incident"],
+    return GaugeStrains(time=time, dt=dt, incident=si, transmitted=st, volts_incident=raw["incident"][:n],
+                        volts_transmitted=raw["transmitted"][:n], baseline_incident=bases["incident"],
                         baseline_transmitted=bases["transmitted"], baseline_samples=int(n_base),
                         noise_incident=noise["incident"], noise_transmitted=noise["transmitted"], foot=foot,
                         foot_source=source, quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"],
                         pulses=pulses, conditioning=info)
 
 
-def _first_pulses(clean, sigma, gauges, dt, t0) -> dict:
+def _analysis_reach(barset: "BarSet", analysis: "AnalysisOptions") -> float:
+    """How long after the incident foot at its gauge the analysis may read the record [s], generously.
+
+    The reflected wave's window at the incident gauge ends 2 d_i / c_i after the foot plus the window, the
+    transmitted one (d_i / c_i + d_t / c_t) plus the window; an automatic window is shorter than twice the
+    longer bar's transit, a given one is what it is. Half as much again, for leads, tapers and tails.
+    """
+    bi, bt = barset.incident, barset.transmitted
+    ti, tt = barset.incident_gauge.distance / bi.wave_speed, barset.transmitted_gauge.distance / bt.wave_speed
+    window = max(analysis.window_length or 0.0, 2 * max(bi.length / bi.wave_speed, bt.length / bt.wave_speed))
+    return 1.5 * (max(2 * ti, ti + tt) + window)
+
+
+def _first_pulses(raw, noise, gauges, dt, t0, persist) -> dict:
     """Channel -> (time [s], sign relative to the gauge's polarity) of its first pulse, or None."""
     from .conditioning import first_excursion
 
     out = {}
-    for name, x in clean.items():
-        hit = first_excursion(x - robust_noise(x)[0], sigma[name])
+    for name, x in raw.items():
+        level, sigma = noise[name]
+        hit = first_excursion(x - level, sigma, persist=persist)
         out[name] = None if hit is None else (t0 + hit[0] * dt, hit[1] * gauges[name].polarity)
     return out
 
@@ -525,10 +543,11 @@ def _lowpass_both(volts, dt, foot, polarity, barset, analysis):
     if analysis.lowpass_cutoff:
         cutoff = min(analysis.lowpass_cutoff, 0.95 * nyquist)
         reason = f"{cutoff / 1e3:.0f} kHz: given (lowpass_cutoff)"
-    else:  # the rise is read once the channel holds nothing the bar cannot carry
-        pre = lowpass(polarity * volts["incident"], dt, min(onset, 0.8 * nyquist))
-        cutoff, reason = lowpass_cutoff(rise_time(pre, foot, dt), onset, nyquist)
-    out = {k: lowpass(v, dt, cutoff) for k, v in volts.items()}
+        out = {k: lowpass(v, dt, cutoff) for k, v in volts.items()}
+    else:  # the cutoff is the bars' (the rise, read once the channel holds only what they carry, is reported)
+        cutoff = lowpass_cutoff(None, onset, nyquist)[0]
+        out = {k: lowpass(v, dt, cutoff) for k, v in volts.items()}
+        reason = lowpass_cutoff(rise_time(polarity * out["incident"], foot, dt), onset, nyquist)[1]
     from .conditioning import LOWPASS_ORDER
 
     return out, {"applied": True, "cutoff_Hz": float(cutoff), "reason": reason,

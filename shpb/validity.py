@@ -47,7 +47,7 @@ MODULUS_EXCESS = 1.5
 ALIGNMENT_WARNING, ALIGNMENT_ERROR = 0.6e-6, 1.5e-6
 #: Largest lead of the reflected wave's rise over the incident wave's at the front face [s] (a reflection
 #: starts with its incident wave; the margin covers the two waves' different shapes: common practice).
-REFLECTED_LEAD = 1.0e-6
+REFLECTED_LEAD = 2.0e-6
 #: Steady back/front force ratio over the loading beyond which a scale is wrong (common practice).
 FORCE_RATIO_LIMIT = 1.2
 #: Measured incident peak over the striker's prediction: outside the first pair a warning, outside the second
@@ -764,7 +764,7 @@ def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optiona
                           f"{0.01 / bar_wave_speed * 1e6:.1f} us here)"))
     if waves is not None:
         ti = _first_crossing(waves.incident, 0.1, dt)
-        tr = _first_crossing(-waves.reflected, 0.1, dt)
+        tr = _first_crossing(-waves.reflected, 0.1, dt)  # the same running mean delays both alike
         if ti is not None and tr is not None:
             results["reflected_lead_us"] = (ti - tr) * 1e6
             if ti - tr > REFLECTED_LEAD + 2 * dt:
@@ -777,8 +777,11 @@ def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optiona
 
 
 def _first_crossing(signal: np.ndarray, fraction: float, dt: float) -> Optional[float]:
-    """Time [s, from the window's start] where a signal first rises through ``fraction`` of its peak."""
-    x = np.asarray(signal, dtype=float)
+    """Time [s, from the window's start] where a signal, averaged over 1 us (so noise does not cross for it),
+    first rises through ``fraction`` of its peak."""
+    from .conditioning import running_mean
+
+    x = running_mean(np.asarray(signal, dtype=float), max(1, round(1e-6 / dt)))
     if not x.size or not np.max(x) > 0:
         return None
     level = fraction * float(np.max(x))
@@ -1080,6 +1083,11 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
     # a flat top is a cut pulse only if the forces disagree; a plateau they agree with is the pulse's own
     failed = any(f.code in ("no_equilibrium", "short_equilibrium") for f in judged.flags)
     bflags = [_confirm_flat_top(f, failed) if f.code == "flat_top" else f for f in bflags]
+    if failed and not analysis.dispersion:
+        bflags.append(Flag("dispersion_off", "info",
+                           "the dispersion correction is off: the front-face force (incident plus reflected wave, "
+                           "each carried by a gauge distance) keeps the bars' Pochhammer-Chree ringing, which R(t) "
+                           "reads as disequilibrium; reduce with the correction on (the default)"))
     region = _region_of(judged, curves.time)
     cflags, cresults = consistency_flags(strains, plan, waves, curves, barset, specimen, region, striker_speed)
     return Verdict(valid=judged.valid, equilibrium_ratio=judged.equilibrium_ratio,
@@ -1094,7 +1102,9 @@ def averaged_noise(signal: ArrayLike, quiet: Optional[ArrayLike], n: int, defaul
     without quiet samples."""
     if quiet is None or not np.any(quiet):
         return default
-    return float(np.std(moving_average(np.asarray(signal, dtype=float), n)[np.asarray(quiet, dtype=bool)]))
+    from .conditioning import running_mean  # O(N): the whole record's channel
+
+    return float(np.std(running_mean(np.asarray(signal, dtype=float), n)[np.asarray(quiet, dtype=bool)]))
 
 
 def _confirm_flat_top(flag: Flag, forces_disagree: bool) -> Flag:
