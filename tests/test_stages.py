@@ -100,6 +100,13 @@ def test_example_shot_valid_rows_satisfy_the_written_R():
     # are still small against the noise)
     limit = c["equilibrium_R_limit"].to_numpy()[valid]
     assert np.all(np.abs(c["equilibrium_R"].to_numpy()[valid]) <= limit) and np.median(limit) < 0.06
+    # the conditioning and the correction are in the provenance: the low-pass and the correction's hold both at
+    # the bars' second-mode onset, f a/c0 = 0.352 for nu = 0.30 (the root of Graff's determinant,
+    # test_dispersion.py) x 4873.4 / 0.009525 = 180 kHz
+    steps = {p["step"]: p["parameters"] for p in res.summary["provenance"]}
+    assert steps["condition"]["lowpass"]["cutoff_Hz"] == pytest.approx(180e3, rel=0.01)
+    assert steps["shift"]["dispersion"]["hold_frequency_Hz"] == pytest.approx(180e3, rel=0.01)
+    assert res.summary["results"]["incident_peak_over_striker"] == pytest.approx(1.0, abs=0.06)  # v/(2 c0), Kolsky
 
 
 def _campaign(folder, columns, cells):
