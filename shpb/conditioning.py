@@ -222,27 +222,6 @@ def fit_baseline(signal: ArrayLike, quiet: ArrayLike, *, dt: float = 1.0, hum_fr
     return base, info
 
 
-def quiet_mask(residual: ArrayLike, sigma: float, n_smooth: int, *, k_sigma: float = 4.0,
-               floor: float = 0.0) -> np.ndarray:
-    """Samples where no pulse passes: the residual's running mean stays within noise.
-
-    A sample is active when the running mean of the residual over
-    ``n_smooth`` samples exceeds ``k_sigma`` times its own noise
-    sigma / sqrt(n_smooth) and ``floor``; active runs are widened by
-    ``2 n_smooth`` samples each side so the feet and tails of the pulses stay
-    out.
-
-    Returns
-    -------
-    ndarray of bool
-        True where quiet.
-    """
-    r = np.asarray(residual, dtype=float)
-    level = max(k_sigma * max(sigma, 1e-300) / math.sqrt(max(n_smooth, 1)), floor)
-    active = np.abs(running_mean(r, n_smooth)) > level
-    return ~_dilate(active, 2 * int(n_smooth))
-
-
 def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLike, *,
                    hum_frequency: Optional[float] = None, iterations: int = 5,
                    search: bool = True) -> tuple[np.ndarray, np.ndarray, dict]:
@@ -250,9 +229,10 @@ def quiet_baseline(signal: ArrayLike, sigma: float, dt: float, initial: ArrayLik
 
     Starting from a fit of the ``initial`` span (the record before the
     incident foot), the quiet samples of the whole record are found against
-    the current baseline (:func:`quiet_mask`, here on the means of blocks of
-    2 us, which is what it reads) and the baseline is refitted on them
-    (:func:`fit_baseline`), until the quiet samples stop changing. A drift
+    the current baseline (the means of blocks of 2 us within 4 of their noise
+    units, sigma / sqrt(block), of it, two blocks round each pulse left out)
+    and the baseline is refitted on them (:func:`fit_baseline`), until the
+    quiet samples stop changing. A drift
     that the first span only hints at is thus confirmed by the gaps between
     the passes of the waves, and fitted over all of them. The search also
     starts from the span's median (pickup inside the span then stands out of

@@ -525,9 +525,10 @@ def _check_channels(pulses, barset) -> None:
                             f"(check [record] incident and transmitted)")
     if inc is not None and inc[1] < 0:
         p = barset.incident_gauge.polarity
-        raise AnalysisError(f"the first pulse on the incident channel is tensile (a {'negative' if p > 0 else 'positive'} "
-                            f"voltage with the incident gauge's polarity {p:+d}): check the polarity of the incident "
-                            f"gauge (or the channel order)")
+        sign = "negative" if p > 0 else "positive"
+        raise AnalysisError(f"the first pulse on the incident channel is tensile (a {sign} voltage with the "
+                            f"incident gauge's polarity {p:+d}): check the polarity of the incident gauge (or the "
+                            f"channel order)")
 
 
 def _lowpass_both(volts, dt, foot, polarity, barset, analysis):

@@ -769,10 +769,10 @@ def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optiona
             results["reflected_lead_us"] = (ti - tr) * 1e6
             if ti - tr > REFLECTED_LEAD + 2 * dt:
                 flags.append(Flag("reflected_early", "error",
-                                  f"the reflected wave reaches a tenth of its peak {(ti - tr) * 1e6:.1f} us before the "
-                                  f"incident wave reaches a tenth of its own: a reflection cannot come before the wave it "
-                                  f"reflects; check the incident gauge distance (too long?) and the incident bar's "
-                                  f"wave speed"))
+                                  f"the reflected wave reaches a tenth of its peak {(ti - tr) * 1e6:.1f} us before "
+                                  f"the incident wave reaches a tenth of its own: a reflection cannot come before the "
+                                  f"wave it reflects; check the incident gauge distance (too long?) and the incident "
+                                  f"bar's wave speed"))
     return flags, results
 
 
@@ -951,13 +951,14 @@ def window_overlap_flag(foot: float, duration: float, plan: "WindowPlan", gauge_
     inc_end = foot + duration / dt
     if inc_end > r0:
         return Flag("waves_overlap", "error",
-                    f"the incident pulse ends {(inc_end - r0) * dt * 1e6:.1f} us after the reflected wave's window opens "
-                    f"at the incident gauge (its lead and taper): the incident tail would enter the reflected wave")
+                    f"the incident pulse ends {(inc_end - r0) * dt * 1e6:.1f} us after the reflected wave's window "
+                    f"opens at the incident gauge (its lead and taper): the incident tail would enter the reflected "
+                    f"wave")
     arrival = foot + 2 * gauge_travel / dt
     if plan.gauge_spans["incident"][1] > arrival:
         return Flag("waves_overlap", "error",
-                    f"the incident window runs {(plan.gauge_spans['incident'][1] - arrival) * dt * 1e6:.1f} us past the "
-                    f"reflected wave's arrival at the incident gauge: shorten window_length")
+                    f"the incident window runs {(plan.gauge_spans['incident'][1] - arrival) * dt * 1e6:.1f} us past "
+                    f"the reflected wave's arrival at the incident gauge: shorten window_length")
     return None
 
 

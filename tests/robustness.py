@@ -48,39 +48,27 @@ EXAMPLE = ROOT / "example_data"
 BASES = ("HR-A61-2500-a", "HR-C10-5000-a")
 
 # ---------------------------------------------------------------------------------------------- own rigs
-#: A small fictional rig for the trials that need a shot of their own (short bars: a cheap simulation).
-SMALL_RIG = """name = "small test rig (fictional, SYNTHETIC)"
-[bar_material]
-name = "maraging-type steel (generic)"
-modulus = "190 GPa"
-density = "8000 kg/m^3"
-poisson_ratio = 0.30
-yield_strength = "1900 MPa"
-[incident]
-diameter = "19.05 mm"
-length = "0.8 m"
-[incident.gauge]
-distance = "{incident_gauge} mm"
-bridge = "half-bending"
-gauge_factor = 2.1
-excitation = "10 V"
-gain = 100
-polarity = 1
-full_scale = "5 V"
-[transmitted]
-diameter = "19.05 mm"
-length = "0.6 m"
-[transmitted.gauge]
-distance = "200 mm"
-bridge = "half-bending"
-gauge_factor = 2.1
-excitation = "10 V"
-gain = 100
-polarity = -1
-full_scale = "5 V"
-[striker]
-length = "0.24 m"
-diameter = "19.05 mm"
+def small_rig(incident_gauge_mm: float) -> str:
+    """A small fictional rig for the trials that need a shot of their own: the example bar set
+    (configs/example_bars.toml) with short bars (0.8 m / 0.6 m, gauges at ``incident_gauge_mm`` and 200 mm) and a
+    0.24 m striker, so a simulation is cheap."""
+    text = (ROOT / "configs" / "example_bars.toml").read_text()
+    for old, new in (('length = "1.8 m"', 'length = "0.8 m"'), ('length = "1.2 m"', 'length = "0.6 m"'),
+                     ('distance = "900 mm"', f'distance = "{incident_gauge_mm:g} mm"'),
+                     ('distance = "400 mm"', 'distance = "200 mm"'), ('length = "0.3 m"', 'length = "0.24 m"')):
+        assert old in text, old
+        text = text.replace(old, new)
+    return text
+
+
+#: The recorder of the shots simulated here.
+RECORDER = """[recorder]
+sample_rate = "10 MHz"
+duration = "0.45 ms"
+pre_trigger = "50 us"
+bits = 12
+range = "5 V"
+noise = "2 mV"
 """
 
 #: name -> (incident gauge distance [mm], simulation setup) of the shots simulated here.
@@ -101,15 +89,7 @@ modulus = "70 GPa"
 density = "2800 kg/m^3"
 law = "perfectly-plastic"
 yield_stress = "350 MPa"
-[recorder]
-sample_rate = "10 MHz"
-duration = "0.45 ms"
-pre_trigger = "50 us"
-bits = 12
-range = "5 V"
-noise = "2 mV"
-seed = 11
-"""),
+""" + RECORDER + "seed = 11\n"),
     # A 20 mm polymer-like specimen (c0 = 1581 m/s: a 12.6 us transit) under the bare striker's 41 us pulse
     # (0.1 m): a few transits at most, never equilibrium (Davies & Hunter 1963; Ravichandran & Subhash 1994).
     "soft": (400, """name = "soft"
@@ -125,15 +105,7 @@ modulus = "3 GPa"
 density = "1200 kg/m^3"
 law = "perfectly-plastic"
 yield_stress = "60 MPa"
-[recorder]
-sample_rate = "10 MHz"
-duration = "0.45 ms"
-pre_trigger = "50 us"
-bits = 12
-range = "5 V"
-noise = "2 mV"
-seed = 12
-"""),
+""" + RECORDER + "seed = 12\n"),
 }
 
 
@@ -159,7 +131,7 @@ def own_base(name: str, folder: Path) -> Base:
     gauge, setup = OWN_SHOTS[name]
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    (folder / "rig.toml").write_text(SMALL_RIG.format(incident_gauge=gauge))
+    (folder / "rig.toml").write_text(small_rig(gauge))
     (folder / f"{name}.toml").write_text(setup)
     virtual = simulate_setup(load_simulation(folder / f"{name}.toml"))
     (folder / f"{name}_shot.toml").write_text(shot_toml_text(virtual, f"{name}.csv", "rig.toml"))
