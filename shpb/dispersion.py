@@ -809,8 +809,10 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio, *
         the surface axial strain (what a gauge sees) and the output is the
         section-mean axial stress over E, σ̄/E. Per harmonic the factor is
         (mean/surface strain) × (c/c0)²; applied up to a/Λ =
-        ``amplitude_limit`` and held at its value there above (the
-        mean/surface ratio is singular near a/Λ ≈ 0.38). Not reversible by
+        ``amplitude_limit`` (the mean/surface ratio is singular near
+        a/Λ ≈ 0.38), then returned smoothly to 1 over the next 20 % in
+        frequency and 1 above: what the factors cannot correct is not
+        amplified (noise there would be, by the factor at the limit). Not reversible by
         propagating back: the factors are applied whatever the sign of
         ``distance``. Default False.
     max_frequency : float, optional
@@ -925,8 +927,7 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio, *
     if length % 2 == 0:
         factor[-1] = 1.0 if math.cos(phase[-1]) >= 0.0 else -1.0
     if amplitude_factors:
-        # held above min(amplitude limit, hold frequency)
-        factor *= amp.factor(np.minimum(phi, min(amp.phi_end, phi_hold)))
+        factor *= _amplitude_factors_at(amp, phi, min(amp.phi_end, phi_hold))
     if above_max_frequency == "lowpass":
         factor *= _lowpass(phi, phi_hold)
     spec *= factor
@@ -964,6 +965,19 @@ def _amplitude_table(nu, limit):
     phi = np.r_[curve.frequency[sel], limit * r_end]
     factor = np.r_[m[sel] * curve.phase_ratio[sel] ** 2, m_end * r_end**2]
     return _AmplitudeTable(phi_end=float(phi[-1]), factor=CubicSpline(phi, factor))
+
+
+#: Above the amplitude factors' limit they return to 1 over this share of the limit's frequency (raised cosine):
+#: what they cannot correct is left as it is, not amplified by the factor at the limit.
+AMPLITUDE_RETURN = 0.2
+
+
+def _amplitude_factors_at(amp, phi, phi_end):
+    """The amplitude factors at dimensionless frequencies ``phi``: the table's up to ``phi_end``, then back to 1
+    over the next :data:`AMPLITUDE_RETURN` of it (a smooth return: a step would ring), 1 above."""
+    inside = amp.factor(np.minimum(phi, phi_end))
+    u = np.clip((phi - phi_end) / (AMPLITUDE_RETURN * phi_end), 0.0, 1.0)
+    return 1.0 + (inside - 1.0) * 0.5 * (1.0 + np.cos(np.pi * u))
 
 
 def _lowpass(phi, phi_max, taper=0.1):
@@ -1024,6 +1038,8 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson_ratio, *, distance=None,
         "nyquist_Hz": None if dt is None else 0.5 / _check_positive(dt, "dt"),
         "amplitude_factors": bool(amplitude_factors),
         "amplitude_limit_a_over_lambda": amplitude_limit if amplitude_factors else None,
+        "amplitude_above_limit": f"back to 1 over {100 * AMPLITUDE_RETURN:g} % above the limit" if amplitude_factors
+        else None,
         "amplitude_limit_Hz": None,
         "references": [
             "Bancroft 1941, Phys. Rev. 59:588",

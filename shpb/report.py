@@ -115,6 +115,9 @@ def plot_shot(result) -> Figure:
     ax.set(xlabel="time [µs]", ylabel="force [kN]", title="Face forces and equilibrium")
     ax2 = ax.twinx()
     _line(ax2, tau, c["equilibrium_R"], color="0.4", lw=0.8, label="R(t)")
+    if "equilibrium_R_limit" in c:  # the limit R was tested against: the threshold widened by the noise
+        _line(ax2, tau, c["equilibrium_R_limit"], color="0.4", ls=":", lw=0.6)
+        _line(ax2, tau, -c["equilibrium_R_limit"], color="0.4", ls=":", lw=0.6)
     ax2.set_ylim(-0.5, 0.5)
     ax2.set_ylabel("R = 2(F1−F2)/(F1+F2)")
     valid = c["valid"].to_numpy().astype(bool)

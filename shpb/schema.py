@@ -37,7 +37,7 @@ class Key:
     Attributes
     ----------
     section : str
-        ``specimen``, ``record`` or ``analysis``: the TOML table it lives in.
+        ``specimen``, ``striker``, ``record`` or ``analysis``: the TOML table it lives in.
     name : str
         The key in that table (and the dataclass field it fills).
     kind : str
@@ -128,6 +128,19 @@ ANALYSIS_KEYS = (
        "hand alignment: the reflected wave is taken this much later at its gauge [s]", signed=True),
     _k("analysis", "transmitted_adjust", "time", 0.0,
        "hand alignment: the transmitted wave is taken this much later at its gauge [s]", signed=True),
+    _k("analysis", "lowpass", "switch", True,
+       "zero-phase low-pass of both channels (off: the records as read, baselines and glitches only)"),
+    _k("analysis", "lowpass_cutoff", "frequency", None,
+       "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
+    _k("analysis", "hum_frequency", "frequency", None,
+       "mains frequency [Hz] fitted with the baselines, with its first harmonics (none when absent)"),
+)
+
+#: Keys of a shot file's ``[striker]`` table: what changes from shot to shot (the striker's length, diameter
+#: and material stay in the bar set's ``[striker]``).
+STRIKER_KEYS = (
+    _k("striker", "speed", "velocity", None,
+       "impact speed of the striker [m/s]; the incident pulse is checked against it", column="striker_speed"),
 )
 
 #: Record keys that a campaign row may set (the channel mapping comes from the campaign's ``[record]``).
@@ -139,12 +152,13 @@ RECORD_COLUMN_KEYS = (
 RENAMED = {"window": "window_length"}
 
 #: Every key a campaign column may set, by column name.
-COLUMNS = {k.column_name: k for k in SPECIMEN_KEYS + ANALYSIS_KEYS + RECORD_COLUMN_KEYS}
+COLUMNS = {k.column_name: k for k in SPECIMEN_KEYS + STRIKER_KEYS + ANALYSIS_KEYS + RECORD_COLUMN_KEYS}
 
 
 def section_keys(section: str) -> tuple:
     """The keys of one section."""
-    return {"specimen": SPECIMEN_KEYS, "analysis": ANALYSIS_KEYS, "record": RECORD_COLUMN_KEYS}[section]
+    return {"specimen": SPECIMEN_KEYS, "striker": STRIKER_KEYS, "analysis": ANALYSIS_KEYS,
+            "record": RECORD_COLUMN_KEYS}[section]
 
 
 def find_key(section: str, name: str) -> Optional[Key]:
