@@ -110,6 +110,10 @@ STANDARD_SAMPLE_RATES = (1e6, 2e6, 2.5e6, 5e6, 10e6, 20e6, 25e6, 50e6, 100e6)
 TRANSITS_FOR_EQUILIBRIUM = 4.0
 #: Fraction of the loading part a design should hold in force equilibrium (the reduction warns below 0.5).
 MIN_VALID_FRACTION = 0.6
+#: A design counts its forecast in equilibrium only where |R| stays within this fraction of the reduction's
+#: threshold: the planning models have no waves inside the specimen, whose ring-up and ripples the
+#: reduction's R shows (the virtual-shot previews showed |R| up to twice the models' on dense specimens).
+EQUILIBRIUM_MARGIN = 0.6
 #: Model time step of the planning models [s]: the rigid-plastic discs have no wave inside, so the step
 #: only has to resolve the pulse's rise (tens of microseconds) and the specimen's transits.
 MODEL_STEP = 0.2e-6
@@ -411,6 +415,7 @@ def disc_between_rods(drive, thickness, area, table: FlowTable, compliance, dt, 
             fy = y - m
             a, b = rows[i], rows[i + 1]
             f_flow = area * ((a[m] * (1 - fx) + b[m] * fx) * (1 - fy) + (a[m + 1] * (1 - fx) + b[m + 1] * fx) * fy)
+        strain[j] = ep  # at the start of the step, with the force of the step
         if v - f_flow * comp > 0.0:  # the drive overcomes the flow force: the disc flows
             f = f_flow
             r = (v - f * comp) / h
@@ -422,7 +427,6 @@ def disc_between_rods(drive, thickness, area, table: FlowTable, compliance, dt, 
             f = v / comp if v > 0.0 else 0.0
             r = 0.0
         force[j] = f
-        strain[j] = ep
         rate[j] = r
         if f > peak:
             peak = f
@@ -500,7 +504,9 @@ def specimen_response(time, strain_incident, specimen: RodSpec, table: FlowTable
     in force by what accelerates its mass (momentum balance of a linear
     velocity field): ``F1 - F2 = rho A L (a2 + L d2e/dt2 / 2)``, with
     ``a2`` the acceleration of the transmitted bar's face, ``dF/dt / Z_t``;
-    this is the axial inertia of Davies & Hunter (1963). ``R = 2 (F1 - F2)
+    this is the axial inertia of Davies & Hunter (1963). Deformation is
+    uniform only over times longer than a wave transit of the specimen, so
+    the acceleration is averaged over one transit. ``R = 2 (F1 - F2)
     / (F1 + F2)`` is the ratio the reduction's equilibrium test reads.
 
     Parameters
@@ -530,6 +536,7 @@ def specimen_response(time, strain_incident, specimen: RodSpec, table: FlowTable
     .. [2] E. D. H. Davies, S. C. Hunter, J. Mech. Phys. Solids 11 (1963) 155-179.
     """
     from .kolsky import equilibrium_ratio
+    from .validity import moving_average
 
     transmitted = transmitted or incident
     t = np.asarray(time, dtype=float)
@@ -540,7 +547,11 @@ def specimen_response(time, strain_incident, specimen: RodSpec, table: FlowTable
     stress = disc.force / specimen.area
     strain = disc.plastic_strain + stress / specimen.modulus
     rate = np.gradient(strain, dt)
-    accel = np.gradient(disc.force, dt) / transmitted.impedance + 0.5 * specimen.length * np.gradient(rate, dt)
+    # uniform deformation holds only on times longer than a wave transit of the specimen, which filters
+    # faster changes of the drive (the ripples of a dispersed pulse): the acceleration is averaged over one
+    transit = max(specimen.length / specimen.wave_speed, dt)
+    accel = moving_average(np.gradient(disc.force, dt) / transmitted.impedance
+                           + 0.5 * specimen.length * np.gradient(rate, dt), max(1, int(round(transit / dt))))
     gap = specimen.density * specimen.area * specimen.length * accel  # F1 - F2
     front, back = disc.force + 0.5 * gap, disc.force - 0.5 * gap
     ratio = equilibrium_ratio(front, back, floor=0.05 * max(float(np.max(disc.force)), 1e-30))
@@ -846,7 +857,7 @@ class Constraints:
     shapers: tuple = ()
     bar_stress_limit: float = 0.8
     sample_rates: tuple = STANDARD_SAMPLE_RATES
-    strain_tolerance: float = 0.05
+    strain_tolerance: float = 0.07
 
 
 @dataclass(frozen=True)
@@ -889,6 +900,8 @@ class Prediction:
         Times [s] between which the mean rate was taken (NaN without loading).
     valid_fraction : float
         Fraction of the loading part in equilibrium [1] (the reduction warns below 0.5).
+    margin_fraction : float
+        The same with the threshold times :data:`EQUILIBRIUM_MARGIN` [1]: what a design relies on.
     loading_cv : float
         Coefficient of variation of the rate over the whole loading part after
         the ring-up [1]: how flat the pulse keeps the rate, whichever part a
@@ -910,6 +923,7 @@ class Prediction:
     valid_span: tuple = (math.nan, math.nan)
     loading_cv: float = math.nan
     valid_fraction: float = 0.0
+    margin_fraction: float = 0.0
 
     def mean_rate_over(self, start: float, stop: float) -> float:
         """Mean forecast strain rate between two times [s] (NaN if none falls between them) [1/s]."""
@@ -941,36 +955,46 @@ def predict_shot(rig: Rig, specimen: RodSpec, table: FlowTable, striker: RodSpec
     from .simulate import excess_dispersion
 
     pulse = shaper_pulse(speed, striker, rig.incident, shaper, shaper_table, dt=dt)
-    tail = int(50e-6 / dt)  # room for the specimen to finish unloading
-    at_impact = np.concatenate([pulse.force / (rig.incident.modulus * rig.incident.area), np.zeros(tail)])
-    t = np.arange(at_impact.size) * dt
+    lead, tail = int(20e-6 / dt), int(50e-6 / dt)  # room for the dispersed front, and for the unloading
+    at_impact = np.concatenate([np.zeros(lead), pulse.force / (rig.incident.modulus * rig.incident.area),
+                                np.zeros(tail)])
+    t = (np.arange(at_impact.size) - lead) * dt  # t = 0: the foot reaches the specimen
     # the pulse reaches the specimen dispersed over the incident bar's length (Follansbee & Frantz 1983), as
     # in a virtual shot (shpb.simulate.dispersed_drive): its fronts are rounded, its plateau rippled
     eps_i = excess_dispersion(at_impact, dt, rig.incident.length, 0.5 * rig.incident.diameter,
                               rig.incident.wave_speed, rig.incident_poisson_ratio)
     resp = specimen_response(t, eps_i, specimen, table, rig.incident, rig.transmitted)
     rate, ratio = resp["strain_rate"], resp["equilibrium_ratio"]
-    region = loading_region(rate, resp["force"])
-    mean, cv, onset, span, flat, fraction = 0.0, math.nan, None, (math.nan, math.nan), math.nan, 0.0
+    # the loading ends with the pulse: the models' rigid specimen would ring to the ripples that trail it
+    transit = specimen.length / specimen.wave_speed
+    arrival = pulse_timing(t, np.maximum(eps_i, 0.0))
+    stop = min(rate.size, int(round((arrival["foot_s"] + arrival["duration_s"] + 2 * transit - t[0]) / dt)))
+    region = loading_region(rate[:stop], resp["force"][:stop])
+    mean, cv, onset, span, flat, fraction, margin = 0.0, math.nan, None, (math.nan, math.nan), math.nan, 0.0, 0.0
     if region is not None:
-        ring_up = min(region[0] + int(math.ceil(TRANSITS_FOR_EQUILIBRIUM * specimen.length / specimen.wave_speed
-                                                / dt)), region[1] - 1)
+        ring_up = min(region[0] + int(math.ceil(TRANSITS_FOR_EQUILIBRIUM * transit / dt)), region[1] - 1)
         onset = equilibrium_onset(ratio, region, EQUILIBRIUM_THRESHOLD)
+        strict = equilibrium_onset(ratio, region, EQUILIBRIUM_MARGIN * EQUILIBRIUM_THRESHOLD)
+        length = max(region[1] - region[0], 1)
+        if onset is not None:
+            fraction = (region[1] - max(ring_up, onset)) / length
+        # the rate is averaged from where the forecast keeps its margin on equilibrium (the reduction's R runs
+        # higher than the models' during a ramp), or from the reduction's own onset without it
+        first = max(ring_up, strict if strict is not None else (onset if onset is not None else 0))
+        if strict is not None:
+            margin = (region[1] - first) / length
         mask = np.zeros(rate.size, dtype=bool)
-        first = max(ring_up, onset if onset is not None else 0)
         mask[first:region[1]] = True
         span = (float(t[first]), float(t[region[1] - 1]))
         plateau = rate_plateau(rate, mask)
         mean, cv = plateau["mean_per_s"], plateau["cv"]
-        if onset is not None:
-            fraction = (region[1] - first) / max(region[1] - region[0], 1)
         mask[ring_up:region[1]] = True
         flat = rate_plateau(rate, mask)["cv"]
     return Prediction(t, eps_i, rate, resp["strain"], resp["stress"], float(mean), float(cv),
-                      float(np.max(resp["strain"])), pulse_timing(t, at_impact),
+                      float(np.max(resp["strain"])), pulse_timing(t[lead:] - t[lead], at_impact[lead:]),
                       float(pulse.plastic_strain[-1]) if shaper is not None else 0.0,
                       equilibrium_ratio=ratio, in_equilibrium=onset is not None, valid_span=span,
-                      loading_cv=float(flat), valid_fraction=float(fraction))
+                      loading_cv=float(flat), valid_fraction=float(fraction), margin_fraction=float(margin))
 
 
 @dataclass(frozen=True, eq=False)
@@ -1108,11 +1132,12 @@ def _score(ctx, p, speed):
     rate_err = abs(ctx.rate(p) / ctx.aim_rate - 1.0)
     transit = ctx.specimen.length / ctx.specimen.wave_speed
     short_rise = max(0.0, 1.0 - p.timing["rise_time_s"] / (TRANSITS_FOR_EQUILIBRIUM * transit))
-    score = 10.0 * max(0.0, strain_err - c.strain_tolerance) / c.strain_tolerance + 10.0 * max(0.0, rate_err - 0.01)
-    score += 2.0 * (p.loading_cv if math.isfinite(p.loading_cv) else 1.0) + 0.5 * short_rise
+    score = 10.0 * max(0.0, strain_err - c.strain_tolerance) / c.strain_tolerance \
+        + 10.0 * max(0.0, rate_err - 0.01) / 0.02
+    score += 3.0 * (p.loading_cv if math.isfinite(p.loading_cv) else 1.0) + 0.5 * short_rise
     if not p.in_equilibrium:  # the reduction would find no valid part
         score += 5.0
-    score += 4.0 * max(0.0, MIN_VALID_FRACTION - p.valid_fraction)  # or too short a one
+    score += 4.0 * max(0.0, MIN_VALID_FRACTION - p.margin_fraction)  # or too short a one
     if ctx.rig.yield_strength and incident_bar_stress(speed, ctx.rig.striker, ctx.rig.incident) \
             > c.bar_stress_limit * ctx.rig.yield_strength:
         score += 100.0
@@ -1120,28 +1145,73 @@ def _score(ctx, p, speed):
 
 
 def _at_speed(ctx, length, stock, diameter, thickness, guess) -> _Trial:
-    """The trial whose forecast mean rate is the aim: a secant on the striker speed within the gun's range."""
+    """The trial whose forecast mean rate is the aim: the striker speed within the gun's range.
+
+    A secant from the guess while the rate moves smoothly with the speed,
+    then a bracketing search (Illinois' regula falsi), since the mean over
+    the valid part can jump when the part where equilibrium holds changes.
+    The best trial found is returned (at a bound of the gun's range when the
+    aim lies beyond it).
+    """
     lo, hi = ctx.constraints.speed_range
+    aim = ctx.aim_rate
+    tried = []
 
     def trial(v):
         p = _forecast(ctx, length, v, stock, diameter, thickness)
-        return _Trial(length, v, stock, diameter, thickness, p, _score(ctx, p, v))
+        t = _Trial(length, v, stock, diameter, thickness, p, _score(ctx, p, v))
+        tried.append(t)
+        return t
+
+    def off(t):  # signed relative rate miss; None when the shaper was crushed
+        return None if t.prediction is None else ctx.rate(t.prediction) / aim - 1.0
+
+    def done():
+        return min(tried, key=lambda x: (math.inf if off(x) is None else abs(off(x)), x.score))
 
     a = trial(min(max(guess, lo), hi))
-    if a.prediction is None:
+    if off(a) is None:
         return a
-    b = trial(min(max(a.speed * (1.15 if ctx.rate(a.prediction) < ctx.aim_rate else 0.87), lo), hi))
-    for _ in range(5):
-        if b.prediction is None or b.speed == a.speed or ctx.rate(b.prediction) == ctx.rate(a.prediction):
+    b = trial(min(max(a.speed * (1.15 if off(a) < 0 else 0.87), lo), hi))
+    for _ in range(3):  # secant
+        if off(b) is None or abs(off(b)) <= 0.005 or b.speed == a.speed or off(b) == off(a):
             break
-        if abs(ctx.rate(b.prediction) / ctx.aim_rate - 1.0) <= 0.005:
-            break
-        slope = (ctx.rate(b.prediction) - ctx.rate(a.prediction)) / (b.speed - a.speed)
-        v = min(max(b.speed + (ctx.aim_rate - ctx.rate(b.prediction)) / slope, lo), hi)
+        v = min(max(b.speed - off(b) * (b.speed - a.speed) / (off(b) - off(a)), lo), hi)
         if v == b.speed:
             break
         a, b = b, trial(v)
-    return min((a, b), key=lambda x: x.score)
+    if abs(off(done()) if off(done()) is not None else 1.0) <= 0.005:
+        return done()
+    # bracket the aim among the trials (the rate grows with the speed) and close in
+    below = [t for t in tried if off(t) is not None and off(t) < 0]
+    above = [t for t in tried if off(t) is not None and off(t) > 0]
+    if not below or not above:
+        edge = hi if not above else lo
+        if all(t.speed != edge for t in tried):
+            trial(edge)
+        below = [t for t in tried if off(t) is not None and off(t) < 0]
+        above = [t for t in tried if off(t) is not None and off(t) > 0]
+        if not below or not above:
+            return done()
+    a, b = max(below, key=lambda t: t.speed), min(above, key=lambda t: t.speed)
+    fa, fb, side = off(a), off(b), 0
+    for _ in range(6):
+        v = (a.speed * fb - b.speed * fa) / (fb - fa)
+        c = trial(v)
+        fc = off(c)
+        if fc is None or abs(fc) <= 0.005:
+            break
+        if fc < 0:
+            a, fa = c, fc
+            if side == -1:
+                fb *= 0.5
+            side = -1
+        else:
+            b, fb = c, fc
+            if side == 1:
+                fa *= 0.5
+            side = 1
+    return done()
 
 
 def _thicknesses(stock, n=5):
@@ -1258,7 +1328,7 @@ def _meets(ctx, t: _Trial) -> bool:
     if t.prediction is None:
         return False
     p = t.prediction
-    return abs(ctx.rate(p) / ctx.aim_rate - 1) <= 0.02 and p.valid_fraction >= MIN_VALID_FRACTION and \
+    return abs(ctx.rate(p) / ctx.aim_rate - 1) <= 0.02 and p.margin_fraction >= MIN_VALID_FRACTION and \
         abs(p.final_strain / ctx.aim_strain - 1) <= 2 * ctx.constraints.strain_tolerance and t.score < 100
 
 
@@ -1340,11 +1410,16 @@ def adjust_design(design: ShotDesign, reached_rate: float, reached_strain: float
 
     * speed: ``v' = v + (target rate - reached rate) / (d rate / d v)``;
     * thickness, for a shaped shot whose strain would still miss by more
-      than half the strain tolerance after the speed step:
+      than twice the strain tolerance after the speed step (a new
+      thickness reshapes the pulse, so small misses are left to the speed):
       ``h' = h + (target strain - expected strain) / (d strain / d h)`` at a
-      constant rate, and the speed solved again to hold the rate.
+      constant rate, and the speed solved again to hold the rate;
+    * when the thickness cannot help (no shaper, or the stock's end), the
+      speed step that balances the rate and strain misses (both grow with
+      the speed), or no step when that gains less than 1 %.
 
-    Striker, specimen and shaper disc diameter are kept.
+    Striker, specimen and shaper disc diameter are kept; the design is
+    returned unchanged when no step helps.
 
     Parameters
     ----------
@@ -1384,32 +1459,47 @@ def adjust_design(design: ShotDesign, reached_rate: float, reached_strain: float
     length, v = s.striker.length, s.striker_speed
     lo, hi = constraints.speed_range
     base = _forecast(ctx, length, v, stock, d, h)
-    probe = _forecast(ctx, length, v * 1.03, stock, d, h)
+    step = 0.03 * v
+    probe = _forecast(ctx, length, v + step, stock, d, h)
+    if probe is None:  # the faster shot crushes the shaper: the slope from a slower one
+        step = -step
+        probe = _forecast(ctx, length, v + step, stock, d, h)
     if base is None or probe is None:
         return design
-    slope_rate = (ctx.rate(probe) - ctx.rate(base)) / (0.03 * v)
-    slope_strain = (probe.final_strain - base.final_strain) / (0.03 * v)
+    slope_rate = (ctx.rate(probe) - ctx.rate(base)) / step
+    slope_strain = (probe.final_strain - base.final_strain) / step
     if previous is not None and previous[1] == h and previous[0] != v:
         secant = (reached_rate - previous[2]) / (v - previous[0])
         if secant > 0:
             slope_rate = secant
     if not slope_rate > 0:
         return design
-    v_new = min(max(v + (target.strain_rate - reached_rate) / slope_rate, lo), hi)
+    R, E, tol = target.strain_rate, target.strain, constraints.strain_tolerance
+    v_new = min(max(v + (R - reached_rate) / slope_rate, lo), hi)
     expected = reached_strain + slope_strain * (v_new - v)
     h_new = h
-    if stock is not None and abs(expected / target.strain - 1.0) > 0.5 * constraints.strain_tolerance:
+    if stock is not None and abs(expected / E - 1.0) > 2.0 * tol:  # the strain by the thickness, at a constant rate
         here = _at_speed(dataclasses.replace(ctx, aim_rate=ctx.rate(_forecast(ctx, length, v_new, stock, d, h))),
                          length, stock, d, h, v_new)
         level = dataclasses.replace(ctx, aim_rate=ctx.rate(here.prediction))
         h_lo, h_hi = stock.thickness_range
-        h_probe = min(max(h * (1.2 if expected < target.strain else 1 / 1.2), h_lo), h_hi)
+        h_probe = min(max(h * (1.2 if expected < E else 1 / 1.2), h_lo), h_hi)
         there = _at_speed(level, length, stock, d, h_probe, v_new) if h_probe != h else None
         if there is not None and there.prediction is not None:
             slope_h = (there.prediction.final_strain - here.prediction.final_strain) / (h_probe - h)
             if slope_h > 0:
-                h_new = round(min(max(h + (target.strain - expected) / slope_h, h_lo), h_hi) * 1e5) / 1e5
+                h_new = round(min(max(h + (E - expected) / slope_h, h_lo), h_hi) * 1e5) / 1e5
                 v_new = _at_speed(level, length, stock, d, h_new, v_new).speed
+                expected = math.nan  # the thickness step takes care of the strain
+    if math.isfinite(expected) and abs(expected / E - 1.0) > tol:
+        # the thickness cannot help: balance the two misses (rate and strain move together with the speed)
+        miss = (lambda dv: max(abs((reached_rate + slope_rate * dv) / R - 1.0),
+                               abs((reached_strain + slope_strain * dv) / E - 1.0)))
+        den = slope_rate / R + slope_strain / E
+        steps = [v_new - v, 0.0] + ([(2.0 - reached_rate / R - reached_strain / E) / den] if den else [])
+        v_new = min(max(v + min(steps, key=miss), lo), hi)
+        if miss(v_new - v) > miss(0.0) - 0.01:  # not worth another preview
+            return design
     p = _forecast(ctx, length, v_new, stock, d, h_new)
     if p is None:
         return design

@@ -400,7 +400,8 @@ def plan_target(target: Target, plan: PlanFile, barset, *, preview=True, allow_b
     (:func:`shpb.plan.adjust_design`: the preview's values, the models'
     slopes), striker, specimen and shaper disc kept. A preview that is not
     valid (no force equilibrium) is redesigned with the next smaller
-    specimen stock instead, when there is one. At most
+    specimen stock instead, when there is one; so is one whose equilibrium
+    holds over less than half of the loading. At most
     ``plan.preview['previews']`` previews; the closest valid one is kept.
     """
     material = plan.materials[target.material]
@@ -432,18 +433,23 @@ def plan_target(target: Target, plan: PlanFile, barset, *, preview=True, allow_b
         if (pv.valid and miss <= PREVIEW_TOLERANCE) or k + 1 == plan.preview["previews"] or pv.result is None:
             break
         smaller = tuple(d for d in constraints.specimen_diameters if d < s.specimen.diameter - 1e-9)
-        if not pv.valid and smaller:
+        fraction = pv.result.summary["results"].get("valid_fraction_of_loading", 1.0) if pv.result else 0.0
+        if (not pv.valid or fraction < 0.5) and smaller:  # no (or too short a) force equilibrium
             constraints = dataclasses.replace(constraints, specimen_diameters=smaller)
             new = design_shot(target, material, rig, constraints, table=tables.get(material.name),
                               shaper_tables=tables)
             previous = None
-            why = f"preview not valid ({', '.join(f for f in pv.flags)})"
+            why = (f"preview not valid ({', '.join(pv.flags)})" if not pv.valid else
+                   f"force equilibrium over only {100 * fraction:.0f} % of the loading")
         else:
             rate, strain, span = _reached(design, pv)
             new = adjust_design(design, rate, strain, rig, constraints, rate_span=span,
                                 table=tables.get(material.name), shaper_tables=tables, previous=previous)
             previous = (s.striker_speed, None if s.shaper is None else s.shaper.length, rate)
             why = f"rate {100 * errors[0]:+.1f} %, strain {100 * errors[1]:+.1f} % off target"
+        if new.spec == design.spec:
+            entry["change"] = f"{why}: no adjustment found within the gun's range and the shaper stock"
+            break
         _check_safety(new, allow_bar_yield, where)
         entry["change"] = f"{why}: {_change(design, new)}"
         design = new
@@ -585,13 +591,14 @@ def campaign_toml_text(campaign: CampaignPlan, out_dir) -> str:
     rel = Path(os.path.relpath(Path(source).resolve(), Path(out_dir).resolve())).as_posix()
     time_col, ch1, ch2 = RECORD_COLUMNS
     name = campaign.plan.name.replace('"', "'")
+    tags = ", ".join(f'"{t}"' for t in TAG_COLUMNS)
     return (f"# Campaign skeleton written by `shpb plan` from {Path(campaign.plan.source).name}.\n"
             f"# Put each shot's record where its `record` cell says ({RECORD_DIR}/<id>.csv), check the channel\n"
             f"# columns below against your recorder's export, then:  shpb batch campaign.toml\n"
-            f"# The planned settings are tag columns of shots.csv. {SAFETY}\n"
-            f'name = "{name}"\nshots = "shots.csv"\nbarset = "{rel}"\ntags = {list(TAG_COLUMNS)!r}\n\n'
+            f"# The planned settings are the tag columns of shots.csv.\n# {SAFETY}\n"
+            f'name = "{name}"\nshots = "shots.csv"\nbarset = "{rel}"\ntags = [{tags}]\n\n'
             f'[record]\nincident = "{ch1}"\ntransmitted = "{ch2}"\ntime = "{time_col}"\n\n'
-            f"[analysis]\ndispersion = true\n").replace("'", '"')
+            f"[analysis]\ndispersion = true\n")
 
 
 def plan_summary(campaign: CampaignPlan) -> dict:
