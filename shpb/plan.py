@@ -71,7 +71,7 @@ import numpy as np
 
 from .calibrate import striker_incident_strain
 from .errors import AnalysisError, InputError
-from .simulate import RodSpec, VirtualShotSpec, incident_bar_stress, plan_shot
+from .simulate import RodSpec, VirtualShotSpec, bar_rod, incident_bar_stress, plan_shot
 
 __all__ = [
     "davies_hunter_ratio",
@@ -600,7 +600,8 @@ class Rig:
     yield_strength : float or None
         The lower of the incident bar's and the striker's yield strengths [Pa].
     striker : RodSpec
-        The striker's material and diameter (its length is chosen by the plan).
+        The striker's material and diameter; its length is the bar set's (or 0.3 m), a placeholder: the plan
+        chooses the length among the lab's strikers.
     """
 
     incident: RodSpec
@@ -613,16 +614,13 @@ class Rig:
 
     @classmethod
     def from_barset(cls, barset, striker_diameter=None) -> "Rig":
-        """The rig of a :class:`shpb.setup.BarSet`; the striker of the bar set's striker (or incident bar's) material."""
-        def rod(bar):
-            c = bar.wave_speed
-            return RodSpec(bar.length, bar.diameter, bar.modulus, bar.modulus / c**2)
-
+        """The rig of a :class:`shpb.setup.BarSet` (model bars as a virtual shot's, :func:`shpb.simulate.bar_rod`);
+        the striker of the bar set's striker (or incident bar's) material."""
         st = barset.striker
         mat = st.material if st is not None else barset.incident.material
         diameter = striker_diameter or (st.diameter if st is not None else barset.incident.diameter)
         yields = [y for y in (barset.incident.material.yield_strength, mat.yield_strength) if y]
-        return cls(rod(barset.incident), rod(barset.transmitted), barset.incident_gauge.distance,
+        return cls(bar_rod(barset.incident), bar_rod(barset.transmitted), barset.incident_gauge.distance,
                    barset.transmitted_gauge.distance, barset.incident.poisson_ratio,
                    min(yields) if yields else None,
                    RodSpec(st.length if st is not None else 0.3, diameter, mat.modulus, mat.density))

@@ -327,7 +327,10 @@ def preview_design(design: ShotDesign, barset, options: dict, *, name="preview",
     from .setup import AnalysisOptions, Shot, Specimen
     from .virtual import simulate_setup
 
-    shot = simulate_setup(_setup(design, barset, options, name), allow_bar_yield=allow_bar_yield)
+    try:
+        shot = simulate_setup(_setup(design, barset, options, name), allow_bar_yield=allow_bar_yield)
+    except AnalysisError as exc:  # e.g. the virtual shot crushes the shaper: no preview, the plan goes on
+        return Preview(None, False, math.nan, math.nan, (f"failed: {exc}",))
     rec = shot.record
     sp, m = design.spec.specimen, design.material
     reduced = Shot(name, barset, Specimen(sp.length, sp.diameter, m.name, design.target.temperature, m.modulus,
@@ -455,7 +458,7 @@ def plan_target(target: Target, plan: PlanFile, barset, *, preview=True, allow_b
         design = new
     _, design, pv = best
     files = {}
-    if out_dir is not None:  # the kept preview's record, shot file and truth
+    if out_dir is not None and pv.shot is not None:  # the kept preview's record, shot file and truth
         from .virtual import write_virtual_shot
 
         files = write_virtual_shot(pv.shot, out_dir, figure=False)

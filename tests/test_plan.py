@@ -22,7 +22,8 @@ import pytest
 
 from shpb.calibrate import striker_incident_strain
 from shpb.errors import InputError
-from shpb.plan import (Constraints, FlowTable, MaterialEstimate, Rig, ShaperStock, Target, davies_hunter_ratio,
+from shpb.plan import (Constraints, FlowTable, MaterialEstimate, Rig, ShaperStock, Target, adjust_design,
+                       davies_hunter_ratio,
                        design_shot, diameter_after, dispersion_severity, flow_table, incident_strain_for_rate,
                        inertia_stress, pulse_timing, record_needs, sample_rate_needed, shaper_pulse,
                        specimen_response, window_check)
@@ -317,13 +318,15 @@ def test_unshaped_design_follows_the_kolsky_relations():
     assert sf["striker_kinetic_energy_J"] == pytest.approx(0.5 * mass * s.striker_speed**2, rel=1e-9)
 
 
+CU = ShaperStock("cu", 120e9, 8900.0, TrueStressLaw(JohnsonCookLaw(60e6, 350e6, 0.35, 0.0, 1.0), 120e9),
+                 diameters=(0.009, 0.012), thickness_range=(0.4e-3, 1.5e-3))
+
+
 @pytest.fixture(scope="module")
 def shaped_design():
     law = TrueStressLaw(JohnsonCookLaw(90e6, 290e6, 0.31, 0.025, 1e-3), 120e9)
     mat = MaterialEstimate("alloy", 120e9, 8900.0, 0.34, law, uncertainty=0.15)
-    cu = ShaperStock("cu", 120e9, 8900.0, TrueStressLaw(JohnsonCookLaw(60e6, 350e6, 0.35, 0.0, 1.0), 120e9),
-                     diameters=(0.009, 0.012), thickness_range=(0.4e-3, 1.5e-3))
-    return design_shot(Target("alloy", 2500.0, 0.2), mat, rig(), constraints(shapers=(cu,)))
+    return design_shot(Target("alloy", 2500.0, 0.2), mat, rig(), constraints(shapers=(CU,)))
 
 
 def test_shaped_design_meets_its_targets_within_every_limit(shaped_design):
@@ -357,3 +360,20 @@ def test_flow_table_reads_the_law():
     assert isinstance(table.scaled(1.1), FlowTable)
     assert np.allclose(table.scaled(1.1)(e, r), 1.1 * table(e, r))
     assert dataclasses.is_dataclass(table)
+
+
+def test_adjustment_steps_the_speed_by_the_models_slope(shaped_design):
+    # A Newton step (the preview's value, the models' slope): a preview that reached 90 % of the target rate
+    # (and 92 % of the strain, which the faster shot brings back) means the models overestimate the rate by
+    # 1/0.9; the step aims their rate at target / 0.9, at a higher speed, keeping striker, specimen and shaper
+    # disc. (Had the strain been on target, the step would balance the two misses instead.)
+    d = shaped_design
+    target = d.target
+    new = adjust_design(d, 0.9 * target.strain_rate, 0.92 * target.strain, rig(), constraints(shapers=(CU,)))
+    assert new.spec.striker_speed > d.spec.striker_speed
+    assert new.prediction.mean_rate == pytest.approx(target.strain_rate / 0.9, rel=0.03)
+    assert (new.spec.striker.length, new.spec.specimen, new.spec.shaper.diameter) == \
+        (d.spec.striker.length, d.spec.specimen, d.spec.shaper.diameter)
+    # a preview on target: nothing to change
+    same = adjust_design(d, d.prediction.mean_rate, d.prediction.final_strain, rig(), constraints(shapers=(CU,)))
+    assert same.spec.striker_speed == pytest.approx(d.spec.striker_speed, rel=0.005)
