@@ -29,7 +29,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from shpb.planning import load_plan, plan_target, with_targets, _tables  # noqa: E402
+from shpb.planning import flow_tables, load_plan, plan_target, with_targets  # noqa: E402
 from shpb.setup import load_barset  # noqa: E402
 
 BARS = ROOT / "configs" / "example_bars.toml"
@@ -47,7 +47,7 @@ def in_process(quick: bool) -> list:
     plan = load_plan(PLAN)
     if quick:
         plan = with_targets(plan, **QUICK)
-    tables = _tables(plan)
+    tables = flow_tables(plan)
     rows = []
     for target in plan.targets:
         start, cpu = time.perf_counter(), time.process_time()

@@ -880,8 +880,11 @@ class Prediction:
         Incident wave at the specimen (dispersed over the incident bar) [1],
         specimen engineering rate [1/s], strain [1] and stress [Pa].
     mean_rate : float
-        Mean strain rate over the loading part after the ramp-up of
-        equilibrium (the reduction's loading rule, :func:`shpb.validity.loading_region`) [1/s].
+        Mean strain rate over the forecast's valid part [1/s]: the loading
+        part (:func:`shpb.validity.loading_region`) from where the forecast's
+        |R| keeps within :data:`EQUILIBRIUM_MARGIN` of the reduction's
+        threshold (else from the reduction's own onset), not before
+        :data:`TRANSITS_FOR_EQUILIBRIUM` specimen transits.
     rate_cv : float
         Its coefficient of variation [1].
     final_strain : float
@@ -944,13 +947,13 @@ def predict_shot(rig: Rig, specimen: RodSpec, table: FlowTable, striker: RodSpec
     |R| stays within :data:`~shpb.validity.EQUILIBRIUM_THRESHOLD`
     (:func:`~shpb.validity.equilibrium_onset`), but not before
     :data:`TRANSITS_FOR_EQUILIBRIUM` specimen transits (the ring-up the
-    models do not resolve), and the mean rate over that valid part
-    (:func:`~shpb.validity.rate_plateau`). Without equilibrium the mean is
-    taken over the loading part from the same start.
+    models do not resolve); the mean rate (:func:`~shpb.validity.rate_plateau`)
+    over the part where |R| keeps within :data:`EQUILIBRIUM_MARGIN` of the
+    threshold (or from the reduction's own onset, or without equilibrium
+    from the ring-up).
     """
-    from .validity import EQUILIBRIUM_THRESHOLD, equilibrium_onset, loading_region, rate_plateau
-
     from .simulate import excess_dispersion
+    from .validity import EQUILIBRIUM_THRESHOLD, equilibrium_onset, loading_region, rate_plateau
 
     pulse = shaper_pulse(speed, striker, rig.incident, shaper, shaper_table, dt=dt)
     lead, tail = int(20e-6 / dt), int(50e-6 / dt)  # room for the dispersed front, and for the unloading

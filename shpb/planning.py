@@ -45,6 +45,7 @@ __all__ = [
     "with_targets",
     "preview_design",
     "plan_target",
+    "flow_tables",
     "plan_campaign",
     "shots_table_text",
     "campaign_toml_text",
@@ -88,6 +89,8 @@ class PlanFile:
     preview : dict
         ``noise_V`` (rms), ``bits``, ``previews`` (most previews per target), ``seed``.
     source : str
+    striker_diameter : float or None
+        The strikers' diameter [m] when the plan file gives one (else the bar set's).
     """
 
     name: str
@@ -493,8 +496,9 @@ class CampaignPlan:
     shots: tuple  # of PlannedShot, in the plan's target order
 
 
-def _tables(plan: PlanFile) -> dict:
-    """Flow tables of every material (by material name) and shaper stock (by stock name), built once."""
+def flow_tables(plan: PlanFile) -> dict:
+    """Flow tables (:func:`shpb.plan.flow_table`) of every material (by material name) and shaper stock (by
+    stock name) of a plan: built once, passed to :func:`plan_target`."""
     out = {m.name: flow_table(m.law) for m in plan.materials.values()}
     out.update({s.name: flow_table(s.law, max_strain=0.99) for s in plan.constraints.shapers})
     return out
@@ -503,7 +507,7 @@ def _tables(plan: PlanFile) -> dict:
 def _plan_task(args):
     target, plan, barset, preview, allow, out_dir = args
     return plan_target(target, plan, barset, preview=preview, allow_bar_yield=allow, out_dir=out_dir,
-                       tables=_tables(plan))
+                       tables=flow_tables(plan))
 
 
 def plan_campaign(plan: PlanFile, barset, *, preview=True, allow_bar_yield=False, jobs=1, out_dir=None,
@@ -518,7 +522,7 @@ def plan_campaign(plan: PlanFile, barset, *, preview=True, allow_bar_yield=False
     tasks = [(t, plan, barset, preview, allow_bar_yield, previews) for t in plan.targets]
     done = []
     if jobs <= 1 or len(tasks) <= 1:
-        tables = _tables(plan)
+        tables = flow_tables(plan)
         for i, task in enumerate(tasks):
             t, _, _, pv, allow, outd = task
             done.append(plan_target(t, plan, barset, preview=pv, allow_bar_yield=allow, out_dir=outd, tables=tables))
@@ -629,7 +633,7 @@ def plan_summary(campaign: CampaignPlan) -> dict:
                          "uncertainty": d.material.uncertainty,
                          "band": {k: {"mean_strain_rate_per_s": r, "final_strain": e} for k, (r, e) in d.band.items()}},
             "safety": d.safety,
-            "record": {k: v for k, v in d.record.items() if k != "window"} | {"window": d.record["window"]},
+            "record": d.record,
             "dispersion": d.dispersion,
             "notes": list(d.notes),
             "preview": None if pv is None else {
