@@ -114,6 +114,10 @@ MIN_VALID_FRACTION = 0.6
 #: threshold: the planning models have no waves inside the specimen, whose ring-up and ripples the
 #: reduction's R shows (the virtual-shot previews showed |R| up to twice the models' on dense specimens).
 EQUILIBRIUM_MARGIN = 0.6
+#: Largest coefficient of variation of the forecast rate over the loading that a design accepts before it tries
+#: a smaller specimen: the more the rate varies, the more the mean over the valid part depends on where the
+#: reduction finds equilibrium.
+MAX_LOADING_CV = 0.35
 #: Model time step of the planning models [s]: the rigid-plastic discs have no wave inside, so the step
 #: only has to resolve the pulse's rise (tens of microseconds) and the specimen's transits.
 MODEL_STEP = 0.2e-6
@@ -847,6 +851,10 @@ class Constraints:
     strain_tolerance : float
         Relative strain error a design accepts before it trades rate
         constancy for strain [1].
+    strain_noise : float
+        Rms noise of a recorded bar strain [1] (a few microstrain is common
+        practice; :mod:`shpb.planning` takes it from the preview's recorder
+        and the bar set's bridges): the reduction's R(t) carries it.
     """
 
     strikers: tuple
@@ -856,6 +864,7 @@ class Constraints:
     bar_stress_limit: float = 0.8
     sample_rates: tuple = STANDARD_SAMPLE_RATES
     strain_tolerance: float = 0.07
+    strain_noise: float = 2e-6
 
 
 @dataclass(frozen=True)
@@ -903,6 +912,9 @@ class Prediction:
         Fraction of the loading part in equilibrium [1] (the reduction warns below 0.5).
     margin_fraction : float
         The same with the threshold times :data:`EQUILIBRIUM_MARGIN` [1]: what a design relies on.
+    arrival_duration : float
+        Duration of the dispersed pulse at the specimen [s], by the reduction's 5 % rule: what the
+        reduction will measure (longer than the impact-face pulse by its dispersed tail).
     loading_cv : float
         Coefficient of variation of the rate over the whole loading part after
         the ring-up [1]: how flat the pulse keeps the rate, whichever part a
@@ -925,6 +937,7 @@ class Prediction:
     loading_cv: float = math.nan
     valid_fraction: float = 0.0
     margin_fraction: float = 0.0
+    arrival_duration: float = math.nan
 
     def mean_rate_over(self, start: float, stop: float) -> float:
         """Mean forecast strain rate between two times [s] (NaN if none falls between them) [1/s]."""
@@ -934,7 +947,7 @@ class Prediction:
 
 def predict_shot(rig: Rig, specimen: RodSpec, table: FlowTable, striker: RodSpec, speed: float,
                  shaper: Optional[RodSpec] = None, shaper_table: Optional[FlowTable] = None, *,
-                 dt=MODEL_STEP) -> Prediction:
+                 dt=MODEL_STEP, strain_noise=0.0) -> Prediction:
     """Forecast a shot with the planning models: the shaped incident pulse, then the specimen, judged as a reduction would.
 
     The pulse at the impact face (:func:`shaper_pulse`) reaches the specimen
@@ -950,7 +963,11 @@ def predict_shot(rig: Rig, specimen: RodSpec, table: FlowTable, striker: RodSpec
     models do not resolve); the mean rate (:func:`~shpb.validity.rate_plateau`)
     over the part where |R| keeps within :data:`EQUILIBRIUM_MARGIN` of the
     threshold (or from the reduction's own onset, or without equilibrium
-    from the ring-up).
+    from the ring-up). A recorded R also carries the records' noise: with
+    ``strain_noise`` [1] on each bar strain, about ``sqrt(3) noise / eps_t``
+    (three waves, uncorrelated; common practice), and three times that is
+    added to |R| for the margin (a small transmitted pulse leaves the
+    reduction's equilibrium test to chance).
     """
     from .simulate import excess_dispersion
     from .validity import EQUILIBRIUM_THRESHOLD, equilibrium_onset, loading_region, rate_plateau
@@ -975,7 +992,9 @@ def predict_shot(rig: Rig, specimen: RodSpec, table: FlowTable, striker: RodSpec
     if region is not None:
         ring_up = min(region[0] + int(math.ceil(TRANSITS_FOR_EQUILIBRIUM * transit / dt)), region[1] - 1)
         onset = equilibrium_onset(ratio, region, EQUILIBRIUM_THRESHOLD)
-        strict = equilibrium_onset(ratio, region, EQUILIBRIUM_MARGIN * EQUILIBRIUM_THRESHOLD)
+        eps_t = np.maximum(np.abs(resp["strain_transmitted"]), 1e-30)
+        noisy = np.abs(ratio) + 3.0 * math.sqrt(3.0) * strain_noise / eps_t  # NaN stays NaN (no force)
+        strict = equilibrium_onset(noisy, region, EQUILIBRIUM_MARGIN * EQUILIBRIUM_THRESHOLD)
         length = max(region[1] - region[0], 1)
         if onset is not None:
             fraction = (region[1] - max(ring_up, onset)) / length
@@ -995,7 +1014,8 @@ def predict_shot(rig: Rig, specimen: RodSpec, table: FlowTable, striker: RodSpec
                       float(np.max(resp["strain"])), pulse_timing(t[lead:] - t[lead], at_impact[lead:]),
                       float(pulse.plastic_strain[-1]) if shaper is not None else 0.0,
                       equilibrium_ratio=ratio, in_equilibrium=onset is not None, valid_span=span,
-                      loading_cv=float(flat), valid_fraction=float(fraction), margin_fraction=float(margin))
+                      loading_cv=float(flat), valid_fraction=float(fraction), margin_fraction=float(margin),
+                      arrival_duration=arrival["duration_s"])
 
 
 @dataclass(frozen=True, eq=False)
@@ -1037,7 +1057,9 @@ class ShotDesign:
         yield strength) and ``bar_stress_limit`` (fraction of yield).
     record : dict
         ``sample_rate_Hz`` and its reason, ``record_length_s``,
-        ``pre_trigger_s``, and :func:`window_check` (``fits``, ...).
+        ``pre_trigger_s``, ``pulse_duration_s`` (the longer of the shaper's
+        pulse and the dispersed pulse at the specimen) and
+        :func:`window_check` (``fits``, ...).
     dispersion : dict
         :func:`dispersion_severity` at the incident gauge.
     notes : tuple of str
@@ -1114,13 +1136,15 @@ def _forecast(ctx, length, speed, stock, diameter, thickness):
     shaper = None if stock is None else RodSpec(thickness, diameter, stock.modulus, stock.density, stock.law)
     try:
         return predict_shot(ctx.rig, ctx.specimen, ctx.table, _striker(ctx, length), speed, shaper,
-                            None if stock is None else ctx.shaper_tables[stock.name])
+                            None if stock is None else ctx.shaper_tables[stock.name],
+                            strain_noise=ctx.constraints.strain_noise)
     except AnalysisError:
         return None
 
 
 def _score(ctx, p, speed):
-    """Lower is better: rate or strain off their aims, a rate that is not constant, a rise too short, limits.
+    """Lower is better: rate or strain off their aims, a rate that is not constant, a rise too short, too short
+    an equilibrium; a bar stress above the limit or a pulse that does not fit between the gauges rule a trial out.
 
     The strain may miss its aim by the constraints' ``strain_tolerance``
     at no cost (the strikers are few); beyond it the miss outweighs any
@@ -1141,6 +1165,8 @@ def _score(ctx, p, speed):
     score += 4.0 * max(0.0, MIN_VALID_FRACTION - p.margin_fraction)  # or too short a one
     if ctx.rig.yield_strength and incident_bar_stress(speed, ctx.rig.striker, ctx.rig.incident) \
             > c.bar_stress_limit * ctx.rig.yield_strength:
+        score += 100.0
+    if not window_check(p.arrival_duration, ctx.rig, MODEL_STEP)["fits"]:  # waves would overlap at a gauge
         score += 100.0
     return score
 
@@ -1325,12 +1351,14 @@ def _speed_guess(ctx, specimen):
 
 
 def _meets(ctx, t: _Trial) -> bool:
-    """The trial reaches its aims (rate within 2 %, strain within twice the tolerance) inside every limit."""
+    """The trial reaches its aims (rate within 2 %, strain within twice the tolerance) in equilibrium, at a rate
+    near enough constant (coefficient of variation at most :data:`MAX_LOADING_CV`) and inside every limit."""
     if t.prediction is None:
         return False
     p = t.prediction
     return abs(ctx.rate(p) / ctx.aim_rate - 1) <= 0.02 and p.margin_fraction >= MIN_VALID_FRACTION and \
-        abs(p.final_strain / ctx.aim_strain - 1) <= 2 * ctx.constraints.strain_tolerance and t.score < 100
+        abs(p.final_strain / ctx.aim_strain - 1) <= 2 * ctx.constraints.strain_tolerance and t.score < 100 \
+        and p.loading_cv <= MAX_LOADING_CV
 
 
 def design_shot(target: Target, material: MaterialEstimate, rig: Rig, constraints: Constraints, *,
@@ -1376,7 +1404,7 @@ def design_shot(target: Target, material: MaterialEstimate, rig: Rig, constraint
     candidates, notes = _specimen_candidates(target, material, rig, constraints, table)
     options = [(stock, d) for stock in constraints.shapers for d in stock.diameters] or [(None, None)]
     strikers, need = _striker_candidates(target, rig, constraints)
-    chosen = None
+    tried = []
     for k, (specimen, reason, rejected) in enumerate(candidates):
         ctx = _Context(target, material, rig, constraints, table, specimen, shaper_tables, *aims)
         trials = [t for t in _search(ctx, strikers, options, _speed_guess(ctx, specimen)) if t.prediction is not None]
@@ -1387,17 +1415,18 @@ def design_shot(target: Target, material: MaterialEstimate, rig: Rig, constraint
             reason = reason.replace("the largest stock", "the largest stock that can reach the target")
         if rejected:
             reason += "; not " + "; not ".join(rejected)
-        chosen = (ctx, best, reason)
+        tried.append((ctx, best, reason))
         if _meets(ctx, best):
             break
-        slower = (f"{specimen.diameter * 1e3:g} mm misses the target (rate, strain or force equilibrium) within the "
-                  f"gun's range and the shaper stock")
+        slower = (f"{specimen.diameter * 1e3:g} mm misses the target (rate, strain, a near-constant rate or force "
+                  f"equilibrium) within the gun's range and the shaper stock")
         for later in candidates[k + 1:]:
             later[2].append(slower)
-    if chosen is None:
+    if not tried:
         raise AnalysisError(f"{material.name} at {target.strain_rate:g} 1/s: every trial crushed the shaper; "
                             f"give thicker or wider shaper stock")
-    ctx, best, reason = chosen
+    # the first specimen that meets the target, else the best trial of all
+    ctx, best, reason = tried[-1] if _meets(tried[-1][0], tried[-1][1]) else min(tried, key=lambda x: x[1].score)
     return _finish(ctx, best, reason, notes, need)
 
 
@@ -1520,16 +1549,18 @@ def _finish(ctx, trial: _Trial, spec_reason, notes, need):
     band = {}
     u = ctx.material.uncertainty
     for key, factor in (("low", 1.0 + u), ("high", 1.0 - u)):  # a stronger material: the lower rate
-        q = predict_shot(rig, specimen, ctx.table.scaled(factor), striker, v, shaper, shaper_table) if u > 0 else p
+        q = predict_shot(rig, specimen, ctx.table.scaled(factor), striker, v, shaper, shaper_table,
+                         strain_noise=c.strain_noise) if u > 0 else p
         band[key] = (q.mean_rate, q.final_strain)
     band["rate_range"] = tuple(sorted((band["low"][0], band["high"][0], p.mean_rate)))[::2]
     band["strain_range"] = tuple(sorted((band["low"][1], band["high"][1], p.final_strain)))[::2]
     timing = p.timing
     transit = specimen.length / specimen.wave_speed
-    rate_choice = sample_rate_needed(timing["rise_time_s"], timing["duration_s"], transit, c.sample_rates)
+    duration = max(timing["duration_s"], p.arrival_duration)  # what the reduction will measure
+    rate_choice = sample_rate_needed(timing["rise_time_s"], duration, transit, c.sample_rates)
     dt_rec = 1.0 / rate_choice["sample_rate_Hz"]
-    window = window_check(timing["duration_s"], rig, dt_rec)
-    needs = record_needs(timing["duration_s"], rig, dt_rec, specimen_transit=transit)
+    window = window_check(duration, rig, dt_rec)
+    needs = record_needs(duration, rig, dt_rec, specimen_transit=transit)
     spec = VirtualShotSpec(striker=striker, incident=rig.incident, transmitted=rig.transmitted, specimen=specimen,
                            striker_speed=v, incident_gauge_distance=rig.incident_gauge_distance,
                            transmitted_gauge_distance=rig.transmitted_gauge_distance,
@@ -1577,13 +1608,13 @@ def _finish(ctx, trial: _Trial, spec_reason, notes, need):
         notes.append(f"the bar stress {worst / 1e6:.0f} MPa exceeds {100 * c.bar_stress_limit:.0f} % of the "
                      f"yield strength")
     if not window["fits"]:
-        notes.append(f"the {timing['duration_s'] * 1e6:.0f} us pulse does not fit between the gauges "
+        notes.append(f"the {duration * 1e6:.0f} us pulse does not fit between the gauges "
                      f"(window {window['window_length_s'] * 1e6:.0f} us, overlap limit "
                      f"{window['overlap_limit_s'] * 1e6:.0f} us, echo limit {window['echo_limit_s'] * 1e6:.0f} us)")
     return ShotDesign(target=target, material=ctx.material, spec=spec,
                       shaper_stock=None if stock is None else stock.name, prediction=p, band=band,
                       specimen=specimen_info, reasons=reasons, safety=safety,
-                      record={**rate_choice, **needs, "window": window},
+                      record={**rate_choice, **needs, "pulse_duration_s": duration, "window": window},
                       dispersion=dispersion_severity(timing["rise_time_s"], 0.5 * rig.incident.diameter,
                                                      rig.incident.wave_speed, rig.incident_poisson_ratio,
                                                      rig.incident_gauge_distance),

@@ -43,6 +43,7 @@ __all__ = [
     "CampaignPlan",
     "load_plan",
     "with_targets",
+    "strain_noise",
     "preview_design",
     "plan_target",
     "flow_tables",
@@ -373,6 +374,29 @@ class PlannedShot:
             and abs(_off(pv.final_strain, t.strain)) <= TARGET_TOLERANCE
 
 
+def strain_noise(barset, options: dict) -> float:
+    """Rms noise of a recorded bar strain [1]: the recorder's noise and quantisation through the noisier bridge.
+
+    ``options`` holds ``noise_V`` (rms) and ``bits``; each gauge's ``full_scale``
+    (or 5 V) sets the quantisation step ``2 full_scale / 2**bits``, whose rms is
+    the step over sqrt(12) (common practice); the bridge's volts per strain
+    come from :func:`shpb.bridge.bar_volts`.
+    """
+    from .bridge import bar_volts
+
+    worst = 0.0
+    for gauge, bar in ((barset.incident_gauge, barset.incident), (barset.transmitted_gauge, barset.transmitted)):
+        def volts(e):
+            return float(bar_volts(e, bridge=gauge.bridge, gauge_factor=gauge.gauge_factor,
+                                   excitation=gauge.excitation, gain=gauge.gain, polarity=gauge.polarity,
+                                   scale=gauge.scale, poisson_ratio=bar.poisson_ratio))
+
+        slope = abs(volts(1e-6) - volts(0.0)) / 1e-6  # V per unit strain
+        step = 2.0 * (gauge.full_scale or 5.0) / 2 ** options["bits"]
+        worst = max(worst, math.hypot(options["noise_V"], step / math.sqrt(12.0)) / slope)
+    return worst
+
+
 def _check_safety(design: ShotDesign, allow_bar_yield: bool, where: str):
     from .simulate import check_plan
 
@@ -383,12 +407,14 @@ def _reached(design: ShotDesign, pv: Preview):
     """(rate, strain, rate span) of a preview as the adjustment reads it.
 
     A valid preview's rate is its reduction's mean over the valid part,
-    whose times are the span; without a valid part the reduction's mean is
-    the peak, so the preview's rate is averaged over the forecast's own valid
-    part instead.
+    whose times are the span; without a valid part (the reduction's mean is
+    then the peak) or with one over less than half the loading (its mean
+    then says where equilibrium came, not how fast the shot was), the
+    preview's rate is averaged over the forecast's own valid part instead.
     """
     res = pv.result.summary["results"]
-    if pv.valid and "equilibrium_from_time_us" in res and "loading_to_time_us" in res:
+    if pv.valid and "equilibrium_from_time_us" in res and "loading_to_time_us" in res \
+            and res.get("valid_fraction_of_loading", 1.0) >= 0.5:
         return pv.mean_rate, pv.final_strain, (res["equilibrium_from_time_us"] * 1e-6, res["loading_to_time_us"] * 1e-6)
     span = design.prediction.valid_span
     c = pv.result.curves
@@ -413,7 +439,7 @@ def plan_target(target: Target, plan: PlanFile, barset, *, preview=True, allow_b
     material = plan.materials[target.material]
     rig = Rig.from_barset(barset, plan.striker_diameter)
     tables = tables or {}
-    constraints = plan.constraints
+    constraints = dataclasses.replace(plan.constraints, strain_noise=strain_noise(barset, plan.preview))
     design = design_shot(target, material, rig, constraints, table=tables.get(material.name), shaper_tables=tables)
     where = f"{plan.source}: targets ({target.material} at {target.strain_rate:g} 1/s)"
     _check_safety(design, allow_bar_yield, where)
@@ -695,7 +721,7 @@ def report_lines(planned: PlannedShot) -> list:
                 lines.append(f"  adjusted  after preview {h['preview']}: {h['change']}")
     r, w = d.record, d.record["window"]
     lines.append(f"  record    {r['sample_rate_Hz'] / 1e6:g} MHz ({r['reason']}), {r['record_length_s'] * 1e6:.0f} us "
-                 f"with {r['pre_trigger_s'] * 1e6:.0f} us pre-trigger; pulse {p.timing['duration_s'] * 1e6:.0f} us "
+                 f"with {r['pre_trigger_s'] * 1e6:.0f} us pre-trigger; pulse {r['pulse_duration_s'] * 1e6:.0f} us "
                  f"{'fits' if w['fits'] else 'does NOT fit'} between the gauges "
                  f"(overlap limit {w['overlap_limit_s'] * 1e6:.0f} us, window {w['window_length_s'] * 1e6:.0f} us)")
     ds = d.dispersion
