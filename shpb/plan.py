@@ -1064,8 +1064,6 @@ class ShotDesign:
         :func:`dispersion_severity` at the incident gauge.
     notes : tuple of str
         What could not be met, and cautions.
-    history : tuple of dict
-        Adjustments after previews (filled by :mod:`shpb.planning`).
     """
 
     target: Target
@@ -1080,7 +1078,6 @@ class ShotDesign:
     record: dict
     dispersion: dict
     notes: tuple = ()
-    history: tuple = ()
 
     @property
     def feasible(self) -> bool:

@@ -355,7 +355,8 @@ def _off(value, aim):
 
 @dataclass(frozen=True, eq=False)
 class PlannedShot:
-    """One target planned: the final design, its preview (None without), and what the adjustment changed."""
+    """One target planned: the kept design, its preview (None without), and every preview with what the
+    adjustment changed after it (``history``: dicts of settings, forecast, reached values, flags, ``change``)."""
 
     design: ShotDesign
     preview: Optional[Preview]
@@ -492,7 +493,7 @@ def plan_target(target: Target, plan: PlanFile, barset, *, preview=True, allow_b
 
         files = write_virtual_shot(pv.shot, out_dir, figure=False)
     pv = dataclasses.replace(pv, shot=None, files=files)  # the virtual shot itself is not kept
-    return PlannedShot(dataclasses.replace(design, history=tuple(history)), pv, tuple(history))
+    return PlannedShot(design, pv, tuple(history))
 
 
 def _change(old: ShotDesign, new: ShotDesign) -> str:
