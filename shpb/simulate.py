@@ -183,6 +183,7 @@ __all__ = [
     "TrueStressLaw",
     "radial_return",
     "RodSpec",
+    "bar_rod",
     "VirtualShotSpec",
     "VirtualShotResult",
     "simulate_shot",
@@ -578,6 +579,14 @@ class RodSpec:
     def impedance(self) -> float:
         """Mechanical impedance Z = rho c0 A [kg/s]."""
         return self.density * self.wave_speed * self.area
+
+
+def bar_rod(bar) -> "RodSpec":
+    """The model rod of a bar set's bar (:class:`shpb.setup.Bar`): its length, diameter and modulus, and the
+    density E / c0**2 that gives it the bar's wave speed (the measured one when the bar set or its calibration
+    has one), so that the model's waves travel as the reduction assumes."""
+    c = bar.wave_speed
+    return RodSpec(bar.length, bar.diameter, bar.modulus, bar.modulus / c**2)
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -22,7 +22,7 @@ import numpy as np
 from .errors import InputError
 from .setup import _Table, load_barset, read_toml
 from .simulate import (TRIGGERS, JohnsonCookLaw, PerfectlyPlastic, RecorderSpec, RodSpec, TrueStressLaw,
-                       VirtualRecord, VirtualShotResult, VirtualShotSpec, check_plan, dispersed_drive,
+                       VirtualRecord, VirtualShotResult, VirtualShotSpec, bar_rod, check_plan, dispersed_drive,
                        model_duration, plan_shot, simulate_shot, trigger_time, virtual_record)
 from .units import to_si
 
@@ -201,10 +201,6 @@ def load_simulation(path) -> SimulationSetup:
     kind = top.string("kind", default="specimen" if "specimen" in data else "bars-together", choices=SHOT_KINDS)
     barset_path = path.parent / top.string("barset")
     bs = load_barset(barset_path)
-
-    def bar_rod(bar):
-        c = bar.wave_speed
-        return RodSpec(bar.length, bar.diameter, bar.modulus, bar.modulus / c**2)
 
     # striker: the bar set's, with overrides
     st = top.table("striker", required=False) or _Table({}, f"{src}: striker")
