@@ -85,7 +85,9 @@ def latest_values(path) -> dict:
         their SHA-256) and, for a scale given relative to the incident
         channel's (``scale_relative_to_incident``, from a bars-together
         shot), ``relative_to_incident`` = ``value`` = that ratio: the caller
-        multiplies it by the incident scale in effect.
+        multiplies it by the incident scale in effect. ``uncertainty``: the
+        standard uncertainty of ``value`` the entry's results give
+        (``wave_speed_uncertainty_m_per_s``, ``scale_uncertainty``), or None.
 
     Raises
     ------
@@ -114,11 +116,25 @@ def latest_values(path) -> dict:
                                      f"{where}: calibration[{i}].apply.{bar_name}.{key}")
                 date = e.get("date")  # a hand-edited file may hold a TOML datetime: keep the summary JSON-able
                 record = {"value": float(value), "entry": i, "date": None if date is None else str(date),
-                          "kind": e.get("kind"), "inputs": e.get("inputs", [])}
+                          "kind": e.get("kind"), "inputs": e.get("inputs", []),
+                          "uncertainty": _entry_uncertainty(e, key)}
                 if key == "scale_relative_to_incident":
                     record["relative_to_incident"] = float(value)
                 latest[(bar_name, "scale" if key.startswith("scale") else key)] = record
     return latest
+
+
+#: The key of an entry's results holding the standard uncertainty of each quantity it may apply.
+UNCERTAINTY_KEYS = {"wave_speed_m_per_s": "wave_speed_uncertainty_m_per_s", "scale": "scale_uncertainty",
+                    "scale_relative_to_incident": "scale_relative_to_incident_uncertainty"}
+
+
+def _entry_uncertainty(entry: dict, key: str):
+    """The standard uncertainty an entry's results give for an applied quantity (None when none or not finite)."""
+    value = (entry.get("results") or {}).get(UNCERTAINTY_KEYS.get(key, ""))
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value < 0:
+        return None
+    return float(value)
 
 
 def calibration_entry(kind, results, *, inputs=(), base_dir=None, bar=None, apply=None, settings=None,

@@ -230,7 +230,7 @@ def _row_dict(cols, cells, where_row: str, barsets: Callable[[str, str], BarSet]
             tags[header] = text
             continue
         key = _SETUP_COLUMNS[name] if name in _SETUP_COLUMNS else None
-        if unit and (key is None or key.kind in ("switch", "choice", "text")):
+        if unit and (key is None or key.kind in ("switch", "count", "choice", "text")):
             raise InputError(f"column {name!r} takes no unit in its header", where)
         if text == "":
             continue  # empty cell: the campaign default
@@ -433,8 +433,8 @@ def _output_options(out: dict, where: str):
 
 
 # --------------------------------------------------------------------------- numbers for the table
-def flow_stress_at(strain, stress, valid, at: float) -> float:
-    """Flow stress at a given strain, interpolated linearly on the valid part of a curve.
+def flow_stress_at(strain, stress, valid, at):
+    """Flow stress at a given strain (or at each of several), interpolated linearly on the valid part of a curve.
 
     Parameters
     ----------
@@ -444,25 +444,27 @@ def flow_stress_at(strain, stress, valid, at: float) -> float:
         Engineering stress (any unit; the result has the same one).
     valid : array_like of bool
         Samples inside the valid (equilibrium, loading) part.
-    at : float
-        Strain [1] at which to read the stress.
+    at : float or array_like
+        Strain(s) [1] at which to read the stress.
 
     Returns
     -------
-    float
-        The stress at ``at``; NaN when ``at`` is outside the strain range of
-        the valid part (no extrapolation).
+    float or ndarray
+        The stress at ``at`` (an array for an array); NaN where ``at`` is
+        outside the strain range of the valid part (no extrapolation).
     """
     strain = np.asarray(strain, dtype=float)
     stress = np.asarray(stress, dtype=float)
+    at_arr = np.asarray(at, dtype=float)
     v = np.asarray(valid, dtype=bool) & np.isfinite(strain) & np.isfinite(stress)
     if not v.any():
-        return float("nan")
-    x, y = strain[v], stress[v]
-    if not x.min() <= at <= x.max():
-        return float("nan")
-    order = np.argsort(x, kind="stable")  # strain rises while loading; sorting guards a noisy wobble
-    return float(np.interp(at, x[order], y[order]))
+        out = np.full(at_arr.shape, np.nan)
+    else:
+        x, y = strain[v], stress[v]
+        order = np.argsort(x, kind="stable")  # strain rises while loading; sorting guards a noisy wobble
+        out = np.interp(at_arr, x[order], y[order])
+        out = np.where((at_arr >= x.min()) & (at_arr <= x.max()), out, np.nan)
+    return float(out) if out.ndim == 0 else out
 
 
 def rate_groups(rates, tolerance: float = RATE_GROUP_TOLERANCE) -> np.ndarray:
@@ -498,6 +500,23 @@ def _flow_column(strain: float) -> str:
     return f"flow_stress_MPa_at_{strain:g}"
 
 
+def _expanded_column(column: str) -> str:
+    """The column of a result's expanded uncertainty (k = 2): ``U95_<column>``."""
+    return f"U95_{column}"
+
+
+def _flow_expanded(summary: dict, strain: float) -> float:
+    """U95 of the flow stress at ``strain`` [MPa] from the summary's flow-stress table (linear between its
+    strains; NaN outside it or without the uncertainty stage)."""
+    table = (summary.get("uncertainty") or {}).get("flow_stress") or {}
+    x, y = np.asarray(table.get("strain", []), float), np.asarray(table.get("U95_MPa", []), float)
+    ok = np.isfinite(x) & np.isfinite(y)
+    x, y = x[ok], y[ok]
+    if x.size == 0 or not x.min() - 1e-12 <= strain <= x.max() + 1e-12:
+        return float("nan")
+    return float(np.interp(strain, x, y))
+
+
 def shot_row(summary: dict, curves: pd.DataFrame, flow_strains: Iterable[float]) -> dict:
     """The campaign-table fields of one reduced shot, from its summary and curves.
 
@@ -531,6 +550,11 @@ def shot_row(summary: dict, curves: pd.DataFrame, flow_strains: Iterable[float])
     strain, stress, valid = (curves[c].to_numpy() for c in ("strain", "stress_MPa", "valid"))
     for e in flow_strains:
         row[_flow_column(e)] = flow_stress_at(strain, stress, valid.astype(bool), e)
+        row[_expanded_column(_flow_column(e))] = _flow_expanded(summary, e)
+    for key in ("mean_strain_rate_per_s", "yield_strain", "yield_stress_MPa"):
+        row[_expanded_column(key)] = num(_expanded_column(key))
+    dominant = ((summary.get("uncertainty") or {}).get("dominant_inputs") or {}).get("flow_stress_mean_MPa") or []
+    row["dominant_input"] = dominant[0] if dominant else ""
     row.update({
         "yield_strain": num("yield_strain"),
         "yield_stress_MPa": num("yield_stress_MPa"),
@@ -1419,10 +1443,12 @@ def _remember(out: Path, campaign: Campaign, figures: bool, report: CampaignRepo
 
 # --------------------------------------------------------------------------- campaign outputs
 def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
-    flow_cols = [_flow_column(e) for e in campaign.flow_strains]
+    flow_cols = [c for e in campaign.flow_strains for c in (_flow_column(e), _expanded_column(_flow_column(e)))]
     num_cols = ["temperature_K", "specimen_length_mm", "specimen_diameter_mm", "mean_strain_rate_per_s",
-                "strain_rate_cv", "peak_stress_MPa", *flow_cols, "yield_strain", "yield_stress_MPa",
-                "valid_fraction_of_loading", "equilibrium_from_strain", "max_strain"]
+                _expanded_column("mean_strain_rate_per_s"), "strain_rate_cv", "peak_stress_MPa", *flow_cols,
+                "yield_strain", _expanded_column("yield_strain"), "yield_stress_MPa",
+                _expanded_column("yield_stress_MPa"), "valid_fraction_of_loading", "equilibrium_from_strain",
+                "max_strain"]
     records = []
     by_row = {r.id: r for r in campaign.rows}
     for o in outcomes:
@@ -1447,6 +1473,7 @@ def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
         for c in num_cols:
             if c != "temperature_K":
                 rec[c] = data.get(c, float("nan"))
+        rec["dominant_input"] = data.get("dominant_input", "")
         rec.update({"flags": data["flags"], "valid": bool(data["valid"]) and o.status == OK,
                     "calibration": data["calibration"], "stage": o.stage, "reason": o.reason,
                     "stale": o.stale, **_record_paths(crow, campaign.base_dir)})

@@ -9,6 +9,7 @@ plotted alone::
            ─ pulses.waves_at_faces   ─> FaceWaves        (each wave carried to its face, dispersion corrected)
            ─ kolsky.kolsky_curves    ─> KolskyCurves     (forces, velocities, rates, strains, stresses)
            ─ validity.judge          ─> Verdict          (every flag, valid part, R(t) that decided)
+           ─ uncertainty.propagate   ─> ShotUncertainty  (u and U of every row and scalar, budget; optional)
            ─ ShotResult              (curves table + summary + flags; owns the result folder)
 """
 
@@ -16,7 +17,7 @@ from __future__ import annotations
 
 import json
 from contextlib import contextmanager
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Optional
 
@@ -43,6 +44,7 @@ class Stages:
     waves: pulses.FaceWaves
     curves: kolsky.KolskyCurves
     verdict: validity.Verdict
+    uncertainty: Optional[object] = None  # shpb.uncertainty.ShotUncertainty, when the analysis asks for it
 
 
 @dataclass(frozen=True)
@@ -51,7 +53,8 @@ class ShotResult:
 
     A result folder holds :attr:`CURVES_FILE`, :attr:`SUMMARY_FILE` (written
     last: its presence marks a complete folder) and optionally
-    :attr:`FIGURE_FILE`; campaigns add their own key file beside them.
+    :attr:`FIGURE_FILE` and :attr:`BUDGET_FILE` (the uncertainty budget);
+    campaigns add their own key file beside them.
 
     Attributes
     ----------
@@ -75,8 +78,9 @@ class ShotResult:
     CURVES_FILE = "curves.csv"
     SUMMARY_FILE = "summary.json"
     FIGURE_FILE = "shot.png"
+    BUDGET_FILE = "uncertainty_budget.csv"
     #: Files a result folder may hold, written in this order (the summary last).
-    FILES = (CURVES_FILE, FIGURE_FILE, SUMMARY_FILE)
+    FILES = (CURVES_FILE, BUDGET_FILE, FIGURE_FILE, SUMMARY_FILE)
 
     @property
     def valid(self) -> bool:
@@ -108,6 +112,10 @@ class ShotResult:
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         atomic_write_csv(out / self.CURVES_FILE, self.curves)
+        if self.stages is not None and self.stages.uncertainty is not None:
+            atomic_write_csv(out / self.BUDGET_FILE, self.stages.uncertainty.budget_table())
+        elif (out / self.BUDGET_FILE).exists():  # an older result's budget does not describe this one
+            (out / self.BUDGET_FILE).unlink()
         if figure and self.stages is not None:
             from .io import atomic_savefig
 
@@ -185,7 +193,12 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         waves = pulses.waves_at_faces(strains, plan, bs, opt)
         curves = kolsky.kolsky_curves(waves, bs, shot.specimen, opt.stress)
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt, shot.striker_speed)
-    return _result(shot, Stages(record, strains, plan, waves, curves, verdict))
+        stages = Stages(record, strains, plan, waves, curves, verdict)
+        if opt.uncertainty:
+            from .uncertainty import propagate
+
+            stages = replace(stages, uncertainty=propagate(shot, stages))
+    return _result(shot, stages)
 
 
 @contextmanager
@@ -216,6 +229,10 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
                                                       "yield_offset": shot.analysis.yield_offset}}]
     provenance[1]["parameters"].update({"incident": bs.incident_gauge.bridge,
                                         "transmitted": bs.transmitted_gauge.bridge})
+    unc = st.uncertainty
+    if unc is not None:
+        results.update(unc.results())
+        provenance.append(unc.provenance)
     for p in provenance:
         p["version"] = __version__
     summary = {
@@ -230,7 +247,9 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
         "columns": COLUMN_NOTES,
         "caution": DESIGN_CAUTION,
     }
-    return ShotResult(name=shot.name, curves=curves_table(st.waves, st.curves, v), summary=summary,
+    if unc is not None:
+        summary["uncertainty"] = unc.summary()
+    return ShotResult(name=shot.name, curves=curves_table(st.waves, st.curves, v, unc), summary=summary,
                       flags=tuple(v.flags), stages=st)
 
 
@@ -241,8 +260,9 @@ def _shift_provenance(barset, waves) -> dict:
     return p
 
 
-def curves_table(waves, curves, verdict) -> pd.DataFrame:
-    """The ``curves.csv`` table of a shot from its stages (units in the column names)."""
+def curves_table(waves, curves, verdict, uncertainty=None) -> pd.DataFrame:
+    """The ``curves.csv`` table of a shot from its stages (units in the column names); with the uncertainty
+    stage, the standard and expanded uncertainties of stress, strain and strain rate after ``valid``."""
     sig = curves.stress_by_form
     return pd.DataFrame({
         "time_us": curves.time * 1e6,
@@ -257,6 +277,7 @@ def curves_table(waves, curves, verdict) -> pd.DataFrame:
         "stress_3wave_MPa": sig["3-wave"] / 1e6, "stress_MPa": curves.stress / 1e6,
         "true_strain": curves.true_strain, "true_stress_MPa": curves.true_stress / 1e6,
         "valid": verdict.valid.astype(int),
+        **(uncertainty.columns() if uncertainty is not None else {}),
     })
 
 
@@ -279,6 +300,9 @@ COLUMN_NOTES = {
     "true_strain": "-ln(1 - strain)",
     "true_stress_MPa": "stress_MPa (1 - strain)",
     "valid": "1 inside the loading part after force equilibrium",
+    "u_stress_MPa, u_strain, u_strain_rate_per_s, u_true_stress_MPa": "standard uncertainty of the row's value "
+    "(GUM law for the linear inputs, Monte Carlo through the stages for the rest; docs/uncertainty.md)",
+    "U95_stress_MPa, U95_strain, U95_strain_rate_per_s": "expanded uncertainty U = k u, k = 2 (about 95 %)",
 }
 
 

@@ -126,17 +126,21 @@ def plot_shot(result) -> Figure:
     ax.legend(fontsize=7, loc="upper left")
 
     ax = fig.add_subplot(gs[1, 1])
+    _band(ax, c, "strain_rate_per_s", valid)
     _line(ax, c["strain"], c["strain_rate_per_s"], color="0.6", lw=0.8, label="three-wave")
     _line(ax, c["strain"], c["strain_rate_reflected_per_s"], color="C1", lw=0.6, alpha=0.7, label="reflected wave only")
-    _line(ax, c["strain"][valid], c["strain_rate_per_s"][valid], "k", lw=1.5, label="valid part")
+    _line(ax, c["strain"][valid], c["strain_rate_per_s"][valid], "k", lw=1.2 if "U95_strain_rate_per_s" in c else 1.5,
+          label="valid part")
     ax.set(xlabel="engineering strain [1]", ylabel="strain rate [1/s]", title="Strain rate")
     ax.set_ylim(bottom=min(0.0, float(np.nanmin(c["strain_rate_per_s"][valid]))) if valid.any() else None)
     ax.legend(fontsize=7)
 
     ax = fig.add_subplot(gs[2, 0])
+    _band(ax, c, "stress_MPa", valid)
     _line(ax, c["strain"], c["stress_1wave_MPa"], lw=0.8, label="1-wave (back face)")
     _line(ax, c["strain"], c["stress_2wave_MPa"], lw=0.8, label="2-wave (front face)")
-    _line(ax, c["strain"][valid], c["stress_MPa"][valid], "k", lw=2, label="reported, valid part")
+    _line(ax, c["strain"][valid], c["stress_MPa"][valid], "k", lw=1.2 if "U95_stress_MPa" in c else 2,
+          label="reported, valid part")
     ys, ysig = tr.get("yield", (None, None))
     if ys is not None:
         ax.plot([ys], [ysig], "rv", ms=8, label=f"yield {ysig:.0f} MPa at {ys:.4f}")
@@ -157,12 +161,30 @@ def plot_shot(result) -> Figure:
              f"peak stress {num('peak_stress_MPa', '.0f')} MPa",
              f"yield {num('yield_stress_MPa', '.0f')} MPa at strain {num('yield_strain', '.4f')}",
              f"equilibrium from {num('equilibrium_from_time_us', '.1f')} us", ""]
+    if "U95_mean_strain_rate_per_s" in res:  # the expanded uncertainties (k = 2) of the uncertainty stage
+        lines[1:4] = [f"mean strain rate {num('mean_strain_rate_per_s', '.0f')} +- "
+                      f"{num('U95_mean_strain_rate_per_s', '.0f')} 1/s (+- U, k = 2)",
+                      f"peak stress {num('peak_stress_MPa', '.0f')} +- {num('U95_peak_stress_MPa', '.0f')} MPa",
+                      f"yield {num('yield_stress_MPa', '.0f')} +- {num('U95_yield_stress_MPa', '.0f')} MPa at "
+                      f"strain {num('yield_strain', '.4f')} +- {num('U95_yield_strain', '.4f')}"]
     for f in result.flags[:6]:
         lines += textwrap.wrap(f"{_SEVERITY_MARK.get(f.severity, f.severity)}: {f.message}", 70)
     ax.text(0, 1, "\n".join(lines), va="top", family="monospace", fontsize=8)
     fig.suptitle(f"shpb — shot {result.name} (curves for design need independent validation)", fontsize=10,
                  y=1 - 0.04 / height)  # at the top edge, above the panel titles
     return fig
+
+
+def _band(ax, c, column, valid):
+    """The expanded-uncertainty band (value +- U95, k = 2) of a column over the valid part, against strain."""
+    key = f"U95_{column}"
+    if key not in c or not valid.any():
+        return
+    x = c["strain"].to_numpy()[valid]
+    y, big_u = c[column].to_numpy()[valid], c[key].to_numpy()[valid]
+    ok = np.isfinite(big_u)
+    ax.fill_between(x[ok], (y - big_u)[ok], (y + big_u)[ok], color="C2", alpha=0.35, lw=0.6, edgecolor="C2",
+                    label="± U (k = 2), valid part", zorder=1)
 
 
 def plot_dispersion(table, title, onset_Hz) -> Figure:

@@ -42,7 +42,8 @@ class Key:
         The key in that table (and the dataclass field it fills).
     kind : str
         A dimension of :data:`shpb.units.DIMENSIONS` (``length``, ``time``,
-        ...), or ``switch`` (true/false), ``choice`` or ``text``.
+        ...), or ``switch`` (true/false), ``count`` (a whole number >= 1),
+        ``choice`` or ``text``.
     default : Any
         SI value when the key is absent (None: no value).
     meaning : str
@@ -80,6 +81,13 @@ class Key:
             if not isinstance(value, bool):
                 raise InputError(f"expected true or false, got {value!r}", where)
             return value
+        if self.kind == "count":
+            text = value.strip() if isinstance(value, str) else value
+            if isinstance(text, str) and text.isdigit():
+                text = int(text)
+            if isinstance(text, bool) or not isinstance(text, int) or text < 1:
+                raise InputError(f"expected a whole number >= 1, got {value!r}", where)
+            return text
         if self.kind in ("choice", "text"):
             if not isinstance(value, str):
                 raise InputError(f"expected text, got {value!r}", where)
@@ -108,6 +116,12 @@ SPECIMEN_KEYS = (
        column="specimen_modulus"),
     _k("specimen", "density", "density", None, "density [kg/m^3]; with the modulus, the wave transit time",
        column="specimen_density"),
+    _k("specimen", "length_uncertainty", "length", None,
+       "standard uncertainty of the length [m] (the instrument's; default 0.01 mm)",
+       column="specimen_length_uncertainty"),
+    _k("specimen", "diameter_uncertainty", "length", None,
+       "standard uncertainty of the diameter [m] (the instrument's; default 0.01 mm)",
+       column="specimen_diameter_uncertainty"),
 )
 
 #: Keys of ``[analysis]`` (per shot, campaign default, campaign column, command-line override).
@@ -134,6 +148,9 @@ ANALYSIS_KEYS = (
        "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
     _k("analysis", "hum_frequency", "frequency", None,
        "mains frequency [Hz] fitted with the baselines, with its first harmonics (none when absent)"),
+    _k("analysis", "uncertainty", "switch", True,
+       "propagate the inputs' uncertainties to every curve row and scalar (GUM and Monte Carlo)"),
+    _k("analysis", "uncertainty_draws", "count", 100, "Monte Carlo draws of the uncertainty propagation (>= 10)"),
 )
 
 #: Keys of a shot file's ``[striker]`` table: what changes from shot to shot (the striker's length, diameter

@@ -176,6 +176,9 @@ class BarSet:
     striker: Optional[Striker] = None
     source: Optional[str] = None
     calibration: dict = field(default_factory=dict, compare=False)
+    #: Stated standard uncertainties of the rig's inputs (the ``[uncertainty]`` table, parsed by
+    #: :func:`shpb.uncertainty.parse_barset_uncertainty`; defaults there).
+    uncertainty: dict = field(default_factory=dict, compare=False)
 
 
 @dataclass(frozen=True)
@@ -196,6 +199,9 @@ class Specimen:
         Elastic modulus for the yield offset line [Pa]; fitted when None.
     density : float or None
         Density [kg/m^3]; with the modulus, gives the specimen wave transit time.
+    length_uncertainty, diameter_uncertainty : float or None
+        Standard uncertainties of the length and diameter [m] (the measuring
+        instrument's); the default of :mod:`shpb.uncertainty` when None.
     """
 
     length: float
@@ -204,6 +210,8 @@ class Specimen:
     temperature: Optional[float] = None
     modulus: Optional[float] = None
     density: Optional[float] = None
+    length_uncertainty: Optional[float] = None
+    diameter_uncertainty: Optional[float] = None
 
     @property
     def area(self) -> float:
@@ -294,6 +302,11 @@ class AnalysisOptions:
         second-mode onset) if None.
     hum_frequency : float or None
         Mains frequency [Hz] fitted with the baselines (none if None).
+    uncertainty : bool
+        Propagate the inputs' uncertainties to every curve row and scalar
+        (:mod:`shpb.uncertainty`; default on).
+    uncertainty_draws : int
+        Monte Carlo draws of that propagation (default 100).
     """
 
     dispersion: bool = True
@@ -309,6 +322,8 @@ class AnalysisOptions:
     lowpass: bool = True
     lowpass_cutoff: Optional[float] = None
     hum_frequency: Optional[float] = None
+    uncertainty: bool = True
+    uncertainty_draws: int = 100
 
 
 @dataclass(frozen=True)
@@ -467,7 +482,8 @@ def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: 
     calibration in that file is applied (see :func:`apply_calibration_file`).
     """
     top = _Table(data, f"{source}:")
-    top.check_keys({"name", "bar_material", "incident", "transmitted", "striker", "calibration", "calibration_file"})
+    top.check_keys({"name", "bar_material", "incident", "transmitted", "striker", "calibration", "calibration_file",
+                    "uncertainty"})
     mt = top.table("bar_material", required=False)
     default_mat = _material(mt, None) if mt else None
     if mt:
@@ -490,6 +506,9 @@ def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: 
             speed=st.quantity("speed", "velocity", required=False),
         )
     cal = top.table("calibration", required=False)
+    unc = top.table("uncertainty", required=False)
+    if unc:
+        from .uncertainty import parse_barset_uncertainty
     barset = BarSet(
         name=str(data.get("name", Path(source).stem)),
         incident=bars["incident"],
@@ -499,6 +518,7 @@ def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: 
         striker=striker,
         source=source,
         calibration=dict(cal.data) if cal else {},
+        uncertainty=parse_barset_uncertainty(unc.data, unc.where) if unc else {},
     )
     if "calibration_file" in data:
         cal_path = Path(base_dir if base_dir is not None else Path(source).parent) / top.string("calibration_file")
@@ -548,6 +568,8 @@ def apply_calibration_file(barset: BarSet, path, explicit: Optional[dict] = None
             record = dict(latest[(bar_name, quantity)])
             if "relative_to_incident" in record:
                 record["value"] = record["relative_to_incident"] * gauges["incident"].scale
+                if record.get("uncertainty") is not None:
+                    record["uncertainty"] *= gauges["incident"].scale
             name = f"{bar_name}.{quantity}"
             if explicit.get((bar_name, quantity)):
                 used = bars[bar_name].measured_wave_speed if quantity != "scale" else gauges[bar_name].scale

@@ -100,6 +100,28 @@ def loading_region(strain_rate: ArrayLike, force_mean: ArrayLike, *, force_fract
     return start, int(on[-1]) + 1
 
 
+def usable_loading_region(strain_rate: ArrayLike, force_mean: ArrayLike,
+                          usable: Optional[ArrayLike] = None) -> Optional[tuple[int, int]]:
+    """The loading part (:func:`loading_region`) kept inside the samples where every wave has its full weight.
+
+    Parameters
+    ----------
+    usable : array_like of bool, optional
+        Samples outside the window's closing taper; None: all.
+
+    Returns
+    -------
+    (start, stop) : tuple of int, or None
+        Half-open index range; None when no loading is left.
+    """
+    region = loading_region(strain_rate, force_mean)
+    if region is not None and usable is not None:  # the valid part stays where every wave has its full weight
+        full = np.flatnonzero(np.asarray(usable, dtype=bool))
+        a, b = (max(region[0], int(full[0])), min(region[1], int(full[-1]) + 1)) if full.size else (0, 0)
+        region = (a, b) if b - a > 1 else None
+    return region
+
+
 def moving_average(values: ArrayLike, n: int) -> np.ndarray:
     """Centred moving average over ``n`` samples, NaN-aware (NaN where the window holds no number)."""
     x = np.asarray(values, dtype=float)
@@ -502,11 +524,7 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
     u_ratio = equilibrium_ratio_uncertainty(moving_average(f1, n_avg), moving_average(f2, n_avg), *force_noise)
     out = Assessment(valid=np.zeros(tau.size, dtype=bool), equilibrium_ratio=ratio_avg)
     res, flags = out.results, out.flags
-    region = loading_region(rate, fmean)
-    if region is not None and usable is not None:  # the valid part stays where every wave has its full weight
-        full = np.flatnonzero(np.asarray(usable, dtype=bool))
-        a, b = (max(region[0], int(full[0])), min(region[1], int(full[-1]) + 1)) if full.size else (0, 0)
-        region = (a, b) if b - a > 1 else None
+    region = usable_loading_region(rate, fmean, usable)
     onset = None
     k = 0.0
     out.limit = np.full(tau.size, float(threshold))
