@@ -329,6 +329,7 @@ time = "TIME"
 
 [analysis]
 dispersion = true
+uncertainty = true          # u and U of every curve row and result, and the budget (docs/uncertainty.md)
 
 [output]
 flow_strains = [0.05, 0.10]

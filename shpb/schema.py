@@ -148,8 +148,9 @@ ANALYSIS_KEYS = (
        "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
     _k("analysis", "hum_frequency", "frequency", None,
        "mains frequency [Hz] fitted with the baselines, with its first harmonics (none when absent)"),
-    _k("analysis", "uncertainty", "switch", True,
-       "propagate the inputs' uncertainties to every curve row and scalar (GUM and Monte Carlo)"),
+    _k("analysis", "uncertainty", "switch", False,
+       "propagate the inputs' uncertainties to every curve row and scalar (GUM and Monte Carlo; off by default: "
+       "it costs tens of reductions)"),
     _k("analysis", "uncertainty_draws", "count", 100, "Monte Carlo draws of the uncertainty propagation (>= 10)"),
 )
 

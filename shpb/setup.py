@@ -304,7 +304,7 @@ class AnalysisOptions:
         Mains frequency [Hz] fitted with the baselines (none if None).
     uncertainty : bool
         Propagate the inputs' uncertainties to every curve row and scalar
-        (:mod:`shpb.uncertainty`; default on).
+        (:mod:`shpb.uncertainty`; default off: it costs tens of reductions).
     uncertainty_draws : int
         Monte Carlo draws of that propagation (default 100).
     """
@@ -322,7 +322,7 @@ class AnalysisOptions:
     lowpass: bool = True
     lowpass_cutoff: Optional[float] = None
     hum_frequency: Optional[float] = None
-    uncertainty: bool = True
+    uncertainty: bool = False
     uncertainty_draws: int = 100
 
 

@@ -458,10 +458,9 @@ def shot_inputs(shot: "Shot", strains=None) -> tuple:
         out.append(Input(f"specimen.{spec.key}", spec.label, value, u, "m", "specimen", source, "GUM"))
     if strains is not None:
         for b in BARS:
-            volts = strains.conditioning.get(b, {}).get("noise_V", 0.0)
-            out.append(Input(f"record.noise_{b}", f"record noise, {b} channel", float(volts), float(volts), "V",
-                             "record", "measured on the record (robust successive differences, stage 1)",
-                             "Monte Carlo"))
+            sigma = float(getattr(strains, f"noise_{b}"))
+            out.append(Input(f"record.noise_{b}", f"record noise, {b} channel", sigma, sigma, "1", "record",
+                             "measured over the quiet spans of the conditioned channel (stage 1)", "Monte Carlo"))
     return tuple(i for i in out if i.u > 0)
 
 
@@ -584,12 +583,13 @@ class _Evaluator:
         region, region0 = self._region(curves, waves), self.region
         if region is None or region0 is None:
             return out
-        b = region[1]
+        b = int(np.argmax(curves.strain)) + 1  # to the largest strain: past the loading's end the strain still rises
         x = np.maximum.accumulate(curves.strain[:b])  # strain rises while loading (a flat wobble stays put)
         a0, b0 = region0
         for k in ("stress", "strain_rate", "true_stress"):  # the 1-wave stress stays at the row's time
             row = np.array(out[k], dtype=float)
-            row[a0:b0] = np.interp(strain0[a0:b0], x, series[k][:b], left=np.nan, right=np.nan)
+            at_strain = np.interp(strain0[a0:b0], x, series[k][:b], left=np.nan, right=np.nan)
+            row[a0:b0] = np.where(np.isfinite(at_strain), at_strain, row[a0:b0])  # beyond its strains: its time
             out[k] = row
         return out
 
@@ -665,25 +665,26 @@ def gum_part(shot: "Shot", stages: "Stages", inputs) -> dict:
             "scalars": {k: np.array(v) for k, v in scal.items()}}
 
 
-def _noise_draw(strains, bar: str, barset, rng) -> np.ndarray:
-    """One draw of a channel's noise as the conditioned strain carries it: white noise of the record's measured
-    standard deviation [V], through the same low-pass as the record (stage 1), into strain by the bridge."""
-    from .bridge import bar_strain
+def _noise_draw(strains, bar: str, rng) -> np.ndarray:
+    """One draw of a channel's noise as the conditioned strain carries it [1].
+
+    White Gaussian noise through the record's own zero-phase low-pass (stage 1,
+    :func:`shpb.conditioning.lowpass`), scaled to the channel's noise measured
+    over its quiet spans after conditioning (``GaugeStrains.noise_*``, the
+    noise the equilibrium test propagates too): the spectrum of the filter,
+    the level of the record.
+    """
     from .conditioning import lowpass
 
-    info = strains.conditioning.get(bar, {})
-    sigma = float(info.get("noise_V", 0.0))
+    sigma = strains.noise_incident if bar == "incident" else strains.noise_transmitted
     n = strains.time.size
     if not sigma > 0:
         return np.zeros(n)
-    v = sigma * rng.standard_normal(n)
+    v = rng.standard_normal(n)
     cutoff = strains.lowpass_cutoff
     if cutoff:
         v = lowpass(v, strains.dt, cutoff)
-    g = barset.incident_gauge if bar == "incident" else barset.transmitted_gauge
-    nu = getattr(barset, bar).poisson_ratio
-    return bar_strain(v, bridge=g.bridge, gauge_factor=g.gauge_factor, excitation=g.excitation, gain=g.gain,
-                      polarity=g.polarity, scale=g.scale, poisson_ratio=nu)
+    return v * (sigma / float(np.std(v)))
 
 
 @dataclass(frozen=True)
@@ -758,8 +759,8 @@ def monte_carlo_part(shot: "Shot", stages: "Stages", inputs, draws: int = DEFAUL
             if restage:
                 strains = st
                 if noise:
-                    strains = replace(st, incident=st.incident + _noise_draw(st, "incident", bs, rng),
-                                      transmitted=st.transmitted + _noise_draw(st, "transmitted", bs, rng))
+                    strains = replace(st, incident=st.incident + _noise_draw(st, "incident", rng),
+                                      transmitted=st.transmitted + _noise_draw(st, "transmitted", rng))
                 plan = pulses.plan_analysis(strains, b2, opt)
                 waves = pulses.waves_at_faces(strains, plan, b2, opt)
             else:

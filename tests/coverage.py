@@ -58,7 +58,8 @@ def stated_shot(name: str, calibrated: bool = True):
     :data:`CALIBRATED_SPEED_U`), as after ``shpb calibrate free-end``; otherwise sqrt(E/rho) of the
     stated modulus, whose 1 % uncertainty then moves the waves in time.
     """
-    shot = dataclasses.replace(load_shot(EXAMPLE / "shots" / f"{name}.toml"), record=None)
+    shot = with_analysis(dataclasses.replace(load_shot(EXAMPLE / "shots" / f"{name}.toml"), record=None),
+                         uncertainty=True)
     if calibrated:
         bs = shot.barset
         bars = {b: dataclasses.replace(getattr(bs, b), measured_wave_speed=getattr(bs, b).wave_speed)

@@ -25,6 +25,10 @@ def register(app: typer.Typer) -> None:
                                            help="Override any [analysis] key of the shot file, e.g. --set "
                                                 "window_length='120 us' or --set equilibrium_threshold=0.03; "
                                                 "repeatable (keys: docs/setup-files.md)."),
+        uncertainty: Optional[bool] = typer.Option(None, "--uncertainty/--no-uncertainty",
+                                                   help="Standard and expanded uncertainty of every curve row "
+                                                        "and result, and the budget [default: as the shot file "
+                                                        "says; off]."),
         figure: bool = figure_switch("Write the PNG figure sheet."),
         quiet: bool = quiet_option(),
     ):
@@ -44,6 +48,8 @@ def register(app: typer.Typer) -> None:
             changes["dispersion"] = dispersion
         if stress is not None:
             changes["stress"] = find_key("analysis", "stress").parse(stress, "--stress")
+        if uncertainty is not None:
+            changes["uncertainty"] = uncertainty
 
         name = load_shot(shot).name
         out_dir = out or shot.parent / "results" / name
@@ -62,14 +68,24 @@ def format_result(result, out_dir) -> str:
         v = r.get(key)
         return format(v, fmt) if isinstance(v, (int, float)) else "n/a"
 
+    def pm(key, fmt):  # "+- U" (k = 2) when the uncertainty stage ran
+        return f" +- {g('U95_' + key, fmt)}" if f"U95_{key}" in r else ""
+
     lines = [
         f"shot {result.name}: {'VALID' if result.valid else 'NOT VALID'}",
-        f"  mean strain rate   {g('mean_strain_rate_per_s', '.0f')} 1/s (spread {g('strain_rate_cv', '.1%')})",
-        f"  peak stress        {g('peak_stress_MPa', '.1f')} MPa   max strain {g('max_strain', '.4f')}",
-        f"  yield (offset {g('yield_offset', '.1%')})  {g('yield_stress_MPa', '.1f')} MPa at strain "
-        f"{g('yield_strain', '.4f')}",
+        f"  mean strain rate   {g('mean_strain_rate_per_s', '.0f')}{pm('mean_strain_rate_per_s', '.0f')} 1/s "
+        f"(spread {g('strain_rate_cv', '.1%')})",
+        f"  peak stress        {g('peak_stress_MPa', '.1f')}{pm('peak_stress_MPa', '.1f')} MPa   max strain "
+        f"{g('max_strain', '.4f')}{pm('max_strain', '.4f')}",
+        f"  yield (offset {g('yield_offset', '.1%')})  {g('yield_stress_MPa', '.1f')}{pm('yield_stress_MPa', '.1f')} "
+        f"MPa at strain {g('yield_strain', '.4f')}{pm('yield_strain', '.4f')}",
         f"  equilibrium from   {g('equilibrium_from_time_us', '.1f')} us (strain {g('equilibrium_from_strain', '.4f')})",
     ]
+    unc = result.summary.get("uncertainty")
+    if unc:
+        dom = unc.get("dominant_inputs", {}).get("flow_stress_mean_MPa", [])
+        lines.append(f"  uncertainty        +- U = 2 u (about 95 %); largest contributions to the mean flow "
+                     f"stress: {', '.join(dom[:2]) or 'n/a'} ({result.BUDGET_FILE})")
     for f in result.flags:
         lines.append(f"  {f.severity}: {f.message}")
     lines.append(f"  written to {out_dir}")
