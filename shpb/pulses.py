@@ -467,7 +467,7 @@ class WindowPlan:
 def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: float, *,
                 incident_gauge_distance: float, incident_wave_speed: float, incident_length: float,
                 transmitted_gauge_distance: float, transmitted_wave_speed: float, transmitted_length: float,
-                window_length: Optional[float] = None) -> WindowPlan:
+                window_length: Optional[float] = None, free_time: Optional[float] = None) -> WindowPlan:
     """Choose the analysis window of a shot.
 
     The window starts 10 % of the pulse before the incident foot reaches the
@@ -497,6 +497,10 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
         Bar lengths [m].
     window_length : float, optional
         A given window length [s] (used as is).
+    free_time : float, optional
+        How long the waves stay free of overlaps and echoes at their gauges
+        [s], when something else than the bars' round trips above decides it
+        (two-point separation, :mod:`shpb.separation`; may be ``inf``).
 
     Returns
     -------
@@ -505,7 +509,8 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     """
     di, ci = incident_gauge_distance, incident_wave_speed
     dtr, ct = transmitted_gauge_distance, transmitted_wave_speed
-    w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct)
+    w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct) \
+        if free_time is None else free_time
     lead = min(0.1 * duration, 0.1 * w_free)
     t_foot = t_start + foot * dt
     t_face0 = t_foot + di / ci
@@ -522,12 +527,15 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration)
 
 
-def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions") -> WindowPlan:
+def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions", *,
+                  duration: Optional[tuple] = None, free_time: Optional[float] = None) -> WindowPlan:
     """Stage 2: the incident pulse's duration, the analysis window and each wave's window at its gauge.
 
     The duration is measured on the incident channel (down to 5 % of its
     peak, :func:`pulse_end`), or taken as the striker's 2 L / c0 when the
-    pulse does not end inside the record.
+    pulse does not end inside the record. Two-point separation
+    (:func:`shpb.separation.separate_waves`) passes its own ``duration``
+    (seconds, how it was found) and ``free_time`` (see :func:`plan_window`).
 
     Returns
     -------
@@ -542,8 +550,10 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
 
     dt, foot = strains.dt, strains.foot
     volts = barset.incident_gauge.polarity * (strains.volts_incident - strains.baseline_incident)
-    end = pulse_end(volts, foot, fraction=0.05)  # on the volts: the bridge is monotonic
-    if end is not None:
+    end = None if duration else pulse_end(volts, foot, fraction=0.05)  # on the volts: the bridge is monotonic
+    if duration:
+        duration, source = duration
+    elif end is not None:
         duration, source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
     elif barset.striker is not None:
         duration, source = barset.striker.pulse_duration, "striker 2L/c0"
@@ -554,7 +564,7 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
                        incident_gauge_distance=barset.incident_gauge.distance, incident_wave_speed=bi.wave_speed,
                        incident_length=bi.length, transmitted_gauge_distance=barset.transmitted_gauge.distance,
                        transmitted_wave_speed=bt.wave_speed, transmitted_length=bt.length,
-                       window_length=analysis.window_length)
+                       window_length=analysis.window_length, free_time=free_time)
     adjusts = {"incident": 0.0, "reflected": analysis.reflected_adjust or 0.0,
                "transmitted": analysis.transmitted_adjust or 0.0}
     distances, travel, spans = {}, {}, {}

@@ -5,8 +5,10 @@ of its physics and returns a frozen dataclass that can be run, inspected and
 plotted alone::
 
     Record ─ pulses.condition_record ─> GaugeStrains     (baselines, incident foot, volts -> bar strain)
+           ─ separation.separate_waves ─> Separation     (two-point separation, where the waves overlap)
            ─ pulses.plan_analysis    ─> WindowPlan       (pulse duration, analysis window, each wave's gauge window)
-           ─ pulses.waves_at_faces   ─> FaceWaves        (each wave carried to its face, dispersion corrected)
+           ─ separation.waves_at_faces ─> FaceWaves      (each wave carried to its face, dispersion corrected,
+                                                          or the separated waves)
            ─ kolsky.kolsky_curves    ─> KolskyCurves     (forces, velocities, rates, strains, stresses)
            ─ validity.judge          ─> Verdict          (every flag, valid part, R(t) that decided)
            ─ ShotResult              (curves table + summary + flags; owns the result folder)
@@ -22,7 +24,7 @@ from typing import Optional
 
 import pandas as pd
 
-from . import __version__, kolsky, pulses, validity
+from . import __version__, kolsky, pulses, separation, validity
 from .errors import AnalysisError, InputError
 from .io import Record, atomic_write_csv, atomic_write_json, check_time_base, read_record
 from .setup import Bar, Gauge, Shot
@@ -43,6 +45,7 @@ class Stages:
     waves: pulses.FaceWaves
     curves: kolsky.KolskyCurves
     verdict: validity.Verdict
+    separation: Optional[separation.Separation] = None
 
 
 @dataclass(frozen=True)
@@ -181,11 +184,12 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
             record = read_record(shot.record)
         check_time_base(record, shot)  # a unit typo is refused before the stages size anything by it
         strains = pulses.condition_record(record, bs, opt)
-        plan = pulses.plan_analysis(strains, bs, opt)
-        waves = pulses.waves_at_faces(strains, plan, bs, opt)
+        split = separation.separate_waves(record, strains, bs, opt)  # used where the waves overlap
+        plan = pulses.plan_analysis(strains, bs, opt, **split.plan_options())
+        waves = separation.waves_at_faces(split, strains, plan, bs, opt)
         curves = kolsky.kolsky_curves(waves, bs, shot.specimen, opt.stress)
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt)
-    return _result(shot, Stages(record, strains, plan, waves, curves, verdict))
+    return _result(shot, Stages(record, strains, plan, waves, curves, verdict, split))
 
 
 @contextmanager
@@ -204,11 +208,13 @@ def _named(where: str):
 def _result(shot: Shot, st: Stages) -> ShotResult:
     """Gather the stage results into the curves table and the summary."""
     bs, v = shot.barset, st.verdict
-    results = {**v.results, **st.plan.results(), **st.waves.results()}
+    results = {**v.results, **st.plan.results(), "face_waves_method": separation.METHOD_CLASSIC,
+               **st.waves.results()}
     for which in ("incident", "transmitted"):
         results[f"{which}_wave_speed_m_per_s"] = getattr(bs, which).wave_speed
         results[f"{which}_wave_speed_source"] = _speed_source(bs, which)
-    provenance = [st.strains.provenance, _shift_provenance(bs, st.waves), st.curves.provenance,
+    provenance = [st.strains.provenance, *([st.separation.provenance] if st.separation else []),
+                  _shift_provenance(bs, st.waves), st.curves.provenance,
                   {"step": "validity", "parameters": {"equilibrium_threshold": shot.analysis.equilibrium_threshold,
                                                       "yield_offset": shot.analysis.yield_offset}}]
     provenance[0]["parameters"].update({"incident": bs.incident_gauge.bridge,

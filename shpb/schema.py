@@ -25,6 +25,8 @@ from .units import to_si
 
 #: Stress definitions that may be reported as ``stress_MPa``.
 STRESS_CHOICES = ("1-wave", "2-wave", "3-wave")
+#: When two-point wave separation builds the face waves (``shpb.separation``).
+SEPARATION_CHOICES = ("auto", "on", "off")
 
 _TRUE = {"true", "yes", "on", "1"}
 _FALSE = {"false", "no", "off", "0"}
@@ -128,6 +130,13 @@ ANALYSIS_KEYS = (
        "hand alignment: the reflected wave is taken this much later at its gauge [s]", signed=True),
     _k("analysis", "transmitted_adjust", "time", 0.0,
        "hand alignment: the transmitted wave is taken this much later at its gauge [s]", signed=True),
+    _k("analysis", "separation", "choice", "auto", "two-point wave separation: auto (when the waves overlap at "
+       "the incident gauge and the bar has a second station), on, off", choices=SEPARATION_CHOICES),
+    _k("analysis", "separation_cutoff", "frequency", None,
+       "upper end of the separation's frequency band [Hz] (default: the bar's second-mode onset)"),
+    _k("analysis", "friction_coefficient", "dimensionless", None,
+       "interface friction coefficient mu for the friction band of the stress [1] (none when absent)",
+       fraction=True),
 )
 
 #: Record keys that a campaign row may set (the channel mapping comes from the campaign's ``[record]``).

@@ -553,6 +553,24 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
                           yield_offset=analysis.yield_offset, specimen_modulus=specimen.modulus,
                           specimen_transit=specimen.transit_time, averaging=EQUILIBRIUM_AVERAGING)
     bflags, bresults = bar_flags(strains, plan, barset)
+    flags = separated_flags(record_flags(strains, plan, waves, barset) + judged.flags + bflags, waves)
     return Verdict(valid=judged.valid, equilibrium_ratio=judged.equilibrium_ratio,
-                   results={**judged.results, **bresults},
-                   flags=tuple(record_flags(strains, plan, waves, barset) + judged.flags + bflags))
+                   results={**judged.results, **bresults}, flags=tuple(flags))
+
+
+def separated_flags(flags: list, waves: "FaceWaves") -> list:
+    """The overlaps two-point separation has dealt with become one ``waves_separated`` info flag.
+
+    ``waves_overlap`` goes when the incident bar's waves were separated,
+    ``transmitted_overlap`` when the transmitted bar's were
+    (:class:`shpb.separation.SeparatedWaves`).
+    """
+    bars = list(getattr(waves, "separation", {}).get("bars", ()))
+    if not bars:
+        return flags
+    gone = {"waves_overlap"} if "incident" in bars else set()
+    gone |= {"transmitted_overlap"} if "transmitted" in bars else set()
+    kept = [f for f in flags if f.code not in gone]
+    note = Flag("waves_separated", "info", f"the face waves of the {' and '.join(bars)} bar come from two-point "
+                                           f"separation ({waves.separation.get('reason', '')})")
+    return [note] + kept
