@@ -11,6 +11,7 @@ plotted alone::
                                                           or the separated waves)
            ─ kolsky.kolsky_curves    ─> KolskyCurves     (forces, velocities, rates, strains, stresses)
            ─ validity.judge          ─> Verdict          (every flag, valid part, R(t) that decided)
+           ─ specimen.specimen_corrections ─> SpecimenCorrections (inertia, friction: beside the stress)
            ─ ShotResult              (curves table + summary + flags; owns the result folder)
 """
 
@@ -22,9 +23,10 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Optional
 
+import numpy as np
 import pandas as pd
 
-from . import __version__, kolsky, pulses, separation, validity
+from . import __version__, kolsky, pulses, separation, specimen, validity
 from .errors import AnalysisError, InputError
 from .io import Record, atomic_write_csv, atomic_write_json, check_time_base, read_record
 from .setup import Bar, Gauge, Shot
@@ -46,6 +48,7 @@ class Stages:
     curves: kolsky.KolskyCurves
     verdict: validity.Verdict
     separation: Optional[separation.Separation] = None
+    corrections: Optional[specimen.SpecimenCorrections] = None
 
 
 @dataclass(frozen=True)
@@ -189,7 +192,8 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         waves = separation.waves_at_faces(split, strains, plan, bs, opt)
         curves = kolsky.kolsky_curves(waves, bs, shot.specimen, opt.stress)
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt)
-    return _result(shot, Stages(record, strains, plan, waves, curves, verdict, split))
+        corrections = specimen.specimen_corrections(curves, plan, shot.specimen, opt, verdict.valid, waves.dt)
+    return _result(shot, Stages(record, strains, plan, waves, curves, verdict, split, corrections))
 
 
 @contextmanager
@@ -208,15 +212,18 @@ def _named(where: str):
 def _result(shot: Shot, st: Stages) -> ShotResult:
     """Gather the stage results into the curves table and the summary."""
     bs, v = shot.barset, st.verdict
+    extra = st.corrections  # the specimen's inertia and friction: beside the stress, with their own flags
     results = {**v.results, **st.plan.results(), "face_waves_method": separation.METHOD_CLASSIC,
-               **st.waves.results()}
+               **st.waves.results(), **(extra.results if extra else {})}
+    flags = tuple(v.flags) + (extra.flags if extra else ())
     for which in ("incident", "transmitted"):
         results[f"{which}_wave_speed_m_per_s"] = getattr(bs, which).wave_speed
         results[f"{which}_wave_speed_source"] = _speed_source(bs, which)
     provenance = [st.strains.provenance, *([st.separation.provenance] if st.separation else []),
                   _shift_provenance(bs, st.waves), st.curves.provenance,
                   {"step": "validity", "parameters": {"equilibrium_threshold": shot.analysis.equilibrium_threshold,
-                                                      "yield_offset": shot.analysis.yield_offset}}]
+                                                      "yield_offset": shot.analysis.yield_offset}},
+                  *([extra.provenance] if extra else [])]
     provenance[0]["parameters"].update({"incident": bs.incident_gauge.bridge,
                                         "transmitted": bs.transmitted_gauge.bridge})
     for p in provenance:
@@ -226,15 +233,15 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
         "package_version": __version__,
         "valid": v.is_valid,
         "results": results,
-        "flags": [f.as_dict() for f in v.flags],
+        "flags": [f.as_dict() for f in flags],
         "inputs": _inputs(shot),
         "records": {_resolved(k): v for k, v in st.record.files.items()},
         "provenance": provenance,
         "columns": COLUMN_NOTES,
         "caution": DESIGN_CAUTION,
     }
-    return ShotResult(name=shot.name, curves=curves_table(st.waves, st.curves, v), summary=summary,
-                      flags=tuple(v.flags), stages=st)
+    return ShotResult(name=shot.name, curves=curves_table(st.waves, st.curves, v, extra), summary=summary,
+                      flags=flags, stages=st)
 
 
 def _shift_provenance(barset, waves) -> dict:
@@ -244,9 +251,12 @@ def _shift_provenance(barset, waves) -> dict:
     return p
 
 
-def curves_table(waves, curves, verdict) -> pd.DataFrame:
+def curves_table(waves, curves, verdict, corrections=None) -> pd.DataFrame:
     """The ``curves.csv`` table of a shot from its stages (units in the column names)."""
     sig = curves.stress_by_form
+    n = curves.time.size
+    extra = corrections.columns(n) if corrections else {k: np.full(n, np.nan)
+                                                        for k in specimen.SpecimenCorrections.COLUMNS}
     return pd.DataFrame({
         "time_us": curves.time * 1e6,
         "strain_incident": waves.incident, "strain_reflected": waves.reflected,
@@ -259,6 +269,7 @@ def curves_table(waves, curves, verdict) -> pd.DataFrame:
         "stress_1wave_MPa": sig["1-wave"] / 1e6, "stress_2wave_MPa": sig["2-wave"] / 1e6,
         "stress_3wave_MPa": sig["3-wave"] / 1e6, "stress_MPa": curves.stress / 1e6,
         "true_strain": curves.true_strain, "true_stress_MPa": curves.true_stress / 1e6,
+        **extra,
         "valid": verdict.valid.astype(int),
     })
 
@@ -279,6 +290,12 @@ COLUMN_NOTES = {
     "stress_MPa": "the reported stress, per the analysis option 'stress'",
     "true_strain": "-ln(1 - strain)",
     "true_stress_MPa": "stress_MPa (1 - strain)",
+    "stress_inertia_dh_MPa": "stress_1wave_MPa + rho (L^2/6 - nu^2 D^2/8) d(strain_rate)/dt (Davies & Hunter 1963); "
+                             "an estimate beside the stress, NaN without the specimen's density",
+    "stress_inertia_gorham_MPa": "stress_MPa + the fuller inertia correction (Gorham 1989: face acceleration, "
+                                 "current dimensions, radial strain-rate-squared term); NaN without the density",
+    "stress_friction_MPa": "stress_MPa / (1 + mu D / (3 L)), current D and L (Siebel 1923): the friction-free end "
+                           "of the band; NaN without friction_coefficient",
     "valid": "1 inside the loading part after force equilibrium",
 }
 

@@ -110,6 +110,9 @@ SPECIMEN_KEYS = (
        column="specimen_modulus"),
     _k("specimen", "density", "density", None, "density [kg/m^3]; with the modulus, the wave transit time",
        column="specimen_density"),
+    _k("specimen", "poisson_ratio", "dimensionless", None,
+       "Poisson ratio in the radial inertia terms [1] (default 0.5: plastic flow)", column="specimen_poisson_ratio",
+       fraction=True),
 )
 
 #: Keys of ``[analysis]`` (per shot, campaign default, campaign column, command-line override).

@@ -207,7 +207,10 @@ class Specimen:
     modulus : float or None
         Elastic modulus for the yield offset line [Pa]; fitted when None.
     density : float or None
-        Density [kg/m^3]; with the modulus, gives the specimen wave transit time.
+        Density [kg/m^3]; with the modulus, gives the specimen wave transit
+        time; with it the inertia corrections are estimated.
+    poisson_ratio : float or None
+        Poisson ratio in the radial inertia terms [1]; 0.5 (plastic flow) if None.
     """
 
     length: float
@@ -216,6 +219,7 @@ class Specimen:
     temperature: Optional[float] = None
     modulus: Optional[float] = None
     density: Optional[float] = None
+    poisson_ratio: Optional[float] = None
 
     @property
     def area(self) -> float:
@@ -692,6 +696,9 @@ def specimen_from_dict(data: dict, where: str) -> Specimen:
         if values[name] is None:
             raise InputError(f"missing key {name!r} (a length, e.g. with its unit)", where)
     length, diameter = values["length"], values["diameter"]
+    if values["poisson_ratio"] is not None and values["poisson_ratio"] > 0.5:
+        raise InputError(f"expected a Poisson ratio of at most 0.5, got {values['poisson_ratio']:g}",
+                         f"{where}.poisson_ratio")
     if length > 0.2 or diameter > 0.2:
         raise InputError(f"specimen of {length*1e3:g} mm x {diameter*1e3:g} mm is implausible (units?)", where)
     values["material"] = str(values["material"])

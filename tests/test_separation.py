@@ -8,12 +8,9 @@ waves), read at stations 1 us from the specimen faces as the truth; the
 Pochhammer–Chree phase velocity (Bancroft 1941) for the dispersive records;
 the method itself is Lundberg & Henchoz (1977, Exp. Mech. 17:213, from memory).
 
-Rig (small, so the file runs in a few seconds): 19.05 mm steel bars (E 190 GPa,
-rho 8000 kg/m^3, nu 0.30), incident bar 1.6 m with its gauge 0.3 m from the
-specimen (2 d / c0 = 123 us) and a second station at 0.6 m, transmitted bar
-1.6 m with gauges at 0.3 m and 0.6 m, a soft polymer pulse shaper, an elastic
-polymer specimen (5 mm x 10 mm, 3 GPa: most of the pulse is reflected), a
-0.75 m striker: a 370 us pulse, three times 2 d / c0.
+The rig is tests/two_station_rig.py (gauges 0.3 m and 0.6 m from the specimen
+on 2.0 m bars, 2 d / c0 = 123 us at the main incident gauge); a 0.75 m striker
+gives a 370 us pulse, three times 2 d / c0.
 """
 
 import dataclasses
@@ -22,83 +19,13 @@ import math
 import numpy as np
 import pytest
 
-from shpb import pulses, separation
-from shpb.io import Record
+from shpb import separation
 from shpb.reduce import reduce_shot
-from shpb.setup import AnalysisOptions, Bar, BarSet, Gauge, Material, Shot, Specimen, with_analysis
-from shpb.simulate import (RecorderSpec, RodSpec, VirtualShotSpec, dispersed_drive, model_duration, simulate_shot,
-                           trigger_time, virtual_record)
+from shpb.setup import AnalysisOptions, Shot, Specimen, with_analysis
+
+from two_station_rig import BARSET, C0, FS, NEAR_GAUGE, RECORDER, record_of, separation_errors, virtual_shot
 
 pytestmark = pytest.mark.xdist_group("test_separation")
-
-E_BAR, RHO_BAR, NU_BAR, D_BAR = 190e9, 8000.0, 0.30, 0.01905
-C0 = math.sqrt(E_BAR / RHO_BAR)
-LENGTH, NEAR_GAUGE, FAR_GAUGE = 2.0, 0.3, 0.6
-TRUTH_STATION = C0 * 1e-6  # 1 us (ten samples at 10 MHz) from each face: the truth there
-FS = 10e6
-MATERIAL = Material("steel (test)", E_BAR, RHO_BAR, NU_BAR, 1900e6)
-GAUGES = {name: Gauge(d, "half-bending", 2.1, 10.0, 100.0, pol, full_scale=5.0)
-          for name, d, pol in (("incident", NEAR_GAUGE, 1), ("incident_2", FAR_GAUGE, 1),
-                               ("transmitted", NEAR_GAUGE, -1), ("transmitted_2", FAR_GAUGE, -1))}
-BARSET = BarSet("two-station rig", Bar(MATERIAL, D_BAR, LENGTH), Bar(MATERIAL, D_BAR, LENGTH), GAUGES["incident"],
-                GAUGES["transmitted"], incident_stations=(GAUGES["incident_2"],),
-                transmitted_stations=(GAUGES["transmitted_2"],))
-SPECIMEN = RodSpec(0.005, 0.010, 3e9, 1200.0)  # elastic polymer: low impedance, a large reflected wave
-SHAPER = RodSpec(0.001, 0.012, 3e9, 1200.0)
-RECORDER = RecorderSpec(duration=1.2e-3, pre_trigger=100e-6, bits=None, full_scale=(None, None))
-
-
-def bar(length):
-    return RodSpec(length, D_BAR, E_BAR, RHO_BAR)
-
-
-def virtual_shot(striker, *, dispersion=False):
-    """A model run with the main gauges, the second stations and the truth stations near the faces."""
-    spec = VirtualShotSpec(striker=bar(striker), incident=bar(LENGTH), transmitted=bar(LENGTH), specimen=SPECIMEN,
-                           striker_speed=6.0, incident_gauge_distance=NEAR_GAUGE,
-                           transmitted_gauge_distance=NEAR_GAUGE, duration=1.0, sample_rate=FS, shaper=SHAPER,
-                           shaper_elements=4, incident_stations=(FAR_GAUGE, TRUTH_STATION),
-                           transmitted_stations=(FAR_GAUGE, TRUTH_STATION))
-    spec = dataclasses.replace(spec, duration=model_duration(trigger_time(spec, RECORDER), RECORDER))
-    trigger = trigger_time(spec, RECORDER)
-    if dispersion:  # the pulse dispersed over the incident bar drives the model; each record disperses from the faces
-        run = dispersed_drive(spec, NU_BAR)
-        trigger += run.incident_pulse.impact_time
-        spec = dataclasses.replace(run, duration=spec.duration + run.incident_pulse.impact_time)
-    return simulate_shot(spec), trigger, dispersion
-
-
-def record_of(shot, recorder=RECORDER):
-    """The digitised record (four channels) and the truth face waves on its sample grid."""
-    result, trigger, dispersion = shot
-    rec = virtual_record(result, recorder, GAUGES["incident"], GAUGES["transmitted"],
-                         incident_poisson_ratio=NU_BAR, transmitted_poisson_ratio=NU_BAR,
-                         dispersion="specimen" if dispersion else None, trigger=trigger,
-                         station_gauges={k: GAUGES[k] for k in ("incident_2", "transmitted_2")})
-    # record sample i is model sample k (the recorder keeps the model's clock)
-    k = np.arange(rec.time.size) - round(recorder.pre_trigger * FS) + round(trigger * FS)
-    grid = np.arange(result.time.size)
-    inc, tra = result.stations["incident_3"], result.stations["transmitted_3"]
-    # d'Alembert: a wave 10 samples before the face (toward it) reaches the face 10 samples later, a wave going
-    # away from the face was there 10 samples earlier
-    truth = {"incident": np.interp(k - 10, grid, inc["toward_specimen"], left=0.0),
-             "reflected": np.interp(k + 10, grid, inc["away_from_specimen"], left=0.0),
-             "transmitted": np.interp(k + 10, grid, tra["away_from_specimen"], left=0.0)}
-    record = Record.from_arrays(rec.volts_incident, rec.volts_transmitted, time=rec.time, stations=rec.volts_stations)
-    return record, truth
-
-
-def separation_errors(record, truth, **options):
-    """RMS error of each separated face wave over the analysis window [% of the incident peak]."""
-    opt = AnalysisOptions(**options)
-    strains = pulses.condition_record(record, BARSET, opt)
-    split = separation.separate_waves(record, strains, BARSET, opt)
-    plan = pulses.plan_analysis(strains, BARSET, opt, **split.plan_options())
-    k0, k1 = plan.span
-    peak = np.max(truth["incident"])
-    waves = {"incident": split.bars["incident"].toward, "reflected": split.bars["incident"].away,
-             "transmitted": split.bars["transmitted"].away}
-    return {k: 100 * np.sqrt(np.mean((w[k0:k1] - truth[k][k0:k1]) ** 2)) / peak for k, w in waves.items()}, split, plan
 
 
 @pytest.fixture(scope="module")
