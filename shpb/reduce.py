@@ -316,23 +316,29 @@ def _inputs(shot: Shot) -> dict:
     """The resolved setup, SI, for the summary; every input path absolute and resolved."""
     bs = shot.barset
 
-    def bar(b: Bar, g: Gauge):
+    def bar(b: Bar, g: Gauge, stations=()):
         d = {"material": asdict(b.material), "diameter_m": b.diameter, "length_m": b.length,
              "measured_wave_speed_m_per_s": b.measured_wave_speed, "gauge": asdict(g)}
+        if stations:  # further gauge stations (two-point separation)
+            d["stations"] = [asdict(x) for x in stations]
         return d
 
     sp = shot.specimen
     return {
         "barset": {"name": bs.name, "source": _source(bs.source), "calibration": bs.calibration,
-                   "incident": bar(bs.incident, bs.incident_gauge),
-                   "transmitted": bar(bs.transmitted, bs.transmitted_gauge),
+                   "incident": bar(bs.incident, bs.incident_gauge, bs.incident_stations),
+                   "transmitted": bar(bs.transmitted, bs.transmitted_gauge, bs.transmitted_stations),
                    "striker": (asdict(bs.striker) if bs.striker else None)},
         "specimen": {"length_m": sp.length, "diameter_m": sp.diameter, "material": sp.material,
-                     "temperature_K": sp.temperature, "modulus_Pa": sp.modulus, "density_kg_per_m3": sp.density},
+                     "temperature_K": sp.temperature, "modulus_Pa": sp.modulus, "density_kg_per_m3": sp.density,
+                     "poisson_ratio": sp.poisson_ratio},
         "record": None if shot.record is None else {
             "incident": _resolved(shot.record.incident.file), "incident_column": shot.record.incident.column,
             "transmitted": _resolved(shot.record.transmitted.file),
-            "transmitted_column": shot.record.transmitted.column},
+            "transmitted_column": shot.record.transmitted.column,
+            **{f"{b}_stations": [{"file": _resolved(c.file), "column": c.column} for c in getattr(shot.record,
+                                                                                              f"{b}_stations")]
+               for b in ("incident", "transmitted") if getattr(shot.record, f"{b}_stations")}},
         "analysis": asdict(shot.analysis),
         "source": _source(shot.source),
     }

@@ -70,6 +70,9 @@ def format_result(result, out_dir) -> str:
         f"{g('yield_strain', '.4f')}",
         f"  equilibrium from   {g('equilibrium_from_time_us', '.1f')} us (strain {g('equilibrium_from_strain', '.4f')})",
     ]
+    if "inertia_gorham_max_fraction" in r:  # with the specimen's density (docs/specimen.md)
+        lines.append(f"  inertia            up to {g('inertia_gorham_max_fraction', '.1%')} of the stress "
+                     f"(Davies & Hunter {g('inertia_dh_max_fraction', '.1%')}; beside it, not applied)")
     for f in result.flags:
         lines.append(f"  {f.severity}: {f.message}")
     lines.append(f"  written to {out_dir}")
