@@ -23,7 +23,8 @@ from shpb import separation
 from shpb.reduce import reduce_shot
 from shpb.setup import AnalysisOptions, Shot, Specimen, with_analysis
 
-from two_station_rig import BARSET, C0, FS, NEAR_GAUGE, RECORDER, record_of, separation_errors, virtual_shot
+from two_station_rig import (BARSET, C0, FS, NEAR_GAUGE, RECORDER, barset_toml, record_of, separation_errors,
+                             virtual_shot)
 
 pytestmark = pytest.mark.xdist_group("test_separation")
 
@@ -155,27 +156,7 @@ def test_virtual_shot_files_record_every_station(tmp_path):
     from shpb.setup import load_shot
     from shpb.virtual import load_simulation, simulate_setup, write_virtual_shot
 
-    stations = "\n".join(f'''[[{bar}.gauge]]
-distance = "{d} mm"
-gauge_factor = 2.1
-excitation = "10 V"
-gain = 100
-polarity = {pol}
-''' for bar, pol in (("incident", 1), ("transmitted", -1)) for d in (300, 600))
-    head, tail = stations.split("[[transmitted.gauge]]", 1)
-    (tmp_path / "bars.toml").write_text(f'''name = "two stations"
-[bar_material]
-modulus = "190 GPa"
-density = "8000 kg/m^3"
-poisson_ratio = 0.30
-yield_strength = "1900 MPa"
-[incident]
-diameter = "19.05 mm"
-length = "2.0 m"
-{head}[transmitted]
-diameter = "19.05 mm"
-length = "2.0 m"
-[[transmitted.gauge]]{tail}''')
+    (tmp_path / "bars.toml").write_text(barset_toml())
     (tmp_path / "setup.toml").write_text('''name = "two-stations"
 barset = "bars.toml"
 dispersion = false

@@ -44,6 +44,19 @@ def bar(length):
     return RodSpec(length, D_BAR, E_BAR, RHO_BAR)
 
 
+def barset_toml() -> str:
+    """The rig's bar set as a bar set file (docs/setup-files.md: ``[[incident.gauge]]``, main station first)."""
+    def stations(bar):
+        return "".join(f'[[{bar}.gauge]]\ndistance = "{g.distance * 1e3:g} mm"\ngauge_factor = {g.gauge_factor}\n'
+                       f'excitation = "{g.excitation:g} V"\ngain = {g.gain:g}\npolarity = {g.polarity}\n'
+                       for g in BARSET.stations(bar))
+
+    return (f'name = "{BARSET.name}"\n[bar_material]\nmodulus = "{E_BAR / 1e9:g} GPa"\n'
+            f'density = "{RHO_BAR:g} kg/m^3"\npoisson_ratio = {NU_BAR}\nyield_strength = "1900 MPa"\n'
+            + "".join(f'[{b}]\ndiameter = "{D_BAR * 1e3:g} mm"\nlength = "{LENGTH} m"\n{stations(b)}'
+                      for b in ("incident", "transmitted")))
+
+
 def virtual_shot(striker, *, dispersion=False, specimen=SPECIMEN, pulse=None, recorder=RECORDER):
     """A model run with the main gauges, the second stations and the truth stations near the faces.
 
