@@ -498,9 +498,10 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     window_length : float, optional
         A given window length [s] (used as is).
     free_time : float, optional
-        How long the waves stay free of overlaps and echoes at their gauges
-        [s], when something else than the bars' round trips above decides it
-        (two-point separation, :mod:`shpb.separation`; may be ``inf``).
+        How long after the incident foot reaches the specimen the waves stay
+        free of overlaps and unresolved echoes [s], when something else than
+        the bars' round trips above decides it (two-point separation,
+        :mod:`shpb.separation`).
 
     Returns
     -------
