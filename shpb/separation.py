@@ -456,7 +456,9 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
         ``separation = "on"`` without a second station on the incident bar.
     AnalysisError
         The separated incident pulse does not end in the record and there is
-        no striker.
+        no striker; with ``"on"``, a further station's channel without a
+        pulse or a baseline (with ``"auto"`` the classic analysis goes on and
+        the reason is in the provenance).
     """
     from .errors import AnalysisError, InputError
     from .pulses import pulse_end
@@ -469,7 +471,12 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
             raise InputError("separation = on needs a second gauge station on the incident bar (bar set "
                              "[[incident.gauge]], record incident_stations)", "analysis.separation")
         return Separation(False, "one gauge station per bar")
-    stations = station_strains(record, strains, barset)
+    try:
+        stations = station_strains(record, strains, barset)
+    except AnalysisError as exc:  # e.g. no baseline before a far station: the classic analysis, which says so
+        if mode == "on":
+            raise
+        return Separation(False, f"not separated: {exc}")
     incident = split_bar("incident", barset, strains, stations, analysis)
     if incident is None:
         if mode == "on":

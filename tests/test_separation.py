@@ -201,3 +201,21 @@ def test_long_pulse_example_reduces_with_separation():
     expected = np.interp(c.strain, loading.strain[loading.time_us > 0], loading.stress_MPa[loading.time_us > 0])
     assert np.sqrt(np.mean(((c.stress_MPa - expected) / expected) ** 2)) < 0.005
     assert reduced.summary["results"]["pulse_duration_us"] > 3 * 2 * 0.5 / C0 * 1e6
+
+
+def test_a_station_without_baseline_falls_back_to_the_classic_analysis(long_shot):
+    # a record that starts after the far station has seen the wave cannot be separated: "auto" says why and goes
+    # on with the classic analysis (which flags the overlap), "on" refuses
+    from shpb.errors import AnalysisError
+    from shpb.io import Record
+
+    record, _ = record_of(long_shot)
+    late = 400  # 40 us cut from the 100 us pre-trigger: the station 0.3 m farther sees the wave 62 us early
+    cut = Record.from_arrays(record.incident[late:], record.transmitted[late:], time=record.time[late:],
+                             stations={k: v[late:] for k, v in record.stations.items()})
+    shot = Shot("late", BARSET, Specimen(0.005, 0.010, "polymer"), None, AnalysisOptions(dispersion=False))
+    classic = reduce_shot(shot, cut)
+    assert "waves_overlap" in {f.code for f in classic.flags}
+    assert "not separated" in classic.stages.separation.reason
+    with pytest.raises(AnalysisError, match="pre-trigger"):
+        reduce_shot(with_analysis(shot, separation="on"), cut)
