@@ -26,22 +26,12 @@ from __future__ import annotations
 
 import argparse
 import statistics
-import subprocess
 import sys
-from pathlib import Path
 
-from timing import run_times  # noqa: E402  (benchmarks/timing.py)
+from timing import mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
 
 #: The target: at most this much more than the yardstick (median over the rounds) [s].
 TARGET_DIFFERENCE_S = 0.3
-
-
-def shpb_command() -> tuple[list, str]:
-    """The ``shpb`` console script beside this interpreter, else ``python -m shpb.cli``; and a label."""
-    script = Path(sys.executable).with_name("shpb")
-    if script.is_file():
-        return [str(script)], "shpb"
-    return [sys.executable, "-m", "shpb.cli"], "python -m shpb.cli"
 
 
 def cases() -> tuple[dict, str]:
@@ -55,28 +45,16 @@ def cases() -> tuple[dict, str]:
     }, label
 
 
-def run(argv) -> None:
-    """Run one process to its end; fail loudly if it does not exit 0."""
-    p = subprocess.run(argv, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
-    if p.returncode != 0:
-        raise SystemExit(f"{' '.join(argv)} exited {p.returncode}: {p.stderr.strip()}")
-
-
 def measure(commands: dict, rounds: int, warm_up: bool = True) -> dict:
     """Name -> wall-clock times [s], one per round, the processes of a round run one after the other."""
     if warm_up:  # not counted: compiled bytecode and the file cache are in place for every round
         for argv in commands.values():
-            run(argv)
+            run_process(argv)
     times = {name: [] for name in commands}
     for _ in range(rounds):
         for name, argv in commands.items():
-            times[name] += run_times(lambda: run(argv), 1)
+            times[name].append(run_process(argv)[0])
     return times
-
-
-def _mmm(values, fmt) -> str:
-    """min / median / max, each formatted with ``fmt``."""
-    return " ".join(format(v, fmt) for v in (min(values), statistics.median(values), max(values)))
 
 
 def report(times: dict, label: str) -> list:
@@ -89,8 +67,8 @@ def report(times: dict, label: str) -> list:
         t = times[name]
         diff = [1e3 * (a - b) for a, b in zip(t, base)]
         ratio = [a / b for a, b in zip(t, base)]
-        lines.append(f"{name:<20} | {_mmm([1e3 * v for v in t], '6.0f'):>20} | {_mmm(diff, '6.0f'):>20} | "
-                     f"{_mmm(ratio, '6.1f'):>20}")
+        lines.append(f"{name:<20} | {mmm([1e3 * v for v in t], '6.0f'):>20} | {mmm(diff, '6.0f'):>20} | "
+                     f"{mmm(ratio, '6.1f'):>20}")
     worst = max(statistics.median([a - b for a, b in zip(times[n], base)]) for n in names[1:])
     verdict = "met" if worst <= TARGET_DIFFERENCE_S else "NOT met"
     lines.append(f"target: at most +{1e3 * TARGET_DIFFERENCE_S:.0f} ms over the yardstick (median): {verdict} "

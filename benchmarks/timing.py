@@ -1,7 +1,11 @@
 """Timing helpers shared by the benchmark scripts (run them as ``python benchmarks/bench_*.py``)."""
 
+import os
 import statistics
+import subprocess
+import sys
 import time
+from pathlib import Path
 
 
 def run_times(fn, repeats):
@@ -22,3 +26,36 @@ def median_time(fn, repeats):
 def best_time(fn, repeats):
     """Shortest wall-clock time [s] of ``repeats`` calls."""
     return min(run_times(fn, repeats))
+
+
+# --------------------------------------------------------------------------- whole processes
+def shpb_command() -> tuple:
+    """The ``shpb`` console script beside this interpreter, else ``python -m shpb.cli``; and a label."""
+    script = Path(sys.executable).with_name("shpb")
+    if script.is_file():
+        return [str(script)], "shpb"
+    return [sys.executable, "-m", "shpb.cli"], "python -m shpb.cli"
+
+
+def run_process(argv, ok=(0,), env=None) -> tuple:
+    """Run one process to its end: (wall-clock time [s], peak resident memory [bytes]).
+
+    The peak is the child's own maximum resident set size (``wait4``'s
+    ``ru_maxrss``, kibibytes on Linux). Fails loudly when the exit status is
+    not in ``ok``.
+    """
+    t = time.perf_counter()
+    p = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env)
+    err = p.stderr.read()
+    _, status, usage = os.wait4(p.pid, 0)
+    wall = time.perf_counter() - t
+    p.returncode = os.waitstatus_to_exitcode(status)  # reaped here: Popen must not wait again
+    p.stderr.close()
+    if p.returncode not in ok:
+        raise SystemExit(f"{' '.join(map(str, argv))} exited {p.returncode}: {err.decode(errors='replace').strip()}")
+    return wall, usage.ru_maxrss * 1024
+
+
+def mmm(values, fmt) -> str:
+    """min / median / max, each formatted with ``fmt``."""
+    return " ".join(format(v, fmt) for v in (min(values), statistics.median(values), max(values)))

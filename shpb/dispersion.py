@@ -5,9 +5,9 @@ diameter the short-wavelength content of a pulse travels slower than the
 bar wave speed c0, so a shift by ``distance / c0`` alone leaves spurious
 oscillations. This module solves the Pochhammer–Chree frequency equation for
 the fundamental longitudinal mode, tabulates the phase and group velocity
-once per Poisson ratio, and moves a strain history along the bar by
-shifting the phase of each harmonic (Follansbee & Frantz 1983; Gong, Malvern
-& Jenkins 1990).
+once per Poisson ratio, and moves a strain history along the bar by shifting
+the phase of each harmonic (Follansbee & Frantz 1983; Gong, Malvern &
+Jenkins 1990).
 
 Dimensionless variables used throughout (``a`` bar radius, ``Λ`` wavelength,
 ``k = 2π/Λ``, ``ω = 2π f``, ``c = ω/k`` phase velocity):
@@ -16,7 +16,9 @@ Dimensionless variables used throughout (``a`` bar radius, ``Λ`` wavelength,
 * ``c/c0`` the phase velocity over the bar wave speed;
 * ``f a / c0`` the dimensionless frequency; ``f a/c0 = (a/Λ)(c/c0)``.
 
-Physics only: no files, no printing. All inputs SI.
+Physics only: no printing, and no files but the solved tables, which
+:mod:`shpb.cache` keeps on disk per Poisson ratio so that a process or batch
+worker does not solve them again. All inputs SI.
 """
 
 from __future__ import annotations
@@ -26,12 +28,12 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import fft as _fft
-from scipy import special as _sp
-from scipy.interpolate import CubicHermiteSpline, CubicSpline
-from scipy.optimize import brentq, minimize_scalar
 
+from . import cache
 from .errors import AnalysisError, InputError
+
+# scipy (special functions, root finders, splines) is imported where a table is solved: the tables are
+# kept on disk (shpb.cache), so a process that finds them there needs numpy only.
 
 __all__ = [
     "DispersionCurve",
@@ -116,6 +118,8 @@ def _bessel_pair(p):
     (C0 → 1, C1 → 1/2). Using p = z² instead of z removes the branch
     choice of the square root altogether.
     """
+    from scipy import special as _sp
+
     p = np.asarray(p, dtype=float)
     y = np.sqrt(np.abs(p))
     c0 = np.empty_like(y)
@@ -191,6 +195,8 @@ def rayleigh_speed_ratio(poisson_ratio):
     .. [2] K. F. Graff, *Wave Motion in Elastic Solids*, Ohio State Univ.
        Press (1975), §6.3.
     """
+    from scipy.optimize import brentq
+
     nu = _check_poisson(poisson_ratio)
     q2 = _q2(nu)
 
@@ -410,7 +416,6 @@ class DispersionCurve:
     mean_to_surface: np.ndarray
     rayleigh_ratio: float
     _phase_spline: object = field(repr=False)
-    _group_spline: object = field(repr=False)
 
     @property
     def max_frequency(self):
@@ -429,6 +434,40 @@ class DispersionCurve:
         """cg/c0 at dimensionless frequencies f·a/c0 [1] within the table (cubic spline)."""
         return self._group_spline(frequency)
 
+    @functools.cached_property
+    def _group_spline(self):
+        # built on first use: the reduction needs the phase velocity only (and so no scipy)
+        from scipy.interpolate import CubicSpline
+
+        return CubicSpline(self.frequency, self.group_ratio, extrapolate=False)
+
+
+class _HermiteTable:
+    """Piecewise cubic Hermite interpolant through (x, y) with slopes dydx; NaN outside [x0, x_end].
+
+    The coefficients and the evaluation are those of
+    ``scipy.interpolate.CubicHermiteSpline(x, y, dydx, extrapolate=False)``
+    (the same floating-point operations, checked in tests/test_dispersion.py),
+    written in numpy so that reading a cached table needs no scipy.
+    """
+
+    def __init__(self, x, y, dydx):
+        self.x = np.asarray(x, dtype=float)
+        dx = np.diff(self.x)
+        slope = np.diff(y) / dx
+        t = (dydx[:-1] + dydx[1:] - 2 * slope) / dx
+        self.c = np.stack((t / dx, (slope - dydx[:-1]) / dx - t, dydx[:-1], y[:-1]))
+
+    def __call__(self, x):
+        x = np.asarray(x, dtype=float)
+        i = np.clip(np.searchsorted(self.x, x, side="right") - 1, 0, self.x.size - 2)
+        s = x - self.x[i]
+        c0, c1, c2, c3 = self.c[:, i]
+        s2 = s * s
+        # the power sum in scipy's order: c3 + c2 s + c1 s² + c0 s³
+        out = c3 + c2 * s + c1 * s2 + c0 * (s2 * s)
+        return np.where((x >= self.x[0]) & (x <= self.x[-1]), out, np.nan)
+
 
 def _derivative_s_K(s, K, nu):
     """ds/dK on the root curve by implicit differentiation, central differences."""
@@ -439,8 +478,31 @@ def _derivative_s_K(s, K, nu):
     return -fK / fs
 
 
+#: Version of the solved tables in the disk cache: bump it when their computation changes.
+_TABLES_VERSION = 1
+
+
 @functools.lru_cache(maxsize=32)
 def _curve_cached(nu, n, max_a_over_lambda):
+    t = cache.arrays(f"dispersion-curve-{_TABLES_VERSION}",
+                     {"poisson_ratio": nu, "n": n, "max_a_over_lambda": max_a_over_lambda},
+                     lambda: _solve_curve(nu, n, max_a_over_lambda))
+    for arr in t.values():
+        arr.flags.writeable = False
+    return DispersionCurve(
+        poisson_ratio=nu,
+        a_over_lambda=t["a_over_lambda"],
+        phase_ratio=t["phase_ratio"],
+        group_ratio=t["group_ratio"],
+        frequency=t["frequency"],
+        mean_to_surface=t["mean_to_surface"],
+        rayleigh_ratio=float(t["rayleigh_ratio"]),
+        _phase_spline=_HermiteTable(t["frequency"], t["phase_ratio"], t["phase_slope"]),
+    )
+
+
+def _solve_curve(nu, n, max_a_over_lambda):
+    """The table's arrays: a/Λ, c/c0, cg/c0, f·a/c0, mean/surface strain, d(c/c0)/d(f·a/c0), cR/c0."""
     x = np.linspace(0.0, max_a_over_lambda, n)
     K = 2.0 * np.pi * x
     s = _solve_fundamental(K, nu)
@@ -453,21 +515,9 @@ def _curve_cached(nu, n, max_a_over_lambda):
     if np.any(np.diff(phi) <= 0) or np.any(g <= 0):
         raise AnalysisError(f"fundamental-mode frequency not increasing with a/Λ (poisson_ratio {nu}): solver failure")
     drdphi = 2.0 * np.pi * dsdK / (s0 * g)  # (dr/dK) / (dφ/dK), dφ/dK = g / (2π)
-    m = _mean_to_surface(s, K, nu)
-    arrays = [x, r, g, phi, m]
-    for arr in arrays:
-        arr.flags.writeable = False
-    return DispersionCurve(
-        poisson_ratio=nu,
-        a_over_lambda=x,
-        phase_ratio=r,
-        group_ratio=g,
-        frequency=phi,
-        mean_to_surface=m,
-        rayleigh_ratio=rayleigh_speed_ratio(nu) / s0,
-        _phase_spline=CubicHermiteSpline(phi, r, drdphi, extrapolate=False),
-        _group_spline=CubicSpline(phi, g, extrapolate=False),
-    )
+    return {"a_over_lambda": x, "phase_ratio": r, "group_ratio": g, "frequency": phi,
+            "mean_to_surface": _mean_to_surface(s, K, nu), "phase_slope": drdphi,
+            "rayleigh_ratio": rayleigh_speed_ratio(nu) / s0}
 
 
 def _cache_key(nu):
@@ -478,8 +528,9 @@ def _cache_key(nu):
 def normalized_curve(poisson_ratio, n=DEFAULT_TABLE_POINTS, max_a_over_lambda=DEFAULT_MAX_A_OVER_LAMBDA):
     """Fundamental-mode table c/c0, cg/c0 against a/Λ and f·a/c0, cached.
 
-    Computed once per (ν to 12 significant digits, n, max a/Λ) and kept in an LRU
-    cache (32 entries); ``normalized_curve.cache_clear()`` empties it.
+    Computed once per (ν to 12 significant digits, n, max a/Λ) and kept on
+    disk (:mod:`shpb.cache`) and in an LRU cache of the process (32 entries);
+    ``normalized_curve.cache_clear()`` empties the latter.
 
     Parameters
     ----------
@@ -607,6 +658,15 @@ def group_velocity(frequency, bar_radius, bar_wave_speed, poisson_ratio, *,
 # --------------------------------------------------------------------------
 @functools.lru_cache(maxsize=32)
 def _second_mode_onset_cached(nu):
+    t = cache.arrays(f"second-mode-onset-{_TABLES_VERSION}", {"poisson_ratio": nu},
+                     lambda: {"onset": _solve_second_mode_onset(nu)})
+    return float(t["onset"])
+
+
+def _solve_second_mode_onset(nu):
+    """f·a/c0 [1] from which the second longitudinal mode propagates."""
+    from scipy.optimize import brentq, minimize_scalar
+
     # Ω = ωa/cT. At fixed ka = K the determinant in (Ω, K) form has the
     # fundamental as its lowest positive root; the next root is the second
     # longitudinal mode. Its lowest frequency over K can lie below its k = 0
@@ -680,15 +740,12 @@ def second_mode_onset(bar_radius, bar_wave_speed, poisson_ratio):
 def _fast_length(n):
     """Smallest even 2^a 3^b 5^c ≥ n.
 
-    scipy.fft.next_fast_len(real=True) gives 2-3-5 lengths (its complex
+    2-3-5 lengths, as scipy.fft.next_fast_len(real=True) gives (its complex
     default also admits 7 and 11, which measured here with pocketfft at ~1e6
-    points were 1.5-2x slower) but may give an odd one; an even length
-    halves the real-FFT work.
+    points were 1.5-2x slower), but always even: an even length halves the
+    real-FFT work.
     """
     n = max(int(n), 2)
-    best = _fft.next_fast_len(n, real=True)
-    if best % 2 == 0 and _is_235(best):
-        return best
     best = None
     p5 = 1
     while p5 < 2 * n:
@@ -702,13 +759,6 @@ def _fast_length(n):
             p35 *= 3
         p5 *= 5
     return best
-
-
-def _is_235(m):
-    for p in (2, 3, 5):
-        while m % p == 0:
-            m //= p
-    return m == 1
 
 
 def _propagation_plan(dt, a, c0, curve, max_frequency, amplitude_factors, amplitude_limit):
@@ -759,8 +809,10 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio, *
         the surface axial strain (what a gauge sees) and the output is the
         section-mean axial stress over E, σ̄/E. Per harmonic the factor is
         (mean/surface strain) × (c/c0)²; applied up to a/Λ =
-        ``amplitude_limit`` and held at its value there above (the
-        mean/surface ratio is singular near a/Λ ≈ 0.38). Not reversible by
+        ``amplitude_limit`` (the mean/surface ratio is singular near
+        a/Λ ≈ 0.38), then returned smoothly to 1 over the next 20 % in
+        frequency and 1 above: what the factors cannot correct is not
+        amplified (noise there would be, by the factor at the limit). Not reversible by
         propagating back: the factors are applied whatever the sign of
         ``distance``. Default False.
     max_frequency : float, optional
@@ -860,8 +912,8 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio, *
     y[n + n_shift:n + n_shift + n_bridge] = x[-1] + (x[0] - x[-1]) * w
     y[n + n_shift + n_bridge:] = x[0]
 
-    spec = _fft.rfft(y)
-    phi = _fft.rfftfreq(length, dt) * (a / c0)  # f a / c0, sorted
+    spec = np.fft.rfft(y)
+    phi = np.fft.rfftfreq(length, dt) * (a / c0)  # f a / c0, sorted
     ratio = np.empty_like(phi)
     inside = phi <= phi_hold
     ratio[inside] = curve.phase_ratio_at(phi[inside])
@@ -875,12 +927,11 @@ def propagate(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio, *
     if length % 2 == 0:
         factor[-1] = 1.0 if math.cos(phase[-1]) >= 0.0 else -1.0
     if amplitude_factors:
-        # held above min(amplitude limit, hold frequency)
-        factor *= amp.factor(np.minimum(phi, min(amp.phi_end, phi_hold)))
+        factor *= _amplitude_factors_at(amp, phi, min(amp.phi_end, phi_hold))
     if above_max_frequency == "lowpass":
         factor *= _lowpass(phi, phi_hold)
     spec *= factor
-    return _fft.irfft(spec, length)[:n]
+    return np.fft.irfft(spec, length)[:n]
 
 
 @dataclass(frozen=True)
@@ -897,6 +948,7 @@ def _amplitude_table(nu, limit):
     kink at every node, which in time shows as faint echoes at 1/(node
     spacing in frequency).
     """
+    from scipy.interpolate import CubicSpline
     curve = _curve_cached(nu, DEFAULT_TABLE_POINTS, DEFAULT_MAX_A_OVER_LAMBDA)
     x, m = curve.a_over_lambda, curve.mean_to_surface
     # first a/Λ where the surface strain changes sign (mean/surface ratio blows up)
@@ -913,6 +965,19 @@ def _amplitude_table(nu, limit):
     phi = np.r_[curve.frequency[sel], limit * r_end]
     factor = np.r_[m[sel] * curve.phase_ratio[sel] ** 2, m_end * r_end**2]
     return _AmplitudeTable(phi_end=float(phi[-1]), factor=CubicSpline(phi, factor))
+
+
+#: Above the amplitude factors' limit they return to 1 over this share of the limit's frequency (raised cosine):
+#: what they cannot correct is left as it is, not amplified by the factor at the limit.
+AMPLITUDE_RETURN = 0.2
+
+
+def _amplitude_factors_at(amp, phi, phi_end):
+    """The amplitude factors at dimensionless frequencies ``phi``: the table's up to ``phi_end``, then back to 1
+    over the next :data:`AMPLITUDE_RETURN` of it (a smooth return: a step would ring), 1 above."""
+    inside = amp.factor(np.minimum(phi, phi_end))
+    u = np.clip((phi - phi_end) / (AMPLITUDE_RETURN * phi_end), 0.0, 1.0)
+    return 1.0 + (inside - 1.0) * 0.5 * (1.0 + np.cos(np.pi * u))
 
 
 def _lowpass(phi, phi_max, taper=0.1):
@@ -973,6 +1038,8 @@ def dispersion_info(bar_radius, bar_wave_speed, poisson_ratio, *, distance=None,
         "nyquist_Hz": None if dt is None else 0.5 / _check_positive(dt, "dt"),
         "amplitude_factors": bool(amplitude_factors),
         "amplitude_limit_a_over_lambda": amplitude_limit if amplitude_factors else None,
+        "amplitude_above_limit": f"back to 1 over {100 * AMPLITUDE_RETURN:g} % above the limit" if amplitude_factors
+        else None,
         "amplitude_limit_Hz": None,
         "references": [
             "Bancroft 1941, Phys. Rev. 59:588",

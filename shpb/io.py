@@ -89,10 +89,10 @@ class Record:
             if t.size != inc.size:
                 raise InputError(f"time has {t.size} samples, channels {inc.size}", "record")
             dt = _uniform_dt(t, "record", "time")
-            return cls(time=t[0] + dt * np.arange(t.size), dt=dt, incident=inc, transmitted=tra, stations=extra)
+            return cls(time=_time_axis(t[0], dt, t.size), dt=dt, incident=inc, transmitted=tra, stations=extra)
         if not (np.isfinite(dt) and dt > 0):
             raise InputError(f"expected a positive sample interval, got {dt!r}", "record")
-        return cls(time=dt * np.arange(inc.size), dt=float(dt), incident=inc, transmitted=tra, stations=extra)
+        return cls(time=_time_axis(0.0, dt, inc.size), dt=float(dt), incident=inc, transmitted=tra, stations=extra)
 
 
 # --------------------------------------------------------------------------- hashing
@@ -425,14 +425,14 @@ def read_record(spec) -> Record:
             raise InputError(f"the incident channel has {inc.size} samples but the {name} channel ({ch.file}) has "
                              f"{stations[name].size}", str(spec.incident.file))
     if spec.time is not None:
-        t = cache.column(spec.incident.file, spec.time) * spec.time_unit
+        t = cache.column(spec.incident.file, spec.time)
         if t.size != inc.size:
             raise InputError(f"time has {t.size} samples, channels {inc.size}", str(spec.incident.file))
-        dt = _uniform_dt(t, str(spec.incident.file), spec.time)
-        time = t[0] + dt * np.arange(t.size)
+        dt = _uniform_dt(t, str(spec.incident.file), spec.time, scale=spec.time_unit)
+        time = _time_axis(t[0] * spec.time_unit, dt, t.size)
     else:
         dt = spec.sample_interval
-        time = dt * np.arange(inc.size)
+        time = _time_axis(0.0, dt, inc.size)
     files = {name: fut.result() for name, fut in hashes.items()}
     return Record(time=time, dt=dt, incident=inc, transmitted=tra, files=files, stations=stations)
 
@@ -453,11 +453,30 @@ def _channels(spec) -> dict:
     return out
 
 
-def _uniform_dt(t, where, column):
-    d = np.diff(t)
-    dt = (t[-1] - t[0]) / (t.size - 1)
+def _time_axis(t0, dt, n):
+    """t0 + dt k for k = 0 .. n-1 [s], built in place (one array of the record's length, no temporaries)."""
+    time = np.arange(n, dtype=float)
+    time *= dt
+    time += t0
+    return time
+
+
+#: Samples per block when a long column is checked piece by piece (8 MB temporaries).
+_BLOCK = 1 << 20
+
+
+def _uniform_dt(t, where, column, scale=1.0):
+    """The sample interval of the time column ``t`` × ``scale`` [s]; InputError unless uniform and increasing.
+
+    Checked block by block, so the temporaries stay small whatever the
+    record's length; the values compared are those of ``t * scale``.
+    """
+    dt = (t[-1] * scale - t[0] * scale) / (t.size - 1)
     # one pass decides; the detailed checks run only on failure
-    if not dt > 0 or np.max(np.abs(d - dt)) > 0.05 * dt:
+    uniform = dt > 0 and all(np.max(np.abs(np.diff(t[i:i + _BLOCK + 1] * scale) - dt)) <= 0.05 * dt
+                             for i in range(0, t.size - 1, _BLOCK))
+    if not uniform:
+        d = np.diff(t * scale)
         if np.any(d <= 0):
             i = int(np.argmax(d <= 0))
             raise InputError(f"time column {column!r} is not increasing at data row {i + 2}", where)

@@ -64,7 +64,7 @@ def robust_noise(signal: ArrayLike) -> tuple[float, float]:
 
 
 def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: float = 8.0, min_fraction: float = 0.05,
-              foot_fraction: float = 0.01) -> Optional[float]:
+              foot_fraction: float = 0.01, sigma: Optional[float] = None, persist: int = 1) -> Optional[float]:
     """Sub-sample index of the foot of the first positive pulse.
 
     The pulse is first detected where it exceeds a threshold relative to the
@@ -81,6 +81,13 @@ def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: f
     n_baseline : int or None
         Leading samples that are pulse-free (noise estimate); None: estimate
         the noise from the whole record with :func:`robust_noise`.
+    sigma : float, optional
+        The signal's noise standard deviation, when known (e.g. measured over
+        the quiet spans of a filtered signal, whose successive differences
+        understate it); ``n_baseline`` then only says where the search starts.
+    persist : int
+        The pulse is detected where the signal stays above the detection level
+        for this many samples: a spike or a short burst of pickup is not a pulse.
     k_sigma : float
         Detection threshold in noise standard deviations.
     min_fraction, foot_fraction : float
@@ -93,7 +100,9 @@ def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: f
         the noise (peak below ``k_sigma`` sigma).
     """
     s = np.asarray(signal, dtype=float)
-    if n_baseline is None:
+    if sigma is not None:
+        n_baseline = n_baseline or 0
+    elif n_baseline is None:
         _, sigma = robust_noise(s)
         n_baseline = 0
     else:
@@ -102,10 +111,12 @@ def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: f
     if peak <= 0 or peak < k_sigma * sigma:
         return None
     level = max(k_sigma * sigma, min_fraction * peak)
-    above = s[n_baseline:] > level
-    if not above.any():
+    from .conditioning import first_run
+
+    start = first_run(s[n_baseline:] > level, persist)  # where the signal stays above the level `persist` samples
+    if start is None:
         return None
-    i1 = int(np.argmax(above)) + n_baseline
+    i1 = start + n_baseline
     foot_level = max(3.0 * sigma, foot_fraction * peak)
     below = np.flatnonzero(s[:i1] <= foot_level)
     if below.size == 0:
@@ -120,8 +131,11 @@ def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: f
 def pulse_end(signal: ArrayLike, i_start: float, *, fraction: float = 0.1) -> Optional[int]:
     """Index where a positive pulse starting at ``i_start`` has fallen back below ``fraction`` of its peak.
 
-    The search starts at the pulse's peak (the largest value before the
-    signal first changes sign after ``i_start``).
+    The pulse is detected where it first rises through half of the largest
+    value after ``i_start``; its peak is the largest value before the signal
+    first turns negative after that detection (so noise around a foot placed
+    a little early, by hand or by a fast rise, does not end the search before
+    it starts), and the search for the end starts at the peak.
 
     Returns
     -------
@@ -129,12 +143,13 @@ def pulse_end(signal: ArrayLike, i_start: float, *, fraction: float = 0.1) -> Op
         None when the pulse does not come down before the end of the record.
     """
     s = np.asarray(signal, dtype=float)
-    i0 = int(np.floor(i_start))
+    i0 = max(int(np.floor(i_start)), 0)
     seg = s[i0:]
-    neg = np.flatnonzero(seg < 0)
-    stop = int(neg[0]) if neg.size else seg.size
-    if stop == 0:
+    if seg.size == 0 or not np.max(seg) > 0:
         return None
+    det = int(np.argmax(seg >= 0.5 * np.max(seg)))
+    neg = np.flatnonzero(seg[det:] < 0)
+    stop = det + (int(neg[0]) if neg.size else seg.size - det)
     ipk = int(np.argmax(seg[:stop]))
     pk = seg[ipk]
     after = np.flatnonzero(seg[ipk:] < fraction * pk)
@@ -166,23 +181,28 @@ def delay(signal: ArrayLike, dt: float, shift_time: float) -> np.ndarray:
     return np.interp(k - shift_time / dt, k, s, left=0.0, right=0.0)
 
 
-def taper_window(n: int, start: float, stop: float, ramp: int) -> np.ndarray:
+def taper_window(n: int, start: float, stop: float, ramp: float) -> np.ndarray:
     """A 0–1 mask of length ``n``: 1 on ``[start, stop)``, raised-cosine ramps of ``ramp`` samples just inside.
 
     Tapering the window's edges keeps a cut-out pulse free of steps, so a
-    frequency-domain shift does not ring.
+    frequency-domain shift does not ring. ``start`` and ``stop`` are
+    fractional sample positions and the mask is the continuous taper sampled
+    at the integers, w(k) = r((k - start + 1/2) / ramp) r((stop - k - 1/2) / ramp)
+    with r the raised cosine from 0 to 1, so a window moved by a fraction of a
+    sample gives the same taper moved by that fraction: waves cut at their
+    gauges and carried to the faces keep identical tapers there.
     """
-    w = np.zeros(int(n))
-    start, stop = max(int(start), 0), min(int(stop), int(n))
-    if stop <= start:
-        return w
-    w[start:stop] = 1.0
-    ramp = int(min(ramp, (stop - start) // 2))
-    if ramp > 0:
-        r = 0.5 - 0.5 * np.cos(np.pi * (np.arange(ramp) + 0.5) / ramp)
-        w[start : start + ramp] = r
-        w[stop - ramp : stop] = r[::-1]
-    return w
+    k = np.arange(int(n), dtype=float)
+    if not stop > start:
+        return np.zeros(k.size)
+    ramp = float(min(ramp, 0.5 * (stop - start)))
+    if ramp <= 0:
+        return ((k >= start) & (k < stop)).astype(float)
+
+    def rise(u):
+        return 0.5 - 0.5 * np.cos(np.pi * np.clip(u, 0.0, 1.0))
+
+    return rise((k - start + 0.5) / ramp) * rise((stop - k - 0.5) / ramp)
 
 
 def carry_wave(channel: ArrayLike, dt: float, start: float, stop: float, travel_time: float, ramp: int,
@@ -269,7 +289,7 @@ MIN_BASELINE_SAMPLES = 16
 
 @dataclass(frozen=True)
 class GaugeStrains:
-    """Stage 1 of a reduction: both channels as bar strains at their gauges.
+    """Stage 1 of a reduction: both channels conditioned and converted to bar strains at their gauges.
 
     Attributes
     ----------
@@ -279,19 +299,34 @@ class GaugeStrains:
         Sample interval [s].
     incident, transmitted : ndarray
         Bar strain at the incident and transmitted gauges [1], compression
-        positive, baseline removed, channel scale applied.
+        positive: glitches repaired, baseline removed, low-passed (when on),
+        channel scale applied.
     volts_incident, volts_transmitted : ndarray
         The recorded voltages [V], as read.
-    baseline_incident, baseline_transmitted : float
-        Baseline levels removed from the volts [V].
+    baseline_incident, baseline_transmitted : ndarray
+        The baselines removed from the volts [V], one value per sample.
     baseline_samples : int
-        Leading samples the baselines and noise come from.
+        Leading samples known to be pulse-free (the ``pre_trigger`` span, or
+        90 % of the record before the incident foot), where the baseline
+        search starts.
     noise_incident, noise_transmitted : float
-        Standard deviation of each bar strain over the baseline [1].
+        Standard deviation of each conditioned bar strain over its quiet
+        samples [1]: the noise the equilibrium test propagates.
     foot : float
         Fractional sample index of the incident wave's foot at its gauge.
     foot_source : str
         ``found`` or ``given`` (the analysis option ``incident_start``).
+    quiet_incident, quiet_transmitted : ndarray of bool or None
+        Quiet samples of each channel: those the baseline was fitted on, where
+        the channel's noise is measured.
+    pulses : dict
+        Channel name -> ``(time [s], sign)`` of the first pulse on the channel,
+        the sign relative to the gauge's polarity (+1: compressive, as it must
+        be); None when no pulse stands out of the noise.
+    conditioning : dict
+        What the conditioning did, per channel (glitches, baseline order and
+        quiet share, noise) and for both (low-pass cutoff and its reason,
+        hum frequency): the ``condition`` step of the provenance.
     """
 
     time: np.ndarray
@@ -300,35 +335,63 @@ class GaugeStrains:
     transmitted: np.ndarray
     volts_incident: np.ndarray
     volts_transmitted: np.ndarray
-    baseline_incident: float
-    baseline_transmitted: float
+    baseline_incident: np.ndarray
+    baseline_transmitted: np.ndarray
     baseline_samples: int
     noise_incident: float
     noise_transmitted: float
     foot: float
     foot_source: str
+    quiet_incident: Optional[np.ndarray] = None
+    quiet_transmitted: Optional[np.ndarray] = None
+    pulses: dict = field(default_factory=dict)
+    conditioning: dict = field(default_factory=dict)
 
     @property
     def provenance(self) -> dict:
         return {"step": "bridge", "parameters": {"baseline_samples": self.baseline_samples,
                                                  "incident_foot": self.foot_source}}
 
+    @property
+    def condition_provenance(self) -> dict:
+        """The ``condition`` step of the provenance: glitches, baselines, hum, low-pass."""
+        return {"step": "condition", "parameters": self.conditioning}
+
+    @property
+    def lowpass_cutoff(self) -> Optional[float]:
+        """Cutoff of the low-pass applied to both channels [Hz]; None when off."""
+        return self.conditioning.get("lowpass", {}).get("cutoff_Hz")
+
 
 def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOptions") -> GaugeStrains:
-    """Stage 1: find the incident foot and the baselines, and convert both channels to bar strain.
+    """Stage 1: condition both channels, find the incident foot and convert the volts to bar strain.
 
-    The baseline level is the mean of the quiet record start: the
-    ``pre_trigger`` span when given, otherwise 90 % of the samples before the
-    incident foot (found on a record-wide robust level and noise,
-    :func:`robust_noise`, then :func:`find_foot`). Volts become strain through
-    the exact bridge equations of :func:`shpb.bridge.bar_strain`.
+    On each channel, in volts (:mod:`shpb.conditioning`):
+
+    1. isolated glitches are found against their neighbours and repaired;
+    2. the channels are checked: the incident channel's first pulse must be
+       compressive (after its gauge's polarity) and come before the
+       transmitted channel's (an error naming the polarity or the channel
+       order otherwise);
+    3. the baseline is fitted over every quiet span of the record, starting
+       from the ``pre_trigger`` span when given (then only it), otherwise from
+       90 % of the record before the incident foot; its order (0 to 3) is the
+       lowest the data justify, with mains hum when ``hum_frequency`` is given;
+    4. both channels go through the same zero-phase Butterworth low-pass
+       (``lowpass``; cutoff ``lowpass_cutoff`` or automatic: the bars'
+       second-mode onset, :func:`shpb.conditioning.lowpass_cutoff`);
+    5. the incident foot is found on the conditioned incident channel
+       (:func:`find_foot`) unless ``incident_start`` gives it;
+    6. the volts become strain through the exact bridge equations of
+       :func:`shpb.bridge.bar_strain`.
 
     Parameters
     ----------
     record : shpb.io.Record
     barset : shpb.setup.BarSet
     analysis : shpb.setup.AnalysisOptions
-        ``pre_trigger`` and ``incident_start`` are used.
+        ``pre_trigger``, ``incident_start``, ``lowpass``, ``lowpass_cutoff``
+        and ``hum_frequency`` are used.
 
     Returns
     -------
@@ -339,43 +402,159 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     InputError
         ``incident_start`` outside the record.
     AnalysisError
-        No incident pulse, or too few samples before it.
+        No incident pulse, too few samples before it, an incident pulse of the
+        wrong sign or channels in the wrong order.
     """
+    from . import conditioning as cond
     from .errors import AnalysisError, InputError
 
     dt, n, t0 = record.dt, record.time.size, float(record.time[0])
-    raw_i, raw_t = record.incident, record.transmitted
-    polarity = barset.incident_gauge.polarity
+    n_pre = None
+    gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
+    info: dict = {"incident": {}, "transmitted": {}}
+    raw = {"incident": record.incident, "transmitted": record.transmitted}
+    noise = {k: robust_noise(v) for k, v in raw.items()}  # (level, sigma), record-wide
+    persist = max(3, int(round(1e-6 / dt)))  # a pulse lasts; a glitch or a burst of pickup does not
+    pulses = _first_pulses(raw, noise, gauges, dt, t0, persist)
+    _check_channels(pulses, barset)
+
     if analysis.pre_trigger:
         n_pre = min(int(analysis.pre_trigger / dt), n // 2)
-        level = noise_floor(raw_i, n_pre)[0]
-    else:  # first pass: level and noise from the whole record
-        n_pre = None
-        level = robust_noise(raw_i)[0]
     if analysis.incident_start is not None:
-        foot, source = (analysis.incident_start - t0) / dt, "given"
-        if not 0 <= foot < n:
+        foot0, source = (analysis.incident_start - t0) / dt, "given"
+        if not 0 <= foot0 < n:
             raise InputError(f"{analysis.incident_start * 1e6:g} us is outside the record "
                              f"({t0 * 1e6:g} to {record.time[-1] * 1e6:g} us)", "analysis.incident_start")
-    else:
-        # the bridge is monotonic: the foot can be found on the sign-corrected volts
-        found, source = find_foot(polarity * (raw_i - level), n_pre), "found"
+    else:  # first pass: on the sign-corrected volts (the bridge is monotonic), level and noise record-wide
+        x = gauges["incident"].polarity * raw["incident"]
+        level = noise_floor(x, n_pre)[0] if analysis.pre_trigger else gauges["incident"].polarity * noise["incident"][0]
+        found, source = find_foot(x - level, n_pre if analysis.pre_trigger else None, persist=persist), "found"
         if found is None:
             raise AnalysisError("no incident pulse found on the incident channel (nothing rises above 8x its "
                                 "noise)")
-        foot = found
-    if foot < MIN_BASELINE_SAMPLES:
-        raise AnalysisError(f"the incident pulse starts {foot:.0f} samples into the record: no "
+        foot0 = found
+    if foot0 < MIN_BASELINE_SAMPLES:
+        raise AnalysisError(f"the incident pulse starts {foot0:.0f} samples into the record: no "
                             f"pre-trigger baseline (record at least {MIN_BASELINE_SAMPLES} samples before the pulse)")
-    # second pass: the baseline is the whole quiet part before the foot, less a margin
-    n_base = max(MIN_BASELINE_SAMPLES, int(0.9 * foot)) if n_pre is None else n_pre
-    base_i, base_t = noise_floor(raw_i, n_base)[0], noise_floor(raw_t, n_base)[0]
-    si = _bar_strain(raw_i - base_i, barset.incident_gauge, barset.incident)
-    st = _bar_strain(raw_t - base_t, barset.transmitted_gauge, barset.transmitted)
-    return GaugeStrains(time=record.time, dt=dt, incident=si, transmitted=st, volts_incident=raw_i,
-                        volts_transmitted=raw_t, baseline_incident=base_i, baseline_transmitted=base_t,
-                        baseline_samples=n_base, noise_incident=noise_floor(si, n_base)[1],
-                        noise_transmitted=noise_floor(st, n_base)[1], foot=float(foot), foot_source=source)
+    # the rest of the work only on the part of the record the analysis can read (a long record is baseline after)
+    n = min(n, int(math.ceil(foot0 + _analysis_reach(barset, analysis) / dt)))
+    time = record.time[:n]
+    clean, sigma = {}, {}
+    for name, v in raw.items():
+        v = v[:n]
+        hits = cond.find_glitches(v, noise[name][1], floor=0.005 * float(np.max(np.abs(v - noise[name][0]))))
+        clean[name], sigma[name] = cond.repair_glitches(v, hits), noise[name][1]
+        info[name]["glitches"] = int(hits.size)
+        if hits.size:
+            info[name]["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
+    info["samples_used"] = n
+    n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
+    initial = np.arange(n) < n_base
+    volts, bases, quiet = {}, {}, {}
+    for name in ("incident", "transmitted"):
+        bases[name], quiet[name], binfo = cond.quiet_baseline(
+            clean[name], sigma[name], dt, initial, hum_frequency=analysis.hum_frequency,
+            search=not analysis.pre_trigger)
+        volts[name] = clean[name] - bases[name]
+        info[name].update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
+                           "noise_V": float(sigma[name])})
+        if "hum_amplitude_V" in binfo:
+            info[name]["hum_amplitude_V"] = binfo["hum_amplitude_V"]
+    info["baseline"] = ("fitted over every quiet span (Schwarz criterion for the order)" if not analysis.pre_trigger
+                        else f"fitted over the pre_trigger span ({n_base} samples)")
+    info["hum_frequency_Hz"] = analysis.hum_frequency
+    volts, info["lowpass"] = _lowpass_both(volts, dt, foot0, gauges["incident"].polarity, barset, analysis)
+
+    x = gauges["incident"].polarity * volts["incident"]
+    if source == "found":
+        sig_x = float(np.std(x[quiet["incident"]])) if quiet["incident"].any() else None
+        found = find_foot(x, int(0.5 * foot0), sigma=sig_x, persist=persist)
+        foot = float(found) if found is not None else float(foot0)
+    else:
+        foot = float(foot0)
+    si = _bar_strain(volts["incident"], gauges["incident"], barset.incident)
+    st = _bar_strain(volts["transmitted"], gauges["transmitted"], barset.transmitted)
+    noise = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0
+             for k, v in (("incident", si), ("transmitted", st))}
+    for k in noise:
+        info[k]["noise_strain"] = noise[k]
+    return GaugeStrains(time=time, dt=dt, incident=si, transmitted=st, volts_incident=raw["incident"][:n],
+                        volts_transmitted=raw["transmitted"][:n], baseline_incident=bases["incident"],
+                        baseline_transmitted=bases["transmitted"], baseline_samples=int(n_base),
+                        noise_incident=noise["incident"], noise_transmitted=noise["transmitted"], foot=foot,
+                        foot_source=source, quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"],
+                        pulses=pulses, conditioning=info)
+
+
+def _analysis_reach(barset: "BarSet", analysis: "AnalysisOptions") -> float:
+    """How long after the incident foot at its gauge the analysis may read the record [s], generously.
+
+    The reflected wave's window at the incident gauge ends 2 d_i / c_i after the foot plus the window, the
+    transmitted one (d_i / c_i + d_t / c_t) plus the window; an automatic window is shorter than twice the
+    longer bar's transit, a given one is what it is. Half as much again, for leads, tapers and tails.
+    """
+    bi, bt = barset.incident, barset.transmitted
+    ti, tt = barset.incident_gauge.distance / bi.wave_speed, barset.transmitted_gauge.distance / bt.wave_speed
+    window = max(analysis.window_length or 0.0, 2 * max(bi.length / bi.wave_speed, bt.length / bt.wave_speed))
+    return 1.5 * (max(2 * ti, ti + tt) + window)
+
+
+def _first_pulses(raw, noise, gauges, dt, t0, persist) -> dict:
+    """Channel -> (time [s], sign relative to the gauge's polarity) of its first pulse, or None."""
+    from .conditioning import first_excursion
+
+    out = {}
+    for name, x in raw.items():
+        level, sigma = noise[name]
+        hit = first_excursion(x - level, sigma, persist=persist)
+        out[name] = None if hit is None else (t0 + hit[0] * dt, hit[1] * gauges[name].polarity)
+    return out
+
+
+def _check_channels(pulses, barset) -> None:
+    """Refuse a record whose channels are swapped or whose incident pulse is tensile, naming the likely cause."""
+    from .errors import AnalysisError
+
+    inc, tra = pulses["incident"], pulses["transmitted"]
+    # the transmitted gauge sees its first wave (d_i + d_t) / c after the incident gauge does
+    lag = (barset.incident_gauge.distance / barset.incident.wave_speed
+           + barset.transmitted_gauge.distance / barset.transmitted.wave_speed)
+    if inc is not None and tra is not None and tra[0] < inc[0] - 0.5 * lag:
+        raise AnalysisError(f"the transmitted channel's first pulse ({tra[0] * 1e6:.1f} us) comes "
+                            f"{(inc[0] - tra[0]) * 1e6:.0f} us before the incident channel's ({inc[0] * 1e6:.1f} us); "
+                            f"the transmitted gauge sees it {lag * 1e6:.0f} us after: the channels look swapped "
+                            f"(check [record] incident and transmitted)")
+    if inc is not None and inc[1] < 0:
+        p = barset.incident_gauge.polarity
+        sign = "negative" if p > 0 else "positive"
+        raise AnalysisError(f"the first pulse on the incident channel is tensile (a {sign} voltage with the "
+                            f"incident gauge's polarity {p:+d}): check the polarity of the incident gauge (or the "
+                            f"channel order)")
+
+
+def _lowpass_both(volts, dt, foot, polarity, barset, analysis):
+    """Both channels through the same zero-phase low-pass; what was done, for the provenance."""
+    from .conditioning import lowpass, lowpass_cutoff, rise_time
+    from .dispersion import second_mode_onset
+
+    if not analysis.lowpass:
+        return volts, {"applied": False}
+    onset = min(second_mode_onset(b.radius, b.wave_speed, b.poisson_ratio)
+                for b in (barset.incident, barset.transmitted))
+    nyquist = 0.5 / dt
+    if analysis.lowpass_cutoff:
+        cutoff = min(analysis.lowpass_cutoff, 0.95 * nyquist)
+        reason = f"{cutoff / 1e3:.0f} kHz: given (lowpass_cutoff)"
+        out = {k: lowpass(v, dt, cutoff) for k, v in volts.items()}
+    else:  # the cutoff is the bars' (the rise, read once the channel holds only what they carry, is reported)
+        cutoff = lowpass_cutoff(None, onset, nyquist)[0]
+        out = {k: lowpass(v, dt, cutoff) for k, v in volts.items()}
+        reason = lowpass_cutoff(rise_time(polarity * out["incident"], foot, dt), onset, nyquist)[1]
+    from .conditioning import LOWPASS_ORDER
+
+    return out, {"applied": True, "cutoff_Hz": float(cutoff), "reason": reason,
+                 "filter": f"Butterworth order {LOWPASS_ORDER}, forwards and backwards (zero phase)",
+                 "second_mode_onset_Hz": float(onset)}
 
 
 def _bar_strain(volts, gauge, bar):
@@ -405,6 +584,10 @@ class WindowPlan:
         How the window length was chosen.
     span : (int, int)
         Half-open sample range of the window at the faces (record samples).
+    carry_span : (int, int)
+        Half-open sample range over which the waves are cut and carried
+        (record samples at the faces): the span, or longer when a given
+        window is shorter than the automatic one.
     ramp : int
         Raised-cosine taper at each end of a wave's window [samples].
     duration : float
@@ -437,6 +620,7 @@ class WindowPlan:
     distances: dict = field(default_factory=dict)
     travel_times: dict = field(default_factory=dict)
     adjusts: dict = field(default_factory=dict)
+    carry_span: tuple = ()
 
     @property
     def k0(self) -> int:
@@ -471,7 +655,9 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     """Choose the analysis window of a shot.
 
     The window starts 10 % of the pulse before the incident foot reaches the
-    front face and runs as long as the bars and the record allow, up to
+    front face (less when the incident pulse ends less than that before the
+    reflected wave returns to the incident gauge, so that the reflected
+    window's lead holds none of it) and runs as long as the bars and the record allow, up to
     three pulse lengths: it ends before the reflected wave reaches the
     incident gauge (2 d_i / c_i after the foot), before echoes from the bars'
     far ends return (2 (L - d) / c), and before the record ends (the
@@ -496,7 +682,10 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     incident_length, transmitted_length : float
         Bar lengths [m].
     window_length : float, optional
-        A given window length [s] (used as is).
+        A given window length [s]: the curves end there. The waves are still
+        cut at their gauges over the automatic window when that is longer, so
+        no window edge falls inside a pulse (a wave cut mid-pulse rings through
+        the dispersion correction and breaks the force balance).
     free_time : float, optional
         How long after the incident foot reaches the specimen the waves stay
         free of overlaps and unresolved echoes [s], when something else than
@@ -513,19 +702,26 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct) \
         if free_time is None else free_time
     lead = min(0.1 * duration, 0.1 * w_free)
+    # the reflected window opens `lead` before the reflected wave reaches the incident gauge (2 d_i / c_i after the
+    # foot): it must open after the incident pulse has passed, or the incident tail becomes a reflected wave
+    gap = 2 * di / ci - duration
+    if gap < lead:
+        lead = max(gap, ramp_time(duration, dt) + 2 * dt)
     t_foot = t_start + foot * dt
     t_face0 = t_foot + di / ci
-    if window_length:
-        source = "given"
+    auto, source = max(min(3 * duration, 0.97 * w_free - lead), duration), "automatic"
+    w_rec = t_end - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
+    if w_rec < auto:
+        auto, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
+    if window_length:  # a given window crops the curves; the waves are still cut whole (no edge to ring)
+        source, carry = "given", max(window_length, auto)
     else:
-        window_length, source = max(min(3 * duration, 0.97 * w_free - lead), duration), "automatic"
-        w_rec = t_end - t_face0 - max(di / ci, dtr / ct) - 2 * ramp_time(duration, dt)
-        if w_rec < window_length:
-            window_length, source = max(w_rec, 0.5 * duration), "automatic, cut by the record's end"
+        window_length = carry = auto
     k0 = int(np.ceil((t_face0 - lead - t_start) / dt))
     k1 = int(np.floor((t_face0 + window_length - t_start) / dt)) + 1
+    kc = int(np.floor((t_face0 + carry - t_start) / dt)) + 1
     ramp = max(2, int(ramp_time(duration, dt) / dt))
-    return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration)
+    return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration, carry_span=(k0, kc))
 
 
 def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions", *,
@@ -550,8 +746,7 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
     from .errors import AnalysisError
 
     dt, foot = strains.dt, strains.foot
-    volts = barset.incident_gauge.polarity * (strains.volts_incident - strains.baseline_incident)
-    end = None if duration else pulse_end(volts, foot, fraction=0.05)  # on the volts: the bridge is monotonic
+    end = None if duration else pulse_end(strains.incident, foot, fraction=0.05)
     if duration:
         duration, source = duration
     elif end is not None:
@@ -575,7 +770,7 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
         travel[name] = distances[name] / getattr(barset, bar_name).wave_speed
         # a hand adjustment of the alignment: the wave is taken `adjust` seconds later at its gauge
         shift = travel[name] / dt - adjusts[name] / dt
-        spans[name] = (plan.k0 - shift, plan.k1 - shift)
+        spans[name] = (plan.carry_span[0] - shift, plan.carry_span[1] - shift)
     return replace(plan, duration_source=source, gauge_spans=spans, distances=distances, travel_times=travel,
                    adjusts=adjusts)
 
@@ -601,6 +796,10 @@ class FaceWaves:
     dispersion : dict
         What the dispersion correction did (``applied`` and, when applied, its
         parameters and the largest change it made to each wave).
+    weight : ndarray
+        The window's taper at the faces [1], the same for the three waves
+        (each cut at its gauge with the taper on the fractional sample grid
+        and carried by its exact travel time): 1 where the waves are whole.
     """
 
     time: np.ndarray
@@ -610,6 +809,7 @@ class FaceWaves:
     transmitted: np.ndarray
     plain: dict
     dispersion: dict
+    weight: Optional[np.ndarray] = None
 
     def wave(self, name) -> np.ndarray:
         """One wave by name (``incident``, ``reflected``, ``transmitted``)."""
@@ -627,15 +827,16 @@ def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset: "BarSet", an
     """Stage 3: cut each wave out at its gauge and carry it to its specimen face.
 
     Each wave is moved over its gauge distance with the bar's
-    Pochhammer-Chree dispersion (:func:`shpb.dispersion.propagate`) when the
-    analysis option ``dispersion`` is on, else by a pure sub-sample delay;
-    a hand adjustment moves it further by a pure delay.
+    Pochhammer-Chree dispersion (:func:`shpb.dispersion.propagate`, the
+    fundamental mode's phase velocity up to the bar's second-mode onset and
+    held there above) when the analysis option ``dispersion`` is on, else by a
+    pure sub-sample delay; a hand adjustment moves it further by a pure delay.
 
     Returns
     -------
     FaceWaves
     """
-    dt, (k0, k1) = strains.dt, plan.span
+    dt, (k0, k1), kc = strains.dt, plan.span, plan.carry_span[1]
     use_disp = bool(analysis.dispersion)
     faces, plains = {}, {}
     for name, bar_name, _ in WAVES:
@@ -649,20 +850,26 @@ def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset: "BarSet", an
         adjust = plan.adjusts[name]
         if adjust:
             face, plain = delay(face, dt, -adjust), delay(plain, dt, -adjust)
-        if k1 > face.size:  # the window runs past the record's end: zeros there (flagged by the verdict)
-            face, plain = np.pad(face, (0, k1 - face.size)), np.pad(plain, (0, k1 - plain.size))
+        if max(k1, kc) > face.size:  # the window runs past the record's end: zeros there (flagged by the verdict)
+            face = np.pad(face, (0, max(k1, kc) - face.size))
+            plain = np.pad(plain, (0, max(k1, kc) - plain.size))
         faces[name], plains[name] = face[k0:k1], plain[k0:k1]
     time = float(strains.time[0]) + np.arange(k0, k1) * dt - plan.t_face0
     return FaceWaves(time=time, dt=dt, **faces, plain=plains,
-                     dispersion=_dispersion_record(use_disp, barset, analysis, dt, plan, faces, plains))
+                     dispersion=_dispersion_record(use_disp, barset, analysis, dt, plan, faces, plains),
+                     weight=taper_window(kc - k0, 0.0, float(kc - k0), plan.ramp)[: k1 - k0])
 
 
 def _dispersion_mover(dt, distance, bar, amplitude_factors):
-    from .dispersion import propagate
+    from .dispersion import propagate, second_mode_onset
+
+    # above the second mode's onset a fundamental-mode phase shift is not the whole story: those components
+    # are moved rigidly (the phase velocity held at the onset's), not "corrected" as fundamental mode
+    onset = second_mode_onset(bar.radius, bar.wave_speed, bar.poisson_ratio)
 
     def mover(segment):
         return propagate(segment, dt, distance, bar.radius, bar.wave_speed, bar.poisson_ratio,
-                         amplitude_factors=amplitude_factors)
+                         amplitude_factors=amplitude_factors, max_frequency=onset)
 
     return mover
 
@@ -672,15 +879,17 @@ def _dispersion_record(applied, barset, analysis, dt, plan, faces, plains) -> di
     info = {"applied": applied}
     if not applied:
         return info
-    from .dispersion import dispersion_info
+    from .dispersion import dispersion_info, second_mode_onset
 
     bi, bt = barset.incident, barset.transmitted
     info.update(dispersion_info(bi.radius, bi.wave_speed, bi.poisson_ratio, dt=dt,
-                                amplitude_factors=analysis.amplitude_factors))
+                                amplitude_factors=analysis.amplitude_factors,
+                                max_frequency=second_mode_onset(bi.radius, bi.wave_speed, bi.poisson_ratio)))
     info["distances_m"] = dict(plan.distances)
     if (bt.radius, bt.wave_speed, bt.poisson_ratio) != (bi.radius, bi.wave_speed, bi.poisson_ratio):
-        info["transmitted_bar"] = dispersion_info(bt.radius, bt.wave_speed, bt.poisson_ratio, dt=dt,
-                                                  amplitude_factors=analysis.amplitude_factors)
+        info["transmitted_bar"] = dispersion_info(
+            bt.radius, bt.wave_speed, bt.poisson_ratio, dt=dt, amplitude_factors=analysis.amplitude_factors,
+            max_frequency=second_mode_onset(bt.radius, bt.wave_speed, bt.poisson_ratio))
     peak = max(float(np.max(np.abs(faces["incident"]))), 1e-30)
     for k in faces:
         info[f"max_change_{k}_percent_of_incident_peak"] = float(100 * np.max(np.abs(faces[k] - plains[k])) / peak)

@@ -191,7 +191,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         plan = pulses.plan_analysis(strains, bs, opt, **split.plan_options())
         waves = separation.waves_at_faces(split, strains, plan, bs, opt)
         curves = kolsky.kolsky_curves(waves, bs, shot.specimen, opt.stress)
-        verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt)
+        verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt, shot.striker_speed)
         corrections = specimen.specimen_corrections(curves, plan, shot.specimen, opt, verdict.valid, waves.dt)
     return _result(shot, Stages(record, strains, plan, waves, curves, verdict, split, corrections))
 
@@ -219,12 +219,15 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
     for which in ("incident", "transmitted"):
         results[f"{which}_wave_speed_m_per_s"] = getattr(bs, which).wave_speed
         results[f"{which}_wave_speed_source"] = _speed_source(bs, which)
-    provenance = [st.strains.provenance, *([st.separation.provenance] if st.separation else []),
+    provenance = [st.strains.condition_provenance, st.strains.provenance,
+                  *([st.separation.provenance] if st.separation else []),
                   _shift_provenance(bs, st.waves), st.curves.provenance,
                   {"step": "validity", "parameters": {"equilibrium_threshold": shot.analysis.equilibrium_threshold,
+                                                      "equilibrium_false_alarm": validity.EQUILIBRIUM_FALSE_ALARM,
+                                                      "min_valid_fraction": validity.MIN_VALID_FRACTION,
                                                       "yield_offset": shot.analysis.yield_offset}},
                   *([extra.provenance] if extra else [])]
-    provenance[0]["parameters"].update({"incident": bs.incident_gauge.bridge,
+    provenance[1]["parameters"].update({"incident": bs.incident_gauge.bridge,
                                         "transmitted": bs.transmitted_gauge.bridge})
     for p in provenance:
         p["version"] = __version__
@@ -263,7 +266,7 @@ def curves_table(waves, curves, verdict, corrections=None) -> pd.DataFrame:
         "strain_transmitted": waves.transmitted,
         "force_front_kN": curves.force_front / 1e3, "force_back_kN": curves.force_back / 1e3,
         "velocity_front_m_per_s": curves.velocity_front, "velocity_back_m_per_s": curves.velocity_back,
-        "equilibrium_R": verdict.equilibrium_ratio,
+        "equilibrium_R": verdict.equilibrium_ratio, "equilibrium_R_limit": verdict.equilibrium_limit,
         "strain_rate_per_s": curves.strain_rate, "strain_rate_reflected_per_s": curves.strain_rate_reflected,
         "strain": curves.strain, "strain_from_reflected": curves.strain_from_reflected,
         "stress_1wave_MPa": sig["1-wave"] / 1e6, "stress_2wave_MPa": sig["2-wave"] / 1e6,
@@ -280,6 +283,8 @@ COLUMN_NOTES = {
     "force_front_kN": "F1 = E_i A_i (eps_i + eps_r), incident-bar face",
     "force_back_kN": "F2 = E_t A_t eps_t, transmitted-bar face",
     "equilibrium_R": "2 (F1 - F2) / (F1 + F2), averaged over 0.25 us as the equilibrium test reads it",
+    "equilibrium_R_limit": "the limit |R| is tested against: the threshold widened by k u(R), u(R) propagated from "
+                           "the records' noise (GUM, JCGM 100:2008 eq. 10)",
     "strain_rate_per_s": "three-wave: (v1 - v2) / L_s with v1 = c_i (eps_i - eps_r), v2 = c_t eps_t",
     "strain_rate_reflected_per_s": "classic: -2 c_i eps_r / L_s (assumes equilibrium)",
     "strain": "time integral of strain_rate_per_s (engineering)",
@@ -340,6 +345,7 @@ def _inputs(shot: Shot) -> dict:
                                                                                               f"{b}_stations")]
                for b in ("incident", "transmitted") if getattr(shot.record, f"{b}_stations")}},
         "analysis": asdict(shot.analysis),
+        "striker_speed_m_per_s": shot.striker_speed,
         "source": _source(shot.source),
     }
 

@@ -16,6 +16,58 @@ from matplotlib.figure import Figure  # no pyplot: no global state, thread-safe,
 
 _SEVERITY_MARK = {"error": "ERROR", "warning": "warning", "info": "note"}
 
+#: The shot sheet's panel grid: margins and gaps between the panels [inch], fixed rather than found by a
+#: layout engine, which would draw the whole sheet once more to measure it (doubling the time of savefig).
+#: About the positions the constrained layout gives the example shot, with room on the left of each panel
+#: for six-character tick labels ("−10000", "100000") and the axis label, and between the columns for
+#: the R(t) axis.
+_SHEET_GRID = dict(left=0.95, right=0.18, bottom=0.47, top=0.47, column_gap=1.68, row_gap=0.72)
+#: A line of more points than this is drawn through its min/max envelope (see :func:`envelope`).
+MAX_LINE_POINTS = 4000
+
+
+def envelope(x, y, max_points=MAX_LINE_POINTS):
+    """A long line thinned to its min/max envelope, so that drawing it costs the same whatever its length.
+
+    The samples are cut into ``max_points // 2`` runs of consecutive
+    samples; of each run the lowest and the highest point are kept, in their
+    order. Drawn as a line at the sheet's resolution (a run is a fraction of
+    a pixel wide), it covers the same pixels as the full line: every peak and
+    trough is kept (min/max decimation, common practice in oscilloscope
+    displays). A line of at most ``max_points`` points is returned as given.
+
+    Parameters
+    ----------
+    x, y : array_like
+        The line's points (same length), in drawing order.
+    max_points : int
+        Most points returned.
+
+    Returns
+    -------
+    x, y : ndarray
+        The kept points; NaN gaps that fill a whole run stay NaN.
+    """
+    x, y = np.asarray(x), np.asarray(y)
+    n = y.size
+    if n <= max_points:
+        return x, y
+    k = -(-n // (max_points // 2))  # samples per run
+    runs = -(-n // k)  # at most max_points // 2; the last run may be shorter
+    padded = np.full(runs * k, np.nan)
+    padded[:n] = y
+    padded = padded.reshape(runs, k)
+    nan = np.isnan(padded)
+    lo = np.where(nan, np.inf, padded).argmin(axis=1)
+    hi = np.where(nan, -np.inf, padded).argmax(axis=1)
+    idx = np.stack([np.minimum(lo, hi), np.maximum(lo, hi)], axis=1) + (np.arange(runs) * k)[:, None]
+    return x[idx.ravel()], y[idx.ravel()]
+
+
+def _line(ax, x, y, *args, **kwargs):
+    """``ax.plot`` of a line through its envelope (series become arrays)."""
+    return ax.plot(*envelope(np.asarray(x, dtype=float), np.asarray(y, dtype=float)), *args, **kwargs)
+
 
 def plot_shot(result) -> Figure:
     """The figure sheet of one shot (A4 landscape; :meth:`shpb.reduce.ShotResult.write` saves it at 110 dpi).
@@ -24,15 +76,25 @@ def plot_shot(result) -> Figure:
     moved to the specimen faces; face forces with the equilibrium factor
     R(t); strain rate against strain; stress–strain with the yield point and
     the valid part marked. Flags are listed at the foot of the sheet.
+
+    The panels sit on a fixed grid (no layout engine, so saving draws the
+    sheet once) and lines longer than :data:`MAX_LINE_POINTS` are drawn
+    through their min/max :func:`envelope`, so the time to draw does not
+    grow with the record's length.
     """
     tr, c = result.traces, result.curves
-    fig = Figure(figsize=(11.7, 8.3), layout="constrained")
-    gs = fig.add_gridspec(3, 2)
+    width, height = 11.7, 8.3
+    fig = Figure(figsize=(width, height))
+    g = _SHEET_GRID
+    panel_w = (width - g["left"] - g["right"] - g["column_gap"]) / 2
+    panel_h = (height - g["bottom"] - g["top"] - 2 * g["row_gap"]) / 3
+    gs = fig.add_gridspec(3, 2, left=g["left"] / width, right=1 - g["right"] / width, bottom=g["bottom"] / height,
+                          top=1 - g["top"] / height, wspace=g["column_gap"] / panel_w, hspace=g["row_gap"] / panel_h)
     t_us = tr["time"] * 1e6
 
     ax = fig.add_subplot(gs[0, 0])
-    ax.plot(t_us, tr["strain_incident_gauge"] * 1e6, lw=0.8, label="incident-bar gauge")
-    ax.plot(t_us, tr["strain_transmitted_gauge"] * 1e6, lw=0.8, label="transmitted-bar gauge")
+    _line(ax, t_us, tr["strain_incident_gauge"] * 1e6, lw=0.8, label="incident-bar gauge")
+    _line(ax, t_us, tr["strain_transmitted_gauge"] * 1e6, lw=0.8, label="transmitted-bar gauge")
     for (name, (a, b)), col in zip(tr["gauge_windows"].items(), ("C2", "C3", "C4")):
         ax.axvspan(a * 1e6, b * 1e6, color=col, alpha=0.12, label=f"{name} window")
     ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)", title="Records at the gauges")
@@ -40,19 +102,22 @@ def plot_shot(result) -> Figure:
 
     ax = fig.add_subplot(gs[0, 1])
     tau = c["time_us"]
-    ax.plot(tau, c["strain_incident"] * 1e6, label="incident ε_i")
-    ax.plot(tau, c["strain_reflected"] * 1e6, label="reflected ε_r")
-    ax.plot(tau, c["strain_transmitted"] * 1e6, label="transmitted ε_t")
-    ax.plot(tau, (c["strain_incident"] + c["strain_reflected"]) * 1e6, "k:", lw=0.8, label="ε_i + ε_r")
+    _line(ax, tau, c["strain_incident"] * 1e6, label="incident ε_i")
+    _line(ax, tau, c["strain_reflected"] * 1e6, label="reflected ε_r")
+    _line(ax, tau, c["strain_transmitted"] * 1e6, label="transmitted ε_t")
+    _line(ax, tau, (c["strain_incident"] + c["strain_reflected"]) * 1e6, "k:", lw=0.8, label="ε_i + ε_r")
     ax.set(xlabel="time at the specimen faces [µs]", ylabel="bar strain [µε]", title="Waves at the specimen faces")
     ax.legend(fontsize=7)
 
     ax = fig.add_subplot(gs[1, 0])
-    ax.plot(tau, c["force_front_kN"], label="front face F1 (incident bar)")
-    ax.plot(tau, c["force_back_kN"], label="back face F2 (transmitted bar)")
+    _line(ax, tau, c["force_front_kN"], label="front face F1 (incident bar)")
+    _line(ax, tau, c["force_back_kN"], label="back face F2 (transmitted bar)")
     ax.set(xlabel="time [µs]", ylabel="force [kN]", title="Face forces and equilibrium")
     ax2 = ax.twinx()
-    ax2.plot(tau, c["equilibrium_R"], color="0.4", lw=0.8, label="R(t)")
+    _line(ax2, tau, c["equilibrium_R"], color="0.4", lw=0.8, label="R(t)")
+    if "equilibrium_R_limit" in c:  # the limit R was tested against: the threshold widened by the noise
+        _line(ax2, tau, c["equilibrium_R_limit"], color="0.4", ls=":", lw=0.6)
+        _line(ax2, tau, -c["equilibrium_R_limit"], color="0.4", ls=":", lw=0.6)
     ax2.set_ylim(-0.5, 0.5)
     ax2.set_ylabel("R = 2(F1−F2)/(F1+F2)")
     valid = c["valid"].to_numpy().astype(bool)
@@ -61,17 +126,17 @@ def plot_shot(result) -> Figure:
     ax.legend(fontsize=7, loc="upper left")
 
     ax = fig.add_subplot(gs[1, 1])
-    ax.plot(c["strain"], c["strain_rate_per_s"], color="0.6", lw=0.8, label="three-wave")
-    ax.plot(c["strain"], c["strain_rate_reflected_per_s"], color="C1", lw=0.6, alpha=0.7, label="reflected wave only")
-    ax.plot(c["strain"][valid], c["strain_rate_per_s"][valid], "k", lw=1.5, label="valid part")
+    _line(ax, c["strain"], c["strain_rate_per_s"], color="0.6", lw=0.8, label="three-wave")
+    _line(ax, c["strain"], c["strain_rate_reflected_per_s"], color="C1", lw=0.6, alpha=0.7, label="reflected wave only")
+    _line(ax, c["strain"][valid], c["strain_rate_per_s"][valid], "k", lw=1.5, label="valid part")
     ax.set(xlabel="engineering strain [1]", ylabel="strain rate [1/s]", title="Strain rate")
     ax.set_ylim(bottom=min(0.0, float(np.nanmin(c["strain_rate_per_s"][valid]))) if valid.any() else None)
     ax.legend(fontsize=7)
 
     ax = fig.add_subplot(gs[2, 0])
-    ax.plot(c["strain"], c["stress_1wave_MPa"], lw=0.8, label="1-wave (back face)")
-    ax.plot(c["strain"], c["stress_2wave_MPa"], lw=0.8, label="2-wave (front face)")
-    ax.plot(c["strain"][valid], c["stress_MPa"][valid], "k", lw=2, label="reported, valid part")
+    _line(ax, c["strain"], c["stress_1wave_MPa"], lw=0.8, label="1-wave (back face)")
+    _line(ax, c["strain"], c["stress_2wave_MPa"], lw=0.8, label="2-wave (front face)")
+    _line(ax, c["strain"][valid], c["stress_MPa"][valid], "k", lw=2, label="reported, valid part")
     ys, ysig = tr.get("yield", (None, None))
     if ys is not None:
         ax.plot([ys], [ysig], "rv", ms=8, label=f"yield {ysig:.0f} MPa at {ys:.4f}")
@@ -95,7 +160,8 @@ def plot_shot(result) -> Figure:
     for f in result.flags[:6]:
         lines += textwrap.wrap(f"{_SEVERITY_MARK.get(f.severity, f.severity)}: {f.message}", 70)
     ax.text(0, 1, "\n".join(lines), va="top", family="monospace", fontsize=8)
-    fig.suptitle(f"shpb — shot {result.name} (curves for design need independent validation)", fontsize=10)
+    fig.suptitle(f"shpb — shot {result.name} (curves for design need independent validation)", fontsize=10,
+                 y=1 - 0.04 / height)  # at the top edge, above the panel titles
     return fig
 
 

@@ -39,7 +39,7 @@ class Key:
     Attributes
     ----------
     section : str
-        ``specimen``, ``record`` or ``analysis``: the TOML table it lives in.
+        ``specimen``, ``striker``, ``record`` or ``analysis``: the TOML table it lives in.
     name : str
         The key in that table (and the dataclass field it fills).
     kind : str
@@ -140,6 +140,19 @@ ANALYSIS_KEYS = (
     _k("analysis", "friction_coefficient", "dimensionless", None,
        "interface friction coefficient mu for the friction band of the stress [1] (none when absent)",
        fraction=True),
+    _k("analysis", "lowpass", "switch", True,
+       "zero-phase low-pass of both channels (off: the records as read, baselines and glitches only)"),
+    _k("analysis", "lowpass_cutoff", "frequency", None,
+       "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
+    _k("analysis", "hum_frequency", "frequency", None,
+       "mains frequency [Hz] fitted with the baselines, with its first harmonics (none when absent)"),
+)
+
+#: Keys of a shot file's ``[striker]`` table: what changes from shot to shot (the striker's length, diameter
+#: and material stay in the bar set's ``[striker]``).
+STRIKER_KEYS = (
+    _k("striker", "speed", "velocity", None,
+       "impact speed of the striker [m/s]; the incident pulse is checked against it", column="striker_speed"),
 )
 
 #: Record keys that a campaign row may set (the channel mapping comes from the campaign's ``[record]``).
@@ -151,12 +164,13 @@ RECORD_COLUMN_KEYS = (
 RENAMED = {"window": "window_length"}
 
 #: Every key a campaign column may set, by column name.
-COLUMNS = {k.column_name: k for k in SPECIMEN_KEYS + ANALYSIS_KEYS + RECORD_COLUMN_KEYS}
+COLUMNS = {k.column_name: k for k in SPECIMEN_KEYS + STRIKER_KEYS + ANALYSIS_KEYS + RECORD_COLUMN_KEYS}
 
 
 def section_keys(section: str) -> tuple:
     """The keys of one section."""
-    return {"specimen": SPECIMEN_KEYS, "analysis": ANALYSIS_KEYS, "record": RECORD_COLUMN_KEYS}[section]
+    return {"specimen": SPECIMEN_KEYS, "striker": STRIKER_KEYS, "analysis": ANALYSIS_KEYS,
+            "record": RECORD_COLUMN_KEYS}[section]
 
 
 def find_key(section: str, name: str) -> Optional[Key]:

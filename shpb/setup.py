@@ -319,6 +319,13 @@ class AnalysisOptions:
     friction_coefficient : float or None
         Interface friction coefficient mu [1] for the friction band of the
         stress (:func:`shpb.specimen.friction_factor`); none if None.
+    lowpass : bool
+        Zero-phase low-pass of both channels (default on).
+    lowpass_cutoff : float or None
+        Its cutoff [Hz]; automatic (from the incident rise and the bars'
+        second-mode onset) if None.
+    hum_frequency : float or None
+        Mains frequency [Hz] fitted with the baselines (none if None).
     """
 
     dispersion: bool = True
@@ -334,6 +341,9 @@ class AnalysisOptions:
     separation: str = "auto"
     separation_cutoff: Optional[float] = None
     friction_coefficient: Optional[float] = None
+    lowpass: bool = True
+    lowpass_cutoff: Optional[float] = None
+    hum_frequency: Optional[float] = None
 
 
 @dataclass(frozen=True)
@@ -342,7 +352,10 @@ class Shot:
 
     ``record`` says where the record files are; it may be None for a shot
     whose record is passed to :func:`shpb.reduce.reduce_shot` in memory
-    (:meth:`shpb.io.Record.from_arrays`).
+    (:meth:`shpb.io.Record.from_arrays`). ``striker_speed`` [m/s] is the
+    shot's measured impact speed (the shot file's ``[striker] speed``): it
+    changes from shot to shot, while the striker's length, diameter and
+    material stay in the bar set.
     """
 
     name: str
@@ -351,6 +364,7 @@ class Shot:
     record: Optional[RecordSpec] = None
     analysis: AnalysisOptions = AnalysisOptions()
     source: Optional[str] = None
+    striker_speed: Optional[float] = None
 
 
 # --------------------------------------------------------------------------- TOML reading
@@ -712,7 +726,7 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
     Parameters
     ----------
     data : dict
-        Keys ``name``, ``barset`` (path), ``[specimen]``, ``[record]``, ``[analysis]``.
+        Keys ``name``, ``barset`` (path), ``[specimen]``, ``[striker]``, ``[record]``, ``[analysis]``.
     base_dir : Path
         Folder that relative paths are taken from.
     source : str
@@ -721,7 +735,7 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
         Used when ``data`` names no bar set.
     """
     top = _Table(data, f"{source}:")
-    top.check_keys({"name", "barset", "specimen", "record", "analysis"})
+    top.check_keys({"name", "barset", "specimen", "striker", "record", "analysis"})
     if "barset" in data:
         name = top.string("barset")
         if not name.strip():
@@ -733,6 +747,8 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
     record = record_from_dict(top.table("record").data, base_dir, f"{source}: record")
     at = top.table("analysis", required=False)
     analysis = analysis_from_dict(at.data, f"{source}: analysis", analysis_base) if at else analysis_base
+    st = top.table("striker", required=False)
+    speed = schema.parse_table(st.data, schema.STRIKER_KEYS, f"{source}: striker")["speed"] if st else None
     if specimen.diameter > barset.incident.diameter:
         raise InputError(
             f"specimen diameter {specimen.diameter*1e3:g} mm exceeds the bar diameter "
@@ -743,7 +759,7 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
             raise InputError(f"{mapped} further {bar} channels, but the bar set has {present} further station(s) "
                              f"on the {bar} bar", f"{source}: record.{bar}_stations")
     return Shot(name=str(data.get("name", Path(source).stem)), barset=barset, specimen=specimen,
-                record=record, analysis=analysis, source=source)
+                record=record, analysis=analysis, source=source, striker_speed=speed)
 
 
 def load_shot(path) -> Shot:

@@ -29,6 +29,36 @@ BAR_STRESS_WARNING = 0.90
 #: Time over which R(t) is averaged before the equilibrium test [s]: single-sample recorder noise must not
 #: break equilibrium, while the ring-up of a specimen transit (a microsecond and more) is not smoothed away.
 EQUILIBRIUM_AVERAGING = 0.25e-6
+#: Chance that noise alone carries R(t) outside its band somewhere in a sound shot's loading (the band's
+#: coverage, shared over the loading's independent noise samples: Sidak 1967).
+EQUILIBRIUM_FALSE_ALARM = 0.01
+#: Smallest share of the loading that must be in equilibrium for a shot to be valid: below it the valid part
+#: is the end of the loading, after the yield point and most of the test (Davies & Hunter 1963, from memory:
+#: equilibrium after a few transits, early in the test).
+MIN_VALID_FRACTION = 0.5
+#: Fewest specimen wave transits before equilibrium that physics allows (a force must cross the specimen
+#: before the back face feels it; a few transits are usual: Davies & Hunter 1963; Ravichandran & Subhash 1994).
+MIN_EQUILIBRIUM_TRANSITS = 1.0
+#: Apparent (fitted) specimen modulus above this multiple of the given one: the strain is too small
+#: (a Hopkinson-bar modulus is lower than the true one, never much higher: common practice).
+MODULUS_EXCESS = 1.5
+#: Front/back force lag over the rise beyond [0, transit] [s]: warning above the first, error above the second
+#: (a 10 mm error in a gauge distance on steel bars is 2 us).
+ALIGNMENT_WARNING, ALIGNMENT_ERROR = 0.6e-6, 1.5e-6
+#: Largest lead of the reflected wave's rise over the incident wave's at the front face [s] (a reflection
+#: starts with its incident wave; the margin covers the two waves' different shapes: common practice).
+REFLECTED_LEAD = 2.0e-6
+#: Steady back/front force ratio over the loading beyond which a scale is wrong (common practice).
+FORCE_RATIO_LIMIT = 1.2
+#: Measured incident peak over the striker's prediction: outside the first pair a warning, outside the second
+#: an error (a plastic pulse shaper lowers the peak; nothing raises it).
+STRIKER_WARNING, STRIKER_ERROR = (0.85, 1.10), (0.55, 1.10)
+#: Relative difference between a bar's modulus and rho c0^2 of its measured wave speed that earns a flag
+#: (warning; error above the second).
+MODULUS_SPEED_WARNING, MODULUS_SPEED_ERROR = 0.02, 0.05
+#: A pulse's top held within noise of one level over this share of the pulse, and this share of its top 10 %,
+#: is a flat top (an amplifier saturating below the recorder's range).
+FLAT_TOP_SHARE, FLAT_TOP_CORE = 0.15, 0.7
 
 
 @dataclass(frozen=True)
@@ -95,9 +125,10 @@ def equilibrium_onset(ratio: ArrayLike, region: tuple[int, int], threshold: floa
         Equilibrium factor R(t) [1] (NaN where the forces are too small).
     region : (int, int)
         Half-open index range (the loading part).
-    threshold : float
+    threshold : float or array_like
         Largest |R| counted as equilibrium; 0.05 after Ravichandran &
-        Subhash (1994), J. Am. Ceram. Soc. 77:263–267.
+        Subhash (1994), J. Am. Ceram. Soc. 77:263–267; or one limit per
+        sample (the threshold widened by the noise, :func:`equilibrium_limit`).
 
     Returns
     -------
@@ -106,11 +137,98 @@ def equilibrium_onset(ratio: ArrayLike, region: tuple[int, int], threshold: floa
     """
     a, b = region
     r = np.asarray(ratio, dtype=float)[a:b]
-    bad = ~(np.abs(r) <= threshold)  # NaN counts as not in equilibrium
+    limit = np.asarray(threshold, dtype=float)
+    if limit.ndim:
+        limit = limit[a:b]
+    bad = ~(np.abs(r) <= limit)  # NaN counts as not in equilibrium
     if bad.size == 0 or bad[-1]:
         return None
     idx = np.flatnonzero(bad)
     return a + (int(idx[-1]) + 1 if idx.size else 0)
+
+
+def equilibrium_ratio_uncertainty(force_front: ArrayLike, force_back: ArrayLike, u_front: float,
+                                  u_back: float) -> np.ndarray:
+    """Standard uncertainty of R = 2 (F1 - F2) / (F1 + F2) from independent noise on the face forces.
+
+    The GUM's law of propagation for uncorrelated inputs, first order
+    (JCGM 100:2008, eq. 10): u(R)^2 = (dR/dF1)^2 u(F1)^2 + (dR/dF2)^2 u(F2)^2
+    with dR/dF1 = 4 F2 / (F1 + F2)^2 and dR/dF2 = -4 F1 / (F1 + F2)^2.
+
+    Parameters
+    ----------
+    force_front, force_back : array_like
+        Face forces F1, F2 [N].
+    u_front, u_back : float
+        Standard uncertainties of F1 and F2 from noise [N].
+
+    Returns
+    -------
+    ndarray
+        u(R) [1] (inf where F1 + F2 = 0).
+
+    References
+    ----------
+    .. [1] JCGM 100:2008, *Evaluation of measurement data — Guide to the
+       expression of uncertainty in measurement* (GUM), sec. 5.1.2, eq. (10).
+    """
+    f1 = np.asarray(force_front, dtype=float)
+    f2 = np.asarray(force_back, dtype=float)
+    s = f1 + f2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        u = 4.0 * np.sqrt((f2 * u_front) ** 2 + (f1 * u_back) ** 2) / (s * s)
+    return np.where(s != 0, u, np.inf)
+
+
+def coverage_factor(n_independent: float, false_alarm: float = EQUILIBRIUM_FALSE_ALARM) -> float:
+    """Coverage factor k so that n independent Gaussian samples all stay within +-k sigma with probability
+    1 - ``false_alarm``: k = Phi^-1(1 - (1 - (1 - alpha)^(1/n)) / 2) (Sidak 1967).
+
+    References
+    ----------
+    .. [1] Z. Sidak, "Rectangular confidence regions for the means of
+       multivariate normal distributions", J. Am. Stat. Assoc. 62, 626-633
+       (1967), doi:10.1080/01621459.1967.10482935.
+    """
+    from statistics import NormalDist  # Wichura's AS 241: full double precision in the tails, no scipy import
+
+    n = max(float(n_independent), 1.0)
+    per_sample = -math.expm1(math.log1p(-false_alarm) / n)  # 1 - (1 - alpha)^(1/n), exact for small alpha
+    return float(-NormalDist().inv_cdf(0.5 * per_sample))
+
+
+def equilibrium_limit(u_ratio: ArrayLike, threshold: float, k: float) -> np.ndarray:
+    """The limit |R| is tested against at each sample: the threshold widened by k standard uncertainties."""
+    return threshold + k * np.asarray(u_ratio, dtype=float)
+
+
+def alignment_lag(force_front: ArrayLike, force_back: ArrayLike, dt: float) -> float:
+    """Lag of the back-face force behind the front-face force over a rise [s].
+
+    Least squares of F1 - F2 = lag * dF/dt (F the mean force): to first
+    order in the lag, F2(t) = F1(t - lag). In a sound shot the back face
+    lags by less than a specimen transit; a wave carried by a wrong distance
+    or speed shifts it by the error (a gauge 10 mm off on steel bars: 2 us).
+
+    Parameters
+    ----------
+    force_front, force_back : array_like
+        F1, F2 over the rise [N].
+    dt : float
+        Sample interval [s].
+
+    Returns
+    -------
+    float
+        [s]; NaN for fewer than 3 samples or a flat force.
+    """
+    f1 = np.asarray(force_front, dtype=float)
+    f2 = np.asarray(force_back, dtype=float)
+    if f1.size < 3:
+        return math.nan
+    d = np.gradient(0.5 * (f1 + f2), dt)
+    den = float(np.dot(d, d))
+    return float(np.dot(f1 - f2, d) / den) if den > 0 else math.nan
 
 
 def rate_plateau(strain_rate: ArrayLike, mask: ArrayLike) -> dict:
@@ -309,19 +427,24 @@ class Assessment:
     results : dict
         Scalars, units in the keys.
     flags : list of Flag
+    limit : ndarray
+        The limit |R| was tested against at each sample [1]: the threshold
+        widened by k u(R).
     """
 
     valid: np.ndarray
     equilibrium_ratio: Optional[np.ndarray] = None
     results: dict = field(default_factory=dict)
     flags: list = field(default_factory=list)
+    limit: Optional[np.ndarray] = None
 
 
 def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike, force_back: ArrayLike,
                  strain: ArrayLike, stress: ArrayLike, *, dt: float,
                  threshold=EQUILIBRIUM_THRESHOLD, yield_offset=0.002, specimen_modulus=None,
-                 specimen_transit=None, averaging=EQUILIBRIUM_AVERAGING):
-    """Judge a reduced curve: loading part, equilibrium, strain-rate plateau and yield point.
+                 specimen_transit=None, averaging=EQUILIBRIUM_AVERAGING, force_noise=(0.0, 0.0),
+                 correlation_time=None, usable=None):
+    """Judge a reduced curve: loading part, equilibrium against the noise, strain-rate plateau and yield point.
 
     Parameters
     ----------
@@ -349,6 +472,18 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
         single-sample recorder noise does not break equilibrium while the
         ring-up of a specimen transit (a microsecond and more) is not
         smoothed away.
+    force_noise : (float, float)
+        Standard uncertainties of F1 and F2 from the records' noise [N]; R is
+        tested against the threshold widened by k u(R)
+        (:func:`equilibrium_ratio_uncertainty`, :func:`coverage_factor`), so
+        noise alone does not break equilibrium.
+    correlation_time : float, optional
+        Time over which the forces' noise is correlated [s] (about half the
+        low-pass's period); with the averaging it sets how many independent
+        noise samples the loading holds (``dt`` when None).
+    usable : array_like of bool, optional
+        Samples where every wave has its full weight (outside the window's
+        closing taper); the valid part stays inside them.
 
     Returns
     -------
@@ -362,33 +497,67 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
 
     fmean = 0.5 * (f1 + f2)
     ratio = equilibrium_ratio(f1, f2, floor=0.05 * max(float(np.max(fmean)), 1e-30) if fmean.size else 0.0)
-    ratio_avg = moving_average(ratio, max(1, round(averaging / dt)))
+    n_avg = max(1, round(averaging / dt))
+    ratio_avg = moving_average(ratio, n_avg)
+    u_ratio = equilibrium_ratio_uncertainty(moving_average(f1, n_avg), moving_average(f2, n_avg), *force_noise)
     out = Assessment(valid=np.zeros(tau.size, dtype=bool), equilibrium_ratio=ratio_avg)
     res, flags = out.results, out.flags
     region = loading_region(rate, fmean)
+    if region is not None and usable is not None:  # the valid part stays where every wave has its full weight
+        full = np.flatnonzero(np.asarray(usable, dtype=bool))
+        a, b = (max(region[0], int(full[0])), min(region[1], int(full[-1]) + 1)) if full.size else (0, 0)
+        region = (a, b) if b - a > 1 else None
     onset = None
+    k = 0.0
+    out.limit = np.full(tau.size, float(threshold))
     if region is None:
         flags.append(Flag("no_loading", "error", "no loading found (no positive strain rate and force)"))
     else:
-        onset = equilibrium_onset(ratio_avg, region, threshold)
+        span = (region[1] - region[0]) * dt
+        if any(force_noise):
+            k = coverage_factor(span / max(correlation_time or dt, averaging, dt))
+        out.limit = equilibrium_limit(u_ratio, threshold, k)
+        res["equilibrium_coverage_factor"] = k
+        # where the forces are still small the band is too wide to show anything: the valid part cannot start
+        # where the band is wider than the threshold and than twice its median over the loading
+        band = k * u_ratio
+        wide = max(threshold, 2.0 * float(np.nanmedian(band[region[0]:region[1]])))
+        tested = np.where(band <= wide, out.limit, -1.0)  # a limit below zero: not in equilibrium there
+        onset = equilibrium_onset(ratio_avg, region, tested)
         if onset is None:
+            last = region[1] - 1
             flags.append(Flag("no_equilibrium", "error",
-                              f"the face forces never settle within {100 * threshold:.0f}% of each "
-                              f"other during loading (|R| at the end of loading "
-                              f"{abs(ratio_avg[region[1] - 1]):.2f}): the specimen is not in equilibrium"))
+                              f"the face forces never settle within {100 * threshold:.0f}% of each other (widened "
+                              f"by the noise) during loading (|R| at the end of loading {abs(ratio_avg[last]):.2f}, "
+                              f"limit there {out.limit[last]:.2f}): the specimen is not in equilibrium"))
         else:
             out.valid[onset:region[1]] = True
             res["equilibrium_from_time_us"] = float(tau[onset] * 1e6)
             res["equilibrium_from_strain"] = float(strain[onset])
+            res["equilibrium_R_noise"] = float(np.median(u_ratio[onset:region[1]]))
             if specimen_transit:
                 res["specimen_transit_time_us"] = specimen_transit * 1e6
                 res["equilibrium_transits"] = float(tau[onset] / specimen_transit)
+                tight = out.limit[onset] <= 2 * threshold  # the band is narrow enough to date the onset
+                if tight and res["equilibrium_transits"] < MIN_EQUILIBRIUM_TRANSITS:
+                    flags.append(Flag("equilibrium_too_soon", "warning",
+                                      f"equilibrium after {res['equilibrium_transits']:.2f} specimen transits "
+                                      f"({specimen_transit * 1e6:.2f} us each): a force cannot cross the specimen "
+                                      f"that fast; check the specimen length, modulus and density"))
             loading_span = tau[region[1] - 1] - tau[region[0]]
             res["valid_fraction_of_loading"] = float((region[1] - onset) / max(region[1] - region[0], 1))
-            if res["valid_fraction_of_loading"] < 0.5:
-                flags.append(Flag("short_equilibrium", "warning",
+            if res["valid_fraction_of_loading"] < MIN_VALID_FRACTION:
+                flags.append(Flag("short_equilibrium", "error",
                                   f"equilibrium holds over only {100 * res['valid_fraction_of_loading']:.0f}% "
-                                  f"of the {loading_span * 1e6:.0f} us loading"))
+                                  f"of the {loading_span * 1e6:.0f} us loading (at least "
+                                  f"{100 * MIN_VALID_FRACTION:.0f}% needed): the valid part is the end of the loading, "
+                                  f"not the test"))
+            spread = float(np.median(band[onset:region[1]]))
+            if spread > threshold:
+                flags.append(Flag("equilibrium_noisy", "warning",
+                                  f"the records' noise spreads R(t) by +-{spread:.2f} (k = {k:.1f}), more than the "
+                                  f"{threshold:.2f} threshold: equilibrium is not shown, only not disproved "
+                                  f"(lower the noise or filter)"))
         res["loading_from_time_us"] = float(tau[region[0]] * 1e6)
         res["loading_to_time_us"] = float(tau[region[1] - 1] * 1e6)
     valid = out.valid
@@ -410,23 +579,244 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
     res["max_strain"] = float(np.max(strain))
     res["peak_strain_rate_per_s"] = float(np.max(rate))
     if region is not None:
-        a, b = region
-        y = offset_yield(strain[a:b], stress[a:b], yield_offset, specimen_modulus)
-        if y is None:
-            flags.append(Flag("no_yield_point", "info", "no yield point found by the offset method"))
-        else:
-            res["yield_strain"] = y["yield_strain"]
-            res["yield_stress_MPa"] = y["yield_stress"] / 1e6
-            res["elastic_modulus_GPa"] = y["modulus"] / 1e9
-            res["elastic_modulus_source"] = y["modulus_source"]
-            res["yield_offset"] = yield_offset
-            # the yield point's time: the first sample of the loading part at or past its strain
-            j = a + int(np.argmax(strain[a:b] >= y["yield_strain"]))
-            if onset is None or j < onset:
-                flags.append(Flag("yield_before_equilibrium", "warning",
-                                  "the yield point lies before force equilibrium: yield stress and modulus are "
-                                  "unreliable"))
+        _yield_and_modulus(out, strain, stress, region, onset, yield_offset, specimen_modulus)
     return out
+
+
+def _yield_and_modulus(out, strain, stress, region, onset, yield_offset, specimen_modulus) -> None:
+    """The offset yield point, and the curve's elastic slope against the specimen's modulus."""
+    res, flags = out.results, out.flags
+    a, b = region
+    y = offset_yield(strain[a:b], stress[a:b], yield_offset, specimen_modulus)
+    if y is None:
+        flags.append(Flag("no_yield_point", "info", "no yield point found by the offset method"))
+    else:
+        res["yield_strain"] = y["yield_strain"]
+        res["yield_stress_MPa"] = y["yield_stress"] / 1e6
+        res["elastic_modulus_GPa"] = y["modulus"] / 1e9
+        res["elastic_modulus_source"] = y["modulus_source"]
+        res["yield_offset"] = yield_offset
+        # the yield point's time: the first sample of the loading part at or past its strain
+        j = a + int(np.argmax(strain[a:b] >= y["yield_strain"]))
+        if onset is None or j < onset:
+            flags.append(Flag("yield_before_equilibrium", "warning",
+                              "the yield point lies before force equilibrium: yield stress and modulus are "
+                              "unreliable"))
+    win = elastic_window(strain[a:b], stress[a:b])
+    if win is None or onset is None or onset > a + win[1]:  # out of equilibrium there, the slope means nothing
+        return
+    slope = float(np.polyfit(strain[a:b][win[0]:win[1]], stress[a:b][win[0]:win[1]], 1)[0])
+    res["apparent_modulus_GPa"] = slope / 1e9
+    if specimen_modulus and slope > MODULUS_EXCESS * specimen_modulus:
+        flags.append(Flag("modulus_too_high", "error",
+                          f"the curve's elastic slope is {slope / 1e9:.0f} GPa, {slope / specimen_modulus:.1f} x the "
+                          f"specimen's modulus ({specimen_modulus / 1e9:.0f} GPa): the strain is too small; check the "
+                          f"specimen length (or the gauge distances and wave speeds)"))
+
+
+# --------------------------------------------------------------------------- consistency checks
+def striker_flag(peak_strain: float, striker_speed: float, bar_wave_speed: float, bar_impedance: float,
+                 striker_impedance: float) -> tuple[Optional[Flag], float]:
+    """The incident pulse's peak against what the striker can give.
+
+    A striker of impedance Z_s hitting a bar of impedance Z_b at speed v
+    sends the strain v / c_b * Z_s / (Z_s + Z_b), v / (2 c_b) for a striker
+    of the bar's material and diameter (Kolsky 1953; Graff 1975, sec. 2.2).
+    A pulse shaper that deforms plastically lowers the peak; nothing raises it.
+
+    Parameters
+    ----------
+    peak_strain : float
+        Plateau of the incident pulse [1] (the median of its top fifth).
+    striker_speed : float
+        Impact speed [m/s].
+    bar_wave_speed : float
+        Incident bar wave speed c_b [m/s].
+    bar_impedance, striker_impedance : float
+        rho c A of the bar and of the striker [kg/s].
+
+    Returns
+    -------
+    flag : Flag or None
+    ratio : float
+        Measured over predicted peak [1].
+
+    References
+    ----------
+    .. [1] H. Kolsky, *Stress Waves in Solids*, Clarendon Press, Oxford (1953).
+    .. [2] K. F. Graff, *Wave Motion in Elastic Solids*, Ohio State Univ.
+       Press (1975), sec. 2.2 (impact of rods).
+    """
+    expected = striker_speed / bar_wave_speed * striker_impedance / (striker_impedance + bar_impedance)
+    ratio = peak_strain / expected
+    text = (f"the incident pulse peaks at {peak_strain * 1e6:.0f} microstrain, {ratio:.2f} x the "
+            f"{expected * 1e6:.0f} microstrain a {striker_speed:.2f} m/s striker gives")
+    if ratio > STRIKER_ERROR[1]:
+        return Flag("striker_mismatch", "error", text + ": more than the impact can produce; check the incident "
+                    "gauge's gain, bridge, gauge factor and excitation (and the striker speed)"), ratio
+    if ratio < STRIKER_ERROR[0]:
+        return Flag("striker_mismatch", "error", text + ": far less than the impact gives; check the incident "
+                    "gauge's gain, bridge, gauge factor and excitation (and the striker speed)"), ratio
+    if ratio < STRIKER_WARNING[0]:
+        return Flag("striker_mismatch", "warning", text + ": a plastically deforming pulse shaper, a poor contact, "
+                    "or a gain or bridge setting"), ratio
+    return None, ratio
+
+
+def modulus_speed_flag(modulus: float, density: float, wave_speed: float, bar_name: str) -> Optional[Flag]:
+    """A bar's modulus against rho c0^2 of its measured wave speed (c0 = sqrt(E/rho), Kolsky 1949).
+
+    The reduction takes the forces from E and the time shifts from c0; the
+    two must belong to one bar.
+    """
+    implied = density * wave_speed**2
+    rel = modulus / implied - 1.0
+    if abs(rel) <= MODULUS_SPEED_WARNING:
+        return None
+    return Flag("modulus_speed_mismatch", "error" if abs(rel) > MODULUS_SPEED_ERROR else "warning",
+                f"{bar_name} bar: E = {modulus / 1e9:.1f} GPa but rho c0^2 = {implied / 1e9:.1f} GPa from the "
+                f"measured {wave_speed:.0f} m/s and {density:.0f} kg/m^3 ({100 * rel:+.1f}%): the wave speed, "
+                f"the modulus or the density is wrong")
+
+
+def flat_top_flag(signal: ArrayLike, sigma: float, dt: float, channel: str) -> Optional[Flag]:
+    """A pulse whose top is held at one level, within the noise, for a long time: saturation below full scale.
+
+    The pulse (baseline-free, compression positive, the window of the pulse)
+    is smoothed over 1 us; its top level is the median of the smoothed
+    samples within 6 noise units of the maximum. A top is flat when the
+    longest run within 3 noise units of that level lasts :data:`FLAT_TOP_SHARE`
+    of the pulse or more, and :data:`FLAT_TOP_CORE` of the longest run above
+    90 % of it: a rounded top only touches its level, a saturated one sits on
+    it between two corners.
+
+    Parameters
+    ----------
+    signal : array_like
+        The pulse [V].
+    sigma : float
+        The channel's noise standard deviation [V].
+    dt : float
+        Sample interval [s].
+    channel : str
+        For the message.
+    """
+    from .conditioning import running_mean
+
+    x = np.asarray(signal, dtype=float)
+    if x.size < 20 or not np.max(x) > 0:
+        return None
+    n_s = max(4, int(round(1e-6 / dt)))
+    sm = running_mean(x, n_s)
+    s_s = max(sigma, 1e-12 * float(np.max(x))) / math.sqrt(n_s)
+    level = float(np.median(sm[sm >= np.max(sm) - 6 * s_s]))
+    core, wide = _longest_run(sm >= level - 3 * s_s), _longest_run(sm >= 0.9 * level)
+    if core >= FLAT_TOP_SHARE * x.size and core >= FLAT_TOP_CORE * max(wide, 1):
+        return Flag("flat_top", "warning",
+                    f"the {channel} pulse sits flat at {level:.3g} V for {core * dt * 1e6:.0f} us, within the noise: "
+                    f"an amplifier or bridge saturating below the recorder's range? (check the gain and the "
+                    f"conditioner's range)")
+    return None
+
+
+def _longest_run(mask: np.ndarray) -> int:
+    edges = np.flatnonzero(np.diff(np.concatenate(([0], mask.astype(np.int8), [0]))))
+    return int(np.max(edges[1::2] - edges[0::2])) if edges.size else 0
+
+
+def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optional[float], bar_wave_speed: float,
+                    waves: Optional["FaceWaves"] = None) -> tuple[list, dict]:
+    """The waves at the faces: do they arrive in the order and at the times physics allows?
+
+    The back-face force lags the front-face force by less than a specimen
+    transit (:func:`alignment_lag`, over the rise from t = 0 to 60 % of the
+    peak force); and the reflected wave cannot rise before the incident wave
+    it reflects (each read where it first reaches a tenth of its peak, so the
+    same low-pass's ringing shifts both alike): one that does was carried too
+    far back, the incident gauge distance being too long.
+
+    Returns
+    -------
+    flags : list of Flag
+    results : dict
+        ``force_lag_us`` and ``reflected_lead_us``.
+    """
+    flags, results = [], {}
+    t, f1, f2 = curves.time, curves.force_front, curves.force_back
+    fm = 0.5 * (f1 + f2)
+    i0 = int(np.searchsorted(t, 0.0))
+    if not fm.size or not np.max(fm) > 0:
+        return flags, results
+    i1 = i0 + int(np.argmax(fm[i0:] >= 0.6 * np.max(fm)))
+    if i1 - i0 < 5:
+        return flags, results
+    lag = alignment_lag(f1[i0:i1], f2[i0:i1], dt)
+    results["force_lag_us"] = lag * 1e6
+    top = specimen_transit if specimen_transit else 2e-6
+    excess = -lag if lag < 0 else lag - top
+    if excess > ALIGNMENT_WARNING + 2 * dt:
+        where = (f"leads the front-face force by {-lag * 1e6:.1f} us" if lag < 0 else
+                 f"lags the front-face force by {lag * 1e6:.1f} us, more than "
+                 + (f"a specimen transit ({top * 1e6:.1f} us)" if specimen_transit else "2 us"))
+        flags.append(Flag("waves_misaligned", "error" if excess > ALIGNMENT_ERROR else "warning",
+                          f"over the rise the back-face force {where}: the waves are misaligned; check the gauge "
+                          f"distances and the bars' wave speeds (a 10 mm error in a gauge distance is "
+                          f"{0.01 / bar_wave_speed * 1e6:.1f} us here)"))
+    if waves is not None:
+        ti = _first_crossing(waves.incident, 0.1, dt)
+        tr = _first_crossing(-waves.reflected, 0.1, dt)  # the same running mean delays both alike
+        if ti is not None and tr is not None:
+            results["reflected_lead_us"] = (ti - tr) * 1e6
+            if ti - tr > REFLECTED_LEAD + 2 * dt:
+                flags.append(Flag("reflected_early", "error",
+                                  f"the reflected wave reaches a tenth of its peak {(ti - tr) * 1e6:.1f} us before "
+                                  f"the incident wave reaches a tenth of its own: a reflection cannot come before the "
+                                  f"wave it reflects; check the incident gauge distance (too long?) and the incident "
+                                  f"bar's wave speed"))
+    return flags, results
+
+
+def _first_crossing(signal: np.ndarray, fraction: float, dt: float) -> Optional[float]:
+    """Time [s, from the window's start] where a signal, averaged over 1 us (so noise does not cross for it),
+    first rises through ``fraction`` of its peak."""
+    from .conditioning import running_mean
+
+    x = running_mean(np.asarray(signal, dtype=float), max(1, round(1e-6 / dt)))
+    if not x.size or not np.max(x) > 0:
+        return None
+    level = fraction * float(np.max(x))
+    j = int(np.argmax(x >= level))
+    if j == 0:
+        return 0.0
+    return (j - 1 + (level - x[j - 1]) / (x[j] - x[j - 1])) * dt
+
+
+def force_ratio_flag(curves: "KolskyCurves", region: Optional[tuple]) -> tuple[Optional[Flag], Optional[float]]:
+    """A steady ratio of back- to front-face force over the loading's second half: a scale error.
+
+    In a sound shot the forces agree once the specimen has rung up; a wrong
+    gain, bridge, gauge factor, excitation, bar modulus or diameter on one
+    side scales one force throughout.
+    """
+    if region is None:
+        return None, None
+    a, b = region
+    a = a + (b - a) // 2
+    if b - a < 5:
+        return None, None
+    f1, f2 = curves.force_front[a:b], curves.force_back[a:b]
+    if not (np.median(f1) > 0 and np.median(f2) > 0):
+        return None, None
+    q = float(np.median(f2) / np.median(f1))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lo, hi = np.nanpercentile(f2 / f1, [25, 75])
+    steady = (hi - lo) < 0.1 * q  # a scale error is a steady ratio; a specimen out of equilibrium is not
+    if steady and max(q, 1 / q) > FORCE_RATIO_LIMIT:
+        return Flag("force_mismatch", "error",
+                    f"the back-face force is {q:.2f} x the front-face force over the second half of the loading: a "
+                    f"scale error; check each gauge's gain, bridge, gauge factor and excitation, and the bars' "
+                    f"moduli and diameters"), q
+    return None, q
 
 
 # --------------------------------------------------------------------------- stage 5: the verdict
@@ -445,12 +835,17 @@ class Verdict:
         Scalar results, units in the keys.
     flags : tuple of Flag
         In the order found.
+    equilibrium_limit : ndarray or None
+        The limit |R| was tested against at each sample [1]: the threshold
+        widened by k standard uncertainties of R propagated from the records'
+        noise.
     """
 
     valid: np.ndarray
     equilibrium_ratio: np.ndarray
     results: dict
     flags: tuple
+    equilibrium_limit: Optional[np.ndarray] = None
 
     @property
     def is_valid(self) -> bool:
@@ -459,7 +854,7 @@ class Verdict:
 
 
 def record_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", barset: "BarSet") -> list:
-    """Flags about the record: waves overlapping at the gauge, a truncated record, no transmitted pulse.
+    """Flags about the record: waves overlapping, a truncated record or window, the transmitted pulse, glitches.
 
     Parameters
     ----------
@@ -477,6 +872,9 @@ def record_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves"
     bi = barset.incident
     duration = plan.duration
     flags.append(overlap_flag(duration, barset.incident_gauge.distance, bi.wave_speed, "incident"))
+    if flags[-1] is None:
+        flags.append(window_overlap_flag(strains.foot, duration, plan, barset.incident_gauge.distance / bi.wave_speed,
+                                         dt))
     t_end = float(strains.time[-1])
     if plan.k1 > n:
         flags.append(Flag("record_truncated", "error",
@@ -484,21 +882,89 @@ def record_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves"
                           f"({(t0 + (plan.k1 - 1) * dt) * 1e6:.1f} us)"))
     times = plan.gauge_window_times(t0, dt)
     passed = max(times["transmitted"][1], times["reflected"][1])
-    if (passed > t_end or plan.length < duration) and plan.k1 <= n:
+    cut = plan.length < duration and plan.source != "given"  # an automatic window shortened by the record's end
+    if (passed > t_end or cut) and plan.k1 <= n:
         flags.append(Flag("record_truncated", "error",
                           f"the record ends at {t_end * 1e6:.1f} us, before the transmitted (or reflected) pulse "
                           f"has passed its gauge (the {duration * 1e6:.0f} us pulse needs the record to "
                           f"{(passed + max(duration - plan.length, 0)) * 1e6:.1f} us)"))
-    et_peak = float(np.max(waves.transmitted)) if waves.transmitted.size else 0.0
-    if et_peak < max(8 * strains.noise_transmitted, 0.01 * float(np.max(waves.incident))):
-        flags.append(Flag("no_transmitted_pulse", "error",
-                          f"no transmitted pulse found (peak {et_peak:.3g} against noise "
-                          f"{strains.noise_transmitted:.3g}): check the transmitted channel and the specimen contact"))
+    flags.append(foot_gap_flag(strains.incident, strains.foot, strains.noise_incident, dt, strains.foot_source))
+    if plan.source == "given" and plan.length < duration:
+        flags.append(Flag("window_short", "warning",
+                          f"the given window_length ({plan.length * 1e6:.0f} us) is shorter than the "
+                          f"{duration * 1e6:.0f} us pulse: the curve stops before the unloading"))
+    tra = strains.pulses.get("transmitted")
+    if tra is not None and tra[1] < 0:
+        p = barset.transmitted_gauge.polarity
+        flags.append(Flag("transmitted_polarity", "error",
+                          f"the transmitted pulse is tensile (a {'negative' if p > 0 else 'positive'} voltage with the "
+                          f"transmitted gauge's polarity {p:+d}): check the polarity of the transmitted gauge"))
+    else:
+        et_peak = float(np.max(waves.transmitted)) if waves.transmitted.size else 0.0
+        if et_peak < max(8 * strains.noise_transmitted, 0.01 * float(np.max(waves.incident))):
+            flags.append(Flag("no_transmitted_pulse", "error",
+                              f"no transmitted pulse found (peak {et_peak:.3g} against noise "
+                              f"{strains.noise_transmitted:.3g}): check the transmitted channel and the specimen "
+                              f"contact"))
+    for name in ("incident", "transmitted"):
+        count = strains.conditioning.get(name, {}).get("glitches", 0)
+        if count:
+            first = strains.conditioning[name]["glitch_times_us"][0]
+            flags.append(Flag("glitches_repaired", "info" if count <= 10 else "warning",
+                              f"{count} single-sample glitch{'es' if count > 1 else ''} on the {name} channel "
+                              f"repaired (first at {first:.1f} us)" + ("; check the cable and its shield"
+                                                                         if count > 10 else "")))
     return [f for f in flags if f is not None]
 
 
+def foot_gap_flag(incident: ArrayLike, foot: float, sigma: float, dt: float, source: str) -> Optional[Flag]:
+    """The incident pulse must rise from its foot: a long return to the baseline between the foot and the
+    pulse's half height means the foot belongs to something else (pickup, a given ``incident_start`` too early).
+    """
+    x = np.asarray(incident, dtype=float)
+    f0 = max(int(math.floor(foot)), 0)
+    seg = x[f0:]
+    if seg.size < 3 or not np.max(seg) > 0:
+        return None
+    half = int(np.argmax(seg >= 0.5 * np.max(seg)))
+    low = max(3.0 * sigma, 0.01 * float(np.max(seg)))
+    gap = _longest_run(seg[:half] <= low) * dt
+    if gap > max(2e-6, 20 * dt):
+        where = "the given incident_start" if source == "given" else "the incident foot found"
+        return Flag("foot_gap", "warning",
+                    f"{where} is followed by {gap * 1e6:.1f} us at the baseline before the pulse rises: pickup or "
+                    f"a spike taken for the foot? The time origin is then wrong (set incident_start)")
+    return None
+
+
+def window_overlap_flag(foot: float, duration: float, plan: "WindowPlan", gauge_travel: float,
+                        dt: float) -> Optional[Flag]:
+    """The incident pulse, and the incident window with its lead and taper, must end before the reflected window begins.
+
+    At the incident gauge the reflected window opens (its lead and taper
+    first) before the reflected wave arrives, 2 d / c0 after the incident
+    foot; an incident pulse still running then is cut into the reflected
+    wave as a spurious wave before t = 0. And an incident window running past
+    that arrival holds the reflected wave.
+    """
+    r0 = plan.gauge_spans["reflected"][0]
+    inc_end = foot + duration / dt
+    if inc_end > r0:
+        return Flag("waves_overlap", "error",
+                    f"the incident pulse ends {(inc_end - r0) * dt * 1e6:.1f} us after the reflected wave's window "
+                    f"opens at the incident gauge (its lead and taper): the incident tail would enter the reflected "
+                    f"wave")
+    arrival = foot + 2 * gauge_travel / dt
+    if plan.gauge_spans["incident"][1] > arrival:
+        return Flag("waves_overlap", "error",
+                    f"the incident window runs {(plan.gauge_spans['incident'][1] - arrival) * dt * 1e6:.1f} us past "
+                    f"the reflected wave's arrival at the incident gauge: shorten window_length")
+    return None
+
+
 def bar_flags(strains: "GaugeStrains", plan: "WindowPlan", barset: "BarSet") -> tuple[list, dict]:
-    """Flags about the bars and the channels: bar stress against yield, clipping, far-end echo of the transmitted bar.
+    """Flags about the bars and the channels: bar stress against yield, clipping and flat tops, modulus against
+    wave speed, far-end echo of the transmitted bar.
 
     Returns
     -------
@@ -517,11 +983,22 @@ def bar_flags(strains: "GaugeStrains", plan: "WindowPlan", barset: "BarSet") -> 
         pk = float(np.max(np.abs(chan[n_base:last]))) if last > n_base else 0.0
         results[f"peak_bar_stress_{name}_MPa"] = bar.modulus * pk / 1e6
         flags.append(bar_stress_flag(pk, bar.modulus, bar.material.yield_strength, name))
+        if bar.measured_wave_speed:
+            flags.append(modulus_speed_flag(bar.modulus, bar.material.density, bar.wave_speed, name))
     # a channel can only hit its rail while a pulse passes: check the pulse windows
     w0 = max(int(times["incident"][0] / dt - t0 / dt), 0)
     w1 = min(int(max(w[1] for w in times.values()) / dt - t0 / dt) + 1, n)
-    for name, volts, gauge in (("incident", strains.volts_incident, gi), ("transmitted", strains.volts_transmitted, gt)):
-        flags.append(clipping_flag(volts[w0:w1], name, gauge.full_scale, duration / dt))
+    n_pulse = max(int(duration / dt), 1)
+    for name, volts, base, gauge, start in (
+            ("incident", strains.volts_incident, strains.baseline_incident, gi, strains.foot),
+            ("transmitted", strains.volts_transmitted, strains.baseline_transmitted, gt,
+             plan.gauge_spans["transmitted"][0])):
+        clip = clipping_flag(volts[w0:w1], name, gauge.full_scale, duration / dt)
+        flags.append(clip)
+        if clip is None:  # a flat top below the recorder's range: saturation before the recorder
+            s0 = max(int(start), 0)
+            pulse = gauge.polarity * (volts - base)[s0:s0 + n_pulse + int(plan.lead / dt)]
+            flags.append(flat_top_flag(pulse, strains.conditioning.get(name, {}).get("noise_V", 0.0), dt, name))
     echo = 2 * (bt.length - gt.distance) / bt.wave_speed
     if duration > echo:
         flags.append(Flag("transmitted_overlap", "warning",
@@ -530,9 +1007,48 @@ def bar_flags(strains: "GaugeStrains", plan: "WindowPlan", barset: "BarSet") -> 
     return [f for f in flags if f is not None], results
 
 
+def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curves: "KolskyCurves",
+                      barset: "BarSet", specimen: "Specimen", region: Optional[tuple],
+                      striker_speed: Optional[float]) -> tuple[list, dict]:
+    """Checks that catch a wrong setup: front and back forces (timing and scale), the striker's pulse.
+
+    Returns
+    -------
+    flags : list of Flag
+    results : dict
+    """
+    flags, results = alignment_flags(curves, strains.dt, specimen.transit_time, barset.incident.wave_speed, waves)
+    flag, q = force_ratio_flag(curves, region)
+    flags.append(flag)
+    if q is not None:
+        results["force_ratio_back_to_front"] = q
+    striker = barset.striker
+    speed = striker_speed if striker_speed is not None else (striker.speed if striker else None)
+    if speed:
+        bi = barset.incident
+        z_striker = (striker.material.density * striker.material.bar_wave_speed * striker.area if striker
+                     else bi.impedance)
+        f0 = max(int(strains.foot), 0)
+        pulse = strains.incident[f0:f0 + max(int(plan.duration / strains.dt), 1)]
+        top = pulse[pulse >= 0.8 * np.max(pulse)]  # its plateau: a filter's or the bar's overshoot is no part
+        flag, ratio = striker_flag(float(np.median(top)), speed, bi.wave_speed, bi.impedance, z_striker)
+        flags.append(flag)
+        results["striker_speed_m_per_s"] = speed
+        results["incident_peak_over_striker"] = ratio
+    return [f for f in flags if f is not None], results
+
+
 def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curves: "KolskyCurves", barset: "BarSet",
-          specimen: "Specimen", analysis: "AnalysisOptions") -> Verdict:
-    """Stage 5: judge a reduced shot: the record (:func:`record_flags`), the curve (:func:`assess_curve`), the bars.
+          specimen: "Specimen", analysis: "AnalysisOptions", striker_speed: Optional[float] = None) -> Verdict:
+    """Stage 5: judge a reduced shot: the record (:func:`record_flags`), the curve (:func:`assess_curve`), the
+    bars (:func:`bar_flags`) and the setup's consistency (:func:`consistency_flags`).
+
+    The equilibrium test widens the threshold by the noise: each channel's
+    noise (measured over its quiet spans, after the running mean R(t) is
+    read with: :func:`averaged_noise`) gives the face forces' standard
+    uncertainties, u(F1) = E_i A_i sqrt(2) sigma_i (the incident and the
+    reflected waves, read at different times of one channel) and
+    u(F2) = E_t A_t sigma_t, propagated to R(t) (:func:`equilibrium_ratio_uncertainty`).
 
     Parameters
     ----------
@@ -543,19 +1059,71 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
         Its modulus (offset line) and transit time (transits to equilibrium).
     analysis : shpb.setup.AnalysisOptions
         ``equilibrium_threshold`` and ``yield_offset``.
+    striker_speed : float, optional
+        The shot's striker speed [m/s] (else the bar set's, if any): checks
+        the incident pulse (:func:`striker_flag`).
 
     Returns
     -------
     Verdict
     """
+    bi, bt = barset.incident, barset.transmitted
+    n_avg = max(1, round(EQUILIBRIUM_AVERAGING / waves.dt))
+    u1 = bi.modulus * bi.area * math.sqrt(2.0) * averaged_noise(strains.incident, strains.quiet_incident, n_avg,
+                                                                 strains.noise_incident)
+    u2 = bt.modulus * bt.area * averaged_noise(strains.transmitted, strains.quiet_transmitted, n_avg,
+                                               strains.noise_transmitted)
+    cutoff = strains.lowpass_cutoff
+    usable = waves.weight >= 1.0 - 1e-9 if waves.weight is not None else None
     judged = assess_curve(curves.time, curves.strain_rate, curves.force_front, curves.force_back, curves.strain,
                           curves.stress, dt=waves.dt, threshold=analysis.equilibrium_threshold,
                           yield_offset=analysis.yield_offset, specimen_modulus=specimen.modulus,
-                          specimen_transit=specimen.transit_time, averaging=EQUILIBRIUM_AVERAGING)
+                          specimen_transit=specimen.transit_time, averaging=EQUILIBRIUM_AVERAGING,
+                          force_noise=(u1, u2), correlation_time=0.5 / cutoff if cutoff else None, usable=usable)
     bflags, bresults = bar_flags(strains, plan, barset)
-    flags = separated_flags(record_flags(strains, plan, waves, barset) + judged.flags + bflags, waves)
+    # a flat top is a cut pulse only if the forces disagree; a plateau they agree with is the pulse's own
+    failed = any(f.code in ("no_equilibrium", "short_equilibrium") for f in judged.flags)
+    bflags = [_confirm_flat_top(f, failed) if f.code == "flat_top" else f for f in bflags]
+    if failed and not analysis.dispersion:
+        bflags.append(Flag("dispersion_off", "info",
+                           "the dispersion correction is off: the front-face force (incident plus reflected wave, "
+                           "each carried by a gauge distance) keeps the bars' Pochhammer-Chree ringing, which R(t) "
+                           "reads as disequilibrium; reduce with the correction on (the default)"))
+    region = _region_of(judged, curves.time)
+    cflags, cresults = consistency_flags(strains, plan, waves, curves, barset, specimen, region, striker_speed)
     return Verdict(valid=judged.valid, equilibrium_ratio=judged.equilibrium_ratio,
-                   results={**judged.results, **bresults}, flags=tuple(flags))
+                   results={**judged.results, **bresults, **cresults},
+                   flags=tuple(separated_flags(record_flags(strains, plan, waves, barset) + cflags + judged.flags
+                                               + bflags, waves)),
+                   equilibrium_limit=judged.limit)
+
+
+def averaged_noise(signal: ArrayLike, quiet: Optional[ArrayLike], n: int, default: float) -> float:
+    """Standard deviation of a channel's noise as R(t) reads it: over its quiet samples, after the same
+    ``n``-sample running mean (white noise shrinks by sqrt(n), low-passed noise hardly at all); ``default``
+    without quiet samples."""
+    if quiet is None or not np.any(quiet):
+        return default
+    from .conditioning import running_mean  # O(N): the whole record's channel
+
+    return float(np.std(running_mean(np.asarray(signal, dtype=float), n)[np.asarray(quiet, dtype=bool)]))
+
+
+def _confirm_flat_top(flag: Flag, forces_disagree: bool) -> Flag:
+    if forces_disagree:
+        return Flag(flag.code, "error", flag.message + "; the face forces disagree: the pulse was cut")
+    return Flag(flag.code, "info", flag.message.split(":")[0] + ", but the face forces agree: taken as the pulse's "
+                                                             "own plateau")
+
+
+def _region_of(judged: Assessment, time: np.ndarray) -> Optional[tuple]:
+    """The loading part's index range, from the times an assessment reported."""
+    res = judged.results
+    if "loading_from_time_us" not in res:
+        return None
+    a = int(np.searchsorted(time, res["loading_from_time_us"] * 1e-6 - 1e-12))
+    b = int(np.searchsorted(time, res["loading_to_time_us"] * 1e-6 + 1e-12))
+    return a, b
 
 
 def separated_flags(flags: list, waves: "FaceWaves") -> list:

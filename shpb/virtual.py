@@ -433,6 +433,7 @@ def shot_toml_text(shot: VirtualShot, record_file: str, barset_file: str, window
     if info.get("temperature") is not None:
         lines.append(f"temperature = {_q(info['temperature'], 'K', 1.0)}")
     lines += [f"modulus = {_q(info['modulus'], 'GPa', 1e9)}", f"density = {_q(info['density'], 'kg/m^3', 1.0)}",
+              "", "[striker]", f"speed = {_q(s.spec.striker_speed, 'm/s', 1.0, '.4g')}",
               "", "[record]", f'file = "{record_file}"', 'incident = "CH1"', 'transmitted = "CH2"', 'time = "TIME"']
     columns = station_channels(shot.record)
     for bar in ("incident", "transmitted"):

@@ -14,6 +14,12 @@ the face velocities are v1 = c_i (eps_i - eps_r), v2 = c_t eps_t, so
 With identical bars (E, A_b, c0) this is eps_r = eps_t - eps_i and
 de/dt = (2 c0 / L_s) (eps_i - eps_t).
 
+The shot files turn the dispersion correction and the low-pass off: these bars
+carry every frequency without dispersion, so the yield knee of an elastic-
+perfectly-plastic law stays a corner that a real bar, whose second mode starts
+at a few hundred kilohertz, could not deliver (the low-pass stands for that
+limit, docs/reduction.md).
+
 The ODE is integrated with Heun's method (the explicit trapezoidal rule, a
 second-order predictor-corrector) on steps of a tenth of the sample interval,
 the law updated by radial return at each stage; the waves are then laid at the
@@ -203,7 +209,7 @@ def make_shot(folder, *, law, name="synthetic", amplitude=8e-4, duration=100e-6,
     shot.write_text(
         f'name = "{name}"\nbarset = "bars.toml"\n[specimen]\nlength = "{spec_l * 1e3} mm"\n'
         f'diameter = "{spec_d * 1e3} mm"\nmaterial = "test alloy (fictional)"\n'
-        f'[record]\n{record}[analysis]\ndispersion = false\n{analysis}')
+        f'[record]\n{record}[analysis]\ndispersion = false\nlowpass = false\n{analysis}')
     truth = {"tau": tau, "strain": e, "stress": eps_t * E_t * A_t / As, "eps_i": eps_i, "eps_r": eps_r,
              "eps_t": eps_t, "c0": c0, "c_t": c_t, "t_face0": t_face0}
     return shot, truth

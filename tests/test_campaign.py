@@ -74,7 +74,7 @@ def write_campaign(folder, name, rows, flow_strains=(0.03, 0.05), extra="", outp
     toml.write_text(
         f'name = "{name} (fictional)"\nshots = "{name}.csv"\nbarset = "bars.toml"\n{extra}'
         '[record]\nincident = "CH1"\ntransmitted = "CH2"\ntime = "TIME"\n'
-        '[analysis]\ndispersion = false\n'
+        '[analysis]\ndispersion = false\nlowpass = false\n'
         f'[output]\nflow_strains = [{", ".join(str(e) for e in flow_strains)}]\n{output}')
     return toml
 

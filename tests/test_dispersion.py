@@ -318,6 +318,19 @@ def test_amplitude_factors():
         D.propagate(g, DT, 0.4, RADIUS, C0, NU, amplitude_factors=True, amplitude_limit=0.4)
 
 
+def test_amplitude_factors_do_not_amplify_above_their_limit():
+    # Tyas & Watson 2001: the factors are valid below the a/Λ where the surface strain vanishes (0.38 here), so
+    # they are applied up to the limit (a/Λ = 0.25, factor (mean/surface) (c/c0)^2 there > 1.2) and leave what
+    # lies above as it is: a tone burst at 1.5 x the limit's frequency keeps its amplitude (Fourier theory: a
+    # unit factor), to the burst's spectral leakage
+    t = np.arange(65536) * DT
+    tc = t[t.size // 2]
+    f_limit = 0.25 * 0.92175 * C0 / RADIUS   # a/Λ = 0.25 at c/c0 = 0.92175 (table above)
+    x = _gaussian(t, tc, 600e-6) * np.cos(2 * np.pi * 1.5 * f_limit * (t - tc))
+    y = D.propagate(x, DT, 0.0, RADIUS, C0, NU, amplitude_factors=True)
+    assert np.max(np.abs(y)) / np.max(np.abs(x)) == pytest.approx(1.0, abs=1e-3)
+
+
 def test_above_max_frequency_hold_and_lowpass():
     # Hold: above max_frequency the phase velocity is constant, so a narrow-band burst there
     # moves rigidly with that speed (group velocity = phase velocity for a constant c).

@@ -315,7 +315,7 @@ def test_sample_ceiling_is_checked_before_reading_and_can_be_raised(shots):
 
 
 @pytest.mark.parametrize("fault", ["swapped", "truncated"])
-def test_swapped_channels_and_cut_records_are_not_valid(shots, tmp_path, capsys, fault):
+def test_swapped_channels_and_cut_records_are_named(shots, tmp_path, capsys, fault):
     text = (shots / "F-1.toml").read_text()
     if fault == "swapped":
         text = text.replace('incident = "CH1"', 'incident = "CHX"').replace('transmitted = "CH2"',
@@ -328,10 +328,13 @@ def test_swapped_channels_and_cut_records_are_not_valid(shots, tmp_path, capsys,
         (shots / "cut.csv").write_text("\n".join(head + data) + "\n")
         text = text.replace("F-1.csv", "cut.csv")
     (shots / f"{fault}.toml").write_text(text)
-    assert main(["reduce", str(shots / f"{fault}.toml"), "--out", str(tmp_path / fault), "--no-figure"]) == 1
+    status = main(["reduce", str(shots / f"{fault}.toml"), "--out", str(tmp_path / fault), "--no-figure"])
     out = capsys.readouterr()
-    assert "NOT VALID" in out.out and "Traceback" not in out.err
-    assert "error: the record ends at" in out.out
+    assert "Traceback" not in out.err
+    if fault == "swapped":  # a setup mistake, named before anything is reduced: bad input
+        assert status == 2 and "the channels look swapped" in out.err and len(out.err.splitlines()) == 1
+    else:  # the record is read and reduced, and the verdict says why it cannot be used
+        assert status == 1 and "NOT VALID" in out.out and "error: the record ends at" in out.out
 
 
 # --------------------------------------------------------------------------- a bug

@@ -315,3 +315,32 @@ def test_time_column_unit(tmp_path):
     rec = read_record(RecordSpec(Channel(p, "CH1"), Channel(p, "CH2"), time="TIME", time_unit=1e-6))
     assert rec.dt == pytest.approx(1e-7, rel=1e-9)
     assert rec.time[-1] == pytest.approx(49e-7, rel=1e-9)
+
+
+# --------------------------------------------------------------------------- long records, checked in blocks
+# The time column of a long record is checked block by block (small temporaries whatever its length); with
+# blocks of 16 samples these 50-sample records span several. Reference: the time axis t0 + k dt with
+# dt = (t_last - t_first) / (n - 1) (the uniform sampling the readers assume; common practice), in numpy.
+@pytest.mark.parametrize("unit", [1.0, 1e-6])
+def test_time_checked_in_blocks_gives_the_uniform_axis(tmp_path, monkeypatch, unit):
+    import shpb.io
+
+    monkeypatch.setattr(shpb.io, "_BLOCK", 16)
+    d = DATA.copy()
+    d[:, 0] = (d[:, 0] + 3e-6) / unit
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"], d)
+    rec = read_record(RecordSpec(Channel(p, "CH1"), Channel(p, "CH2"), time="TIME", time_unit=unit))
+    t = np.loadtxt(p, delimiter=",", skiprows=1)[:, 0] * unit
+    dt = (t[-1] - t[0]) / (t.size - 1)
+    assert rec.dt == dt
+    np.testing.assert_array_equal(rec.time, t[0] + dt * np.arange(t.size))
+
+
+@pytest.mark.parametrize("row", [15, 16, 17, 33])  # at, before and after the edge of a 16-sample block
+def test_a_missing_sample_at_a_block_edge_is_found(tmp_path, monkeypatch, row):
+    import shpb.io
+
+    monkeypatch.setattr(shpb.io, "_BLOCK", 16)
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2"], np.delete(DATA, row, axis=0))
+    with pytest.raises(InputError, match=f"not uniformly sampled .* at row {row + 1}"):
+        read_record(_spec(p))

@@ -86,3 +86,38 @@ def test_plan_window_from_the_bar_geometry():
                                transmitted_length=1.2)
     assert short.length == pytest.approx(600e-6 - (100e-6 + 0.9 / c) - 0.9 / c - 4e-6)
     assert "cut by the record" in short.source
+
+
+def test_pulse_end_searched_from_where_the_pulse_stands_clear_of_the_noise():
+    # a fast (2-sample) rise with 1 % noise, the search started on a noise sample just before it: the end is
+    # where the 300-sample pulse comes down (common practice: a pulse's end at a fraction of its peak)
+    rng = np.random.default_rng(5)
+    s = np.zeros(2000)
+    s[500:800] = 1.0
+    s[499] = 0.5
+    s += rng.normal(0, 0.01, s.size)
+    for start in (495.0, 497.3, 499.0):
+        assert pulses.pulse_end(s, start, fraction=0.05) == 800
+
+
+def test_taper_window_moves_with_its_window():
+    # the raised cosine r(u) = (1 - cos(pi u)) / 2 over `ramp` samples, sampled at (k - start + 1/2) / ramp:
+    # a window moved by 0.37 sample gives the same taper moved by 0.37 sample (so waves cut at their gauges
+    # and carried by fractional delays keep identical tapers at the faces)
+    k = np.arange(200, dtype=float)
+    for start in (20.0, 20.37):
+        w = pulses.taper_window(200, start, 150.3, 10)
+        u = np.clip((k - start + 0.5) / 10, 0, 1)
+        v = np.clip((150.3 - k - 0.5) / 10, 0, 1)
+        assert np.allclose(w, (0.5 - 0.5 * np.cos(np.pi * u)) * (0.5 - 0.5 * np.cos(np.pi * v)), atol=1e-15)
+
+
+def test_a_burst_is_not_a_foot():
+    # a 3-sample burst at a third of the pulse's height before a pulse that lasts: with persist = 10 samples
+    # (1 us at 10 MHz) the foot is the pulse's, found where its ramp leaves the baseline (cf. the ramp above)
+    rng = np.random.default_rng(6)
+    n = np.arange(3000, dtype=float)
+    s = np.clip((n - 1200.4) / 100.0, 0, 1) + 1e-3 * rng.standard_normal(n.size)
+    s[400:403] += 0.33
+    assert pulses.find_foot(s, 200) < 403                        # fooled without persistence
+    assert 1200.4 <= pulses.find_foot(s, 200, persist=10) <= 1203.4

@@ -75,15 +75,19 @@ def test_each_stage_alone_on_an_in_memory_record(synthetic):
 
 
 def test_the_written_R_is_the_one_that_decides(synthetic):
-    # Ravichandran & Subhash (1994): a sample is in equilibrium when |R| <= 0.05; every row marked valid
-    # must show it in the written equilibrium_R column
+    # Ravichandran & Subhash (1994): a sample is in equilibrium when |R| <= 0.05, here widened by the noise
+    # propagated to R (docs/verdicts.md); every row marked valid must show it in the written equilibrium_R and
+    # equilibrium_R_limit columns, and the limit is the threshold plus a noise band that is small on these
+    # 2-microstrain records
     _, shot_path, _, _ = synthetic
     for path, threshold in ((shot_path, 0.05), (shot_path, 0.02)):
         res = reduce_shot(with_analysis(load_shot(path), equilibrium_threshold=threshold))
         c = res.curves
         valid = c["valid"].to_numpy(bool)
         assert valid.any()
-        assert np.all(np.abs(c["equilibrium_R"].to_numpy()[valid]) <= threshold)
+        limit = c["equilibrium_R_limit"].to_numpy()[valid]
+        assert np.all(np.abs(c["equilibrium_R"].to_numpy()[valid]) <= limit)
+        assert np.all(limit >= threshold) and np.median(limit) < threshold + 0.02
 
 
 def test_example_shot_valid_rows_satisfy_the_written_R():
@@ -91,7 +95,18 @@ def test_example_shot_valid_rows_satisfy_the_written_R():
     res = reduce_shot(load_shot(root / "configs" / "example_shot.toml"))
     c = res.curves
     valid = c["valid"].to_numpy(bool)
-    assert np.all(np.abs(c["equilibrium_R"].to_numpy()[valid]) <= 0.05)   # Ravichandran & Subhash (1994)
+    # Ravichandran & Subhash (1994), widened by the noise: the example's noise is small, so the limit stays
+    # within 0.01 of the threshold over most of the valid part (wider only at its start, where the forces
+    # are still small against the noise)
+    limit = c["equilibrium_R_limit"].to_numpy()[valid]
+    assert np.all(np.abs(c["equilibrium_R"].to_numpy()[valid]) <= limit) and np.median(limit) < 0.06
+    # the conditioning and the correction are in the provenance: the low-pass and the correction's hold both at
+    # the bars' second-mode onset, f a/c0 = 0.352 for nu = 0.30 (the root of Graff's determinant,
+    # test_dispersion.py) x 4873.4 / 0.009525 = 180 kHz
+    steps = {p["step"]: p["parameters"] for p in res.summary["provenance"]}
+    assert steps["condition"]["lowpass"]["cutoff_Hz"] == pytest.approx(180e3, rel=0.01)
+    assert steps["shift"]["dispersion"]["hold_frequency_Hz"] == pytest.approx(180e3, rel=0.01)
+    assert res.summary["results"]["incident_peak_over_striker"] == pytest.approx(1.0, abs=0.06)  # v/(2 c0), Kolsky
 
 
 def _campaign(folder, columns, cells):
@@ -136,10 +151,10 @@ def test_an_old_key_name_says_its_new_name(synthetic, tmp_path):
 
 
 def test_docs_list_every_setup_key():
-    # one schema: the setup-files page names every key of [specimen] and [analysis], and the campaign page
+    # one schema: the setup-files page names every key of [specimen], [striker] and [analysis], and the campaign page
     # every column a shots table may use
     setup_doc = (DOCS / "setup-files.md").read_text()
-    for key in schema.SPECIMEN_KEYS + schema.ANALYSIS_KEYS:
+    for key in schema.SPECIMEN_KEYS + schema.STRIKER_KEYS + schema.ANALYSIS_KEYS:
         assert re.search(rf"^{key.name}\s*=", setup_doc, re.M), f"docs/setup-files.md lacks {key.section}.{key.name}"
     campaign_doc = (DOCS / "campaigns.md").read_text()
     for column in schema.COLUMNS:
