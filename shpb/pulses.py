@@ -63,6 +63,37 @@ def robust_noise(signal: ArrayLike) -> tuple[float, float]:
     return level, sigma / np.sqrt(2.0)
 
 
+def rest_level(signal: ArrayLike) -> tuple[float, float]:
+    """Level a channel rests at before its first wave, and its noise: :func:`robust_noise`, checked against the
+    record's start.
+
+    The median of the record is the baseline when pulses fill less than half
+    of it. A record of long or overlapping pulses (two-point separation,
+    ``shpb.separation``) can sit on a pulse most of the time; then the median
+    of its first hundredth (at least :data:`MIN_BASELINE_SAMPLES` samples),
+    which lies in the pre-trigger, is taken instead, when the two differ by
+    more than 8 noise units and 5 % of the channel's swing and the record
+    stays longer near it from its first sample on.
+
+    Returns
+    -------
+    level, sigma : float
+        In the signal's unit.
+    """
+    s = np.asarray(signal, dtype=float)
+    level, sigma = robust_noise(s)
+    start = float(np.median(s[: max(MIN_BASELINE_SAMPLES, s.size // 100)]))
+    tol = max(8.0 * sigma, 0.05 * float(np.ptp(s)))
+    if abs(start - level) <= tol:
+        return level, sigma
+
+    def initial_run(at):  # samples from the record's start before it leaves the level
+        away = np.flatnonzero(np.abs(s - at) > tol)
+        return int(away[0]) if away.size else s.size
+
+    return (start, sigma) if initial_run(start) > initial_run(level) else (level, sigma)
+
+
 def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: float = 8.0, min_fraction: float = 0.05,
               foot_fraction: float = 0.01, sigma: Optional[float] = None, persist: int = 1) -> Optional[float]:
     """Sub-sample index of the foot of the first positive pulse.
@@ -413,7 +444,7 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
     info: dict = {"incident": {}, "transmitted": {}}
     raw = {"incident": record.incident, "transmitted": record.transmitted}
-    noise = {k: robust_noise(v) for k, v in raw.items()}  # (level, sigma), record-wide
+    noise = {k: rest_level(v) for k, v in raw.items()}  # (level, sigma), record-wide
     persist = max(3, int(round(1e-6 / dt)))  # a pulse lasts; a glitch or a burst of pickup does not
     pulses = _first_pulses(raw, noise, gauges, dt, t0, persist)
     _check_channels(pulses, barset)
