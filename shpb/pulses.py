@@ -319,6 +319,36 @@ MIN_BASELINE_SAMPLES = 16
 
 
 @dataclass(frozen=True)
+class StationStrain:
+    """A further gauge station's channel, conditioned in stage 1 exactly as the main channels.
+
+    Attributes
+    ----------
+    bar : str
+        ``incident`` or ``transmitted``.
+    gauge : shpb.setup.Gauge
+        The station (its distance from the specimen face [m], bridge, polarity).
+    strain : ndarray
+        Bar strain at the station [1], compression positive: glitches
+        repaired, baseline removed, low-passed with the main channels' filter.
+    volts, baseline : ndarray
+        The channel as recorded and the baseline removed from it [V].
+    quiet : ndarray of bool
+        The samples the baseline was fitted on.
+    noise : float
+        Standard deviation of ``strain`` over its quiet samples [1].
+    """
+
+    bar: str
+    gauge: object
+    strain: np.ndarray
+    volts: np.ndarray
+    baseline: np.ndarray
+    quiet: np.ndarray
+    noise: float
+
+
+@dataclass(frozen=True)
 class GaugeStrains:
     """Stage 1 of a reduction: both channels conditioned and converted to bar strains at their gauges.
 
@@ -356,8 +386,16 @@ class GaugeStrains:
         be); None when no pulse stands out of the noise.
     conditioning : dict
         What the conditioning did, per channel (glitches, baseline order and
-        quiet share, noise) and for both (low-pass cutoff and its reason,
+        quiet share, noise) and for all (low-pass cutoff and its reason,
         hum frequency): the ``condition`` step of the provenance.
+    stations : dict
+        Further gauge stations (name as :func:`shpb.io.station_name` ->
+        :class:`StationStrain`), conditioned as the main channels, for
+        two-point separation (:mod:`shpb.separation`); empty with
+        ``separation = "off"`` or without further stations in the record.
+    unusable_stations : dict
+        Station name -> why its channel cannot be used (no pulse on it, no
+        baseline before its first wave).
     """
 
     time: np.ndarray
@@ -377,6 +415,8 @@ class GaugeStrains:
     quiet_transmitted: Optional[np.ndarray] = None
     pulses: dict = field(default_factory=dict)
     conditioning: dict = field(default_factory=dict)
+    stations: dict = field(default_factory=dict)
+    unusable_stations: dict = field(default_factory=dict)
 
     @property
     def provenance(self) -> dict:
@@ -395,9 +435,10 @@ class GaugeStrains:
 
 
 def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOptions") -> GaugeStrains:
-    """Stage 1: condition both channels, find the incident foot and convert the volts to bar strain.
+    """Stage 1: condition every channel, find the incident foot and convert the volts to bar strain.
 
-    On each channel, in volts (:mod:`shpb.conditioning`):
+    On each channel, in volts (:mod:`shpb.conditioning`), the further gauge
+    stations' too (for two-point separation, unless ``separation = "off"``):
 
     1. isolated glitches are found against their neighbours and repaired;
     2. the channels are checked: the incident channel's first pulse must be
@@ -406,9 +447,11 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
        order otherwise);
     3. the baseline is fitted over every quiet span of the record, starting
        from the ``pre_trigger`` span when given (then only it), otherwise from
-       90 % of the record before the incident foot; its order (0 to 3) is the
+       90 % of the record before the incident foot (a further station's
+       span ends earlier by the wave's transit from it to the main incident
+       gauge, and before its own first wave); its order (0 to 3) is the
        lowest the data justify, with mains hum when ``hum_frequency`` is given;
-    4. both channels go through the same zero-phase Butterworth low-pass
+    4. every channel goes through the same zero-phase Butterworth low-pass
        (``lowpass``; cutoff ``lowpass_cutoff`` or automatic: the bars'
        second-mode onset, :func:`shpb.conditioning.lowpass_cutoff`);
     5. the incident foot is found on the conditioned incident channel
@@ -421,12 +464,15 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     record : shpb.io.Record
     barset : shpb.setup.BarSet
     analysis : shpb.setup.AnalysisOptions
-        ``pre_trigger``, ``incident_start``, ``lowpass``, ``lowpass_cutoff``
-        and ``hum_frequency`` are used.
+        ``pre_trigger``, ``incident_start``, ``lowpass``, ``lowpass_cutoff``,
+        ``hum_frequency`` and ``separation`` are used.
 
     Returns
     -------
     GaugeStrains
+        A further station whose channel cannot be used (no pulse on it, no
+        baseline before it) is named in ``unusable_stations`` with the reason;
+        the separation stage decides what that means.
 
     Raises
     ------
@@ -436,7 +482,6 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
         No incident pulse, too few samples before it, an incident pulse of the
         wrong sign or channels in the wrong order.
     """
-    from . import conditioning as cond
     from .errors import AnalysisError, InputError
 
     dt, n, t0 = record.dt, record.time.size, float(record.time[0])
@@ -470,31 +515,24 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     # the rest of the work only on the part of the record the analysis can read (a long record is baseline after)
     n = min(n, int(math.ceil(foot0 + _analysis_reach(barset, analysis) / dt)))
     time = record.time[:n]
-    clean, sigma = {}, {}
-    for name, v in raw.items():
-        v = v[:n]
-        hits = cond.find_glitches(v, noise[name][1], floor=0.005 * float(np.max(np.abs(v - noise[name][0]))))
-        clean[name], sigma[name] = cond.repair_glitches(v, hits), noise[name][1]
-        info[name]["glitches"] = int(hits.size)
-        if hits.size:
-            info[name]["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
     info["samples_used"] = n
     n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
-    initial = np.arange(n) < n_base
     volts, bases, quiet = {}, {}, {}
     for name in ("incident", "transmitted"):
-        bases[name], quiet[name], binfo = cond.quiet_baseline(
-            clean[name], sigma[name], dt, initial, hum_frequency=analysis.hum_frequency,
-            search=not analysis.pre_trigger)
-        volts[name] = clean[name] - bases[name]
-        info[name].update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
-                           "noise_V": float(sigma[name])})
-        if "hum_amplitude_V" in binfo:
-            info[name]["hum_amplitude_V"] = binfo["hum_amplitude_V"]
+        clean, info[name] = _repaired(raw[name][:n], *noise[name], t0, dt)
+        volts[name], bases[name], quiet[name] = _debased(clean, noise[name][1], dt, n_base, analysis, info[name])
+    # the further stations alike (their baselines end before their own first wave), for two-point separation
+    stations, unusable = _station_channels(record, barset, analysis, n, n_base, persist) \
+        if analysis.separation != "off" else ({}, {})
+    for name, (bar_name, gauge, level, sigma, n_quiet) in stations.items():
+        clean, info[name] = _repaired(record.stations[name][:n], level, sigma, t0, dt)
+        info[name]["distance_mm"] = gauge.distance * 1e3
+        volts[name], bases[name], quiet[name] = _debased(clean, sigma, dt, n_quiet, analysis, info[name])
     info["baseline"] = ("fitted over every quiet span (Schwarz criterion for the order)" if not analysis.pre_trigger
                         else f"fitted over the pre_trigger span ({n_base} samples)")
     info["hum_frequency_Hz"] = analysis.hum_frequency
-    volts, info["lowpass"] = _lowpass_both(volts, dt, foot0, gauges["incident"].polarity, barset, analysis)
+    # one filter for every channel: the waves keep their timing, and the stations' the main channels'
+    volts, info["lowpass"] = _lowpass_all(volts, dt, foot0, gauges["incident"].polarity, barset, analysis)
 
     x = gauges["incident"].polarity * volts["incident"]
     if source == "found":
@@ -503,18 +541,79 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
         foot = float(found) if found is not None else float(foot0)
     else:
         foot = float(foot0)
-    si = _bar_strain(volts["incident"], gauges["incident"], barset.incident)
-    st = _bar_strain(volts["transmitted"], gauges["transmitted"], barset.transmitted)
-    noise = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0
-             for k, v in (("incident", si), ("transmitted", st))}
+    strain = {k: _bar_strain(volts[k], g, getattr(barset, k)) for k, g in gauges.items()}
+    strain.update({k: _bar_strain(volts[k], g, getattr(barset, b)) for k, (b, g, *_) in stations.items()})
+    noise = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0 for k, v in strain.items()}
     for k in noise:
         info[k]["noise_strain"] = noise[k]
-    return GaugeStrains(time=time, dt=dt, incident=si, transmitted=st, volts_incident=raw["incident"][:n],
-                        volts_transmitted=raw["transmitted"][:n], baseline_incident=bases["incident"],
-                        baseline_transmitted=bases["transmitted"], baseline_samples=int(n_base),
-                        noise_incident=noise["incident"], noise_transmitted=noise["transmitted"], foot=foot,
-                        foot_source=source, quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"],
-                        pulses=pulses, conditioning=info)
+    extra = {k: StationStrain(b, g, strain[k], record.stations[k][:n], bases[k], quiet[k], noise[k])
+             for k, (b, g, *_) in stations.items()}
+    return GaugeStrains(time=time, dt=dt, incident=strain["incident"], transmitted=strain["transmitted"],
+                        volts_incident=raw["incident"][:n], volts_transmitted=raw["transmitted"][:n],
+                        baseline_incident=bases["incident"], baseline_transmitted=bases["transmitted"],
+                        baseline_samples=int(n_base), noise_incident=noise["incident"],
+                        noise_transmitted=noise["transmitted"], foot=foot, foot_source=source,
+                        quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"], pulses=pulses,
+                        conditioning=info, stations=extra, unusable_stations=unusable)
+
+
+def _repaired(v, level, sigma, t0, dt):
+    """A channel with its isolated glitches repaired, and what was done."""
+    from . import conditioning as cond
+
+    hits = cond.find_glitches(v, sigma, floor=0.005 * float(np.max(np.abs(v - level))))
+    info = {"glitches": int(hits.size)}
+    if hits.size:
+        info["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
+    return cond.repair_glitches(v, hits), info
+
+
+def _debased(clean, sigma, dt, n_quiet, analysis, info):
+    """(volts less baseline, baseline, quiet samples) of a channel whose first ``n_quiet`` samples are quiet."""
+    from . import conditioning as cond
+
+    base, quiet, binfo = cond.quiet_baseline(clean, sigma, dt, np.arange(clean.size) < n_quiet,
+                                             hum_frequency=analysis.hum_frequency, search=not analysis.pre_trigger)
+    info.update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
+                 "noise_V": float(sigma)})
+    if "hum_amplitude_V" in binfo:
+        info["hum_amplitude_V"] = binfo["hum_amplitude_V"]
+    return clean - base, base, quiet
+
+
+def _station_channels(record, barset, analysis, n, n_base, persist) -> tuple[dict, dict]:
+    """The further stations of a record that can be conditioned: name -> (bar, gauge, level, noise, quiet start
+    [samples]); and name -> why not, for the others.
+
+    A station's quiet start is the main channels' (``n_base`` samples), moved earlier by the incident wave's
+    transit from a station farther from the specimen than the main incident gauge (it sees the wave first), and
+    at most 90 % of the samples before the station's own first pulse (a soft precursor below the foot-detection
+    level stays out).
+    """
+    from .io import station_name
+
+    usable, unusable = {}, {}
+    gi = barset.incident_gauge
+    for bar_name in ("incident", "transmitted"):
+        for k, gauge in enumerate(getattr(barset, f"{bar_name}_stations"), start=2):
+            name = station_name(bar_name, k)
+            if name not in record.stations:
+                continue
+            level, sigma = rest_level(record.stations[name])
+            foot = find_foot(gauge.polarity * (record.stations[name][:n] - level), None, persist=persist)
+            if foot is None:
+                unusable[name] = f"no pulse found on the {name} channel (station at {gauge.distance * 1e3:g} mm)"
+                continue
+            early = (gauge.distance - gi.distance) / barset.incident.wave_speed / record.dt \
+                if bar_name == "incident" else 0.0
+            n_quiet = min(int(n_base - max(early, 0.0)), int(0.9 * foot))
+            if n_quiet < MIN_BASELINE_SAMPLES:
+                unusable[name] = (f"the pulse reaches the station at {gauge.distance * 1e3:g} mm ({name}) "
+                                  f"{foot:.0f} samples into the record: no baseline before it (record a longer "
+                                  f"pre-trigger)")
+                continue
+            usable[name] = (bar_name, gauge, level, sigma, n_quiet)
+    return usable, unusable
 
 
 def _analysis_reach(barset: "BarSet", analysis: "AnalysisOptions") -> float:
@@ -563,8 +662,8 @@ def _check_channels(pulses, barset) -> None:
                             f"channel order)")
 
 
-def _lowpass_both(volts, dt, foot, polarity, barset, analysis):
-    """Both channels through the same zero-phase low-pass; what was done, for the provenance."""
+def _lowpass_all(volts, dt, foot, polarity, barset, analysis):
+    """Every channel through the same zero-phase low-pass; what was done, for the provenance."""
     from .conditioning import lowpass, lowpass_cutoff, rise_time
     from .dispersion import second_mode_onset
 

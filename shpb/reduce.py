@@ -187,7 +187,7 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
             record = read_record(shot.record)
         check_time_base(record, shot)  # a unit typo is refused before the stages size anything by it
         strains = pulses.condition_record(record, bs, opt)
-        split = separation.separate_waves(record, strains, bs, opt)  # used where the waves overlap
+        split = separation.separate_waves(strains, bs, opt)  # used where the waves overlap
         plan = pulses.plan_analysis(strains, bs, opt, **split.plan_options())
         waves = separation.waves_at_faces(split, strains, plan, bs, opt)
         curves = kolsky.kolsky_curves(waves, bs, shot.specimen, opt.stress)

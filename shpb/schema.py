@@ -141,7 +141,7 @@ ANALYSIS_KEYS = (
        "interface friction coefficient mu for the friction band of the stress [1] (none when absent)",
        fraction=True),
     _k("analysis", "lowpass", "switch", True,
-       "zero-phase low-pass of both channels (off: the records as read, baselines and glitches only)"),
+       "zero-phase low-pass of every channel (off: the records as read, baselines and glitches only)"),
     _k("analysis", "lowpass_cutoff", "frequency", None,
        "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
     _k("analysis", "hum_frequency", "frequency", None,

@@ -66,13 +66,12 @@ from typing import Optional
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import fft as _fft
 
 from .errors import InputError
 from .pulses import FaceWaves
 
 __all__ = ["wavenumber", "separate_two_point", "band_taper", "singular_frequencies", "BarSplit", "Separation",
-           "SeparatedWaves", "default_cutoff", "station_strains", "split_bar", "separate_waves", "waves_at_faces"]
+           "SeparatedWaves", "default_cutoff", "split_bar", "separate_waves", "waves_at_faces"]
 
 #: Fraction of the band over which the low-pass tapers to zero (raised cosine).
 BAND_TAPER = 0.2
@@ -196,18 +195,38 @@ def separate_two_point(strain_a: ArrayLike, strain_b: ArrayLike, dt: float, dist
         raise InputError(f"expected two 1-D records of one length, got shapes {ea.shape} and {eb.shape}", "strain")
     if not (np.all(np.isfinite(ea)) and np.all(np.isfinite(eb))):
         raise InputError("a station's record holds a non-finite value", "strain")
+    n = ea.size
+    length, _, ops = _operator(n, dt, distance_a, distance_b, bar_radius, bar_wave_speed, poisson_ratio, dispersion,
+                               cutoff)
+    xa, xb = np.fft.rfft(ea, length), np.fft.rfft(eb, length)
+    out = []
+    for wave in ("toward", "away"):
+        ka, kb = ops[wave]
+        spectrum = ka * xa + kb * xb
+        if length % 2 == 0:  # a real signal's Nyquist bin is real
+            spectrum[-1] = spectrum[-1].real
+        out.append(np.fft.irfft(spectrum, length)[:n])
+    return out[0], out[1]
+
+
+def _operator(n, dt, distance_a, distance_b, bar_radius, bar_wave_speed, poisson_ratio, dispersion, cutoff):
+    """The separation as transfer functions: (FFT length, frequencies [Hz], {"toward": (K_a, K_b), "away": (K_a,
+    K_b)}) with each wave at the face = K_a X_a + K_b X_b for the spectra X of the two stations' records of ``n``
+    samples (zero-padded to the length)."""
+    from .dispersion import _fast_length
+
     if distance_a == distance_b:
         raise InputError(f"the two stations are at the same distance ({distance_a} m): nothing to separate",
                          "distance")
-    (d_far, e_far), (d_near, e_near) = sorted(((distance_a, ea), (distance_b, eb)), key=lambda x: -x[0])
-    c0, n = float(bar_wave_speed), ea.size
+    d_far, d_near = max(distance_a, distance_b), min(distance_a, distance_b)
+    c0 = float(bar_wave_speed)
     spacing = d_far - d_near
     record = n * dt + d_near / c0  # the span the series must cover
     terms = int(math.ceil(record / (2.0 * spacing / c0))) + 1
     slowest = _slowest_speed(dt, bar_radius, c0, poisson_ratio, dispersion, cutoff)
     reach = ((2 * terms + 1) * spacing + d_far) / slowest  # the longest delay of a kept term [s]
-    length = _fft.next_fast_len(n + int(math.ceil(reach / dt)) + 64, real=True)
-    f = _fft.rfftfreq(length, dt)
+    length = _fast_length(n + int(math.ceil(reach / dt)) + 64)
+    f = np.fft.rfftfreq(length, dt)
     kappa = wavenumber(f, bar_radius, c0, poisson_ratio, dispersion=dispersion)
     h = np.exp(-1j * kappa * spacing)
     h2 = h * h
@@ -215,13 +234,13 @@ def separate_two_point(strain_a: ArrayLike, strain_b: ArrayLike, dt: float, dist
     for _ in range(terms):
         term *= h2
         series += term
-    x_far, x_near = _fft.rfft(e_far, length), _fft.rfft(e_near, length)
-    band = band_taper(f, cutoff)
-    toward = (x_far - h * x_near) * series * np.exp(-1j * kappa * d_far) * band
-    away = (x_near - h * x_far) * series * np.exp(1j * kappa * d_near) * band
-    if length % 2 == 0:  # a real signal's Nyquist bin is real
-        toward[-1], away[-1] = toward[-1].real, away[-1].real
-    return _fft.irfft(toward, length)[:n], _fft.irfft(away, length)[:n]
+    series *= band_taper(f, cutoff)
+    toward = np.exp(-1j * kappa * d_far) * series  # (eps_far - H eps_near) carried from the far station
+    away = np.exp(1j * kappa * d_near) * series    # (eps_near - H eps_far) carried back from the near one
+    ops = {"toward": (toward, -h * toward), "away": (-h * away, away)}  # (far, near)
+    if distance_a < distance_b:
+        ops = {k: v[::-1] for k, v in ops.items()}
+    return length, f, ops
 
 
 def _slowest_speed(dt, bar_radius, c0, poisson_ratio, dispersion, cutoff):
@@ -346,66 +365,14 @@ def default_cutoff(bar, dt: float) -> float:
     return min(second_mode_onset(bar.radius, bar.wave_speed, bar.poisson_ratio), 0.4 / dt)
 
 
-def station_strains(record, strains, barset) -> dict:
-    """The further stations' channels of a record as bar strains [1] (stage 1 for the extra stations).
-
-    As the main channels' (:func:`shpb.pulses.condition_record`): each
-    channel's baseline is the mean of its quiet start, and the bridge
-    equations of its gauge turn volts into strain
-    (:func:`shpb.bridge.bar_strain`). The quiet start ends where the main
-    channels' does, moved earlier by the incident wave's transit from the
-    station to the main incident gauge when the station is farther from the
-    specimen (it sees the wave first), and at 90 % of the samples before
-    the station's own first pulse (:func:`shpb.pulses.find_foot`), whichever
-    comes first: a soft precursor below the foot-detection level stays out.
-
-    Returns
-    -------
-    dict
-        Station name (:func:`shpb.io.station_name`) -> strain [1], compression positive.
-
-    Raises
-    ------
-    AnalysisError
-        No pulse on a station's channel, or too few samples before it for a baseline.
-    """
-    from .errors import AnalysisError
-    from .io import station_name
-    from .pulses import MIN_BASELINE_SAMPLES, _bar_strain, find_foot, noise_floor, robust_noise
-
-    out = {}
-    for bar_name in ("incident", "transmitted"):
-        bar = getattr(barset, bar_name)
-        for k, gauge in enumerate(getattr(barset, f"{bar_name}_stations"), start=2):
-            name = station_name(bar_name, k)
-            if name not in record.stations:
-                continue
-            raw = record.stations[name]
-            foot = find_foot(gauge.polarity * (raw - robust_noise(raw)[0]), None)
-            if foot is None:
-                raise AnalysisError(f"no pulse found on the {name} channel (station at {gauge.distance * 1e3:g} mm)")
-            # a station farther from the specimen than the main gauge sees the incident wave this much earlier
-            early = (gauge.distance - barset.incident_gauge.distance) / barset.incident.wave_speed / strains.dt \
-                if bar_name == "incident" else 0.0
-            n_base = min(int(strains.baseline_samples - max(early, 0.0)), int(0.9 * foot))
-            if n_base < MIN_BASELINE_SAMPLES:
-                raise AnalysisError(f"the pulse reaches the station at {gauge.distance * 1e3:g} mm ({name}) "
-                                    f"{foot:.0f} samples into the record: no baseline before it (record a longer "
-                                    f"pre-trigger)")
-            out[name] = _bar_strain(raw - noise_floor(raw, n_base)[0], gauge, bar)
-    return out
-
-
-def split_bar(bar_name: str, barset, strains, stations: dict, analysis) -> Optional[BarSplit]:
+def split_bar(bar_name: str, barset, strains, analysis) -> Optional[BarSplit]:
     """Separate one bar's waves from its main station and the further station farthest from it.
 
-    Returns None when the bar has no further station in the record.
+    Both stations' strains are those of stage 1 (:func:`shpb.pulses.condition_record`: the same baseline
+    handling, glitch repair and zero-phase low-pass). Returns None when the bar has no usable further station.
     """
-    from .io import station_name
-
     main = barset.stations(bar_name)[0]
-    others = [(g, stations[station_name(bar_name, k)]) for k, g in enumerate(barset.stations(bar_name)[1:], start=2)
-              if station_name(bar_name, k) in stations]
+    others = [(st.gauge, st.strain) for st in strains.stations.values() if st.bar == bar_name]
     if not others:
         return None
     gauge, other = max(others, key=lambda x: abs(x[0].distance - main.distance))  # the widest spacing
@@ -428,7 +395,7 @@ def split_bar(bar_name: str, barset, strains, stations: dict, analysis) -> Optio
     return BarSplit(bar_name, toward, away, plain[0], plain[1], info)
 
 
-def separate_waves(record, strains, barset, analysis) -> Separation:
+def separate_waves(strains, barset, analysis) -> Separation:
     """Stage 2a: separate the waves of each bar with two stations, when the analysis calls for it.
 
     With ``separation = "auto"`` (default) the incident bar's waves are
@@ -446,6 +413,11 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
     of the Kolsky analysis are the whole story (a reloaded specimen is
     another test).
 
+    The stations' strains are stage 1's (``strains.stations``: conditioned
+    exactly as the main channels, through the same zero-phase low-pass, so
+    the waves keep their timing); a station whose channel cannot be used is
+    in ``strains.unusable_stations``.
+
     Returns
     -------
     Separation
@@ -457,8 +429,9 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
     AnalysisError
         The separated incident pulse does not end in the record and there is
         no striker; with ``"on"``, a further station's channel without a
-        pulse or a baseline (with ``"auto"`` the classic analysis goes on and
-        the reason is in the provenance).
+        pulse or a baseline (with ``"auto"`` the classic analysis goes on, or
+        a transmitted bar keeps its one station, and the reason is in the
+        provenance).
     """
     from .errors import AnalysisError, InputError
     from .pulses import pulse_end
@@ -466,22 +439,20 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
     mode = analysis.separation
     if mode == "off":
         return Separation(False, "separation = off")
-    if not record.stations:
+    unusable = strains.unusable_stations
+    if mode == "on" and unusable:
+        raise AnalysisError("; ".join(unusable.values()))
+    if not strains.stations and not unusable:
         if mode == "on":
             raise InputError("separation = on needs a second gauge station on the incident bar (bar set "
                              "[[incident.gauge]], record incident_stations)", "analysis.separation")
         return Separation(False, "one gauge station per bar")
-    try:
-        stations = station_strains(record, strains, barset)
-    except AnalysisError as exc:  # e.g. no baseline before a far station: the classic analysis, which says so
-        if mode == "on":
-            raise
-        return Separation(False, f"not separated: {exc}")
-    incident = split_bar("incident", barset, strains, stations, analysis)
+    incident = split_bar("incident", barset, strains, analysis)
     if incident is None:
         if mode == "on":
             raise InputError("separation = on needs a second gauge station on the incident bar", "analysis.separation")
-        return Separation(False, "one gauge station on the incident bar")
+        why = "; ".join(v for k, v in unusable.items() if k.startswith("incident"))
+        return Separation(False, f"not separated: {why}" if why else "one gauge station on the incident bar")
     bi, gi, dt = barset.incident, barset.incident_gauge, strains.dt
     foot = strains.foot + gi.distance / bi.wave_speed / dt  # the incident foot at the face, record samples
     end = pulse_end(incident.toward, foot + max(2.0, 1e-6 / dt), fraction=0.05)
@@ -497,7 +468,7 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
         return Separation(False, f"the {duration[0] * 1e6:.0f} us pulse is shorter than the {round_trip * 1e6:.0f} "
                                  f"us round trip from the incident gauge: the waves do not overlap")
     bars = {"incident": incident}
-    transmitted = split_bar("transmitted", barset, strains, stations, analysis)
+    transmitted = split_bar("transmitted", barset, strains, analysis)
     if transmitted is not None:
         bars["transmitted"] = transmitted
     bt, gt = barset.transmitted, barset.transmitted_gauge
@@ -507,6 +478,9 @@ def separate_waves(record, strains, barset, analysis) -> Separation:
     free = min(2 * bi.length / bi.wave_speed, 2 * echo / bt.wave_speed)
     reason = (f"the {duration[0] * 1e6:.0f} us pulse is longer than the {round_trip * 1e6:.0f} us round trip from "
               f"the incident gauge: the waves overlap there" if overlap else "separation = on")
+    left = [v for k, v in unusable.items() if k.startswith("transmitted")]
+    if left:
+        reason += f"; the transmitted bar keeps its main station ({'; '.join(left)})"
     return Separation(True, reason, bars, duration, free)
 
 

@@ -320,7 +320,8 @@ class AnalysisOptions:
         Interface friction coefficient mu [1] for the friction band of the
         stress (:func:`shpb.specimen.friction_factor`); none if None.
     lowpass : bool
-        Zero-phase low-pass of both channels (default on).
+        Zero-phase low-pass of every channel, the further stations' too
+        (default on).
     lowpass_cutoff : float or None
         Its cutoff [Hz]; automatic (from the incident rise and the bars'
         second-mode onset) if None.

@@ -906,7 +906,7 @@ def record_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves"
                               f"no transmitted pulse found (peak {et_peak:.3g} against noise "
                               f"{strains.noise_transmitted:.3g}): check the transmitted channel and the specimen "
                               f"contact"))
-    for name in ("incident", "transmitted"):
+    for name in ("incident", "transmitted", *strains.stations):
         count = strains.conditioning.get(name, {}).get("glitches", 0)
         if count:
             first = strains.conditioning[name]["glitch_times_us"][0]

@@ -103,7 +103,7 @@ def separation_errors(record, truth, **options):
     """RMS error of each separated face wave over the analysis window [% of the incident peak]."""
     opt = AnalysisOptions(**options)
     strains = pulses.condition_record(record, BARSET, opt)
-    split = separation.separate_waves(record, strains, BARSET, opt)
+    split = separation.separate_waves(strains, BARSET, opt)
     plan = pulses.plan_analysis(strains, BARSET, opt, **split.plan_options())
     k0, k1 = plan.span
     peak = np.max(truth["incident"])
