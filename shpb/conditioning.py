@@ -518,9 +518,16 @@ def lowpass(signal: ArrayLike, dt: float, cutoff: float, order: int = LOWPASS_OR
     pad = int(min(n - 1, max(3 * int(order), math.ceil(8.0 / (cutoff * dt)))))
     ext = np.concatenate((2.0 * x[0] - x[pad:0:-1], x, 2.0 * x[-1] - x[-2:-pad - 2:-1]))
     m = _fast_length(ext.size + pad)
-    f = np.fft.rfftfreq(m, dt)
+    gain = lowpass_gain(np.fft.rfftfreq(m, dt), dt, cutoff, order)
+    return np.fft.irfft(np.fft.rfft(ext, m) * gain, m)[pad:pad + n]
+
+
+def lowpass_gain(frequency: ArrayLike, dt: float, cutoff: float, order: int = LOWPASS_ORDER) -> np.ndarray:
+    """Magnitude response of :func:`lowpass` (both passes) at ``frequency`` [Hz]:
+    1 / (1 + (tan(pi f dt) / tan(pi f_c dt))^(2 N)), zero at and above the Nyquist frequency's warped infinity."""
+    f = np.asarray(frequency, dtype=float)
     with np.errstate(over="ignore", divide="ignore"):
         ratio = np.tan(np.pi * np.minimum(f * dt, 0.5)) / math.tan(math.pi * cutoff * dt)
         gain = 1.0 / (1.0 + ratio ** (2 * int(order)))
     gain[~np.isfinite(ratio)] = 0.0
-    return np.fft.irfft(np.fft.rfft(ext, m) * gain, m)[pad:pad + n]
+    return gain

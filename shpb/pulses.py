@@ -428,6 +428,14 @@ class GaugeStrains:
         """The ``condition`` step of the provenance: glitches, baselines, hum, low-pass."""
         return {"step": "condition", "parameters": self.conditioning}
 
+    def channel(self, name: str) -> tuple:
+        """(bar strain [1], quiet samples, noise standard deviation [1]) of a channel by name: ``incident``,
+        ``transmitted`` or a further station's (:attr:`stations`)."""
+        if name in ("incident", "transmitted"):
+            return getattr(self, name), getattr(self, f"quiet_{name}"), getattr(self, f"noise_{name}")
+        st = self.stations[name]
+        return st.strain, st.quiet, st.noise
+
     @property
     def lowpass_cutoff(self) -> Optional[float]:
         """Cutoff of the low-pass applied to both channels [Hz]; None when off."""
@@ -820,7 +828,8 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
         How long after the incident foot reaches the specimen the waves stay
         free of overlaps and unresolved echoes [s], when something else than
         the bars' round trips above decides it (two-point separation,
-        :mod:`shpb.separation`).
+        :mod:`shpb.separation`: the waves are then not cut at the incident
+        gauge, so the reflected window's lead is not shortened either).
 
     Returns
     -------
@@ -835,7 +844,7 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     # the reflected window opens `lead` before the reflected wave reaches the incident gauge (2 d_i / c_i after the
     # foot): it must open after the incident pulse has passed, or the incident tail becomes a reflected wave
     gap = 2 * di / ci - duration
-    if gap < lead:
+    if gap < lead and free_time is None:  # separated waves are not cut at the gauge: no incident tail to keep out
         lead = max(gap, ramp_time(duration, dt) + 2 * dt)
     t_foot = t_start + foot * dt
     t_face0 = t_foot + di / ci
@@ -930,6 +939,13 @@ class FaceWaves:
         The window's taper at the faces [1], the same for the three waves
         (each cut at its gauge with the taper on the fractional sample grid
         and carried by its exact travel time): 1 where the waves are whole.
+    noise_gains : dict
+        Face force (``front``, ``back``) -> {channel name: gain over the
+        window [1]} when its waves were not each cut from one channel: the
+        force's noise is E A sqrt(sum (gain sigma_channel)^2) (two-point
+        separation, :func:`shpb.separation.noise_gains`). Empty for the
+        classic waves: u(F1) = E A sqrt(2) sigma_incident (two waves of one
+        channel), u(F2) = E A sigma_transmitted.
     """
 
     time: np.ndarray
@@ -940,10 +956,16 @@ class FaceWaves:
     plain: dict
     dispersion: dict
     weight: Optional[np.ndarray] = None
+    noise_gains: dict = field(default_factory=dict)
 
     def wave(self, name) -> np.ndarray:
         """One wave by name (``incident``, ``reflected``, ``transmitted``)."""
         return getattr(self, name)
+
+    @property
+    def separated_bars(self) -> tuple:
+        """The bars whose waves come from two-point separation (none: each wave cut at its gauge)."""
+        return ()
 
     @property
     def provenance(self) -> dict:

@@ -67,10 +67,11 @@ from typing import Optional
 import numpy as np
 from numpy.typing import ArrayLike
 
+from .conditioning import lowpass_gain
 from .errors import InputError
 from .pulses import FaceWaves
 
-__all__ = ["wavenumber", "separate_two_point", "band_taper", "singular_frequencies", "BarSplit", "Separation",
+__all__ = ["wavenumber", "separate_two_point", "noise_gains", "band_taper", "singular_frequencies", "BarSplit", "Separation",
            "SeparatedWaves", "default_cutoff", "split_bar", "separate_waves", "waves_at_faces"]
 
 #: Fraction of the band over which the low-pass tapers to zero (raised cosine).
@@ -243,6 +244,57 @@ def _operator(n, dt, distance_a, distance_b, bar_radius, bar_wave_speed, poisson
     return length, f, ops
 
 
+def noise_gains(n: int, dt: float, distance_a: float, distance_b: float, *, bar_radius: float,
+                bar_wave_speed: float, poisson_ratio: float, dispersion: bool = True, cutoff: Optional[float] = None,
+                prefilter=None) -> dict:
+    """How the stations' noise reaches the separated waves, sample by sample.
+
+    Each station's record carries white noise from its first sample on,
+    through a filter of magnitude response ``prefilter(f)`` applied to both
+    records before the separation (stage 1's low-pass). Through the
+    separation, an output sample t holds the noise w of a station as
+    sum_j k(t - j) w(j), j = 0 .. n-1, with k the impulse response of the
+    prefilter and the separation together, so its variance is
+    sigma_w^2 sum_j k(t - j)^2; the station's own (prefiltered) noise has
+    variance sigma_w^2 sum_j g(j)^2, g the prefilter's impulse response. The
+    gain is the ratio of the two standard deviations. It grows over the
+    record for each wave alone (the series sums the noise at the singular
+    frequencies once per round trip 2 D / c0, like a random walk) and stays
+    near 1 for the sum of the two waves, the bar strain at the face.
+
+    Parameters
+    ----------
+    n : int
+        Record length [samples].
+    dt, distance_a, distance_b, bar_radius, bar_wave_speed, poisson_ratio, dispersion, cutoff
+        As :func:`separate_two_point`.
+    prefilter : callable, optional
+        ``prefilter(frequency) -> gain`` [1] of the filter both records went through; none when None.
+
+    Returns
+    -------
+    dict
+        ``"toward"``, ``"away"`` and ``"sum"`` (toward + away) -> (gain of station a's noise, gain of station
+        b's noise), arrays of n samples [1]: an output's noise standard deviation at each sample is
+        sqrt((gain_a sigma_a)^2 + (gain_b sigma_b)^2) with sigma the stations' noise standard deviations.
+    """
+    length, f, ops = _operator(n, dt, distance_a, distance_b, bar_radius, bar_wave_speed, poisson_ratio, dispersion,
+                               cutoff)
+    g = np.ones_like(f) if prefilter is None else np.asarray(prefilter(f), dtype=float)
+    reference = float(np.sum(np.fft.irfft(g, length) ** 2))
+    t = np.arange(n)
+    out = {}
+    for wave, pair in (*ops.items(), ("sum", tuple(a + b for a, b in zip(ops["toward"], ops["away"])))):
+        gains = []
+        for k in pair:
+            k2 = np.fft.irfft(k * g, length) ** 2
+            # circular lags: index i of the doubled array is the lag i - length; sum over lags t - n + 1 .. t
+            cum = np.concatenate(([0.0], np.cumsum(np.concatenate((k2, k2)))))
+            gains.append(np.sqrt((cum[t + length + 1] - cum[t - n + 1 + length]) / reference))
+        out[wave] = tuple(gains)
+    return out
+
+
 def _slowest_speed(dt, bar_radius, c0, poisson_ratio, dispersion, cutoff):
     """Slowest group velocity over the band used [m/s] (c0 without dispersion): it sets the padding."""
     if not dispersion:
@@ -281,6 +333,11 @@ class BarSplit:
     info : dict
         Stations used, spacing, band, singular frequencies (JSON-ready, units
         in the keys).
+    noise : dict
+        ``"toward"``, ``"away"``, ``"sum"`` -> {channel name: gain} (arrays on
+        the record's time axis, :func:`noise_gains`): how each station's noise
+        (channel ``incident``/``transmitted`` for the main station, else the
+        station's name) reaches each wave and the bar strain at the face.
     """
 
     bar: str
@@ -289,6 +346,7 @@ class BarSplit:
     toward_plain: np.ndarray
     away_plain: np.ndarray
     info: dict
+    noise: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -343,6 +401,10 @@ class SeparatedWaves(FaceWaves):
     separation: dict = field(default_factory=dict)
 
     @property
+    def separated_bars(self) -> tuple:
+        return tuple(self.separation.get("bars", ()))
+
+    @property
     def provenance(self) -> dict:
         p = super().provenance
         p["parameters"]["separation"] = self.separation
@@ -372,10 +434,10 @@ def split_bar(bar_name: str, barset, strains, analysis) -> Optional[BarSplit]:
     handling, glitch repair and zero-phase low-pass). Returns None when the bar has no usable further station.
     """
     main = barset.stations(bar_name)[0]
-    others = [(st.gauge, st.strain) for st in strains.stations.values() if st.bar == bar_name]
+    others = [(name, st.gauge, st.strain) for name, st in strains.stations.items() if st.bar == bar_name]
     if not others:
         return None
-    gauge, other = max(others, key=lambda x: abs(x[0].distance - main.distance))  # the widest spacing
+    name, gauge, other = max(others, key=lambda x: abs(x[1].distance - main.distance))  # the widest spacing
     bar = getattr(barset, bar_name)
     dt = strains.dt
     cutoff = analysis.separation_cutoff or default_cutoff(bar, dt)
@@ -392,7 +454,11 @@ def split_bar(bar_name: str, barset, strains, analysis) -> Optional[BarSplit]:
             "cutoff_source": "given" if analysis.separation_cutoff else "second-mode onset of the bar",
             "first_singular_frequency_Hz": first, "singular_frequencies_in_band": int(cutoff // first),
             "dispersion": bool(analysis.dispersion)}
-    return BarSplit(bar_name, toward, away, plain[0], plain[1], info)
+    lp = strains.lowpass_cutoff
+    gains = noise_gains(ours.size, dt, main.distance, gauge.distance, dispersion=bool(analysis.dispersion),
+                        prefilter=(lambda f: lowpass_gain(f, dt, lp)) if lp else None, **kw)
+    noise = {wave: {bar_name: a, name: b} for wave, (a, b) in gains.items()}
+    return BarSplit(bar_name, toward, away, plain[0], plain[1], info, noise)
 
 
 def separate_waves(strains, barset, analysis) -> Separation:
@@ -486,16 +552,23 @@ def separate_waves(strains, barset, analysis) -> Separation:
 
 def waves_at_faces(separation: Separation, strains, plan, barset, analysis) -> FaceWaves:
     """Stage 3 with or without separation: the classic :func:`shpb.pulses.waves_at_faces` when the
-    separation is not used; otherwise the separated bars' waves, cut to the analysis window (a hand
-    ``reflected_adjust`` / ``transmitted_adjust`` still moves them by a pure delay), and the classic
-    transmitted wave when that bar is not separated."""
-    from .pulses import delay
+    separation is not used; otherwise the separated bars' waves and the classic transmitted wave when that bar
+    is not separated.
+
+    A separated wave is already at its face; it is cut as a classic one is carried there: over the plan's
+    ``carry_span`` (longer than the window when a given ``window_length`` crops the curves), with the same
+    raised-cosine taper at its ends, then cropped to the window, so the three waves carry one weight
+    (``FaceWaves.weight``) whichever way each was built. A hand ``reflected_adjust`` / ``transmitted_adjust``
+    still moves it by a pure delay.
+    """
+    from .pulses import delay, taper_window
     from .pulses import waves_at_faces as classic_waves
 
     classic = classic_waves(strains, plan, barset, analysis)
     if not separation.used:
         return classic
-    dt, (k0, k1) = strains.dt, plan.span
+    dt, (k0, k1), kc = strains.dt, plan.span, plan.carry_span[1]
+    taper = taper_window(kc - k0, 0.0, float(kc - k0), plan.ramp)  # the classic waves' weight at the faces
     faces, plains = {}, dict(classic.plain)
     wanted = {"incident": ("incident", "toward"), "reflected": ("incident", "away"),
               "transmitted": ("transmitted", "away")}
@@ -507,13 +580,19 @@ def waves_at_faces(separation: Separation, strains, plan, barset, analysis) -> F
         for out, wave in ((faces, getattr(split, which)), (plains, getattr(split, f"{which}_plain"))):
             if plan.adjusts.get(name):
                 wave = delay(wave, dt, -plan.adjusts[name])
-            out[name] = np.pad(wave, (0, max(k1 - wave.size, 0)))[k0:k1]
+            out[name] = (np.pad(wave, (0, max(kc - wave.size, 0)))[k0:kc] * taper)[: k1 - k0]
+    # the face forces' noise: F1 from the bar strain at the face (incident + reflected), F2 from the transmitted wave
+    gains = {face: {ch: (np.pad(g, (0, max(kc - g.size, 0)))[k0:kc] * taper)[: k1 - k0]
+                    for ch, g in separation.bars[bar].noise[which].items()}
+             for face, bar, which in (("front", "incident", "sum"), ("back", "transmitted", "away"))
+             if bar in separation.bars}
     info = dict(classic.dispersion)
     peak = max(float(np.max(np.abs(faces["incident"]))), 1e-30)
     if info.get("applied"):
         for k in faces:
             info[f"max_change_{k}_percent_of_incident_peak"] = float(100 * np.max(np.abs(faces[k] - plains[k])) / peak)
     return SeparatedWaves(time=classic.time, dt=dt, incident=faces["incident"], reflected=faces["reflected"],
-                          transmitted=faces["transmitted"], plain=plains, dispersion=info,
+                          transmitted=faces["transmitted"], plain=plains, dispersion=info, weight=classic.weight,
+                          noise_gains=gains,
                           separation={"bars": list(separation.bars), "reason": separation.reason,
                                       **{bar: split.info for bar, split in separation.bars.items()}})

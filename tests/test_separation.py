@@ -147,6 +147,53 @@ def test_further_stations_are_conditioned_like_the_main_channels(long_shot):
     assert 100 * rms > 2 * errors["incident"]  # measured 0.65 % against 0.24 %
 
 
+def test_noise_gains_are_the_spread_of_separated_white_noise():
+    # the variance of a linear combination of independent samples is the sum of the squared weights times their
+    # variance (common practice); checked here against the spread of 120 separations of filtered white noise.
+    # Each wave's noise grows over the record (summed once per round trip 2 D / c0 at the singular frequencies)
+    from shpb.conditioning import lowpass, lowpass_gain
+
+    dt, n, cutoff = 1e-7, 4000, 178e3
+    kw = dict(bar_radius=D_BAR / 2, bar_wave_speed=C0, poisson_ratio=NU_BAR, dispersion=True, cutoff=cutoff)
+    gains = separation.noise_gains(n, dt, NEAR_GAUGE, FAR_GAUGE, prefilter=lambda f: lowpass_gain(f, dt, cutoff),
+                                   **kw)
+    rng = np.random.default_rng(3)
+    draws = {"toward": [], "away": [], "sum": []}
+    for _ in range(120):
+        a, b = (lowpass(rng.normal(size=n), dt, cutoff) for _ in range(2))
+        toward, away = separation.separate_two_point(a, b, dt, NEAR_GAUGE, FAR_GAUGE, **kw)
+        for name, wave in (("toward", toward), ("away", away), ("sum", toward + away)):
+            draws[name].append(wave)
+    sigma = float(np.std(lowpass(rng.normal(size=200_000), dt, cutoff)))
+    late = slice(3000, 3800)
+    for name, runs in draws.items():
+        spread = np.std(runs, axis=0)[late] / sigma
+        expected = np.hypot(*gains[name])[late]
+        assert np.mean(spread) == pytest.approx(np.mean(expected), rel=0.08), name
+    away = np.hypot(*gains["away"])
+    assert away[3500] > 1.5 * away[500]  # measured 2.2 / 1.4
+
+
+def test_a_given_window_crops_the_separated_curves(long_shot):
+    # a window_length shorter than the automatic one crops the curves; the separated waves are still cut over the
+    # plan's carry span with the classic waves' taper, so no new edge enters them: over the given window they
+    # are the automatic run's, and the three waves carry the classic weight (1 where whole, the taper at the ends)
+    record, _ = record_of(long_shot)
+    shot = Shot("long", BARSET, Specimen(0.005, 0.010, "polymer", modulus=3e9), None,
+                AnalysisOptions(dispersion=False))
+    auto = reduce_shot(shot, record).stages
+    given = reduce_shot(with_analysis(shot, window_length=250e-6), record).stages
+    assert given.plan.source == "given" and given.plan.carry_span == auto.plan.carry_span
+    m = given.waves.time.size
+    assert m < auto.waves.time.size and given.waves.time[-1] == pytest.approx(250e-6, abs=2 * record.dt)
+    for name in ("incident", "reflected", "transmitted"):
+        assert np.array_equal(given.waves.wave(name), auto.waves.wave(name)[:m]), name
+    weight, peak = auto.waves.weight, np.max(np.abs(auto.waves.reflected))
+    assert weight[0] < 0.01 and weight[auto.plan.ramp + 1] == 1.0 and weight[-1] < 0.01  # tapered at both ends
+    assert abs(auto.waves.reflected[0]) < 0.01 * peak and abs(auto.waves.reflected[-1]) < 0.01 * peak
+    assert np.array_equal(given.waves.weight, weight[:m])
+
+
 def test_reduction_separates_overlapping_waves(long_shot):
     record, truth = record_of(long_shot)
     shot = Shot("long", BARSET, Specimen(0.005, 0.010, "polymer", modulus=3e9), None,
@@ -218,25 +265,64 @@ pre_trigger = "100 us"
     assert "waves_overlap" not in {f.code for f in reduced.flags}
 
 
-def test_long_pulse_example_reduces_with_separation():
-    # the shipped long-pulse example (SYNTHETIC, example_data/README.md): valid with separation, against its truth
-    # at equal strain within 0.5 % rms (measured 0.43 %); the classic analysis flags the overlap
+@pytest.fixture(scope="module")
+def long_example():
+    """The shipped long-pulse example (SYNTHETIC, example_data/README.md): shot, record and truth."""
     from pathlib import Path
 
     import pandas as pd
 
+    from shpb.io import read_record
     from shpb.setup import load_shot
 
     root = Path(__file__).resolve().parents[1] / "example_data"
     shot = load_shot(root / "shots" / "HR-P20-400.toml")
-    reduced = reduce_shot(shot)
-    assert reduced.valid and "waves_separated" in {f.code for f in reduced.flags}
-    truth = pd.read_csv(root / "truth" / "HR-P20-400_truth.csv")
+    return shot, read_record(shot.record), pd.read_csv(root / "truth" / "HR-P20-400_truth.csv")
+
+
+def _stress_error(reduced, truth):
+    """RMS relative error of the valid stress against the truth at equal strain [1]."""
     loading = truth.iloc[: int(truth.strain.to_numpy().argmax()) + 1]
     c = reduced.curves[reduced.curves.valid == 1]
     expected = np.interp(c.strain, loading.strain[loading.time_us > 0], loading.stress_MPa[loading.time_us > 0])
-    assert np.sqrt(np.mean(((c.stress_MPa - expected) / expected) ** 2)) < 0.005
-    assert reduced.summary["results"]["pulse_duration_us"] > 3 * 2 * 0.5 / C0 * 1e6
+    return float(np.sqrt(np.mean(((c.stress_MPa - expected) / expected) ** 2)))
+
+
+def test_long_pulse_example_reduces_with_separation(long_example):
+    # valid with separation, against its truth at equal strain within 0.5 % rms (measured 0.40 %); the only
+    # warning is the polymer's own rate fall (rate_not_constant); the setup's checks pass on the separated waves:
+    # the back-face force follows the front within a specimen transit, the reflected wave rises with the
+    # incident one, and the incident plateau is the striker's v / (2 c0) (a striker of the bars' steel and
+    # diameter: Kolsky 1953, Graff 1975 sec. 2.2) within 3 % (measured 0.999)
+    shot, record, truth = long_example
+    reduced = reduce_shot(shot, record)
+    assert reduced.valid and "waves_separated" in {f.code for f in reduced.flags}
+    assert [f.code for f in reduced.flags if f.severity != "info"] == ["rate_not_constant"]
+    res = reduced.summary["results"]
+    assert 0 <= res["force_lag_us"] < res["specimen_transit_time_us"] and abs(res["reflected_lead_us"]) < 2.0
+    assert res["incident_peak_over_striker"] == pytest.approx(1.0, abs=0.03)
+    assert _stress_error(reduced, truth) < 0.005
+    assert res["pulse_duration_us"] > 3 * 2 * 0.5 / C0 * 1e6
+
+
+def test_noisy_long_pulse_stays_valid(long_example):
+    # 2 % white noise of each channel's peak on all four channels: the separated waves carry more of it than one
+    # channel (noise_gains), the equilibrium test widens by it, and the conditioning keeps each channel's baseline
+    # where it was: still valid, the stress within 3 % rms of the truth (measured 1.6-1.8 % over four seeds,
+    # against 0.4 % without the noise)
+    from shpb.io import Record
+
+    shot, record, truth = long_example
+    rng = np.random.default_rng(2)
+
+    def noisy(v):
+        return v + rng.normal(0.0, 0.02 * np.max(np.abs(v - np.median(v[:500]))), v.size)
+
+    rec = Record.from_arrays(noisy(record.incident), noisy(record.transmitted), time=record.time,
+                             stations={k: noisy(v) for k, v in record.stations.items()})
+    reduced = reduce_shot(shot, rec)
+    assert reduced.valid, [f.code for f in reduced.flags if f.severity == "error"]
+    assert _stress_error(reduced, truth) < 0.03
 
 
 def test_a_station_without_baseline_falls_back_to_the_classic_analysis(long_shot):
@@ -269,7 +355,7 @@ def test_a_dead_transmitted_station_leaves_that_bar_with_one(long_shot):
     shot = Shot("dead", BARSET, Specimen(0.005, 0.010, "polymer", modulus=3e9), None,
                 AnalysisOptions(dispersion=False))
     reduced = reduce_shot(shot, rec)
-    assert reduced.stages.waves.separation["bars"] == ["incident"]
+    assert reduced.stages.waves.separated_bars == ("incident",)
     assert "no pulse found on the transmitted_2 channel" in reduced.stages.separation.reason
     assert "waves_overlap" not in {f.code for f in reduced.flags}
     with pytest.raises(AnalysisError, match="transmitted_2"):
