@@ -1562,12 +1562,15 @@ def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
     Returns
     -------
     matplotlib.figure.Figure
-        Log colour scale of the mean strain rate with a colour bar; built
+        Log colour scale of the mean strain rate (:func:`shpb.style.rate_cmap`,
+        the one strain-rate colour map of shpb) with a colour bar; built
         without pyplot.
     """
-    import matplotlib
     from matplotlib import cm, colors
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    from .report import plain_log_axis, wrapped_title
+    from .style import rate_cmap
 
     ok, mats = _shots_for_figures(table)
     rates = ok["mean_strain_rate_per_s"].to_numpy(float)
@@ -1576,10 +1579,10 @@ def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
     if hi <= lo:
         lo, hi = lo / 1.2, hi * 1.2
     norm = colors.LogNorm(vmin=lo, vmax=hi)
-    cmap = matplotlib.colormaps["viridis"]
+    cmap = rate_cmap()
     ncol = min(len(mats), 3)
     nrow = int(math.ceil(len(mats) / ncol))
-    fig = Figure(figsize=(5.0 * ncol + 1.2, 4.0 * nrow), constrained_layout=True)
+    fig = Figure(figsize=(5.0 * ncol + 1.2, 4.0 * nrow + 0.3), constrained_layout=True)
     axes = fig.subplots(nrow, ncol, squeeze=False)
     for ax, mat in zip(axes.flat, mats):
         for _, r in ok[ok["material"].astype(str) == mat].iterrows():
@@ -1587,14 +1590,16 @@ def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
                 x, y = curves[r["id"]]
                 rate = r["mean_strain_rate_per_s"]
                 color = cmap(norm(rate)) if np.isfinite(rate) and rate > 0 else "0.5"
-                ax.plot(x, y, color=color, lw=1.0)
-        ax.set(xlabel="engineering strain [1]", ylabel="engineering stress [MPa]", title=mat or "(no material)")
+                ax.plot(x, y, color=color, lw=1.2)
+        ax.set(xlabel="engineering strain [1]", ylabel="engineering stress [MPa]")
+        wrapped_title(ax, mat or "(no material)", fontsize=10, width_inches=4.6)
         ax.grid(alpha=0.3)
     for ax in list(axes.flat)[len(mats):]:
         ax.axis("off")
     sm = cm.ScalarMappable(norm=norm, cmap=cmap)
-    fig.colorbar(sm, ax=axes, label="mean strain rate [1/s]")
-    fig.suptitle(f"{campaign.name}: valid parts of the valid shots")
+    bar = fig.colorbar(sm, ax=axes, label="mean strain rate [1/s]")
+    plain_log_axis(bar.ax.yaxis)  # 2000, 5000 rather than 2 x 10^3
+    wrapped_title(fig, f"{campaign.name}: valid parts of the valid shots")
     return fig
 
 
@@ -1602,61 +1607,80 @@ def plot_rate_sensitivity(campaign: Campaign, table: pd.DataFrame):
     """Flow stress at ``campaign.rate_plot_strain`` against mean strain rate (log axis).
 
     Each repeat is a point, each rate group its mean with +/- one standard
-    deviation (:func:`repeatability_table`). Returns a
-    ``matplotlib.figure.Figure`` built without pyplot.
+    deviation (:func:`repeatability_table`); one colour and marker per
+    material (:data:`shpb.style.SHOT_COLOURS`). The legend sits below the
+    panel. Returns a ``matplotlib.figure.Figure`` built without pyplot.
     """
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    from .report import plain_log_axis, wrapped_title
+    from .style import shot_style
 
     ok, mats = _shots_for_figures(table)
     col = _flow_column(campaign.rate_plot_strain)
     rep = repeatability_table(table, campaign.rate_plot_strain)
-    fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
+    fig = Figure(figsize=(7.0, 5.2), constrained_layout=True)
     ax = fig.subplots()
     for i, mat in enumerate(mats):
+        st = shot_style(i)
         g = ok[(ok["material"].astype(str) == mat) & ok[col].notna()]
-        ax.plot(g["mean_strain_rate_per_s"], g[col], "o", color=f"C{i}", alpha=0.6, label=f"{mat or '-'} shots")
+        ax.plot(g["mean_strain_rate_per_s"], g[col], st["marker"], color=st["color"], alpha=0.6, ls="none",
+                label=f"{mat or '-'}: shots")
         gr = rep[rep["material"].astype(str) == mat]
         if len(gr):
             ax.errorbar(gr["mean_strain_rate_per_s"], gr["flow_stress_MPa_mean"],
-                        yerr=gr["flow_stress_MPa_std"].fillna(0.0), fmt="s", color=f"C{i}", mfc="none",
-                        capsize=4, label=f"{mat or '-'} group mean ± 1 std")
+                        yerr=gr["flow_stress_MPa_std"].fillna(0.0), fmt=st["marker"], color=st["color"], mfc="none",
+                        ms=9, capsize=4, label=f"{mat or '-'}: group mean ± 1 std")
     ax.set_xscale("log")
-    ax.set(xlabel="mean strain rate [1/s]", ylabel=f"flow stress at strain {campaign.rate_plot_strain:g} [MPa]",
-           title=f"{campaign.name}: rate sensitivity")
+    ax.set(xlabel="mean strain rate [1/s]", ylabel=f"flow stress at strain {campaign.rate_plot_strain:g} [MPa]")
+    plain_log_axis(ax.xaxis)
+    wrapped_title(fig, f"{campaign.name}: rate sensitivity")
     ax.grid(alpha=0.3, which="both")
     if len(ok):
-        ax.legend(fontsize=8)
+        longest = max(len(t) for t in ax.get_legend_handles_labels()[1])
+        fig.legend(loc="outside lower center", ncol=2 if longest <= 48 else 1, fontsize=7)
     return fig
 
 
 def plot_repeatability(campaign: Campaign, table: pd.DataFrame):
     """Per material and rate group, each repeat's deviation from the group mean flow stress [%].
 
-    Bars: +/- one standard deviation of the group (:func:`repeatability_table`
-    at ``campaign.rate_plot_strain``). Returns a ``matplotlib.figure.Figure``
+    One row per group (its material, mean rate and number of shots on the
+    left), so long material names have room; bars: +/- one standard
+    deviation of the group (:func:`repeatability_table` at
+    ``campaign.rate_plot_strain``). Returns a ``matplotlib.figure.Figure``
     built without pyplot.
     """
+    import textwrap
+
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
 
-    ok, _ = _shots_for_figures(table)
+    from .report import wrapped_title
+    from .style import shot_style
+
+    ok, mats = _shots_for_figures(table)
     col = _flow_column(campaign.rate_plot_strain)
     rep = repeatability_table(table, campaign.rate_plot_strain)
-    fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
+    fig = Figure(figsize=(7.0, max(3.2, 1.6 + 0.6 * len(rep))), constrained_layout=True)
     ax = fig.subplots()
     labels = []
     for k, (_, gr) in enumerate(rep.iterrows()):
         members = ok[ok["id"].isin(gr["ids"].split(";"))]
         dev = 100 * (members[col].to_numpy(float) / gr["flow_stress_MPa_mean"] - 1)
-        ax.plot(np.full(dev.size, k), dev, "o", color="C0", alpha=0.7)
+        st = shot_style(mats.index(str(gr["material"])) if str(gr["material"]) in mats else 0)
+        ax.plot(dev, np.full(dev.size, k), st["marker"], color=st["color"], alpha=0.8, ls="none")
         if np.isfinite(gr["flow_stress_cv"]):
-            ax.errorbar([k], [0.0], yerr=[100 * gr["flow_stress_cv"]], fmt="_", color="k", capsize=6)
-        labels.append(f"{gr['material'] or '-'}\n{gr['mean_strain_rate_per_s']:.0f} 1/s\nn={gr['n']}")
-    ax.axhline(0.0, color="0.5", lw=0.8)
-    ax.set_xticks(range(len(labels)))
-    ax.set_xticklabels(labels, fontsize=7)
-    ax.set(ylabel=f"deviation from group mean [%] (flow stress at {campaign.rate_plot_strain:g})",
-           title=f"{campaign.name}: repeatability (bars: ± 1 std)")
-    ax.grid(alpha=0.3, axis="y")
+            ax.errorbar([0.0], [k], xerr=[100 * gr["flow_stress_cv"]], fmt="|", color="k", capsize=5)
+        name = "\n".join(textwrap.wrap(str(gr["material"] or "-"), 24, max_lines=2, placeholder="..."))
+        labels.append(f"{name}\n{gr['mean_strain_rate_per_s']:.0f} 1/s, n = {gr['n']}")
+    ax.axvline(0.0, color="0.5", lw=0.8)
+    ax.set_yticks(range(len(labels)))
+    ax.set_yticklabels(labels, fontsize=7)
+    ax.set_ylim(-0.6, max(len(labels), 1) - 0.4)
+    ax.invert_yaxis()
+    ax.set_xlabel(f"deviation from the group mean [%] (flow stress at strain {campaign.rate_plot_strain:g})")
+    wrapped_title(fig, f"{campaign.name}: repeatability (bars: ± 1 std of the group)")
+    ax.grid(alpha=0.3, axis="x")
     return fig
 
 
