@@ -264,7 +264,7 @@ def verdict_line(name: str, summary: Mapping, facts: Optional[Mapping] = None, f
 
 def flag_lines(summary: Mapping, facts: Optional[Mapping] = None, indent: str = "  ", said: int = 0) -> list:
     """Each flag in plain words (errors first, then warnings, then notes), with what to check for errors and
-    warnings.
+    warnings, and for errors the flag's own message (the numbers behind it) as ``detail``.
 
     ``said`` errors at the head of the list were already said (by the verdict line): only what to check is
     given for them.
@@ -278,6 +278,8 @@ def flag_lines(summary: Mapping, facts: Optional[Mapping] = None, indent: str = 
         word = {"error": "why", "warning": "warning", "info": "note"}.get(sev, sev)
         if k >= said:
             lines.append(f"{indent}{word}: {plain.says}")
+        if sev == "error" and f.get("message") and f.get("message") != plain.says:
+            lines.append(f"{indent}  detail: {f['message']}")  # the numbers behind the verdict
         if plain.check and sev in ("error", "warning"):
             lines.append(f"{indent}  check: {plain.check}")
     return lines

@@ -315,7 +315,7 @@ def _sheet_lines(result) -> list:
     wrapped = textwrap.wrap(verdict_line(result.name, {**result.summary, "valid": result.valid}, facts),
                             _SHEET_TEXT_WIDTH, subsequent_indent="  ")
     flags = flag_lines(result.summary, facts, indent="", said=said)
-    if said and flags and flags[0].lstrip().startswith("check:"):  # what to check for the verdict's reason
+    while said and flags and flags[0].lstrip().startswith(("detail:", "check:")):  # the verdict's reason
         wrapped += textwrap.wrap(flags.pop(0), _SHEET_TEXT_WIDTH, subsequent_indent="    ")
     wrapped += textwrap.wrap("; ".join(numbers), _SHEET_TEXT_WIDTH) + [""]
     for line in flags:

@@ -331,7 +331,7 @@ def test_swapped_channels_and_cut_records_are_not_valid(shots, tmp_path, capsys,
     assert main(["reduce", str(shots / f"{fault}.toml"), "--out", str(tmp_path / fault), "--no-figure"]) == 1
     out = capsys.readouterr()
     assert "NOT VALID" in out.out and "Traceback" not in out.err
-    assert "error: the record ends at" in out.out
+    assert "detail: the record ends at" in out.out  # the plain-words verdict keeps the numbers behind it
 
 
 # --------------------------------------------------------------------------- a bug
