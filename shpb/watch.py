@@ -404,6 +404,13 @@ class Watcher:
                     if should_stop is not None and should_stop():
                         return
                     time.sleep(self.poll_s)
+            except KeyboardInterrupt:
+                from .errors import Interrupted
+
+                n = len(self.verdicts)
+                raise Interrupted(f"interrupted: stopped watching {self.folder} after {n} shot{'s' if n != 1 else ''}"
+                                  f" reduced; every result written is whole; run the same command to go on "
+                                  f"(records already reduced are not reduced again)") from None
             finally:
                 self.lock = None
 
