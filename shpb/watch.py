@@ -322,7 +322,9 @@ class Watcher:
         c = result.curves
         flow = flow_stress_at(c["strain"], c["stress_MPa"], c["valid"].to_numpy(bool), flow_strain)
         lines = shot_lines(shot_id, result.summary, c, flow=(flow_strain, flow))
-        lines[0] = f"{_now()} {lines[0]}   [{latency:.1f} s after the record's last write]"
+        # how soon after the record's last write (not said for a record that was there before the watcher)
+        lines[0] = f"{_now()} {lines[0]}" + (f"   [{latency:.1f} s after the record's last write]" if latency < 60
+                                             else "")
         if defaults:
             sp = result.summary["inputs"]["specimen"]
             lines.append(f"  note: no row names this record: the campaign's default specimen was used "
