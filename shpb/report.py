@@ -111,19 +111,21 @@ def legend_outside(ax, handles=None, **kwargs):
 
 
 def plain_log_axis(axis) -> None:
-    """Tick labels of a log axis as plain numbers (``2000``, not ``2×10³``), and on the minor ticks only at 2 and
-    5 times a power of ten while the axis spans less than two decades: labels that never crowd."""
+    """Tick labels of a log axis as plain numbers (``2000``, not ``2×10³``); the minor ticks labelled too while
+    the axis spans less than two decades, at leading digits spaced so that their labels never crowd (2, 3, 5;
+    and 4, 6, 8 under 0.7 decade)."""
     from matplotlib import ticker
 
     def fmt(value, _pos=None):
-        return f"{value:g}" if value >= 1e-3 and value < 1e6 else f"{value:.0e}"
+        return f"{value:g}" if 1e-3 <= value < 1e6 else f"{value:.0e}"
 
     def minor(value, _pos=None):
         lo, hi = sorted(axis.get_view_interval())  # read when drawn, after autoscaling
         if value <= 0 or not (lo > 0 and np.log10(hi / lo) < 2):
             return ""
         lead = round(value / 10 ** np.floor(np.log10(value) + 1e-9), 6)
-        return fmt(value) if lead in (2.0, 5.0) else ""
+        shown = (2.0, 3.0, 5.0) if np.log10(hi / lo) >= 0.7 else (2.0, 3.0, 4.0, 5.0, 6.0, 8.0)
+        return fmt(value) if lead in shown else ""
 
     axis.set_major_formatter(ticker.FuncFormatter(fmt))
     axis.set_minor_formatter(ticker.FuncFormatter(minor))
