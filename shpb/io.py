@@ -567,6 +567,17 @@ def atomic_savefig(fig, path, **kwargs) -> None:
     atomic_write_bytes(path, figure_bytes(fig, Path(path).suffix.lstrip(".") or "png", **kwargs))
 
 
+def atomic_write_pdf(figures, path) -> None:
+    """Write matplotlib figures as the pages of one PDF file, atomically (through matplotlib's PdfPages)."""
+    from matplotlib.backends.backend_pdf import PdfPages
+
+    buf = _io.BytesIO()
+    with PdfPages(buf) as pdf:
+        for fig in figures:
+            pdf.savefig(fig)
+    atomic_write_bytes(path, buf.getvalue())
+
+
 _OMIT = object()  # marks a value to_plain leaves out
 
 

@@ -184,6 +184,7 @@ __all__ = [
     "TrueStressLaw",
     "radial_return",
     "RodSpec",
+    "bar_rod",
     "VirtualShotSpec",
     "VirtualShotResult",
     "simulate_shot",
@@ -580,6 +581,14 @@ class RodSpec:
     def impedance(self) -> float:
         """Mechanical impedance Z = rho c0 A [kg/s]."""
         return self.density * self.wave_speed * self.area
+
+
+def bar_rod(bar) -> "RodSpec":
+    """The model rod of a bar set's bar (:class:`shpb.setup.Bar`): its length, diameter and modulus, and the
+    density E / c0**2 that gives it the bar's wave speed (the measured one when the bar set or its calibration
+    has one), so that the model's waves travel as the reduction assumes."""
+    c = bar.wave_speed
+    return RodSpec(bar.length, bar.diameter, bar.modulus, bar.modulus / c**2)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -1971,13 +1980,13 @@ def _fourier_delay(x, dt, delay):
     value held, raised-cosine bridge, first value held) so that nothing wraps
     round and the periodic signal has no jump.
     """
-    from scipy import fft as sfft
+    from .dispersion import _fast_length  # numpy's FFT: no scipy import for a virtual shot
 
     x = np.asarray(x, dtype=float)
     n = x.size
     hold = int(math.ceil(abs(delay) / dt)) + 32
     bridge = 32
-    total = sfft.next_fast_len(n + 2 * hold + bridge, real=True)
+    total = _fast_length(n + 2 * hold + bridge)
     bridge = total - n - 2 * hold
     y = np.empty(total)
     y[:n] = x
@@ -1985,9 +1994,9 @@ def _fourier_delay(x, dt, delay):
     w = 0.5 - 0.5 * np.cos(np.pi * np.arange(1, bridge + 1) / (bridge + 1))
     y[n + hold:n + hold + bridge] = x[-1] + (x[0] - x[-1]) * w
     y[n + hold + bridge:] = x[0]
-    spectrum = sfft.rfft(y)
-    spectrum *= np.exp(-2j * np.pi * sfft.rfftfreq(total, dt) * delay)
-    return sfft.irfft(spectrum, total)[:n]
+    spectrum = np.fft.rfft(y)
+    spectrum *= np.exp(-2j * np.pi * np.fft.rfftfreq(total, dt) * delay)
+    return np.fft.irfft(spectrum, total)[:n]
 
 
 def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio):

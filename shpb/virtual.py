@@ -22,7 +22,7 @@ import numpy as np
 from .errors import InputError
 from .setup import _Table, load_barset, read_toml
 from .simulate import (TRIGGERS, JohnsonCookLaw, PerfectlyPlastic, RecorderSpec, RodSpec, TrueStressLaw,
-                       VirtualRecord, VirtualShotResult, VirtualShotSpec, check_plan, dispersed_drive,
+                       VirtualRecord, VirtualShotResult, VirtualShotSpec, bar_rod, check_plan, dispersed_drive,
                        model_duration, plan_shot, simulate_shot, trigger_time, virtual_record)
 from .units import to_si
 
@@ -204,10 +204,6 @@ def load_simulation(path) -> SimulationSetup:
     kind = top.string("kind", default="specimen" if "specimen" in data else "bars-together", choices=SHOT_KINDS)
     barset_path = path.parent / top.string("barset")
     bs = load_barset(barset_path)
-
-    def bar_rod(bar):
-        c = bar.wave_speed
-        return RodSpec(bar.length, bar.diameter, bar.modulus, bar.modulus / c**2)
 
     # striker: the bar set's, with overrides
     st = top.table("striker", required=False) or _Table({}, f"{src}: striker")
@@ -519,42 +515,42 @@ def plot_virtual_shot(shot: VirtualShot):
     """
     from matplotlib.figure import Figure  # no pyplot: the user's backend and figure list stay as they are
 
+    from . import style
+    from .report import legend_outside, wrapped_title
+
     rec, res, s = shot.record, shot.result, shot.setup
     has_specimen = s.kind == "specimen"
-    fig = Figure(figsize=(8.3, 9.5 if has_specimen else 3.8), constrained_layout=True)
+    fig = Figure(figsize=(9.0, 9.5 if has_specimen else 3.8), constrained_layout=True)
     axes = fig.subplots(3 if has_specimen else 1, 1, squeeze=False)
     ax = axes[0, 0]
-    ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, label="incident-bar gauge")
+    ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, color=style.INCIDENT, label="incident-bar gauge")
     if rec.strain_transmitted is not None:
-        ax.plot(rec.time * 1e6, rec.strain_transmitted * 1e6, lw=0.8, label="transmitted-bar gauge")
-    for name, column in station_channels(rec).items():
+        ax.plot(rec.time * 1e6, rec.strain_transmitted * 1e6, lw=0.8, color=style.TRANSMITTED,
+                label="transmitted-bar gauge")
+    for name, column in station_channels(rec).items():  # further stations: dashed, in their bar's colour
         station = res.stations[name]
         ax.plot(rec.time * 1e6, rec.strain_stations[name] * 1e6, lw=0.6, ls="--",
+                color=style.INCIDENT if station["bar"] == "incident" else style.TRANSMITTED,
                 label=f"{station['bar']}-bar station at {station['distance_m'] * 1e3:g} mm ({column})")
-    ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)",
-           title="Gauge strains in the record (before noise and quantisation)")
-    ax.text(0.01, 0.02, f"dispersion: {DISPERSION_LABELS[rec.info['dispersion']]}", transform=ax.transAxes,
-            fontsize=7, color="0.3")
-    if rec.volts_stations:  # four channels or more: the legend in two columns above the traces
-        low, high = ax.get_ylim()
-        ax.set_ylim(low, high + 0.4 * (high - low))
-        ax.legend(fontsize=7, ncol=2, loc="upper center")
-    else:
-        ax.legend(fontsize=7)
+    ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)")
+    wrapped_title(ax, f"Gauge strains in the record (before noise and quantisation; dispersion: "
+                      f"{DISPERSION_LABELS[rec.info['dispersion']]})", fontsize=10, width_inches=6.5)
+    legend_outside(ax)
     if has_specimen:
         tt = truth_table(res, rec)
         ax = axes[1, 0]
-        ax.plot(tt.time_us, tt.force_front_kN, label="front face F1 (incident bar)")
-        ax.plot(tt.time_us, tt.force_back_kN, "--", label="back face F2 (transmitted bar)")
+        ax.plot(tt.time_us, tt.force_front_kN, color=style.INCIDENT, label="front face F1\n(incident bar)")
+        ax.plot(tt.time_us, tt.force_back_kN, "--", color=style.TRANSMITTED, label="back face F2\n(transmitted bar)")
         ax.set(xlabel="time from the incident foot at the specimen [µs]", ylabel="force [kN]",
                title="Face forces (model truth)")
-        ax.legend(fontsize=7)
+        legend_outside(ax)
         ax = axes[2, 0]
         loading = tt.loc[: int(tt.strain.to_numpy().argmax())]
-        ax.plot(loading.strain, loading.stress_MPa, "k", label="engineering (model truth)")
+        ax.plot(loading.strain, loading.stress_MPa, "k", label="engineering\n(model truth)")
         true_strain = -np.log1p(-loading.strain.to_numpy())
-        ax.plot(true_strain, loading.stress_MPa * (1 - loading.strain), "C3", lw=0.8, label="true (volume constant)")
+        ax.plot(true_strain, loading.stress_MPa * (1 - loading.strain), color=style.REFLECTED, lw=0.8,
+                label="true (volume\nconstant)")
         ax.set(xlabel="strain [1]", ylabel="stress [MPa]", title="Specimen stress (model truth)")
-        ax.legend(fontsize=7)
+        legend_outside(ax)
     fig.suptitle(f"Virtual shot {s.name} - SYNTHETIC (shpb simulate)", fontsize=10)
     return fig

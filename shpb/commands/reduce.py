@@ -55,28 +55,11 @@ def register(app: typer.Typer) -> None:
 
 
 def format_result(result, out_dir) -> str:
-    """A few lines a lab engineer reads after a shot."""
-    r = result.summary["results"]
-
-    def g(key, fmt):
-        v = r.get(key)
-        return format(v, fmt) if isinstance(v, (int, float)) else "n/a"
-
-    lines = [
-        f"shot {result.name}: {'VALID' if result.valid else 'NOT VALID'}",
-        f"  mean strain rate   {g('mean_strain_rate_per_s', '.0f')} 1/s (spread {g('strain_rate_cv', '.1%')})",
-        f"  peak stress        {g('peak_stress_MPa', '.1f')} MPa   max strain {g('max_strain', '.4f')}",
-        f"  yield (offset {g('yield_offset', '.1%')})  {g('yield_stress_MPa', '.1f')} MPa at strain "
-        f"{g('yield_strain', '.4f')}",
-        f"  equilibrium from   {g('equilibrium_from_time_us', '.1f')} us (strain {g('equilibrium_from_strain', '.4f')})",
-    ]
-    if "inertia_gorham_max_fraction" in r:  # with the specimen's density (docs/specimen.md)
-        lines.append(f"  inertia            up to {g('inertia_gorham_max_fraction', '.1%')} of the stress "
-                     f"(Davies & Hunter {g('inertia_dh_max_fraction', '.1%')}; beside it, not applied)")
-    for f in result.flags:
-        lines.append(f"  {f.severity}: {f.message}")
-    lines.append(f"  written to {out_dir}")
+    """What a lab engineer reads after a shot: the verdict with what matters, each flag in plain words."""
+    from ..plain_words import shot_lines
     from ..reduce import DESIGN_CAUTION
 
+    lines = shot_lines(result.name, result.summary, result.curves)
+    lines.append(f"  written to {out_dir}")
     lines.append(f"  note: {DESIGN_CAUTION}")
     return "\n".join(lines)
