@@ -89,7 +89,11 @@ PLAIN_WORDS: dict = {
         "a longer record (the scope's time base or memory depth) or more pre-trigger"),
     "waves_overlap": Plain(
         "the incident and reflected waves overlap at the incident gauge, so they cannot be told apart",
-        "a shorter striker, or the incident gauge further from the specimen"),
+        "a shorter striker, or the incident gauge further from the specimen, or a second gauge station on each "
+        "bar so the waves can be separated (docs/separation.md)"),
+    "waves_separated": Plain(
+        "the pulse was longer than the time between the incident and reflected waves at the gauge; the waves "
+        "were told apart from two gauge stations per bar"),
     "transmitted_overlap": Plain(
         "the echo from the transmitted bar's far end returns to its gauge before the pulse has passed: "
         "the end of the curve may be disturbed",
@@ -125,6 +129,14 @@ PLAIN_WORDS: dict = {
         "a bar's modulus, density and measured wave speed disagree",
         "the bar set's modulus, density and calibrated wave speed"),
     "dispersion_off": Plain("the dispersion correction was off for this shot"),
+    # the specimen
+    "inertia_large": Plain(
+        "the specimen's own inertia changes the measured stress by up to {inertia_gorham_max_fraction:.0%}: "
+        "the curve is biased by it (the corrected stress is beside it in the curves, not applied)",
+        "a smaller specimen, or a pulse shaped for a constant strain rate"),
+    "friction_band": Plain(
+        "with friction coefficient {friction_coefficient:g} at the bar faces, the flow stress without "
+        "friction lies in a band below the measured one (in the summary, not applied)"),
     # the bars
     "bar_yielded": Plain(
         "a bar was loaded to its yield strength: the data are invalid and the bar may be damaged",
@@ -290,4 +302,7 @@ def shot_lines(name: str, summary: Mapping, curves=None, flow: Optional[tuple] =
     facts = shot_facts(summary, curves)
     first = verdict_line(name, summary, facts, flow)
     said = 1 if any(f.get("severity") == "error" for f in summary.get("flags") or []) else 0
-    return [first] + flag_lines(summary, facts, said=said)
+    inertia = _num(facts, "inertia_gorham_max_fraction", ".1%")  # with the specimen's density
+    extra = [f"  inertia: the specimen's own inertia changes the stress by at most {inertia} (Davies & Hunter "
+             f"{_num(facts, 'inertia_dh_max_fraction', '.1%')}; beside it, not applied)"] if inertia else []
+    return [first] + extra + flag_lines(summary, facts, said=said)

@@ -97,10 +97,19 @@ class ShotResult:
         st, plan = self.stages.strains, self.stages.plan
         last = plan.last_sample(st.time.size)
         res = self.summary["results"]
+        windows = plan.gauge_window_times(float(st.time[0]), st.dt)
+        separated = self.stages.waves.separated_bars
+        if "incident" in separated:  # not cut at the gauge: the span the separated waves cover there
+            a, b = windows.pop("incident"), windows.pop("reflected")
+            windows = {"incident + reflected (separated)": (min(a[0], b[0]), max(a[1], b[1])), **windows}
+        if "transmitted" in separated:
+            windows["transmitted (separated)"] = windows.pop("transmitted")
+        stations = {f"{s.bar}-bar station at {s.gauge.distance * 1e3:g} mm": s.strain[:last]
+                    for s in st.stations.values() if s.bar in separated}
         return {"time": st.time[:last], "strain_incident_gauge": st.incident[:last],
                 "strain_transmitted_gauge": st.transmitted[:last], "volts_incident": st.volts_incident[:last],
-                "volts_transmitted": st.volts_transmitted[:last],
-                "gauge_windows": plan.gauge_window_times(float(st.time[0]), st.dt), "t_face0": plan.t_face0,
+                "volts_transmitted": st.volts_transmitted[:last], "stations": stations,
+                "gauge_windows": windows, "t_face0": plan.t_face0,
                 "yield": (res.get("yield_strain"), res.get("yield_stress_MPa"))}
 
     def plot(self):

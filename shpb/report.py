@@ -200,16 +200,20 @@ def plot_shot(result) -> Figure:
     _line(ax, t_us, tr["strain_incident_gauge"] * 1e6, lw=0.8, color=style.INCIDENT, label="incident-bar gauge")
     _line(ax, t_us, tr["strain_transmitted_gauge"] * 1e6, lw=0.8, color=style.TRANSMITTED,
           label="transmitted-bar gauge")
+    for name, strain in tr.get("stations", {}).items():  # further stations whose waves were separated: dashed
+        _line(ax, t_us, strain * 1e6, lw=0.6, ls="--", label=name,
+              color=style.INCIDENT if name.startswith("incident") else style.TRANSMITTED)
     ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)", title="Records at the gauges")
     strip = 0.11  # [inch] per strip row: the incident gauge's windows, then the transmitted gauge's
     leg = legend_on_top(ax, ncol=2, extra_inches=2 * strip + 0.04)
     frac = strip / (panel_h)
-    top = 1.0 - (_LEGEND_ROW + _LEGEND_PAD + 0.04) / panel_h
+    top = 1.0 - (-(-len(leg.get_texts()) // 2) * _LEGEND_ROW + _LEGEND_PAD + 0.04) / panel_h
     rows = {"incident": 0, "reflected": 0, "transmitted": 1}
     colours = {"incident": style.INCIDENT, "reflected": style.REFLECTED, "transmitted": style.TRANSMITTED}
     for name, (a, b) in tr["gauge_windows"].items():
-        y1 = top - rows.get(name, 1) * frac
-        ax.axvspan(a * 1e6, b * 1e6, ymin=y1 - 0.85 * frac, ymax=y1, color=colours.get(name, style.NEUTRAL),
+        wave = name.split()[0]  # "incident + reflected (separated)": the incident gauge's row
+        y1 = top - rows.get(wave, 1) * frac
+        ax.axvspan(a * 1e6, b * 1e6, ymin=y1 - 0.85 * frac, ymax=y1, color=colours.get(wave, style.NEUTRAL),
                    alpha=0.25, lw=0)
         ax.text(0.5 * (a + b) * 1e6, y1 - 0.42 * frac, f"{name} window", transform=ax.get_xaxis_transform(),
                 ha="center", va="center", fontsize=6, clip_on=True)

@@ -162,13 +162,15 @@ def test_the_checks_see_a_clipped_title_overlapping_ticks_and_a_legend_on_the_da
 # --------------------------------------------------------------------------- the figures
 @pytest.fixture(scope="module")
 def shots(tmp_path_factory):
-    """Reduced shots: the example (valid), its 3-wave variant, and two invalid synthetic shots."""
+    """Reduced shots: the example (valid), its 3-wave variant, two invalid synthetic shots and the long-pulse
+    example (waves separated from two stations per bar)."""
     from shpb.reduce import reduce_file, reduce_shot
     from shpb.setup import load_shot
 
     work = tmp_path_factory.mktemp("figures")
     out = {"valid": reduce_file(ROOT / "configs" / "example_shot.toml"),
-           "valid 3-wave": reduce_file(ROOT / "configs" / "example_shot.toml", stress="3-wave")}
+           "valid 3-wave": reduce_file(ROOT / "configs" / "example_shot.toml", stress="3-wave"),
+           "separated": reduce_file(ROOT / "example_data" / "shots" / "HR-P20-400.toml")}
     law = elastic_perfectly_plastic(70e9, 300e6)
     for name, kw in (("no transmitted pulse", dict(kill_transmitted=True)), ("clipped", dict(clip_volts=0.5))):
         path, _ = make_shot(work / name.replace(" ", "-"), law=law, name=name.replace(" ", "-"), **kw)
@@ -177,12 +179,16 @@ def shots(tmp_path_factory):
     return out
 
 
-@pytest.mark.parametrize("case", ["valid", "valid 3-wave", "no transmitted pulse", "clipped"])
+@pytest.mark.parametrize("case", ["valid", "valid 3-wave", "no transmitted pulse", "clipped", "separated"])
 def test_shot_sheet_is_clean(shots, case):
     r = shots[case]
     fig = r.plot()
     assert layout_problems(fig) == []
     labels = [t.get_text() for ax in fig.axes if ax.get_legend() for t in ax.get_legend().get_texts()]
+    if case == "separated":  # the further stations drawn, one window strip per separated bar
+        texts = [t.get_text() for t in fig.axes[0].texts]
+        assert "incident-bar station at 1000 mm" in labels and "transmitted-bar station at 1000 mm" in labels
+        assert "incident + reflected (separated) window" in texts and "reflected window" not in texts
     if case == "valid 3-wave":  # the reported form is named, and every form is drawn
         assert any("reported (3-wave)" in s for s in labels) and any(s.startswith("3-wave") for s in labels)
     if not r.valid:  # R(t) of a bad shot: drawn only where it is on its axis, so no lines leave the panel

@@ -303,6 +303,10 @@ def test_long_pulse_example_reduces_with_separation(long_example):
     assert res["incident_peak_over_striker"] == pytest.approx(1.0, abs=0.03)
     assert _stress_error(reduced, truth) < 0.005
     assert res["pulse_duration_us"] > 3 * 2 * 0.5 / C0 * 1e6
+    from shpb.plain_words import shot_lines  # the console says it in plain words
+
+    said = "\n".join(shot_lines(reduced.name, reduced.summary, reduced.curves))
+    assert "told apart from two gauge stations" in said and "inertia: " in said
 
 
 def test_noisy_long_pulse_stays_valid(long_example):
