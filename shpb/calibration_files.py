@@ -218,32 +218,46 @@ def figure_name(calibration_file, kind, bar=None, date=None) -> str:
 def _figure(nrows=2):
     from matplotlib.figure import Figure  # no pyplot: no global state, no screen needed
 
-    fig = Figure(figsize=(8, 3.2 * nrows), layout="constrained")
+    fig = Figure(figsize=(8.6, 3.2 * nrows), layout="constrained")
     axes = fig.subplots(nrows, 1)
     return fig, np.atleast_1d(axes)
 
 
+def _legend(ax):
+    """The legend beside the panel, off the data (constrained layout makes room for it)."""
+    from .report import legend_outside
+
+    legend_outside(ax)
+
+
 def plot_free_end(time, signal, result):
-    """Figure of a free-end calibration: the record with its passes, and the aligned pulse and echoes."""
+    """Figure of a free-end calibration: the record with its passes, and the aligned pulse and echoes.
+
+    ``signal`` is the gauge's bar strain [1]; it is drawn in µε, the first pulse positive.
+    """
+    from .style import SHOT_COLOURS, shot_style
+
     fig, (ax1, ax2) = _figure(2)
     y = np.asarray(signal, float) * result["first_pulse_sign"]
     dt = time[1] - time[0]
-    ax1.plot(time * 1e6, y * 1e6, lw=0.7, color="0.3")
+    ax1.plot(time * 1e6, y * 1e6, lw=0.7, color="0.3", label="record")
     a, b = result["window"]
-    ax1.axvspan(time[a] * 1e6, time[b - 1] * 1e6, color="C0", alpha=0.15, label="pulse window")
+    ax1.axvspan(time[a] * 1e6, time[b - 1] * 1e6, color=SHOT_COLOURS[0], alpha=0.15, lw=0, label="pulse window")
     tau = (np.arange(a, b) - a) * dt * 1e6
     ax2.plot(tau, y[a:b] * 1e6, color="k", lw=1.2, label="pulse")
-    for e in result["echoes"]:
+    for i, e in enumerate(result["echoes"]):
         k = int(round(e["delay_s"] / dt))
-        ax1.axvspan(time[a + k] * 1e6, time[min(b + k, time.size) - 1] * 1e6, color="C1", alpha=0.12)
+        ax1.axvspan(time[a + k] * 1e6, time[min(b + k, time.size) - 1] * 1e6, color=SHOT_COLOURS[1], alpha=0.12,
+                    lw=0, label="passes used" if i == 0 else None)
         seg = e["sign"] * y[a + k : b + k]
-        ax2.plot(tau[: seg.size], seg * 1e6, lw=0.8, label=f"pass {e['pass']} ({e['path_m']:.3f} m)")
-    ax1.set(xlabel="record time [us]", ylabel="signal (first pulse positive)",
+        ax2.plot(tau[: seg.size], seg * 1e6, lw=0.8, color=shot_style(i)["color"],
+                 label=f"pass {e['pass']} ({e['path_m']:.3f} m)")
+    ax1.set(xlabel="record time [µs]", ylabel="bar strain [µε]\n(first pulse positive)",
             title=f"free-end shot: c0 = {result['wave_speed_m_per_s']:.1f} "
-                  f"+/- {result['wave_speed_uncertainty_m_per_s']:.1f} m/s")
-    ax1.legend(loc="upper right", fontsize=8)
-    ax2.set(xlabel="time in window [us]", ylabel="aligned, sign-corrected")
-    ax2.legend(fontsize=8)
+                  f"± {result['wave_speed_uncertainty_m_per_s']:.1f} m/s")
+    _legend(ax1)
+    ax2.set(xlabel="time in window [µs]", ylabel="bar strain [µε]\n(aligned, sign-corrected)")
+    _legend(ax2)
     return fig
 
 
@@ -252,61 +266,64 @@ def plot_flight(lengths, delays, result):
     fig, (ax1, ax2) = _figure(2)
     L = np.asarray(lengths, float)
     x = np.linspace(0, L.max() * 1.05, 50)
-    ax1.plot(L, np.asarray(delays) * 1e6, "o", label="measured")
-    ax1.plot(x, (x / result["wave_speed_m_per_s"] + result["intercept_s"]) * 1e6, "-",
-             label=f"t = L/c + t0: c = {result['wave_speed_m_per_s']:.1f} m/s, t0 = {result['intercept_s'] * 1e6:.3f} us")
-    ax1.set(xlabel="path length [m]", ylabel="delay [us]", title="time-of-flight regression")
-    ax1.legend(fontsize=8)
+    ax1.plot(L, np.asarray(delays) * 1e6, "o", color="k", label="measured")
+    ax1.plot(x, (x / result["wave_speed_m_per_s"] + result["intercept_s"]) * 1e6, "-", color="#0072B2",
+             label=f"t = L/c + t0\nc = {result['wave_speed_m_per_s']:.1f} m/s\nt0 = {result['intercept_s'] * 1e6:.3f} µs")
+    ax1.set(xlabel="path length [m]", ylabel="delay [µs]", title="time-of-flight regression")
+    _legend(ax1)
     ax2.axhline(0, color="0.5", lw=0.8)
-    ax2.plot(L, np.asarray(result["residuals_s"]) * 1e6, "o")
-    ax2.set(xlabel="path length [m]", ylabel="residual [us]")
+    ax2.plot(L, np.asarray(result["residuals_s"]) * 1e6, "o", color="k")
+    ax2.set(xlabel="path length [m]", ylabel="residual [µs]")
     return fig
 
 
 def plot_bars_together(time, strain_incident, strain_transmitted, result):
     """Figure of a bars-together shot: the two channels, and the pulses aligned."""
+    from . import style
+
     fig, (ax1, ax2) = _figure(2)
-    ax1.plot(time * 1e6, np.asarray(strain_incident) * 1e6, lw=0.7, label="incident gauge")
-    ax1.plot(time * 1e6, np.asarray(strain_transmitted) * 1e6, lw=0.7, label="transmitted gauge")
-    ax1.set(xlabel="record time [us]", ylabel="raw strain [ue]",
+    ax1.plot(time * 1e6, np.asarray(strain_incident) * 1e6, lw=0.7, color=style.INCIDENT, label="incident gauge")
+    ax1.plot(time * 1e6, np.asarray(strain_transmitted) * 1e6, lw=0.7, color=style.TRANSMITTED,
+             label="transmitted gauge")
+    ax1.set(xlabel="record time [µs]", ylabel="raw bar strain [µε]",
             title=f"bars together: ratio {result['transmitted_to_incident_ratio']:.4f}, residual reflected "
                   f"{100 * result['reflected_peak_fraction']:.1f} %, c = {result['wave_speed_m_per_s']:.1f} m/s")
-    ax1.legend(fontsize=8)
+    _legend(ax1)
     a, b = result["window"]
     dt = time[1] - time[0]
     tau = np.arange(b - a) * dt * 1e6
     kt, kr = result["transmitted_lag_samples"], result["reflected_lag_samples"]
     si, stt = np.asarray(strain_incident), np.asarray(strain_transmitted)
     ax2.plot(tau, si[a:b] * 1e6, color="k", label="incident")
-    ax2.plot(tau, stt[a + kt : b + kt] * 1e6, label="transmitted (aligned)")
-    ax2.plot(tau, si[a + kr : b + kr] * 1e6, label="reflected (aligned)")
-    ax2.set(xlabel="time in window [us]", ylabel="raw strain [ue]")
-    ax2.legend(fontsize=8)
+    ax2.plot(tau, stt[a + kt : b + kt] * 1e6, color=style.TRANSMITTED, label="transmitted (aligned)")
+    ax2.plot(tau, si[a + kr : b + kr] * 1e6, color=style.REFLECTED, label="reflected (aligned)")
+    ax2.set(xlabel="time in window [µs]", ylabel="raw bar strain [µε]")
+    _legend(ax2)
     return fig
 
 
 def plot_striker(time, strain, result):
     """Figure of a striker check: the incident pulse, its plateau and the expected level."""
     fig, (ax1,) = _figure(1)
-    ax1.plot(time * 1e6, np.asarray(strain) * 1e6, lw=0.8, color="0.3", label="incident gauge (raw strain)")
-    ax1.axhline(result["expected_strain"] * 1e6, color="C1", ls="--",
-                label=f"expected from striker speed: {result['expected_strain'] * 1e6:.1f} ue")
-    ax1.axhline(result["measured_strain"] * 1e6, color="C0", ls=":",
-                label=f"measured plateau: {result['measured_strain'] * 1e6:.1f} ue")
+    ax1.plot(time * 1e6, np.asarray(strain) * 1e6, lw=0.8, color="0.3", label="incident gauge")
+    ax1.axhline(result["expected_strain"] * 1e6, color="#D55E00", ls="--",
+                label=f"expected from the\nstriker speed: {result['expected_strain'] * 1e6:.1f} µε")
+    ax1.axhline(result["measured_strain"] * 1e6, color="#0072B2", ls=":",
+                label=f"measured plateau:\n{result['measured_strain'] * 1e6:.1f} µε")
     pad = 0.5 * (result["pulse_end_s"] - result["pulse_foot_s"])
     ax1.set_xlim((result["pulse_foot_s"] - pad) * 1e6, (result["pulse_end_s"] + pad) * 1e6)
-    ax1.set(xlabel="record time [us]", ylabel="strain [ue]", title=f"striker check: scale {result['scale']:.4f}")
-    ax1.legend(fontsize=8)
+    ax1.set(xlabel="record time [µs]", ylabel="raw bar strain [µε]", title=f"striker check: scale {result['scale']:.4f}")
+    _legend(ax1)
     return fig
 
 
 def plot_shunt(time, volts, result):
     """Figure of a shunt step and the two levels read from it."""
     fig, (ax1,) = _figure(1)
-    ax1.plot(time * 1e3, volts, lw=0.7, color="0.3")
-    ax1.axhline(result["before_V"], color="C0", ls="--", label=f"before {result['before_V']:.5g} V")
-    ax1.axhline(result["after_V"], color="C1", ls="--", label=f"after {result['after_V']:.5g} V")
+    ax1.plot(time * 1e3, volts, lw=0.7, color="0.3", label="channel")
+    ax1.axhline(result["before_V"], color="#0072B2", ls="--", label=f"before {result['before_V']:.5g} V")
+    ax1.axhline(result["after_V"], color="#D55E00", ls="--", label=f"after {result['after_V']:.5g} V")
     ax1.set(xlabel="record time [ms]", ylabel="channel [V]",
             title=f"shunt step {result['height_V']:.5g} V: scale {result.get('scale', float('nan')):.4f}")
-    ax1.legend(fontsize=8)
+    _legend(ax1)
     return fig

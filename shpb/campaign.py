@@ -266,7 +266,7 @@ def _row_dict(cols, cells, where_row: str, barsets: Callable[[str, str], BarSet]
     return data, barset, tags
 
 
-def load_campaign(path, strict: bool = False) -> Campaign:
+def load_campaign(path, strict: bool = False, extra_records=(), allow_empty: bool = False) -> Campaign:
     """Load a campaign TOML file and build every row of its shots table into a shot.
 
     Parameters
@@ -276,6 +276,14 @@ def load_campaign(path, strict: bool = False) -> Campaign:
     strict : bool
         Raise on the first row that cannot be built instead of keeping it as
         a failed row (``CampaignRow.error``).
+    extra_records : sequence of paths
+        Record files that no row of the table names (``shpb watch``): each
+        becomes a row of its own, as if the table had a line with only its
+        ``id`` (the file's stem) and ``record`` cells, so it takes every
+        other value from the campaign's defaults. Such a row's ``line`` is 0.
+    allow_empty : bool
+        Accept a table with a header and no rows (a campaign that
+        ``shpb watch`` fills from the campaign's defaults).
 
     Returns
     -------
@@ -344,6 +352,16 @@ def load_campaign(path, strict: bool = False) -> Campaign:
     if "record" not in names and not {"record_incident", "record_transmitted"} <= set(names) \
             and "file" not in record_defaults:
         raise InputError("missing column 'record' (or 'record_incident' and 'record_transmitted')", where_header)
+    if extra_records:
+        if "record" not in names:  # a row of its own names its file in a 'record' column
+            cols = cols + [("record", None, "record")]
+            names.append("record")
+            raw_rows = [(line, cells + [""] * (len(cols) - 1 - len(cells))) for line, cells in raw_rows]
+        for rec in extra_records:
+            cells = [""] * len(cols)
+            cells[names.index("id")] = Path(rec).stem
+            cells[names.index("record")] = str(Path(rec).absolute())
+            raw_rows.append((0, cells))
     declared_tags = data.get("tags")
     for n, _, h in cols:
         if n in schema.RENAMED:  # an old key name must not silently become a free tag
@@ -373,6 +391,9 @@ def load_campaign(path, strict: bool = False) -> Campaign:
             _check_id(shot_id, f"{where_row}, column 'id'")
             key = shot_id.casefold()  # case-insensitive: folders must not collide on any file system
             if key in seen:
+                if line == 0:  # a record without a row whose stem is another row's id
+                    raise InputError(f"the record {cells[names.index('record')]} has no row, and its name is the id "
+                                     f"of line {seen[key]}: give it a row", str(shots_path))
                 raise InputError(f"shot id {shot_id!r} repeats line {seen[key]}", f"{shots_path.name} line {line}")
             seen[key] = line
         except InputError:
@@ -394,7 +415,7 @@ def load_campaign(path, strict: bool = False) -> Campaign:
                                     error=_name_column(str(exc), where_row, cols)))
             continue
         rows.append(CampaignRow(id=shot_id, line=line, shot=shot, tags=tags))
-    if not rows:
+    if not rows and not allow_empty:
         raise InputError("no shots (the table has a header but no rows)", str(shots_path))
     return Campaign(name=name, path=path, shots_path=shots_path, rows=tuple(rows), tag_columns=tag_columns,
                     flow_strains=flow_strains, rate_plot_strain=plot_strain, rate_group_tolerance=tol)
@@ -649,7 +670,7 @@ def _one_line(exc: BaseException) -> str:
     return f"unexpected {type(exc).__name__}: {msg}"  # a bug, but the campaign goes on
 
 
-def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple) -> dict:
+def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple, announce=None) -> dict:
     """Reduce one shot and return its output files as bytes, never raising.
 
     The same function runs in a local process pool, in the coordinating
@@ -657,6 +678,10 @@ def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple) -
     bytes. The result folder is written by :meth:`shpb.reduce.ShotResult.write`
     into a private temporary folder and read back, so a campaign's files are
     exactly those of ``shpb reduce``.
+
+    ``announce(result)``, when given (in this process only), is called
+    with the :class:`shpb.reduce.ShotResult` as soon as the shot is reduced,
+    before its figure is drawn: ``shpb watch`` prints the verdict from it.
 
     Returns
     -------
@@ -669,12 +694,12 @@ def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple) -
     global _in_task
     _in_task = True
     try:
-        return _reduce_task(shot, figures, base_dir, flow_strains)
+        return _reduce_task(shot, figures, base_dir, flow_strains, announce)
     finally:
         _in_task = False
 
 
-def _reduce_task(shot, figures, base_dir, flow_strains):
+def _reduce_task(shot, figures, base_dir, flow_strains, announce=None):
     from .io import read_record
     from .reduce import reduce_shot
 
@@ -687,6 +712,8 @@ def _reduce_task(shot, figures, base_dir, flow_strains):
         result = reduce_shot(shot, rec)
     except Exception as exc:  # noqa: BLE001
         return _failed(shot.name, "reduce", _one_line(exc))
+    if announce is not None:
+        announce(result)
     try:
         with tempfile.TemporaryDirectory(prefix=f"shpb-shot-{os.getpid()}-", dir=_scratch_dir()) as tmp:
             result.write(tmp, figure=figures)  # the figure sheet uses no pyplot: thread-safe
@@ -1104,6 +1131,22 @@ def _current_key(shot: Shot, base_dir: Path) -> Optional[str]:
     return shot_key(shot, hashes, base_dir)
 
 
+def stored_key(folder, figures: bool = False) -> Optional[str]:
+    """The key of a complete shot folder (``inputs.sha256``), or None when the folder is not complete."""
+    return _stored_key(Path(folder), figures)
+
+
+def current_key(shot: Shot, base_dir) -> Optional[str]:
+    """The key a shot's folder would have now (:func:`shot_key` of its records' current bytes); None when a
+    record cannot be read."""
+    return _current_key(shot, Path(base_dir))
+
+
+def store_shot(folder, res: dict) -> None:
+    """Write one shot's folder from a :func:`reduce_task` result, the key last (what a campaign run does)."""
+    _store(Path(folder), res)
+
+
 def _store(folder: Path, res: dict) -> None:
     """Write one shot's folder: the key goes first (removed) and last (written)."""
     folder.mkdir(parents=True, exist_ok=True)
@@ -1199,7 +1242,8 @@ def _dask_results(tasks, client, figures, base_dir, flow_strains, stop: _StopFla
 
 def run_campaign(campaign: Campaign, out_dir=None, jobs: Optional[int] = None, force: bool = False,
                  scheduler: Any = None, figures: bool = True,
-                 progress: Optional[Callable[[int, int, ShotOutcome], None]] = None) -> CampaignReport:
+                 progress: Optional[Callable[[int, int, ShotOutcome], None]] = None,
+                 lock: Optional[FolderLock] = None, remember: bool = True) -> CampaignReport:
     """Reduce every shot of a campaign and write the campaign outputs.
 
     Parameters
@@ -1223,6 +1267,14 @@ def run_campaign(campaign: Campaign, out_dir=None, jobs: Optional[int] = None, f
     progress : callable, optional
         ``progress(done, total, outcome)`` after each shot (skipped ones
         first).
+    lock : FolderLock, optional
+        The output folder's lock, already held by the caller (``shpb watch``
+        holds it while it runs); taken here otherwise.
+    remember : bool
+        Record the run as complete (``.shpb-run.json``), so that a rerun of
+        ``shpb batch`` with the same inputs has nothing to do. False for a
+        run of part of a campaign's table (``shpb watch`` before every record
+        has come in).
 
     Returns
     -------
@@ -1242,8 +1294,10 @@ def run_campaign(campaign: Campaign, out_dir=None, jobs: Optional[int] = None, f
     client, own_client = _dask_client(scheduler) if scheduler is not None else (None, False)
     try:
         out.mkdir(parents=True, exist_ok=True)
+        if lock is not None and lock.held:
+            return _run(campaign, out, jobs, force, client, figures, progress, remember)
         with FolderLock(out, f"shpb batch {campaign.path.name}"):
-            return _run(campaign, out, jobs, force, client, figures, progress)
+            return _run(campaign, out, jobs, force, client, figures, progress, remember)
     finally:
         if own_client:
             client.close()
@@ -1265,7 +1319,7 @@ def _campaign_files(out: Path) -> list:
                                *(f"{FIGURES_DIR}/{f}" for f in CAMPAIGN_FIGURES))]
 
 
-def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignReport:
+def _run(campaign, out, jobs, force, client, figures, progress, remember=True) -> CampaignReport:
     """:func:`run_campaign` with the folder locked and the scheduler (if any) connected."""
     shots_dir = out / SHOTS_DIR
     base_dir = campaign.base_dir.resolve()
@@ -1395,7 +1449,8 @@ def _run(campaign, out, jobs, force, client, figures, progress) -> CampaignRepor
         files_out.update({f"{name[:-4]}_png": path for name, path in figure_files.items()})
     result = CampaignReport(campaign=campaign, out_dir=out, outcomes=ordered, table=table, files=files_out,
                             set_aside=set_aside, rewritten=changed)
-    if not any(r.error for r in campaign.rows) and not any(o.stage in ("worker", "write") for o in ordered):
+    if remember and not any(r.error for r in campaign.rows) and not any(o.stage in ("worker", "write")
+                                                                         for o in ordered):
         # every input is known and no failure was the machine's: a rerun with the same inputs has nothing to do
         _remember(out, campaign, figures, result)
     return result
@@ -1589,12 +1644,15 @@ def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
     Returns
     -------
     matplotlib.figure.Figure
-        Log colour scale of the mean strain rate with a colour bar; built
+        Log colour scale of the mean strain rate (:func:`shpb.style.rate_cmap`,
+        the one strain-rate colour map of shpb) with a colour bar; built
         without pyplot.
     """
-    import matplotlib
     from matplotlib import cm, colors
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    from .report import plain_log_axis, wrapped_title
+    from .style import rate_cmap
 
     ok, mats = _shots_for_figures(table)
     rates = ok["mean_strain_rate_per_s"].to_numpy(float)
@@ -1603,10 +1661,10 @@ def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
     if hi <= lo:
         lo, hi = lo / 1.2, hi * 1.2
     norm = colors.LogNorm(vmin=lo, vmax=hi)
-    cmap = matplotlib.colormaps["viridis"]
+    cmap = rate_cmap()
     ncol = min(len(mats), 3)
     nrow = int(math.ceil(len(mats) / ncol))
-    fig = Figure(figsize=(5.0 * ncol + 1.2, 4.0 * nrow), constrained_layout=True)
+    fig = Figure(figsize=(5.0 * ncol + 1.2, 4.0 * nrow + 0.3), constrained_layout=True)
     axes = fig.subplots(nrow, ncol, squeeze=False)
     for ax, mat in zip(axes.flat, mats):
         for _, r in ok[ok["material"].astype(str) == mat].iterrows():
@@ -1614,14 +1672,16 @@ def plot_stress_strain(campaign: Campaign, table: pd.DataFrame, curves: dict):
                 x, y = curves[r["id"]]
                 rate = r["mean_strain_rate_per_s"]
                 color = cmap(norm(rate)) if np.isfinite(rate) and rate > 0 else "0.5"
-                ax.plot(x, y, color=color, lw=1.0)
-        ax.set(xlabel="engineering strain [1]", ylabel="engineering stress [MPa]", title=mat or "(no material)")
+                ax.plot(x, y, color=color, lw=1.2)
+        ax.set(xlabel="engineering strain [1]", ylabel="engineering stress [MPa]")
+        wrapped_title(ax, mat or "(no material)", fontsize=10, width_inches=4.6)
         ax.grid(alpha=0.3)
     for ax in list(axes.flat)[len(mats):]:
         ax.axis("off")
     sm = cm.ScalarMappable(norm=norm, cmap=cmap)
-    fig.colorbar(sm, ax=axes, label="mean strain rate [1/s]")
-    fig.suptitle(f"{campaign.name}: valid parts of the valid shots")
+    bar = fig.colorbar(sm, ax=axes, label="mean strain rate [1/s]")
+    plain_log_axis(bar.ax.yaxis)  # 2000, 5000 rather than 2 x 10^3
+    wrapped_title(fig, f"{campaign.name}: valid parts of the valid shots")
     return fig
 
 
@@ -1629,61 +1689,80 @@ def plot_rate_sensitivity(campaign: Campaign, table: pd.DataFrame):
     """Flow stress at ``campaign.rate_plot_strain`` against mean strain rate (log axis).
 
     Each repeat is a point, each rate group its mean with +/- one standard
-    deviation (:func:`repeatability_table`). Returns a
-    ``matplotlib.figure.Figure`` built without pyplot.
+    deviation (:func:`repeatability_table`); one colour and marker per
+    material (:data:`shpb.style.SHOT_COLOURS`). The legend sits below the
+    panel. Returns a ``matplotlib.figure.Figure`` built without pyplot.
     """
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
+
+    from .report import plain_log_axis, wrapped_title
+    from .style import shot_style
 
     ok, mats = _shots_for_figures(table)
     col = _flow_column(campaign.rate_plot_strain)
     rep = repeatability_table(table, campaign.rate_plot_strain)
-    fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
+    fig = Figure(figsize=(7.0, 5.2), constrained_layout=True)
     ax = fig.subplots()
     for i, mat in enumerate(mats):
+        st = shot_style(i)
         g = ok[(ok["material"].astype(str) == mat) & ok[col].notna()]
-        ax.plot(g["mean_strain_rate_per_s"], g[col], "o", color=f"C{i}", alpha=0.6, label=f"{mat or '-'} shots")
+        ax.plot(g["mean_strain_rate_per_s"], g[col], st["marker"], color=st["color"], alpha=0.6, ls="none",
+                label=f"{mat or '-'}: shots")
         gr = rep[rep["material"].astype(str) == mat]
         if len(gr):
             ax.errorbar(gr["mean_strain_rate_per_s"], gr["flow_stress_MPa_mean"],
-                        yerr=gr["flow_stress_MPa_std"].fillna(0.0), fmt="s", color=f"C{i}", mfc="none",
-                        capsize=4, label=f"{mat or '-'} group mean ± 1 std")
+                        yerr=gr["flow_stress_MPa_std"].fillna(0.0), fmt=st["marker"], color=st["color"], mfc="none",
+                        ms=9, capsize=4, label=f"{mat or '-'}: group mean ± 1 std")
     ax.set_xscale("log")
-    ax.set(xlabel="mean strain rate [1/s]", ylabel=f"flow stress at strain {campaign.rate_plot_strain:g} [MPa]",
-           title=f"{campaign.name}: rate sensitivity")
+    ax.set(xlabel="mean strain rate [1/s]", ylabel=f"flow stress at strain {campaign.rate_plot_strain:g} [MPa]")
+    plain_log_axis(ax.xaxis)
+    wrapped_title(fig, f"{campaign.name}: rate sensitivity")
     ax.grid(alpha=0.3, which="both")
     if len(ok):
-        ax.legend(fontsize=8)
+        longest = max(len(t) for t in ax.get_legend_handles_labels()[1])
+        fig.legend(loc="outside lower center", ncol=2 if longest <= 48 else 1, fontsize=7)
     return fig
 
 
 def plot_repeatability(campaign: Campaign, table: pd.DataFrame):
     """Per material and rate group, each repeat's deviation from the group mean flow stress [%].
 
-    Bars: +/- one standard deviation of the group (:func:`repeatability_table`
-    at ``campaign.rate_plot_strain``). Returns a ``matplotlib.figure.Figure``
+    One row per group (its material, mean rate and number of shots on the
+    left), so long material names have room; bars: +/- one standard
+    deviation of the group (:func:`repeatability_table` at
+    ``campaign.rate_plot_strain``). Returns a ``matplotlib.figure.Figure``
     built without pyplot.
     """
+    import textwrap
+
     from matplotlib.figure import Figure  # no pyplot: no global state, safe off the main thread
 
-    ok, _ = _shots_for_figures(table)
+    from .report import wrapped_title
+    from .style import shot_style
+
+    ok, mats = _shots_for_figures(table)
     col = _flow_column(campaign.rate_plot_strain)
     rep = repeatability_table(table, campaign.rate_plot_strain)
-    fig = Figure(figsize=(7.0, 4.8), constrained_layout=True)
+    fig = Figure(figsize=(7.0, max(3.2, 1.6 + 0.6 * len(rep))), constrained_layout=True)
     ax = fig.subplots()
     labels = []
     for k, (_, gr) in enumerate(rep.iterrows()):
         members = ok[ok["id"].isin(gr["ids"].split(";"))]
         dev = 100 * (members[col].to_numpy(float) / gr["flow_stress_MPa_mean"] - 1)
-        ax.plot(np.full(dev.size, k), dev, "o", color="C0", alpha=0.7)
+        st = shot_style(mats.index(str(gr["material"])) if str(gr["material"]) in mats else 0)
+        ax.plot(dev, np.full(dev.size, k), st["marker"], color=st["color"], alpha=0.8, ls="none")
         if np.isfinite(gr["flow_stress_cv"]):
-            ax.errorbar([k], [0.0], yerr=[100 * gr["flow_stress_cv"]], fmt="_", color="k", capsize=6)
-        labels.append(f"{gr['material'] or '-'}\n{gr['mean_strain_rate_per_s']:.0f} 1/s\nn={gr['n']}")
-    ax.axhline(0.0, color="0.5", lw=0.8)
-    ax.set_xticks(range(len(labels)))
-    ax.set_xticklabels(labels, fontsize=7)
-    ax.set(ylabel=f"deviation from group mean [%] (flow stress at {campaign.rate_plot_strain:g})",
-           title=f"{campaign.name}: repeatability (bars: ± 1 std)")
-    ax.grid(alpha=0.3, axis="y")
+            ax.errorbar([0.0], [k], xerr=[100 * gr["flow_stress_cv"]], fmt="|", color="k", capsize=5)
+        name = "\n".join(textwrap.wrap(str(gr["material"] or "-"), 24, max_lines=2, placeholder="..."))
+        labels.append(f"{name}\n{gr['mean_strain_rate_per_s']:.0f} 1/s, n = {gr['n']}")
+    ax.axvline(0.0, color="0.5", lw=0.8)
+    ax.set_yticks(range(len(labels)))
+    ax.set_yticklabels(labels, fontsize=7)
+    ax.set_ylim(-0.6, max(len(labels), 1) - 0.4)
+    ax.invert_yaxis()
+    ax.set_xlabel(f"deviation from the group mean [%] (flow stress at strain {campaign.rate_plot_strain:g})")
+    wrapped_title(fig, f"{campaign.name}: repeatability (bars: ± 1 std of the group)")
+    ax.grid(alpha=0.3, axis="x")
     return fig
 
 

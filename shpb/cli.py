@@ -25,7 +25,7 @@ from .errors import ShpbError
 app = new_app("Split-Hopkinson (Kolsky) bar data reduction. SI inside; quantities may carry units ('19.05 mm').")
 
 #: Subcommand modules, in the order they appear in --help.
-COMMANDS = ["reduce", "simulate", "plan", "dispersion", "calibrate", "batch", "fit"]
+COMMANDS = ["reduce", "simulate", "plan", "dispersion", "calibrate", "batch", "watch", "report", "fit"]
 
 for _name in COMMANDS:
     try:

@@ -315,9 +315,26 @@ def _model_at(blocks, k, y, hum_frequency):
 
 
 def _quiet_blocks(blocks, base):
-    """Blocks whose mean stands within 4 noise units of the baseline, less two blocks round each active one."""
+    """Blocks whose mean stands within 4 noise units of the baseline, less two blocks round each active one.
+
+    Quiet blocks cut off from the others by more than half the record (the tail of a long pulse's record, say)
+    must also stand within 4 noise units of the baseline as a whole (their mean residual against
+    sigma / sqrt(samples)): no quiet span nearby shows a trend they could belong to, and a stretch a few per
+    cent off the baseline that noise lets through block by block would bend the baseline towards it (and, once
+    bent, let more of itself through).
+    """
     active = np.abs(blocks.y - base) > 4.0 * blocks.sigma
-    return ~_dilate(active, 2)
+    quiet = ~_dilate(active, 2)
+    idx = np.flatnonzero(quiet)
+    if idx.size < 2:
+        return quiet
+    groups = np.split(idx, np.flatnonzero(np.diff(blocks.k[idx]) > 0.5 * blocks.n) + 1)
+    if len(groups) > 1:
+        for g in groups:
+            u = math.sqrt(float(np.sum(blocks.sigma[g] ** 2))) / g.size
+            if abs(float(np.mean(blocks.y[g] - base[g]))) > 4.0 * u:
+                quiet[g] = False
+    return quiet
 
 
 def _grow(blocks, base, hum_frequency, iterations):
@@ -501,9 +518,16 @@ def lowpass(signal: ArrayLike, dt: float, cutoff: float, order: int = LOWPASS_OR
     pad = int(min(n - 1, max(3 * int(order), math.ceil(8.0 / (cutoff * dt)))))
     ext = np.concatenate((2.0 * x[0] - x[pad:0:-1], x, 2.0 * x[-1] - x[-2:-pad - 2:-1]))
     m = _fast_length(ext.size + pad)
-    f = np.fft.rfftfreq(m, dt)
+    gain = lowpass_gain(np.fft.rfftfreq(m, dt), dt, cutoff, order)
+    return np.fft.irfft(np.fft.rfft(ext, m) * gain, m)[pad:pad + n]
+
+
+def lowpass_gain(frequency: ArrayLike, dt: float, cutoff: float, order: int = LOWPASS_ORDER) -> np.ndarray:
+    """Magnitude response of :func:`lowpass` (both passes) at ``frequency`` [Hz]:
+    1 / (1 + (tan(pi f dt) / tan(pi f_c dt))^(2 N)), zero at and above the Nyquist frequency's warped infinity."""
+    f = np.asarray(frequency, dtype=float)
     with np.errstate(over="ignore", divide="ignore"):
         ratio = np.tan(np.pi * np.minimum(f * dt, 0.5)) / math.tan(math.pi * cutoff * dt)
         gain = 1.0 / (1.0 + ratio ** (2 * int(order)))
     gain[~np.isfinite(ratio)] = 0.0
-    return np.fft.irfft(np.fft.rfft(ext, m) * gain, m)[pad:pad + n]
+    return gain

@@ -1487,7 +1487,11 @@ def _default_flow_strain(result):
 
 
 def plot_fit(result, flow_strain=None):
-    """Figure sheet of a fit: data and fit per rate, residuals, rate sensitivity, parameters.
+    """Figure sheet of a fit: data and fit per curve, residuals, rate sensitivity, parameters.
+
+    Each curve has its own colour (and, past seven curves, its own line style
+    and marker) from the shot palette :data:`shpb.style.SHOT_COLOURS`, with
+    its rate in the legend; the legends sit in the text panel, off the data.
 
     Parameters
     ----------
@@ -1502,52 +1506,70 @@ def plot_fit(result, flow_strain=None):
     matplotlib.figure.Figure
         Built without pyplot; :func:`write_fit` saves it as ``fit_sheet.png``.
     """
-    from matplotlib import colormaps, colors, ticker
     from matplotlib.figure import Figure  # no pyplot: no global state, the user's backend untouched
+    from matplotlib.lines import Line2D
+
+    from .report import plain_log_axis
+    from .style import shot_style
 
     if flow_strain is None:
         flow_strain = _default_flow_strain(result)
     fig = Figure(figsize=(12, 9), layout="constrained")
     ax_fit, ax_res, ax_rate, ax_txt = fig.subplots(2, 2).ravel()
     rates = [c.strain_rate for c in result.curves]
-    norm = colors.LogNorm(vmin=min(rates) / 1.01, vmax=max(rates) * 1.01)
-    cmap, tmap = colormaps["viridis"], colormaps["plasma"]
-    for c in result.curves:
-        col = cmap(norm(c.strain_rate))
+    # one colour (and, past seven, line style) per curve, so that the legend tells every shot apart; the rate
+    # is in each label
+    order = sorted(range(len(result.curves)), key=lambda k: (result.curves[k].temperature,
+                                                              result.curves[k].strain_rate))
+    styles = {k: shot_style(i) for i, k in enumerate(order)}
+    handles = []
+    for k in order:
+        c, st = result.curves[k], styles[k]
         pred = result.predict(c.plastic_strain, c.strain_rate, c.temperatures)
-        label = f"{c.name}: {c.strain_rate:.3g} 1/s, {c.temperature:.0f} K"
-        ax_fit.plot(c.plastic_strain, c.stress / 1e6, "o", ms=2.5, color=col, alpha=0.6)
-        ax_fit.plot(c.plastic_strain, pred / 1e6, "-", color=col, lw=1.5, label=label)
+        rate = f"{c.strain_rate:.0f}" if c.strain_rate >= 10 else f"{c.strain_rate:.3g}"
+        label = f"{c.name}: {rate} 1/s, {c.temperature:.0f} K"
+        ax_fit.plot(c.plastic_strain, c.stress / 1e6, st["marker"], ms=2.5, color=st["color"], alpha=0.5)
+        ax_fit.plot(c.plastic_strain, pred / 1e6, st["linestyle"], color=st["color"], lw=1.5)
         if result.staged is not None:
             ps = result.staged.predict(c.plastic_strain, c.strain_rate, c.temperatures)
-            ax_fit.plot(c.plastic_strain, ps / 1e6, "--", color=col, lw=1.0)
-        ax_res.plot(c.plastic_strain, (c.stress - pred) / 1e6, "-", color=col, lw=1.0)
+            ax_fit.plot(c.plastic_strain, ps / 1e6, "--", color=st["color"], lw=1.0)
+        ax_res.plot(c.plastic_strain, (c.stress - pred) / 1e6, st["linestyle"], color=st["color"], lw=1.0)
+        handles.append(Line2D([], [], color=st["color"], ls=st["linestyle"], marker=st["marker"], ms=3, lw=1.5,
+                              label=label))
     ax_fit.set(xlabel="true plastic strain [1]", ylabel="true stress [MPa]",
                title=f"{result.model}: data (dots) and fit (lines" + (", dashed: staged)" if result.staged else ")"))
-    if len(result.curves) <= 14:
-        ax_fit.legend(fontsize=7, loc="lower right")
     ax_res.axhline(0.0, color="k", lw=0.8)
-    ax_res.set(xlabel="true plastic strain [1]", ylabel="data - model [MPa]",
+    ax_res.set(xlabel="true plastic strain [1]", ylabel="data − model [MPa]",
                title=f"residuals (RMS {result.rms / 1e6:.3g} MPa, R² {result.r_squared:.4f})")
-    # Rate sensitivity at one plastic strain, per temperature level.
+    # Rate sensitivity at one plastic strain, per temperature level: black and greys with line styles, so that
+    # they are not read as shots
     _, temps, _ = _data_levels(result.curves, 1.5, 5.0)
-    tnorm = colors.Normalize(vmin=min(temps) - 1, vmax=max(temps) + 1)
+    greys = ("#000000", "0.45", "0.7")
+    t_style = {T: {"color": greys[i % 3], "linestyle": ("-", "--", ":")[(i // 3) % 3]} for i, T in enumerate(temps)}
     r_line = np.logspace(np.log10(min(rates)) - 0.5, np.log10(max(rates)) + 0.5, 100)
+    t_handles = []
     for T in temps:
-        col = tmap(0.8 * tnorm(T))
-        ax_rate.plot(r_line, result.predict(flow_strain, r_line, T) / 1e6, "-", color=col, label=f"model {T:.0f} K")
+        t_handles += ax_rate.plot(r_line, result.predict(flow_strain, r_line, T) / 1e6, t_style[T]["linestyle"],
+                                  color=t_style[T]["color"], label=f"model at {T:.0f} K")
     for c in result.curves:
         if c.plastic_strain.min() <= flow_strain <= c.plastic_strain.max():
-            col = tmap(0.8 * tnorm(c.temperature))
-            ax_rate.plot(c.strain_rate, np.interp(flow_strain, c.plastic_strain, c.stress) / 1e6, "o", color=col)
+            T = min(temps, key=lambda t: abs(t - c.temperature))
+            ax_rate.plot(c.strain_rate, np.interp(flow_strain, c.plastic_strain, c.stress) / 1e6, "o",
+                         color=t_style[T]["color"])
     ax_rate.set_xscale("log")
-    ax_rate.xaxis.set_minor_formatter(ticker.NullFormatter())  # minor labels collide on short spans
+    plain_log_axis(ax_rate.xaxis)  # plain numbers; minor labels only where they cannot collide
     ax_rate.set(xlabel="strain rate [1/s]", ylabel="true stress [MPa]",
                 title=f"rate sensitivity at plastic strain {flow_strain:.3g} (dots: data)")
-    ax_rate.legend(fontsize=7)
     ax_txt.axis("off")
     ax_txt.text(0.0, 1.0, fit_report(result, width=70), va="top", ha="left", family="monospace", fontsize=7.5,
                 transform=ax_txt.transAxes)
+    # the legends in the text panel, off the data: the curves (shots) and the model's temperatures
+    if len(handles) <= 21:
+        leg = ax_txt.legend(handles=handles, loc="lower left", fontsize=7, ncol=1 if len(handles) <= 10 else 2,
+                            title="curves (data and fit)", title_fontsize=7, frameon=False)
+        ax_txt.add_artist(leg)
+    ax_txt.legend(handles=t_handles, loc="lower right", fontsize=7, title="rate sensitivity", title_fontsize=7,
+                  frameon=False)
     return fig
 
 

@@ -39,6 +39,10 @@ class Record:
         Recorded voltages [V].
     files : dict
         File path -> SHA-256 of its content.
+    stations : dict
+        Further gauge stations' channels [V], by station name: ``incident_2``,
+        ``incident_3``, ... for the bar set's ``incident_stations`` in order,
+        ``transmitted_2``, ... (empty for a two-channel record).
     """
 
     time: np.ndarray
@@ -46,10 +50,14 @@ class Record:
     incident: np.ndarray
     transmitted: np.ndarray
     files: dict = field(default_factory=dict)
+    stations: dict = field(default_factory=dict)
 
     @classmethod
-    def from_arrays(cls, incident, transmitted, *, dt=None, time=None) -> "Record":
+    def from_arrays(cls, incident, transmitted, *, dt=None, time=None, stations=None) -> "Record":
         """A record held in memory (no file): the two channels [V] and a sample interval [s] or a time vector [s].
+
+        ``stations`` optionally maps further stations' names (``incident_2``, ...)
+        to their channels [V].
 
         Raises
         ------
@@ -68,6 +76,12 @@ class Record:
             if not np.all(np.isfinite(x)):
                 raise InputError(f"the {name} channel has a non-finite value at sample "
                                  f"{int(np.argmax(~np.isfinite(x)))}", "record")
+        extra = {}
+        for name, x in (stations or {}).items():
+            extra[name] = np.asarray(x, dtype=float).ravel()
+            if extra[name].size != inc.size or not np.all(np.isfinite(extra[name])):
+                raise InputError(f"the {name} channel has {extra[name].size} samples (the incident channel "
+                                 f"{inc.size}) or a non-finite value", "record")
         if (dt is None) == (time is None):
             raise InputError("give either dt (the sample interval) or time (a time vector)", "record")
         if time is not None:
@@ -75,10 +89,10 @@ class Record:
             if t.size != inc.size:
                 raise InputError(f"time has {t.size} samples, channels {inc.size}", "record")
             dt = _uniform_dt(t, "record", "time")
-            return cls(time=_time_axis(t[0], dt, t.size), dt=dt, incident=inc, transmitted=tra)
+            return cls(time=_time_axis(t[0], dt, t.size), dt=dt, incident=inc, transmitted=tra, stations=extra)
         if not (np.isfinite(dt) and dt > 0):
             raise InputError(f"expected a positive sample interval, got {dt!r}", "record")
-        return cls(time=_time_axis(0.0, dt, inc.size), dt=float(dt), incident=inc, transmitted=tra)
+        return cls(time=_time_axis(0.0, dt, inc.size), dt=float(dt), incident=inc, transmitted=tra, stations=extra)
 
 
 # --------------------------------------------------------------------------- hashing
@@ -307,7 +321,7 @@ def check_record_size(spec) -> None:
         Naming the file and the key ``record.max_samples``.
     """
     limit = int(getattr(spec, "max_samples", None) or MAX_SAMPLES)
-    for ch in (spec.incident, spec.transmitted):
+    for ch in _channels(spec).values():
         path = Path(ch.file)
         if not path.is_file():
             continue  # the reader says so
@@ -388,8 +402,9 @@ def read_record(spec) -> Record:
 
     check_record_size(spec)
 
+    channels = _channels(spec)
     # hash the files on a second thread while they are parsed (hashlib releases the GIL)
-    paths = sorted({spec.incident.file, spec.transmitted.file}, key=str)
+    paths = sorted({ch.file for ch in channels.values()}, key=str)
     pool = ThreadPoolExecutor(max_workers=1)
     hashes = {str(p): pool.submit(sha256_file, p) for p in paths if Path(p).is_file()}
     pool.shutdown(wait=False)
@@ -401,6 +416,14 @@ def read_record(spec) -> Record:
                          f"({spec.transmitted.file}) has {tra.size}", str(spec.incident.file))
     if inc.size < 16:
         raise InputError(f"only {inc.size} samples: too short to be a bar record", str(spec.incident.file))
+    stations = {}
+    for name, ch in channels.items():
+        if name in ("incident", "transmitted"):
+            continue
+        stations[name] = cache.column(ch.file, ch.column)
+        if stations[name].size != inc.size:
+            raise InputError(f"the incident channel has {inc.size} samples but the {name} channel ({ch.file}) has "
+                             f"{stations[name].size}", str(spec.incident.file))
     if spec.time is not None:
         t = cache.column(spec.incident.file, spec.time)
         if t.size != inc.size:
@@ -411,7 +434,23 @@ def read_record(spec) -> Record:
         dt = spec.sample_interval
         time = _time_axis(0.0, dt, inc.size)
     files = {name: fut.result() for name, fut in hashes.items()}
-    return Record(time=time, dt=dt, incident=inc, transmitted=tra, files=files)
+    return Record(time=time, dt=dt, incident=inc, transmitted=tra, files=files, stations=stations)
+
+
+def station_name(bar: str, number: int) -> str:
+    """The name of a bar's gauge station in a record: ``incident_2`` is the incident bar's second station
+    (the bar set's first further one; station 1 is the main gauge, the record's ``incident`` channel)."""
+    return f"{bar}_{int(number)}"
+
+
+def _channels(spec) -> dict:
+    """Channel name -> Channel of a record spec: ``incident``, ``transmitted``, then the further stations
+    (:func:`station_name`)."""
+    out = {"incident": spec.incident, "transmitted": spec.transmitted}
+    for bar in ("incident", "transmitted"):
+        for k, ch in enumerate(getattr(spec, f"{bar}_stations", ()), start=2):
+            out[station_name(bar, k)] = ch
+    return out
 
 
 def _time_axis(t0, dt, n):
@@ -526,6 +565,17 @@ def figure_bytes(fig, fmt: str = "png", **kwargs) -> bytes:
 def atomic_savefig(fig, path, **kwargs) -> None:
     """Save a matplotlib figure atomically (format from the suffix)."""
     atomic_write_bytes(path, figure_bytes(fig, Path(path).suffix.lstrip(".") or "png", **kwargs))
+
+
+def atomic_write_pdf(figures, path) -> None:
+    """Write matplotlib figures as the pages of one PDF file, atomically (through matplotlib's PdfPages)."""
+    from matplotlib.backends.backend_pdf import PdfPages
+
+    buf = _io.BytesIO()
+    with PdfPages(buf) as pdf:
+        for fig in figures:
+            pdf.savefig(fig)
+    atomic_write_bytes(path, buf.getvalue())
 
 
 _OMIT = object()  # marks a value to_plain leaves out

@@ -63,6 +63,37 @@ def robust_noise(signal: ArrayLike) -> tuple[float, float]:
     return level, sigma / np.sqrt(2.0)
 
 
+def rest_level(signal: ArrayLike) -> tuple[float, float]:
+    """Level a channel rests at before its first wave, and its noise: :func:`robust_noise`, checked against the
+    record's start.
+
+    The median of the record is the baseline when pulses fill less than half
+    of it. A record of long or overlapping pulses (two-point separation,
+    ``shpb.separation``) can sit on a pulse most of the time; then the median
+    of its first hundredth (at least :data:`MIN_BASELINE_SAMPLES` samples),
+    which lies in the pre-trigger, is taken instead, when the two differ by
+    more than 8 noise units and 5 % of the channel's swing and the record
+    stays longer near it from its first sample on.
+
+    Returns
+    -------
+    level, sigma : float
+        In the signal's unit.
+    """
+    s = np.asarray(signal, dtype=float)
+    level, sigma = robust_noise(s)
+    start = float(np.median(s[: max(MIN_BASELINE_SAMPLES, s.size // 100)]))
+    tol = max(8.0 * sigma, 0.05 * float(np.ptp(s)))
+    if abs(start - level) <= tol:
+        return level, sigma
+
+    def initial_run(at):  # samples from the record's start before it leaves the level
+        away = np.flatnonzero(np.abs(s - at) > tol)
+        return int(away[0]) if away.size else s.size
+
+    return (start, sigma) if initial_run(start) > initial_run(level) else (level, sigma)
+
+
 def find_foot(signal: ArrayLike, n_baseline: Optional[int] = None, *, k_sigma: float = 8.0, min_fraction: float = 0.05,
               foot_fraction: float = 0.01, sigma: Optional[float] = None, persist: int = 1) -> Optional[float]:
     """Sub-sample index of the foot of the first positive pulse.
@@ -289,6 +320,36 @@ MIN_BASELINE_SAMPLES = 16
 
 
 @dataclass(frozen=True)
+class StationStrain:
+    """A further gauge station's channel, conditioned in stage 1 exactly as the main channels.
+
+    Attributes
+    ----------
+    bar : str
+        ``incident`` or ``transmitted``.
+    gauge : shpb.setup.Gauge
+        The station (its distance from the specimen face [m], bridge, polarity).
+    strain : ndarray
+        Bar strain at the station [1], compression positive: glitches
+        repaired, baseline removed, low-passed with the main channels' filter.
+    volts, baseline : ndarray
+        The channel as recorded and the baseline removed from it [V].
+    quiet : ndarray of bool
+        The samples the baseline was fitted on.
+    noise : float
+        Standard deviation of ``strain`` over its quiet samples [1].
+    """
+
+    bar: str
+    gauge: object
+    strain: np.ndarray
+    volts: np.ndarray
+    baseline: np.ndarray
+    quiet: np.ndarray
+    noise: float
+
+
+@dataclass(frozen=True)
 class GaugeStrains:
     """Stage 1 of a reduction: both channels conditioned and converted to bar strains at their gauges.
 
@@ -326,8 +387,16 @@ class GaugeStrains:
         be); None when no pulse stands out of the noise.
     conditioning : dict
         What the conditioning did, per channel (glitches, baseline order and
-        quiet share, noise) and for both (low-pass cutoff and its reason,
+        quiet share, noise) and for all (low-pass cutoff and its reason,
         hum frequency): the ``condition`` step of the provenance.
+    stations : dict
+        Further gauge stations (name as :func:`shpb.io.station_name` ->
+        :class:`StationStrain`), conditioned as the main channels, for
+        two-point separation (:mod:`shpb.separation`); empty with
+        ``separation = "off"`` or without further stations in the record.
+    unusable_stations : dict
+        Station name -> why its channel cannot be used (no pulse on it, no
+        baseline before its first wave).
     """
 
     time: np.ndarray
@@ -347,6 +416,8 @@ class GaugeStrains:
     quiet_transmitted: Optional[np.ndarray] = None
     pulses: dict = field(default_factory=dict)
     conditioning: dict = field(default_factory=dict)
+    stations: dict = field(default_factory=dict)
+    unusable_stations: dict = field(default_factory=dict)
 
     @property
     def provenance(self) -> dict:
@@ -358,6 +429,14 @@ class GaugeStrains:
         """The ``condition`` step of the provenance: glitches, baselines, hum, low-pass."""
         return {"step": "condition", "parameters": self.conditioning}
 
+    def channel(self, name: str) -> tuple:
+        """(bar strain [1], quiet samples, noise standard deviation [1]) of a channel by name: ``incident``,
+        ``transmitted`` or a further station's (:attr:`stations`)."""
+        if name in ("incident", "transmitted"):
+            return getattr(self, name), getattr(self, f"quiet_{name}"), getattr(self, f"noise_{name}")
+        st = self.stations[name]
+        return st.strain, st.quiet, st.noise
+
     @property
     def lowpass_cutoff(self) -> Optional[float]:
         """Cutoff of the low-pass applied to both channels [Hz]; None when off."""
@@ -365,9 +444,10 @@ class GaugeStrains:
 
 
 def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOptions") -> GaugeStrains:
-    """Stage 1: condition both channels, find the incident foot and convert the volts to bar strain.
+    """Stage 1: condition every channel, find the incident foot and convert the volts to bar strain.
 
-    On each channel, in volts (:mod:`shpb.conditioning`):
+    On each channel, in volts (:mod:`shpb.conditioning`), the further gauge
+    stations' too (for two-point separation, unless ``separation = "off"``):
 
     1. isolated glitches are found against their neighbours and repaired;
     2. the channels are checked: the incident channel's first pulse must be
@@ -376,9 +456,11 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
        order otherwise);
     3. the baseline is fitted over every quiet span of the record, starting
        from the ``pre_trigger`` span when given (then only it), otherwise from
-       90 % of the record before the incident foot; its order (0 to 3) is the
+       90 % of the record before the incident foot (a further station's
+       span ends earlier by the wave's transit from it to the main incident
+       gauge, and before its own first wave); its order (0 to 3) is the
        lowest the data justify, with mains hum when ``hum_frequency`` is given;
-    4. both channels go through the same zero-phase Butterworth low-pass
+    4. every channel goes through the same zero-phase Butterworth low-pass
        (``lowpass``; cutoff ``lowpass_cutoff`` or automatic: the bars'
        second-mode onset, :func:`shpb.conditioning.lowpass_cutoff`);
     5. the incident foot is found on the conditioned incident channel
@@ -391,12 +473,15 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     record : shpb.io.Record
     barset : shpb.setup.BarSet
     analysis : shpb.setup.AnalysisOptions
-        ``pre_trigger``, ``incident_start``, ``lowpass``, ``lowpass_cutoff``
-        and ``hum_frequency`` are used.
+        ``pre_trigger``, ``incident_start``, ``lowpass``, ``lowpass_cutoff``,
+        ``hum_frequency`` and ``separation`` are used.
 
     Returns
     -------
     GaugeStrains
+        A further station whose channel cannot be used (no pulse on it, no
+        baseline before it) is named in ``unusable_stations`` with the reason;
+        the separation stage decides what that means.
 
     Raises
     ------
@@ -406,7 +491,6 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
         No incident pulse, too few samples before it, an incident pulse of the
         wrong sign or channels in the wrong order.
     """
-    from . import conditioning as cond
     from .errors import AnalysisError, InputError
 
     dt, n, t0 = record.dt, record.time.size, float(record.time[0])
@@ -414,7 +498,7 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
     info: dict = {"incident": {}, "transmitted": {}}
     raw = {"incident": record.incident, "transmitted": record.transmitted}
-    noise = {k: robust_noise(v) for k, v in raw.items()}  # (level, sigma), record-wide
+    noise = {k: rest_level(v) for k, v in raw.items()}  # (level, sigma), record-wide
     persist = max(3, int(round(1e-6 / dt)))  # a pulse lasts; a glitch or a burst of pickup does not
     pulses = _first_pulses(raw, noise, gauges, dt, t0, persist)
     _check_channels(pulses, barset)
@@ -440,31 +524,24 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     # the rest of the work only on the part of the record the analysis can read (a long record is baseline after)
     n = min(n, int(math.ceil(foot0 + _analysis_reach(barset, analysis) / dt)))
     time = record.time[:n]
-    clean, sigma = {}, {}
-    for name, v in raw.items():
-        v = v[:n]
-        hits = cond.find_glitches(v, noise[name][1], floor=0.005 * float(np.max(np.abs(v - noise[name][0]))))
-        clean[name], sigma[name] = cond.repair_glitches(v, hits), noise[name][1]
-        info[name]["glitches"] = int(hits.size)
-        if hits.size:
-            info[name]["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
     info["samples_used"] = n
     n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
-    initial = np.arange(n) < n_base
     volts, bases, quiet = {}, {}, {}
     for name in ("incident", "transmitted"):
-        bases[name], quiet[name], binfo = cond.quiet_baseline(
-            clean[name], sigma[name], dt, initial, hum_frequency=analysis.hum_frequency,
-            search=not analysis.pre_trigger)
-        volts[name] = clean[name] - bases[name]
-        info[name].update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
-                           "noise_V": float(sigma[name])})
-        if "hum_amplitude_V" in binfo:
-            info[name]["hum_amplitude_V"] = binfo["hum_amplitude_V"]
+        clean, info[name] = _repaired(raw[name][:n], *noise[name], t0, dt)
+        volts[name], bases[name], quiet[name] = _debased(clean, noise[name][1], dt, n_base, analysis, info[name])
+    # the further stations alike (their baselines end before their own first wave), for two-point separation
+    stations, unusable = _station_channels(record, barset, analysis, n, n_base, persist) \
+        if analysis.separation != "off" else ({}, {})
+    for name, (bar_name, gauge, level, sigma, n_quiet) in stations.items():
+        clean, info[name] = _repaired(record.stations[name][:n], level, sigma, t0, dt)
+        info[name]["distance_mm"] = gauge.distance * 1e3
+        volts[name], bases[name], quiet[name] = _debased(clean, sigma, dt, n_quiet, analysis, info[name])
     info["baseline"] = ("fitted over every quiet span (Schwarz criterion for the order)" if not analysis.pre_trigger
                         else f"fitted over the pre_trigger span ({n_base} samples)")
     info["hum_frequency_Hz"] = analysis.hum_frequency
-    volts, info["lowpass"] = _lowpass_both(volts, dt, foot0, gauges["incident"].polarity, barset, analysis)
+    # one filter for every channel: the waves keep their timing, and the stations' the main channels'
+    volts, info["lowpass"] = _lowpass_all(volts, dt, foot0, gauges["incident"].polarity, barset, analysis)
 
     x = gauges["incident"].polarity * volts["incident"]
     if source == "found":
@@ -473,18 +550,79 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
         foot = float(found) if found is not None else float(foot0)
     else:
         foot = float(foot0)
-    si = _bar_strain(volts["incident"], gauges["incident"], barset.incident)
-    st = _bar_strain(volts["transmitted"], gauges["transmitted"], barset.transmitted)
-    noise = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0
-             for k, v in (("incident", si), ("transmitted", st))}
+    strain = {k: _bar_strain(volts[k], g, getattr(barset, k)) for k, g in gauges.items()}
+    strain.update({k: _bar_strain(volts[k], g, getattr(barset, b)) for k, (b, g, *_) in stations.items()})
+    noise = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0 for k, v in strain.items()}
     for k in noise:
         info[k]["noise_strain"] = noise[k]
-    return GaugeStrains(time=time, dt=dt, incident=si, transmitted=st, volts_incident=raw["incident"][:n],
-                        volts_transmitted=raw["transmitted"][:n], baseline_incident=bases["incident"],
-                        baseline_transmitted=bases["transmitted"], baseline_samples=int(n_base),
-                        noise_incident=noise["incident"], noise_transmitted=noise["transmitted"], foot=foot,
-                        foot_source=source, quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"],
-                        pulses=pulses, conditioning=info)
+    extra = {k: StationStrain(b, g, strain[k], record.stations[k][:n], bases[k], quiet[k], noise[k])
+             for k, (b, g, *_) in stations.items()}
+    return GaugeStrains(time=time, dt=dt, incident=strain["incident"], transmitted=strain["transmitted"],
+                        volts_incident=raw["incident"][:n], volts_transmitted=raw["transmitted"][:n],
+                        baseline_incident=bases["incident"], baseline_transmitted=bases["transmitted"],
+                        baseline_samples=int(n_base), noise_incident=noise["incident"],
+                        noise_transmitted=noise["transmitted"], foot=foot, foot_source=source,
+                        quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"], pulses=pulses,
+                        conditioning=info, stations=extra, unusable_stations=unusable)
+
+
+def _repaired(v, level, sigma, t0, dt):
+    """A channel with its isolated glitches repaired, and what was done."""
+    from . import conditioning as cond
+
+    hits = cond.find_glitches(v, sigma, floor=0.005 * float(np.max(np.abs(v - level))))
+    info = {"glitches": int(hits.size)}
+    if hits.size:
+        info["glitch_times_us"] = [float((t0 + i * dt) * 1e6) for i in hits[:20]]
+    return cond.repair_glitches(v, hits), info
+
+
+def _debased(clean, sigma, dt, n_quiet, analysis, info):
+    """(volts less baseline, baseline, quiet samples) of a channel whose first ``n_quiet`` samples are quiet."""
+    from . import conditioning as cond
+
+    base, quiet, binfo = cond.quiet_baseline(clean, sigma, dt, np.arange(clean.size) < n_quiet,
+                                             hum_frequency=analysis.hum_frequency, search=not analysis.pre_trigger)
+    info.update({"baseline_order": binfo["order"], "baseline_quiet_fraction": binfo["quiet_fraction"],
+                 "noise_V": float(sigma)})
+    if "hum_amplitude_V" in binfo:
+        info["hum_amplitude_V"] = binfo["hum_amplitude_V"]
+    return clean - base, base, quiet
+
+
+def _station_channels(record, barset, analysis, n, n_base, persist) -> tuple[dict, dict]:
+    """The further stations of a record that can be conditioned: name -> (bar, gauge, level, noise, quiet start
+    [samples]); and name -> why not, for the others.
+
+    A station's quiet start is the main channels' (``n_base`` samples), moved earlier by the incident wave's
+    transit from a station farther from the specimen than the main incident gauge (it sees the wave first), and
+    at most 90 % of the samples before the station's own first pulse (a soft precursor below the foot-detection
+    level stays out).
+    """
+    from .io import station_name
+
+    usable, unusable = {}, {}
+    gi = barset.incident_gauge
+    for bar_name in ("incident", "transmitted"):
+        for k, gauge in enumerate(getattr(barset, f"{bar_name}_stations"), start=2):
+            name = station_name(bar_name, k)
+            if name not in record.stations:
+                continue
+            level, sigma = rest_level(record.stations[name])
+            foot = find_foot(gauge.polarity * (record.stations[name][:n] - level), None, persist=persist)
+            if foot is None:
+                unusable[name] = f"no pulse found on the {name} channel (station at {gauge.distance * 1e3:g} mm)"
+                continue
+            early = (gauge.distance - gi.distance) / barset.incident.wave_speed / record.dt \
+                if bar_name == "incident" else 0.0
+            n_quiet = min(int(n_base - max(early, 0.0)), int(0.9 * foot))
+            if n_quiet < MIN_BASELINE_SAMPLES:
+                unusable[name] = (f"the pulse reaches the station at {gauge.distance * 1e3:g} mm ({name}) "
+                                  f"{foot:.0f} samples into the record: no baseline before it (record a longer "
+                                  f"pre-trigger)")
+                continue
+            usable[name] = (bar_name, gauge, level, sigma, n_quiet)
+    return usable, unusable
 
 
 def _analysis_reach(barset: "BarSet", analysis: "AnalysisOptions") -> float:
@@ -533,8 +671,8 @@ def _check_channels(pulses, barset) -> None:
                             f"channel order)")
 
 
-def _lowpass_both(volts, dt, foot, polarity, barset, analysis):
-    """Both channels through the same zero-phase low-pass; what was done, for the provenance."""
+def _lowpass_all(volts, dt, foot, polarity, barset, analysis):
+    """Every channel through the same zero-phase low-pass; what was done, for the provenance."""
     from .conditioning import lowpass, lowpass_cutoff, rise_time
     from .dispersion import second_mode_onset
 
@@ -652,7 +790,7 @@ class WindowPlan:
 def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: float, *,
                 incident_gauge_distance: float, incident_wave_speed: float, incident_length: float,
                 transmitted_gauge_distance: float, transmitted_wave_speed: float, transmitted_length: float,
-                window_length: Optional[float] = None) -> WindowPlan:
+                window_length: Optional[float] = None, free_time: Optional[float] = None) -> WindowPlan:
     """Choose the analysis window of a shot.
 
     The window starts 10 % of the pulse before the incident foot reaches the
@@ -687,6 +825,12 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
         cut at their gauges over the automatic window when that is longer, so
         no window edge falls inside a pulse (a wave cut mid-pulse rings through
         the dispersion correction and breaks the force balance).
+    free_time : float, optional
+        How long after the incident foot reaches the specimen the waves stay
+        free of overlaps and unresolved echoes [s], when something else than
+        the bars' round trips above decides it (two-point separation,
+        :mod:`shpb.separation`: the waves are then not cut at the incident
+        gauge, so the reflected window's lead is not shortened either).
 
     Returns
     -------
@@ -695,12 +839,13 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     """
     di, ci = incident_gauge_distance, incident_wave_speed
     dtr, ct = transmitted_gauge_distance, transmitted_wave_speed
-    w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct)
+    w_free = min(2 * di / ci, 2 * (incident_length - di) / ci, 2 * (transmitted_length - dtr) / ct) \
+        if free_time is None else free_time
     lead = min(0.1 * duration, 0.1 * w_free)
     # the reflected window opens `lead` before the reflected wave reaches the incident gauge (2 d_i / c_i after the
     # foot): it must open after the incident pulse has passed, or the incident tail becomes a reflected wave
     gap = 2 * di / ci - duration
-    if gap < lead:
+    if gap < lead and free_time is None:  # separated waves are not cut at the gauge: no incident tail to keep out
         lead = max(gap, ramp_time(duration, dt) + 2 * dt)
     t_foot = t_start + foot * dt
     t_face0 = t_foot + di / ci
@@ -719,12 +864,15 @@ def plan_window(foot: float, duration: float, dt: float, t_start: float, t_end: 
     return WindowPlan(t_foot, t_face0, lead, window_length, source, (k0, k1), ramp, duration, carry_span=(k0, kc))
 
 
-def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions") -> WindowPlan:
+def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOptions", *,
+                  duration: Optional[tuple] = None, free_time: Optional[float] = None) -> WindowPlan:
     """Stage 2: the incident pulse's duration, the analysis window and each wave's window at its gauge.
 
     The duration is measured on the incident channel (down to 5 % of its
     peak, :func:`pulse_end`), or taken as the striker's 2 L / c0 when the
-    pulse does not end inside the record.
+    pulse does not end inside the record. Two-point separation
+    (:func:`shpb.separation.separate_waves`) passes its own ``duration``
+    (seconds, how it was found) and ``free_time`` (see :func:`plan_window`).
 
     Returns
     -------
@@ -738,8 +886,10 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
     from .errors import AnalysisError
 
     dt, foot = strains.dt, strains.foot
-    end = pulse_end(strains.incident, foot, fraction=0.05)
-    if end is not None:
+    end = None if duration else pulse_end(strains.incident, foot, fraction=0.05)
+    if duration:
+        duration, source = duration
+    elif end is not None:
         duration, source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
     elif barset.striker is not None:
         duration, source = barset.striker.pulse_duration, "striker 2L/c0"
@@ -750,7 +900,7 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
                        incident_gauge_distance=barset.incident_gauge.distance, incident_wave_speed=bi.wave_speed,
                        incident_length=bi.length, transmitted_gauge_distance=barset.transmitted_gauge.distance,
                        transmitted_wave_speed=bt.wave_speed, transmitted_length=bt.length,
-                       window_length=analysis.window_length)
+                       window_length=analysis.window_length, free_time=free_time)
     adjusts = {"incident": 0.0, "reflected": analysis.reflected_adjust or 0.0,
                "transmitted": analysis.transmitted_adjust or 0.0}
     distances, travel, spans = {}, {}, {}
@@ -790,6 +940,13 @@ class FaceWaves:
         The window's taper at the faces [1], the same for the three waves
         (each cut at its gauge with the taper on the fractional sample grid
         and carried by its exact travel time): 1 where the waves are whole.
+    noise_gains : dict
+        Face force (``front``, ``back``) -> {channel name: gain over the
+        window [1]} when its waves were not each cut from one channel: the
+        force's noise is E A sqrt(sum (gain sigma_channel)^2) (two-point
+        separation, :func:`shpb.separation.noise_gains`). Empty for the
+        classic waves: u(F1) = E A sqrt(2) sigma_incident (two waves of one
+        channel), u(F2) = E A sigma_transmitted.
     """
 
     time: np.ndarray
@@ -800,10 +957,16 @@ class FaceWaves:
     plain: dict
     dispersion: dict
     weight: Optional[np.ndarray] = None
+    noise_gains: dict = field(default_factory=dict)
 
     def wave(self, name) -> np.ndarray:
         """One wave by name (``incident``, ``reflected``, ``transmitted``)."""
         return getattr(self, name)
+
+    @property
+    def separated_bars(self) -> tuple:
+        """The bars whose waves come from two-point separation (none: each wave cut at its gauge)."""
+        return ()
 
     @property
     def provenance(self) -> dict:

@@ -5,10 +5,13 @@ of its physics and returns a frozen dataclass that can be run, inspected and
 plotted alone::
 
     Record ─ pulses.condition_record ─> GaugeStrains     (baselines, incident foot, volts -> bar strain)
+           ─ separation.separate_waves ─> Separation     (two-point separation, where the waves overlap)
            ─ pulses.plan_analysis    ─> WindowPlan       (pulse duration, analysis window, each wave's gauge window)
-           ─ pulses.waves_at_faces   ─> FaceWaves        (each wave carried to its face, dispersion corrected)
+           ─ separation.waves_at_faces ─> FaceWaves      (each wave carried to its face, dispersion corrected,
+                                                          or the separated waves)
            ─ kolsky.kolsky_curves    ─> KolskyCurves     (forces, velocities, rates, strains, stresses)
            ─ validity.judge          ─> Verdict          (every flag, valid part, R(t) that decided)
+           ─ specimen.specimen_corrections ─> SpecimenCorrections (inertia, friction: beside the stress)
            ─ uncertainty.propagate   ─> ShotUncertainty  (u and U of every row and scalar, budget; optional)
            ─ ShotResult              (curves table + summary + flags; owns the result folder)
 """
@@ -21,9 +24,10 @@ from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Optional
 
+import numpy as np
 import pandas as pd
 
-from . import __version__, kolsky, pulses, validity
+from . import __version__, kolsky, pulses, separation, specimen, validity
 from .errors import AnalysisError, InputError
 from .io import Record, atomic_write_csv, atomic_write_json, check_time_base, read_record
 from .setup import Bar, Gauge, Shot
@@ -44,6 +48,8 @@ class Stages:
     waves: pulses.FaceWaves
     curves: kolsky.KolskyCurves
     verdict: validity.Verdict
+    separation: Optional[separation.Separation] = None
+    corrections: Optional[specimen.SpecimenCorrections] = None
     uncertainty: Optional[object] = None  # shpb.uncertainty.ShotUncertainty, when the analysis asks for it
 
 
@@ -95,10 +101,19 @@ class ShotResult:
         st, plan = self.stages.strains, self.stages.plan
         last = plan.last_sample(st.time.size)
         res = self.summary["results"]
+        windows = plan.gauge_window_times(float(st.time[0]), st.dt)
+        separated = self.stages.waves.separated_bars
+        if "incident" in separated:  # not cut at the gauge: the span the separated waves cover there
+            a, b = windows.pop("incident"), windows.pop("reflected")
+            windows = {"incident + reflected (separated)": (min(a[0], b[0]), max(a[1], b[1])), **windows}
+        if "transmitted" in separated:
+            windows["transmitted (separated)"] = windows.pop("transmitted")
+        stations = {f"{s.bar}-bar station at {s.gauge.distance * 1e3:g} mm": s.strain[:last]
+                    for s in st.stations.values() if s.bar in separated}
         return {"time": st.time[:last], "strain_incident_gauge": st.incident[:last],
                 "strain_transmitted_gauge": st.transmitted[:last], "volts_incident": st.volts_incident[:last],
-                "volts_transmitted": st.volts_transmitted[:last],
-                "gauge_windows": plan.gauge_window_times(float(st.time[0]), st.dt), "t_face0": plan.t_face0,
+                "volts_transmitted": st.volts_transmitted[:last], "stations": stations,
+                "gauge_windows": windows, "t_face0": plan.t_face0,
                 "yield": (res.get("yield_strain"), res.get("yield_stress_MPa"))}
 
     def plot(self):
@@ -189,16 +204,26 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
             record = read_record(shot.record)
         check_time_base(record, shot)  # a unit typo is refused before the stages size anything by it
         strains = pulses.condition_record(record, bs, opt)
-        plan = pulses.plan_analysis(strains, bs, opt)
-        waves = pulses.waves_at_faces(strains, plan, bs, opt)
+        split, plan, waves = face_stages(strains, bs, opt)
         curves = kolsky.kolsky_curves(waves, bs, shot.specimen, opt.stress)
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt, shot.striker_speed)
-        stages = Stages(record, strains, plan, waves, curves, verdict)
+        corrections = specimen.specimen_corrections(curves, plan, shot.specimen, opt, verdict.valid, waves.dt)
+        stages = Stages(record, strains, plan, waves, curves, verdict, split, corrections)
         if opt.uncertainty:
             from .uncertainty import propagate
 
             stages = replace(stages, uncertainty=propagate(shot, stages))
     return _result(shot, stages)
+
+
+def face_stages(strains: pulses.GaugeStrains, barset, analysis) -> tuple:
+    """Stages 2a, 2 and 3 on a conditioned record: (Separation, WindowPlan, FaceWaves).
+
+    The uncertainty stage reruns them with drawn inputs (:mod:`shpb.uncertainty`).
+    """
+    split = separation.separate_waves(strains, barset, analysis)  # used where the waves overlap
+    plan = pulses.plan_analysis(strains, barset, analysis, **split.plan_options())
+    return split, plan, separation.waves_at_faces(split, strains, plan, barset, analysis)
 
 
 @contextmanager
@@ -217,16 +242,21 @@ def _named(where: str):
 def _result(shot: Shot, st: Stages) -> ShotResult:
     """Gather the stage results into the curves table and the summary."""
     bs, v = shot.barset, st.verdict
-    results = {**v.results, **st.plan.results(), **st.waves.results()}
+    extra = st.corrections  # the specimen's inertia and friction: beside the stress, with their own flags
+    results = {**v.results, **st.plan.results(), "face_waves_method": separation.METHOD_CLASSIC,
+               **st.waves.results(), **(extra.results if extra else {})}
+    flags = tuple(v.flags) + (extra.flags if extra else ())
     for which in ("incident", "transmitted"):
         results[f"{which}_wave_speed_m_per_s"] = getattr(bs, which).wave_speed
         results[f"{which}_wave_speed_source"] = _speed_source(bs, which)
-    provenance = [st.strains.condition_provenance, st.strains.provenance, _shift_provenance(bs, st.waves),
-                  st.curves.provenance,
+    provenance = [st.strains.condition_provenance, st.strains.provenance,
+                  *([st.separation.provenance] if st.separation else []),
+                  _shift_provenance(bs, st.waves), st.curves.provenance,
                   {"step": "validity", "parameters": {"equilibrium_threshold": shot.analysis.equilibrium_threshold,
                                                       "equilibrium_false_alarm": validity.EQUILIBRIUM_FALSE_ALARM,
                                                       "min_valid_fraction": validity.MIN_VALID_FRACTION,
-                                                      "yield_offset": shot.analysis.yield_offset}}]
+                                                      "yield_offset": shot.analysis.yield_offset}},
+                  *([extra.provenance] if extra else [])]
     provenance[1]["parameters"].update({"incident": bs.incident_gauge.bridge,
                                         "transmitted": bs.transmitted_gauge.bridge})
     unc = st.uncertainty
@@ -240,7 +270,7 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
         "package_version": __version__,
         "valid": v.is_valid,
         "results": results,
-        "flags": [f.as_dict() for f in v.flags],
+        "flags": [f.as_dict() for f in flags],
         "inputs": _inputs(shot),
         "records": {_resolved(k): v for k, v in st.record.files.items()},
         "provenance": provenance,
@@ -249,8 +279,8 @@ def _result(shot: Shot, st: Stages) -> ShotResult:
     }
     if unc is not None:
         summary["uncertainty"] = unc.summary()
-    return ShotResult(name=shot.name, curves=curves_table(st.waves, st.curves, v, unc), summary=summary,
-                      flags=tuple(v.flags), stages=st)
+    return ShotResult(name=shot.name, curves=curves_table(st.waves, st.curves, v, extra, unc), summary=summary,
+                      flags=flags, stages=st)
 
 
 def _shift_provenance(barset, waves) -> dict:
@@ -260,10 +290,13 @@ def _shift_provenance(barset, waves) -> dict:
     return p
 
 
-def curves_table(waves, curves, verdict, uncertainty=None) -> pd.DataFrame:
+def curves_table(waves, curves, verdict, corrections=None, uncertainty=None) -> pd.DataFrame:
     """The ``curves.csv`` table of a shot from its stages (units in the column names); with the uncertainty
     stage, the standard and expanded uncertainties of stress, strain and strain rate after ``valid``."""
     sig = curves.stress_by_form
+    n = curves.time.size
+    extra = corrections.columns(n) if corrections else {k: np.full(n, np.nan)
+                                                        for k in specimen.SpecimenCorrections.COLUMNS}
     return pd.DataFrame({
         "time_us": curves.time * 1e6,
         "strain_incident": waves.incident, "strain_reflected": waves.reflected,
@@ -276,6 +309,7 @@ def curves_table(waves, curves, verdict, uncertainty=None) -> pd.DataFrame:
         "stress_1wave_MPa": sig["1-wave"] / 1e6, "stress_2wave_MPa": sig["2-wave"] / 1e6,
         "stress_3wave_MPa": sig["3-wave"] / 1e6, "stress_MPa": curves.stress / 1e6,
         "true_strain": curves.true_strain, "true_stress_MPa": curves.true_stress / 1e6,
+        **extra,
         "valid": verdict.valid.astype(int),
         **(uncertainty.columns() if uncertainty is not None else {}),
     })
@@ -299,6 +333,12 @@ COLUMN_NOTES = {
     "stress_MPa": "the reported stress, per the analysis option 'stress'",
     "true_strain": "-ln(1 - strain)",
     "true_stress_MPa": "stress_MPa (1 - strain)",
+    "stress_inertia_dh_MPa": "stress_1wave_MPa + rho (L^2/6 - nu^2 D^2/8) d(strain_rate)/dt (Davies & Hunter 1963); "
+                             "an estimate beside the stress, NaN without the specimen's density",
+    "stress_inertia_gorham_MPa": "stress_MPa + the fuller inertia correction (Gorham 1989: face acceleration, "
+                                 "current dimensions, radial strain-rate-squared term); NaN without the density",
+    "stress_friction_MPa": "stress_MPa / (1 + mu D / (3 L)), current D and L (Siebel 1923): the friction-free end "
+                           "of the band; NaN without friction_coefficient",
     "valid": "1 inside the loading part after force equilibrium",
     "u_stress_MPa, u_strain, u_strain_rate_per_s, u_true_stress_MPa": "standard uncertainty of the row's value "
     "(GUM law for the linear inputs, Monte Carlo through the stages for the rest; docs/uncertainty.md)",
@@ -322,23 +362,29 @@ def _inputs(shot: Shot) -> dict:
     """The resolved setup, SI, for the summary; every input path absolute and resolved."""
     bs = shot.barset
 
-    def bar(b: Bar, g: Gauge):
+    def bar(b: Bar, g: Gauge, stations=()):
         d = {"material": asdict(b.material), "diameter_m": b.diameter, "length_m": b.length,
              "measured_wave_speed_m_per_s": b.measured_wave_speed, "gauge": asdict(g)}
+        if stations:  # further gauge stations (two-point separation)
+            d["stations"] = [asdict(x) for x in stations]
         return d
 
     sp = shot.specimen
     return {
         "barset": {"name": bs.name, "source": _source(bs.source), "calibration": bs.calibration,
-                   "incident": bar(bs.incident, bs.incident_gauge),
-                   "transmitted": bar(bs.transmitted, bs.transmitted_gauge),
+                   "incident": bar(bs.incident, bs.incident_gauge, bs.incident_stations),
+                   "transmitted": bar(bs.transmitted, bs.transmitted_gauge, bs.transmitted_stations),
                    "striker": (asdict(bs.striker) if bs.striker else None)},
         "specimen": {"length_m": sp.length, "diameter_m": sp.diameter, "material": sp.material,
-                     "temperature_K": sp.temperature, "modulus_Pa": sp.modulus, "density_kg_per_m3": sp.density},
+                     "temperature_K": sp.temperature, "modulus_Pa": sp.modulus, "density_kg_per_m3": sp.density,
+                     "poisson_ratio": sp.poisson_ratio},
         "record": None if shot.record is None else {
             "incident": _resolved(shot.record.incident.file), "incident_column": shot.record.incident.column,
             "transmitted": _resolved(shot.record.transmitted.file),
-            "transmitted_column": shot.record.transmitted.column},
+            "transmitted_column": shot.record.transmitted.column,
+            **{f"{b}_stations": [{"file": _resolved(c.file), "column": c.column} for c in getattr(shot.record,
+                                                                                              f"{b}_stations")]
+               for b in ("incident", "transmitted") if getattr(shot.record, f"{b}_stations")}},
         "analysis": asdict(shot.analysis),
         "striker_speed_m_per_s": shot.striker_speed,
         "source": _source(shot.source),

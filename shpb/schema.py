@@ -25,6 +25,8 @@ from .units import to_si
 
 #: Stress definitions that may be reported as ``stress_MPa``.
 STRESS_CHOICES = ("1-wave", "2-wave", "3-wave")
+#: When two-point wave separation builds the face waves (``shpb.separation``).
+SEPARATION_CHOICES = ("auto", "on", "off")
 
 _TRUE = {"true", "yes", "on", "1"}
 _FALSE = {"false", "no", "off", "0"}
@@ -122,6 +124,9 @@ SPECIMEN_KEYS = (
     _k("specimen", "diameter_uncertainty", "length", None,
        "standard uncertainty of the diameter [m] (the instrument's; default 0.01 mm)",
        column="specimen_diameter_uncertainty"),
+    _k("specimen", "poisson_ratio", "dimensionless", None,
+       "Poisson ratio in the radial inertia terms [1] (default 0.5: plastic flow)", column="specimen_poisson_ratio",
+       fraction=True),
 )
 
 #: Keys of ``[analysis]`` (per shot, campaign default, campaign column, command-line override).
@@ -142,8 +147,15 @@ ANALYSIS_KEYS = (
        "hand alignment: the reflected wave is taken this much later at its gauge [s]", signed=True),
     _k("analysis", "transmitted_adjust", "time", 0.0,
        "hand alignment: the transmitted wave is taken this much later at its gauge [s]", signed=True),
+    _k("analysis", "separation", "choice", "auto", "two-point wave separation: auto (when the waves overlap at "
+       "the incident gauge and the bar has a second station), on, off", choices=SEPARATION_CHOICES),
+    _k("analysis", "separation_cutoff", "frequency", None,
+       "upper end of the separation's frequency band [Hz] (default: the bar's second-mode onset)"),
+    _k("analysis", "friction_coefficient", "dimensionless", None,
+       "interface friction coefficient mu for the friction band of the stress [1] (none when absent)",
+       fraction=True),
     _k("analysis", "lowpass", "switch", True,
-       "zero-phase low-pass of both channels (off: the records as read, baselines and glitches only)"),
+       "zero-phase low-pass of every channel (off: the records as read, baselines and glitches only)"),
     _k("analysis", "lowpass_cutoff", "frequency", None,
        "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
     _k("analysis", "hum_frequency", "frequency", None,

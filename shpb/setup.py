@@ -166,7 +166,13 @@ class Striker:
 
 @dataclass(frozen=True)
 class BarSet:
-    """The rig: incident and transmitted bars with their gauges, optional striker."""
+    """The rig: incident and transmitted bars with their gauges, optional striker.
+
+    ``incident_gauge`` and ``transmitted_gauge`` are each bar's main station
+    (the record's ``incident`` and ``transmitted`` channels);
+    ``incident_stations`` and ``transmitted_stations`` hold further stations
+    (:class:`Gauge`), for two-point wave separation (:mod:`shpb.separation`).
+    """
 
     name: str
     incident: Bar
@@ -179,6 +185,12 @@ class BarSet:
     #: Stated standard uncertainties of the rig's inputs (the ``[uncertainty]`` table, parsed by
     #: :func:`shpb.uncertainty.parse_barset_uncertainty`; defaults there).
     uncertainty: dict = field(default_factory=dict, compare=False)
+    incident_stations: tuple = ()
+    transmitted_stations: tuple = ()
+
+    def stations(self, bar: str) -> tuple:
+        """Every gauge station of a bar (``incident`` or ``transmitted``), the main one first."""
+        return (getattr(self, f"{bar}_gauge"),) + tuple(getattr(self, f"{bar}_stations"))
 
 
 @dataclass(frozen=True)
@@ -198,10 +210,13 @@ class Specimen:
     modulus : float or None
         Elastic modulus for the yield offset line [Pa]; fitted when None.
     density : float or None
-        Density [kg/m^3]; with the modulus, gives the specimen wave transit time.
+        Density [kg/m^3]; with the modulus, gives the specimen wave transit
+        time; with it the inertia corrections are estimated.
     length_uncertainty, diameter_uncertainty : float or None
         Standard uncertainties of the length and diameter [m] (the measuring
         instrument's); the default of :mod:`shpb.uncertainty` when None.
+    poisson_ratio : float or None
+        Poisson ratio in the radial inertia terms [1]; 0.5 (plastic flow) if None.
     """
 
     length: float
@@ -212,6 +227,7 @@ class Specimen:
     density: Optional[float] = None
     length_uncertainty: Optional[float] = None
     diameter_uncertainty: Optional[float] = None
+    poisson_ratio: Optional[float] = None
 
     @property
     def area(self) -> float:
@@ -257,6 +273,10 @@ class RecordSpec:
     max_samples : int or None
         Ceiling on samples per channel [default: ``shpb.io.MAX_SAMPLES``];
         a longer record is refused before it is read.
+    incident_stations, transmitted_stations : tuple of Channel
+        The channels of each bar's further gauge stations, in the bar set's
+        order (``BarSet.incident_stations``, ...); may be fewer than the bar
+        set has.
     """
 
     incident: Channel
@@ -265,6 +285,8 @@ class RecordSpec:
     time_unit: float = 1.0
     sample_interval: Optional[float] = None
     max_samples: Optional[int] = None
+    incident_stations: tuple = ()
+    transmitted_stations: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -295,8 +317,19 @@ class AnalysisOptions:
     reflected_adjust, transmitted_adjust : float
         Hand adjustment of the alignment [s]: the wave is taken this much
         later at its gauge than the geometry and wave speed say (default 0).
+    separation : str
+        Two-point wave separation (:mod:`shpb.separation`): ``auto`` (default;
+        when the waves overlap at the incident gauge and the incident bar has
+        a second station), ``on`` (whenever a bar has two stations) or ``off``.
+    separation_cutoff : float or None
+        Upper end of the separation's frequency band [Hz]; the bar's
+        second-mode onset if None.
+    friction_coefficient : float or None
+        Interface friction coefficient mu [1] for the friction band of the
+        stress (:func:`shpb.specimen.friction_factor`); none if None.
     lowpass : bool
-        Zero-phase low-pass of both channels (default on).
+        Zero-phase low-pass of every channel, the further stations' too
+        (default on).
     lowpass_cutoff : float or None
         Its cutoff [Hz]; automatic (from the incident rise and the bars'
         second-mode onset) if None.
@@ -319,6 +352,9 @@ class AnalysisOptions:
     pre_trigger: Optional[float] = None
     reflected_adjust: float = 0.0
     transmitted_adjust: float = 0.0
+    separation: str = "auto"
+    separation_cutoff: Optional[float] = None
+    friction_coefficient: Optional[float] = None
     lowpass: bool = True
     lowpass_cutoff: Optional[float] = None
     hum_frequency: Optional[float] = None
@@ -474,6 +510,36 @@ def _gauge(t: _Table, bar: Bar) -> Gauge:
     )
 
 
+def _gauges(bt: _Table, bar: Bar) -> tuple:
+    """A bar's gauge stations: ``gauge`` a table (one station) or an array of tables (``[[incident.gauge]]``,
+    the first the main station), at distinct distances."""
+    raw = bt.data.get("gauge")
+    if isinstance(raw, list):
+        if not raw:
+            raise InputError("expected at least one gauge station", bt._key("gauge"))
+        tables = []
+        for i, item in enumerate(raw):
+            if not isinstance(item, dict):
+                raise InputError(f"expected a table of gauge keys, got {item!r}", f"{bt._key('gauge')}[{i + 1}]")
+            tables.append(_Table(item, f"{bt._key('gauge')}[{i + 1}]"))
+    else:
+        tables = [bt.table("gauge")]
+    gauges = tuple(_gauge(t, bar) for t in tables)
+    for i, g in enumerate(gauges):
+        if any(abs(g.distance - h.distance) < 1e-6 for h in gauges[:i]):
+            raise InputError(f"two stations at {g.distance * 1e3:g} mm: each station needs its own distance",
+                             tables[i]._key("distance"))
+    return gauges
+
+
+def _main_gauge_table(bar_data) -> dict:
+    """The main station's table of a bar's raw TOML data (the first of an array of stations)."""
+    raw = bar_data.get("gauge", {}) if isinstance(bar_data, dict) else {}
+    if isinstance(raw, list):
+        raw = raw[0] if raw and isinstance(raw[0], dict) else {}
+    return raw
+
+
 def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: bool = True) -> BarSet:
     """Build a :class:`BarSet` from a parsed TOML mapping; ``source`` names the file in errors.
 
@@ -488,11 +554,12 @@ def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: 
     default_mat = _material(mt, None) if mt else None
     if mt:
         mt.check_keys(_MATERIAL_KEYS)
-    bars, gauges = {}, {}
+    bars, gauges, stations = {}, {}, {}
     for which in ("incident", "transmitted"):
         bt = top.table(which)
         bars[which] = _bar(bt, default_mat)
-        gauges[which] = _gauge(bt.table("gauge"), bars[which])
+        gauges[which], *rest = _gauges(bt, bars[which])
+        stations[which] = tuple(rest)
     striker = None
     st = top.table("striker", required=False)
     if st:
@@ -519,11 +586,13 @@ def barset_from_dict(data: dict, source: str, base_dir=None, apply_calibration: 
         source=source,
         calibration=dict(cal.data) if cal else {},
         uncertainty=parse_barset_uncertainty(unc.data, unc.where) if unc else {},
+        incident_stations=stations["incident"],
+        transmitted_stations=stations["transmitted"],
     )
     if "calibration_file" in data:
         cal_path = Path(base_dir if base_dir is not None else Path(source).parent) / top.string("calibration_file")
         if apply_calibration:
-            explicit = {(b, k): k2 in data[b] if k == "wave_speed_m_per_s" else k2 in data[b].get("gauge", {})
+            explicit = {(b, k): k2 in data[b] if k == "wave_speed_m_per_s" else k2 in _main_gauge_table(data[b])
                         for b in ("incident", "transmitted")
                         for k, k2 in (("wave_speed_m_per_s", "wave_speed"), ("scale", "scale"))}
             barset = apply_calibration_file(barset, cal_path, explicit)
@@ -617,7 +686,8 @@ def _channel(value, common_file, base_dir: Path, where: str) -> Channel:
 def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
     """A :class:`RecordSpec` from the ``[record]`` mapping; paths relative to ``base_dir``."""
     t = _Table(data, where)
-    t.check_keys({"file", "incident", "transmitted", "time", "time_unit", "sample_interval", "max_samples"})
+    t.check_keys({"file", "incident", "transmitted", "time", "time_unit", "sample_interval", "max_samples",
+                  "incident_stations", "transmitted_stations"})
     common = data.get("file")
     for key in ("incident", "transmitted"):
         if key not in data:
@@ -638,6 +708,13 @@ def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
                                     or max_samples < 16):
         raise InputError(f"expected a whole number of samples (at least 16), got {max_samples!r}",
                          f"{where}.max_samples")
+    stations = {}
+    for key in ("incident_stations", "transmitted_stations"):
+        value = data.get(key, [])
+        if not isinstance(value, list):
+            raise InputError(f"expected a list of channels (one per further station of the bar set), got {value!r}",
+                             f"{where}.{key}")
+        stations[key] = tuple(_channel(v, common, base_dir, f"{where}.{key}[{i + 1}]") for i, v in enumerate(value))
     return RecordSpec(
         incident=_channel(data["incident"], common, base_dir, f"{where}.incident"),
         transmitted=_channel(data["transmitted"], common, base_dir, f"{where}.transmitted"),
@@ -645,6 +722,7 @@ def record_from_dict(data: dict, base_dir: Path, where: str) -> RecordSpec:
         time_unit=time_unit,
         sample_interval=dt,
         max_samples=max_samples,
+        **stations,
     )
 
 
@@ -655,6 +733,9 @@ def specimen_from_dict(data: dict, where: str) -> Specimen:
         if values[name] is None:
             raise InputError(f"missing key {name!r} (a length, e.g. with its unit)", where)
     length, diameter = values["length"], values["diameter"]
+    if values["poisson_ratio"] is not None and values["poisson_ratio"] > 0.5:
+        raise InputError(f"expected a Poisson ratio of at most 0.5, got {values['poisson_ratio']:g}",
+                         f"{where}.poisson_ratio")
     if length > 0.2 or diameter > 0.2:
         raise InputError(f"specimen of {length*1e3:g} mm x {diameter*1e3:g} mm is implausible (units?)", where)
     values["material"] = str(values["material"])
@@ -695,6 +776,11 @@ def shot_from_dict(data: dict, base_dir: Path, source: str, barset: Optional[Bar
         raise InputError(
             f"specimen diameter {specimen.diameter*1e3:g} mm exceeds the bar diameter "
             f"{barset.incident.diameter*1e3:g} mm", f"{source}: specimen.diameter")
+    for bar in ("incident", "transmitted"):
+        mapped, present = len(getattr(record, f"{bar}_stations")), len(getattr(barset, f"{bar}_stations"))
+        if mapped > present:
+            raise InputError(f"{mapped} further {bar} channels, but the bar set has {present} further station(s) "
+                             f"on the {bar} bar", f"{source}: record.{bar}_stations")
     return Shot(name=str(data.get("name", Path(source).stem)), barset=barset, specimen=specimen,
                 record=record, analysis=analysis, source=source, striker_speed=speed)
 

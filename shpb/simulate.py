@@ -174,6 +174,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import AnalysisError, InputError
+from .io import station_name
 from .models import johnson_cook
 
 __all__ = [
@@ -199,6 +200,7 @@ __all__ = [
     "excess_dispersion",
     "dispersed_gauge_strains",
     "virtual_record",
+    "dispersed_station_strains",
     "IncidentPulse",
     "incident_pulse",
     "dispersed_drive",
@@ -636,6 +638,13 @@ class VirtualShotSpec:
         is driven by the force ``E A eps(t)`` and is free once the pulse has
         passed. Used to send a dispersed pulse into the non-dispersive model
         bar (see :func:`incident_pulse`).
+    incident_stations, transmitted_stations : tuple of float
+        Further gauge stations on each bar, distances from its specimen face
+        [m] (for two-point wave separation). The bars keep the histories of
+        their two travelling waves, so a station costs a read, not a step:
+        each is returned in :attr:`VirtualShotResult.stations` as
+        ``incident_2``, ``incident_3``, ... (``transmitted_2``, ...), the
+        main gauges being station 1.
     """
 
     striker: Optional[RodSpec]
@@ -653,6 +662,8 @@ class VirtualShotSpec:
     max_time_step: float = 0.1e-6
     foot_fraction: float = 1e-3
     incident_pulse: Optional["IncidentPulse"] = None
+    incident_stations: tuple = ()
+    transmitted_stations: tuple = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -728,6 +739,12 @@ class VirtualShotResult:
         ``transmitted_toward_specimen`` (transmitted bar; NaN without one).
         Each pair sums to the strain at the station; see
         :func:`_directional_weights` for the exact discrete split.
+    stations : dict
+        The further gauge stations of the spec (``incident_2``, ...,
+        ``transmitted_2``, ...; see ``VirtualShotSpec.incident_stations``),
+        each a dict of ``bar``, ``distance_m`` (from its specimen face), ``strain``
+        (the bar strain there [1], compression positive, on ``time``) and
+        its split into ``toward_specimen`` and ``away_from_specimen`` [1].
     """
 
     time: np.ndarray
@@ -739,6 +756,7 @@ class VirtualShotResult:
     grid: dict
     spec: VirtualShotSpec = field(repr=False)
     gauge_waves: dict = field(default_factory=dict, repr=False)
+    stations: dict = field(default_factory=dict, repr=False)
 
 
 # --------------------------------------------------------------------------- validation & grid
@@ -793,6 +811,14 @@ def _check_spec(spec):
         if not (_is_number(d) and 0 <= d <= bar.length):
             raise InputError(f"expected a distance from the specimen face within the bar (0 to {bar.length} m), "
                              f"got {d!r}", f"VirtualShotSpec.{name}")
+    for name, bar in (("incident_stations", spec.incident), ("transmitted_stations", spec.transmitted)):
+        stations = getattr(spec, name)
+        if stations and bar is None:
+            raise InputError("stations on a bar the shot does not have", f"VirtualShotSpec.{name}")
+        for d in stations:
+            if not (_is_number(d) and 0 <= d <= bar.length):
+                raise InputError(f"expected distances from the specimen face within the bar (0 to {bar.length} m), "
+                                 f"got {d!r}", f"VirtualShotSpec.{name}")
     if spec.specimen is not None and int(spec.specimen_elements) < 20:
         raise InputError(f"expected at least 20 specimen elements, got {spec.specimen_elements}",
                          "VirtualShotSpec.specimen_elements")
@@ -923,12 +949,12 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
     t_samples = np.arange(int(math.floor(spec.duration * spec.sample_rate + 1e-9)) + 1) / spec.sample_rate
     lower = np.floor(t_samples / dt + 1e-9).astype(np.int64)
     kept_steps = np.union1d(lower, lower + 1)
-    rec, impact_force, e0, peak = _run(spec, rods, dt, kept_steps)
+    rec, impact_force, e0, peak, stations = _run(spec, rods, dt, kept_steps)
     for name, (value, _) in peak.items():
         if value >= 1.0:
             raise AnalysisError(f"the {name} was crushed to zero length (engineering strain {value:.2f}); the "
                                 f"small-strain model does not hold: shorten the record or soften the impact")
-    return _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak)
+    return _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations)
 
 
 # --------------------------------------------------------------------------- the solver
@@ -1311,7 +1337,8 @@ def _run(spec, rods, dt, kept_steps):
     faces = {name: (history[:, ends[name, "first"]], history[:, ends[name, "last"]]) for name in lines}
     rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, faces, left_of,
                          dt, kept_steps)
-    return rec, impact_force, e0, peak
+    stations = _station_records(spec, by_name, lines, reader, kept_steps)
+    return rec, impact_force, e0, peak, stations
 
 
 class _GridReader:
@@ -1331,8 +1358,7 @@ class _GridReader:
         if "specimen" in grid.links:
             wanted += [("v", "specimen", 0), ("v", "specimen", grid.links["specimen"].stop
                                                     - grid.links["specimen"].start)]
-        for name, distance, from_end in (("incident", spec.incident_gauge_distance, True),
-                                         ("transmitted", spec.transmitted_gauge_distance, False)):
+        for name, distance, from_end in _all_stations(spec):
             if name in grid.links:  # a bar with a plastic law is marched on the grid
                 rod = next(r for r in rods if r.name == name)
                 i0, i1, _, _ = _gauge_weights(rod, distance, from_end)
@@ -1394,6 +1420,32 @@ def _bar_measures(name, rod, lines, reader, distance, from_end, steps):
                  for j in (j0, j1)]
         plus, minus = u0 * waves[0][0] + u1 * waves[1][0], u0 * waves[0][1] + u1 * waves[1][1]
     return -strain, -plus, -minus
+
+
+def _all_stations(spec):
+    """(bar, distance from its specimen face [m], measured from the bar's far end) of every gauge station."""
+    out = [("incident", spec.incident_gauge_distance, True)]
+    if spec.transmitted is not None:
+        out.append(("transmitted", spec.transmitted_gauge_distance, False))
+    out += [("incident", d, True) for d in spec.incident_stations]
+    out += [("transmitted", d, False) for d in spec.transmitted_stations]
+    return out
+
+
+def _station_records(spec, by_name, lines, reader, kept_steps):
+    """The further stations' strain and travelling waves [1] at the kept steps, compression positive.
+
+    Returns ``{name: (bar, distance, strain, toward_specimen, away_from_specimen)}``; on the transmitted bar the
+    wave travelling +x is the one going away from the specimen.
+    """
+    out = {}
+    for bar_name, distances, from_end in (("incident", spec.incident_stations, True),
+                                          ("transmitted", spec.transmitted_stations, False)):
+        for k, d in enumerate(distances, start=2):
+            strain, plus, minus = _bar_measures(bar_name, by_name[bar_name], lines, reader, d, from_end, kept_steps)
+            toward, away = (plus, minus) if from_end else (minus, plus)
+            out[station_name(bar_name, k)] = (bar_name, float(d), strain, toward, away)
+    return out
 
 
 def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps):
@@ -1644,7 +1696,7 @@ def _gauge_weights(rod, distance, from_end):
     return rod.node0 + i, rod.node0 + j, 1.0 - w, w
 
 
-def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak):
+def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=None):
     by_name = {r.name: r for r in rods}
     inc = by_name["incident"]
     n_enter = int(np.argmax(impact_force > spec.foot_fraction * impact_force.max()))
@@ -1653,6 +1705,7 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak):
     # linear interpolation in time onto the recorder clock; at Courant 1 a bar element's strain is the
     # element average, which varies linearly in time while a front crosses it, so this adds no error there
     time = t_samples
+    kept_time = rec[:, 0]
     rec = np.column_stack([time] + [np.interp(time, rec[:, 0], rec[:, k]) for k in range(1, rec.shape[1])])
     t_us = (time - foot) * 1e6
     truth = pd.DataFrame({
@@ -1690,9 +1743,14 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak):
     gauge_waves = {name: rec[:, k].copy() for k, name in enumerate(
         ("incident_toward_specimen", "incident_away_from_specimen",
          "transmitted_away_from_specimen", "transmitted_toward_specimen"), start=11)}
+    station_out = {name: {"bar": bar, "distance_m": d, **{key: np.interp(time, kept_time, x) for key, x in
+                                                          (("strain", strain), ("toward_specimen", toward),
+                                                           ("away_from_specimen", away))}}
+                   for name, (bar, d, strain, toward, away) in (stations or {}).items()}
     return VirtualShotResult(time=time, strain_incident_gauge=rec[:, 1].copy(),
                              strain_transmitted_gauge=rec[:, 2].copy(), foot_arrival_time=foot,
-                             truth=truth, energies=energies, grid=grid, spec=spec, gauge_waves=gauge_waves)
+                             truth=truth, energies=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
+                             stations=station_out)
 
 
 # =========================================================================== from the model to a record
@@ -1759,6 +1817,9 @@ class VirtualRecord:
         offset and quantisation [1], compression positive.
     trigger_time : float
         Time after impact of the record's t = 0 [s].
+    volts_stations, strain_stations : dict
+        The further stations recorded (``incident_2``, ...): their channels
+        [V] and the bar strains they carry [1] (empty when none).
     info : dict
         ``quantisation_step_V``, ``noise_std_V``, ``offset_V``,
         ``clipped_samples`` (per channel), ``dispersion`` (None or the plane
@@ -1772,6 +1833,8 @@ class VirtualRecord:
     strain_transmitted: Optional[np.ndarray]
     trigger_time: float
     info: dict = field(default_factory=dict)
+    volts_stations: dict = field(default_factory=dict)
+    strain_stations: dict = field(default_factory=dict)
 
 
 def trigger_time(spec: VirtualShotSpec, recorder: RecorderSpec) -> float:
@@ -1917,13 +1980,13 @@ def _fourier_delay(x, dt, delay):
     value held, raised-cosine bridge, first value held) so that nothing wraps
     round and the periodic signal has no jump.
     """
-    from scipy import fft as sfft
+    from .dispersion import _fast_length  # numpy's FFT: no scipy import for a virtual shot
 
     x = np.asarray(x, dtype=float)
     n = x.size
     hold = int(math.ceil(abs(delay) / dt)) + 32
     bridge = 32
-    total = sfft.next_fast_len(n + 2 * hold + bridge, real=True)
+    total = _fast_length(n + 2 * hold + bridge)
     bridge = total - n - 2 * hold
     y = np.empty(total)
     y[:n] = x
@@ -1931,9 +1994,9 @@ def _fourier_delay(x, dt, delay):
     w = 0.5 - 0.5 * np.cos(np.pi * np.arange(1, bridge + 1) / (bridge + 1))
     y[n + hold:n + hold + bridge] = x[-1] + (x[0] - x[-1]) * w
     y[n + hold + bridge:] = x[0]
-    spectrum = sfft.rfft(y)
-    spectrum *= np.exp(-2j * np.pi * sfft.rfftfreq(total, dt) * delay)
-    return sfft.irfft(spectrum, total)[:n]
+    spectrum = np.fft.rfft(y)
+    spectrum *= np.exp(-2j * np.pi * np.fft.rfftfreq(total, dt) * delay)
+    return np.fft.irfft(spectrum, total)[:n]
 
 
 def excess_dispersion(strain, dt, distance, bar_radius, bar_wave_speed, poisson_ratio):
@@ -2050,14 +2113,53 @@ def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson_ratio
        doi:10.1115/1.3225620.
     .. [2] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2 and §8.2.
     """
+    bars, li, lt = _dispersion_bars(result, incident_poisson_ratio, transmitted_poisson_ratio, undispersed_at)
+    spec = result.spec
+    out = {"incident": np.zeros_like(result.time),
+           "transmitted": np.zeros_like(result.time) if "transmitted" in bars else None}
+    for name, bar_name, first in _WAVE_PATHS:
+        if bar_name in bars:
+            p1 = first(li, lt, spec.incident_gauge_distance, spec.transmitted_gauge_distance)
+            out[bar_name] += _dispersed_passes(result, result.gauge_waves[name], bar_name, p1, bars, undispersed_at)
+    if out["transmitted"] is None:
+        out["transmitted"] = np.full_like(result.time, np.nan)
+    return out["incident"], out["transmitted"]
+
+
+def dispersed_station_strains(result: VirtualShotResult, *, incident_poisson_ratio, transmitted_poisson_ratio=None,
+                              undispersed_at="specimen") -> dict:
+    """The further gauge stations' strains (``result.stations``) with Pochhammer–Chree dispersion added.
+
+    As :func:`dispersed_gauge_strains` does for the two main gauges: each of
+    the two waves crossing a station is cut into its passes and given the
+    dispersion of its path from the reference plane.
+
+    Returns
+    -------
+    dict
+        Station name (``incident_2``, ...) -> bar strain [1], compression
+        positive, on ``result.time``.
+    """
+    bars, li, lt = _dispersion_bars(result, incident_poisson_ratio, transmitted_poisson_ratio, undispersed_at)
+    out = {}
+    for name, station in result.stations.items():
+        bar_name, d = station["bar"], station["distance_m"]
+        # first-pass paths from the impact face, as in _WAVE_PATHS with the station's distance
+        toward_path, away_path = (li - d, li + d) if bar_name == "incident" else (li + 2 * lt - d, li + d)
+        out[name] = (_dispersed_passes(result, station["toward_specimen"], bar_name, toward_path, bars, undispersed_at)
+                     + _dispersed_passes(result, station["away_from_specimen"], bar_name, away_path, bars,
+                                         undispersed_at))
+    return out
+
+
+def _dispersion_bars(result, incident_poisson_ratio, transmitted_poisson_ratio, undispersed_at):
+    """Checks, and ``({bar: (RodSpec, Poisson ratio, modelled length)}, incident length, transmitted length)``."""
     if undispersed_at not in ("specimen", "impact"):
         raise InputError(f"expected 'specimen' or 'impact', got {undispersed_at!r}", "undispersed_at")
     spec, rods = result.spec, result.grid["rods"]
     if spec.specimen is None and undispersed_at == "specimen":
         raise InputError("a shot without a specimen has no specimen faces: use undispersed_at='impact'",
                          "undispersed_at")
-    dt = 1.0 / spec.sample_rate
-    t = result.time
     li = rods["incident"]["length_m"]
     lt = rods["transmitted"]["length_m"] if "transmitted" in rods else 0.0
     bars = {"incident": (spec.incident, incident_poisson_ratio, li)}
@@ -2065,39 +2167,41 @@ def dispersed_gauge_strains(result: VirtualShotResult, *, incident_poisson_ratio
         if transmitted_poisson_ratio is None:
             raise InputError("the transmitted bar's Poisson ratio is needed", "transmitted_poisson_ratio")
         bars["transmitted"] = (spec.transmitted, transmitted_poisson_ratio, lt)
+    return bars, li, lt
+
+
+def _dispersed_passes(result, wave, bar_name, p1, bars, undispersed_at):
+    """One travelling wave at a station, cut into its passes, each dispersed over its path from the reference
+    plane (``p1`` [m]: the first pass's path from the impact face)."""
+    spec = result.spec
+    dt, t = 1.0 / spec.sample_rate, result.time
+    li = bars["incident"][2]
+    rod, _, length = bars[bar_name]
+    c = rod.wave_speed
     t_face = result.foot_arrival_time
-    out = {"incident": np.zeros_like(t), "transmitted": np.zeros_like(t) if "transmitted" in bars else None}
-    for name, bar_name, first in _WAVE_PATHS:
-        if bar_name not in bars:
+    margin = 0.1 * 2 * length / c
+    arrivals = []
+    k = 0
+    while True:  # the passes that reach the gauge within the record
+        arrival = t_face + (p1 + 2 * k * length - li) / c
+        if k > 0 and arrival - 1.5 * margin > t[-1]:
+            break
+        arrivals.append(arrival)
+        k += 1
+    out = np.zeros_like(t)
+    for k, arrival in enumerate(arrivals):
+        weight = _step(t, arrival - 1.5 * margin, margin) if k > 0 else np.ones_like(t)
+        if k + 1 < len(arrivals):
+            weight = weight - _step(t, arrivals[k + 1] - 1.5 * margin, margin)
+        part = wave * weight
+        if not np.any(part):
             continue
-        rod, _, length = bars[bar_name]
-        c = rod.wave_speed
-        wave = result.gauge_waves[name]
-        p1 = first(li, lt, spec.incident_gauge_distance, spec.transmitted_gauge_distance)
-        margin = 0.1 * 2 * length / c
-        arrivals = []
-        k = 0
-        while True:  # the passes that reach the gauge within the record
-            arrival = t_face + (p1 + 2 * k * length - li) / c
-            if k > 0 and arrival - 1.5 * margin > t[-1]:
-                break
-            arrivals.append(arrival)
-            k += 1
-        for k, arrival in enumerate(arrivals):
-            weight = _step(t, arrival - 1.5 * margin, margin) if k > 0 else np.ones_like(t)
-            if k + 1 < len(arrivals):
-                weight = weight - _step(t, arrivals[k + 1] - 1.5 * margin, margin)
-            part = wave * weight
-            if not np.any(part):
-                continue
-            path = p1 + 2 * k * length
-            for seg_bar, distance in _segments(bar_name, path, li, undispersed_at):
-                seg_rod, seg_nu, _ = bars[seg_bar]
-                part = excess_dispersion(part, dt, distance, 0.5 * seg_rod.diameter, seg_rod.wave_speed, seg_nu)
-            out[bar_name] += part
-    if out["transmitted"] is None:
-        out["transmitted"] = np.full_like(t, np.nan)
-    return out["incident"], out["transmitted"]
+        path = p1 + 2 * k * length
+        for seg_bar, distance in _segments(bar_name, path, li, undispersed_at):
+            seg_rod, seg_nu, _ = bars[seg_bar]
+            part = excess_dispersion(part, dt, distance, 0.5 * seg_rod.diameter, seg_rod.wave_speed, seg_nu)
+        out += part
+    return out
 
 
 def _step(t, start, width):
@@ -2123,7 +2227,8 @@ def _channel_volts(strain, gauge, poisson_ratio):
 
 
 def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_gauge, transmitted_gauge=None, *,
-                   incident_poisson_ratio, transmitted_poisson_ratio=None, dispersion=None, trigger=None) -> VirtualRecord:
+                   incident_poisson_ratio, transmitted_poisson_ratio=None, dispersion=None, trigger=None,
+                   station_gauges=None) -> VirtualRecord:
     """Turn a virtual shot's gauge strains into a digitised record.
 
     Steps: (1) the bar strain at each gauge, with Pochhammer–Chree
@@ -2151,12 +2256,22 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
     trigger : float, optional
         Time after impact of the record's t = 0 [s]; default
         :func:`trigger_time`.
+    station_gauges : dict, optional
+        Station name of ``result.stations`` (``incident_2``, ...) -> its
+        :class:`shpb.setup.Gauge` (bridge settings): these stations are
+        recorded too, on further channels with the noise, offset and range
+        of their bar's main channel (noise drawn after the main channels').
 
     Returns
     -------
     VirtualRecord
     """
     spec = result.spec
+    station_gauges = dict(station_gauges or {})
+    missing = sorted(set(station_gauges) - set(result.stations))
+    if missing:
+        raise InputError(f"no station {', '.join(missing)} in the virtual shot (stations: "
+                         f"{', '.join(result.stations) or 'none'})", "station_gauges")
     fs = recorder.sample_rate
     if abs(spec.sample_rate - fs) > 1e-9 * fs:
         raise InputError(f"the model ran at {spec.sample_rate:g} Hz but the recorder samples at {fs:g} Hz",
@@ -2167,6 +2282,11 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
         strains = list(dispersed_gauge_strains(result, incident_poisson_ratio=incident_poisson_ratio,
                                                transmitted_poisson_ratio=transmitted_poisson_ratio,
                                                undispersed_at=dispersion))
+    if station_gauges:
+        at_stations = ({k: v["strain"] for k, v in result.stations.items()} if dispersion is None else
+                       dispersed_station_strains(result, incident_poisson_ratio=incident_poisson_ratio,
+                                                 transmitted_poisson_ratio=transmitted_poisson_ratio,
+                                                 undispersed_at=dispersion))
     trig = trigger_time(spec, recorder) if trigger is None else trigger
     n = int(round(recorder.duration * fs))
     k = np.arange(n) - int(round(recorder.pre_trigger * fs)) + int(round(trig * fs))
@@ -2176,13 +2296,19 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
     before = k < 0  # the bars are at rest before the impact
     kk = np.maximum(k, 0)
     rng = np.random.default_rng(recorder.seed)
-    channels = [("incident", incident_gauge, incident_poisson_ratio), ("transmitted", transmitted_gauge, transmitted_poisson_ratio)]
+    nus = {"incident": incident_poisson_ratio, "transmitted": transmitted_poisson_ratio}
+    # (channel, gauge, Poisson ratio, recorder channel, strain): the main channels first (their noise draws)
+    channels = [("incident", incident_gauge, incident_poisson_ratio, 0, strains[0]),
+                ("transmitted", transmitted_gauge, transmitted_poisson_ratio, 1, strains[1])]
+    for name, gauge in station_gauges.items():
+        bar_name = result.stations[name]["bar"]
+        channels.append((name, gauge, nus[bar_name], 0 if bar_name == "incident" else 1, at_stations[name]))
     volts, clean, info = {}, {}, {"noise_std_V": {}, "offset_V": {}, "clipped_samples": {}}
-    for i, (name, gauge, nu) in enumerate(channels):
+    for name, gauge, nu, i, at_gauge in channels:
         if gauge is None or spec.transmitted is None and name == "transmitted":
             volts[name] = clean[name] = None
             continue
-        strain = np.where(before, 0.0, strains[i][kk])
+        strain = np.where(before, 0.0, at_gauge[kk])
         v = _channel_volts(strain, gauge, nu)
         slope = abs(float(_channel_volts(1e-6, gauge, nu) - _channel_volts(0.0, gauge, nu))) / 1e-6  # V per strain
         std = math.hypot(recorder.noise_volts[i], recorder.noise_strain[i] * slope)
@@ -2201,7 +2327,8 @@ def virtual_record(result: VirtualShotResult, recorder: RecorderSpec, incident_g
     time = (np.arange(n) - int(round(recorder.pre_trigger * fs))) / fs
     return VirtualRecord(time=time, volts_incident=volts["incident"], volts_transmitted=volts["transmitted"],
                          strain_incident=clean["incident"], strain_transmitted=clean["transmitted"],
-                         trigger_time=trig, info=info)
+                         trigger_time=trig, info=info, volts_stations={k: volts[k] for k in station_gauges},
+                         strain_stations={k: clean[k] for k in station_gauges})
 
 
 def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> IncidentPulse:
@@ -2248,6 +2375,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
         estimate += 20 * spec.shaper.length / spec.shaper.wave_speed
     span = 2 * estimate + 30e-6
     base = dataclasses.replace(spec, transmitted=None, specimen=None, incident_gauge_distance=station,
+                               incident_stations=(), transmitted_stations=(),
                                sample_rate=1.0 / dt, max_time_step=dt)
     while True:
         duration = min(transit + span, limit)

@@ -665,18 +665,27 @@ def gum_part(shot: "Shot", stages: "Stages", inputs) -> dict:
             "scalars": {k: np.array(v) for k, v in scal.items()}}
 
 
-def _noise_draw(strains, bar: str, rng) -> np.ndarray:
+def _with_noise(strains, rng):
+    """Stage 1's strains with a fresh draw of each channel's noise added: both main channels and every further
+    gauge station (``GaugeStrains.stations``, each at its own measured noise)."""
+    incident = strains.incident + _noise_draw(strains, strains.noise_incident, rng)
+    transmitted = strains.transmitted + _noise_draw(strains, strains.noise_transmitted, rng)
+    stations = {name: replace(s, strain=s.strain + _noise_draw(strains, s.noise, rng))
+                for name, s in strains.stations.items()}
+    return replace(strains, incident=incident, transmitted=transmitted, stations=stations)
+
+
+def _noise_draw(strains, sigma: float, rng) -> np.ndarray:
     """One draw of a channel's noise as the conditioned strain carries it [1].
 
     White Gaussian noise through the record's own zero-phase low-pass (stage 1,
-    :func:`shpb.conditioning.lowpass`), scaled to the channel's noise measured
-    over its quiet spans after conditioning (``GaugeStrains.noise_*``, the
-    noise the equilibrium test propagates too): the spectrum of the filter,
-    the level of the record.
+    :func:`shpb.conditioning.lowpass`), scaled to ``sigma``, the channel's noise
+    measured over its quiet spans after conditioning (``GaugeStrains.noise_*``,
+    ``StationStrain.noise``: the noise the equilibrium test propagates too):
+    the spectrum of the filter, the level of the record.
     """
     from .conditioning import lowpass
 
-    sigma = strains.noise_incident if bar == "incident" else strains.noise_transmitted
     n = strains.time.size
     if not sigma > 0:
         return np.zeros(n)
@@ -737,8 +746,8 @@ def monte_carlo_part(shot: "Shot", stages: "Stages", inputs, draws: int = DEFAUL
     scalars : bool
         Also evaluate the summary scalars of every draw (off: rows only).
     """
-    from . import pulses
     from .errors import AnalysisError
+    from .reduce import face_stages
 
     rng = np.random.default_rng(seed)
     ev = _Evaluator(shot, stages)
@@ -757,12 +766,8 @@ def monte_carlo_part(shot: "Shot", stages: "Stages", inputs, draws: int = DEFAUL
         factors = tuple(_channel_factor(bs, b, values, peaks[b]) for b in BARS)
         try:
             if restage:
-                strains = st
-                if noise:
-                    strains = replace(st, incident=st.incident + _noise_draw(st, "incident", rng),
-                                      transmitted=st.transmitted + _noise_draw(st, "transmitted", rng))
-                plan = pulses.plan_analysis(strains, b2, opt)
-                waves = pulses.waves_at_faces(strains, plan, b2, opt)
+                strains = _with_noise(st, rng) if noise else st
+                waves = face_stages(strains, b2, opt)[2]  # the separation too, when the shot's waves were separated
             else:
                 waves = stages.waves
             curves = _kolsky(waves, b2, s2, opt.stress, factors)
@@ -832,6 +837,8 @@ class ShotUncertainty:
         Monte Carlo draws made and refused.
     seed : int
     coverage_factor : float
+    notes : tuple of str
+        What the propagation does not cover for this shot (said in the summary and on the console).
     """
 
     inputs: tuple
@@ -846,6 +853,7 @@ class ShotUncertainty:
     failed: int
     seed: int
     coverage_factor: float = COVERAGE_FACTOR
+    notes: tuple = ()
 
     @property
     def provenance(self) -> dict:
@@ -924,6 +932,7 @@ class ShotUncertainty:
             "relative_by_group": {"stress": self.relative_by_group("flow_stress_mean_MPa"),
                                   "strain": self.relative_by_group("max_strain")},
             "not_modelled": list(NOT_MODELLED),
+            "notes": list(self.notes),
         }
 
     def budget_table(self):
@@ -1011,4 +1020,22 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
         contributions[name] = c
     return ShotUncertainty(inputs=inputs, time=ev.time, rows=rows, rows_gum=rows_gum, rows_mc=rows_mc,
                            scalars=scalars, contributions=contributions, flow_strains=ev.flow_strains,
-                           draws=draws, failed=mc.failed, seed=int(seed))
+                           draws=draws, failed=mc.failed, seed=int(seed), notes=separation_notes(stages.waves))
+
+
+def separation_notes(waves) -> tuple:
+    """What the propagation leaves out when a bar's waves were separated from two gauge stations.
+
+    The Monte Carlo draws rerun the separation (:func:`shpb.reduce.face_stages`) with the drawn wave speeds
+    and main-station distances and fresh noise on every station; the further stations' own distances and
+    gauge chains are not inputs, and a main station's gauge-chain change scales that bar's separated waves as
+    a whole (exact only if both stations share the error).
+    """
+    bars = tuple(getattr(waves, "separated_bars", ()) or ())
+    if not bars:
+        return ()
+    whose = "bars'" if len(bars) > 1 else "bar's"
+    return (f"the {' and '.join(bars)} {whose} waves were separated from two gauge stations: the Monte Carlo "
+            f"reruns the separation with the drawn wave speeds, main-station distances and every station's noise, "
+            f"but the further stations' distances and gauge chains are taken as exact and a gauge-chain error is "
+            f"applied to both stations alike, so u may be understated for this shot (docs/uncertainty.md)",)

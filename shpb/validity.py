@@ -181,8 +181,9 @@ def equilibrium_ratio_uncertainty(force_front: ArrayLike, force_back: ArrayLike,
     ----------
     force_front, force_back : array_like
         Face forces F1, F2 [N].
-    u_front, u_back : float
-        Standard uncertainties of F1 and F2 from noise [N].
+    u_front, u_back : float or array_like
+        Standard uncertainties of F1 and F2 from noise [N] (one value, or one
+        per sample).
 
     Returns
     -------
@@ -494,8 +495,9 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
         single-sample recorder noise does not break equilibrium while the
         ring-up of a specimen transit (a microsecond and more) is not
         smoothed away.
-    force_noise : (float, float)
-        Standard uncertainties of F1 and F2 from the records' noise [N]; R is
+    force_noise : (float or array_like, float or array_like)
+        Standard uncertainties of F1 and F2 from the records' noise [N], one
+        value or one per sample (:func:`force_noise`); R is
         tested against the threshold widened by k u(R)
         (:func:`equilibrium_ratio_uncertainty`, :func:`coverage_factor`), so
         noise alone does not break equilibrium.
@@ -532,7 +534,7 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
         flags.append(Flag("no_loading", "error", "no loading found (no positive strain rate and force)"))
     else:
         span = (region[1] - region[0]) * dt
-        if any(force_noise):
+        if any(np.any(np.asarray(u) > 0) for u in force_noise):
             k = coverage_factor(span / max(correlation_time or dt, averaging, dt))
         out.limit = equilibrium_limit(u_ratio, threshold, k)
         res["equilibrium_coverage_factor"] = k
@@ -924,7 +926,7 @@ def record_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves"
                               f"no transmitted pulse found (peak {et_peak:.3g} against noise "
                               f"{strains.noise_transmitted:.3g}): check the transmitted channel and the specimen "
                               f"contact"))
-    for name in ("incident", "transmitted"):
+    for name in ("incident", "transmitted", *strains.stations):
         count = strains.conditioning.get(name, {}).get("glitches", 0)
         if count:
             first = strains.conditioning[name]["glitch_times_us"][0]
@@ -1025,6 +1027,17 @@ def bar_flags(strains: "GaugeStrains", plan: "WindowPlan", barset: "BarSet") -> 
     return [f for f in flags if f is not None], results
 
 
+def station_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves") -> list:
+    """Clipping on the further stations that built separated waves (:func:`clipping_flag`, over the part of
+    the record the analysis reads): a station at its recorder's rail spoils the separation as a main gauge
+    would spoil the classic analysis."""
+    last = plan.last_sample(strains.time.size)
+    flags = [clipping_flag(st.volts[:last], f"{name} (station at {st.gauge.distance * 1e3:g} mm)",
+                           st.gauge.full_scale, plan.duration / strains.dt)
+             for name, st in strains.stations.items() if st.bar in waves.separated_bars]
+    return [f for f in flags if f is not None]
+
+
 def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curves: "KolskyCurves",
                       barset: "BarSet", specimen: "Specimen", region: Optional[tuple],
                       striker_speed: Optional[float]) -> tuple[list, dict]:
@@ -1047,7 +1060,9 @@ def consistency_flags(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceW
         z_striker = (striker.material.density * striker.material.bar_wave_speed * striker.area if striker
                      else bi.impedance)
         f0 = max(int(strains.foot), 0)
-        pulse = strains.incident[f0:f0 + max(int(plan.duration / strains.dt), 1)]
+        # the incident pulse alone: at its gauge, or, when it overlaps the reflected wave there, separated
+        pulse = waves.incident if "incident" in waves.separated_bars else \
+            strains.incident[f0:f0 + max(int(plan.duration / strains.dt), 1)]
         top = pulse[pulse >= 0.8 * np.max(pulse)]  # its plateau: a filter's or the bar's overshoot is no part
         flag, ratio = striker_flag(float(np.median(top)), speed, bi.wave_speed, bi.impedance, z_striker)
         flags.append(flag)
@@ -1064,9 +1079,8 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
     The equilibrium test widens the threshold by the noise: each channel's
     noise (measured over its quiet spans, after the running mean R(t) is
     read with: :func:`averaged_noise`) gives the face forces' standard
-    uncertainties, u(F1) = E_i A_i sqrt(2) sigma_i (the incident and the
-    reflected waves, read at different times of one channel) and
-    u(F2) = E_t A_t sigma_t, propagated to R(t) (:func:`equilibrium_ratio_uncertainty`).
+    uncertainties (:func:`force_noise`), propagated to R(t)
+    (:func:`equilibrium_ratio_uncertainty`).
 
     Parameters
     ----------
@@ -1085,12 +1099,8 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
     -------
     Verdict
     """
-    bi, bt = barset.incident, barset.transmitted
     n_avg = max(1, round(EQUILIBRIUM_AVERAGING / waves.dt))
-    u1 = bi.modulus * bi.area * math.sqrt(2.0) * averaged_noise(strains.incident, strains.quiet_incident, n_avg,
-                                                                 strains.noise_incident)
-    u2 = bt.modulus * bt.area * averaged_noise(strains.transmitted, strains.quiet_transmitted, n_avg,
-                                               strains.noise_transmitted)
+    u1, u2 = force_noise(strains, waves, barset, n_avg)
     cutoff = strains.lowpass_cutoff
     usable = waves.weight >= 1.0 - 1e-9 if waves.weight is not None else None
     judged = assess_curve(curves.time, curves.strain_rate, curves.force_front, curves.force_back, curves.strain,
@@ -1099,6 +1109,7 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
                           specimen_transit=specimen.transit_time, averaging=EQUILIBRIUM_AVERAGING,
                           force_noise=(u1, u2), correlation_time=0.5 / cutoff if cutoff else None, usable=usable)
     bflags, bresults = bar_flags(strains, plan, barset)
+    bflags += station_flags(strains, plan, waves)
     # a flat top is a cut pulse only if the forces disagree; a plateau they agree with is the pulse's own
     failed = any(f.code in ("no_equilibrium", "short_equilibrium") for f in judged.flags)
     bflags = [_confirm_flat_top(f, failed) if f.code == "flat_top" else f for f in bflags]
@@ -1111,8 +1122,34 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
     cflags, cresults = consistency_flags(strains, plan, waves, curves, barset, specimen, region, striker_speed)
     return Verdict(valid=judged.valid, equilibrium_ratio=judged.equilibrium_ratio,
                    results={**judged.results, **bresults, **cresults},
-                   flags=tuple(record_flags(strains, plan, waves, barset) + cflags + judged.flags + bflags),
+                   flags=tuple(separated_flags(record_flags(strains, plan, waves, barset) + cflags + judged.flags
+                                               + bflags, waves)),
                    equilibrium_limit=judged.limit)
+
+
+def force_noise(strains: "GaugeStrains", waves: "FaceWaves", barset: "BarSet", n_avg: int) -> tuple:
+    """Standard uncertainties of the face forces from the records' noise [N] (floats, or arrays over the window).
+
+    Classic waves: u(F1) = E_i A_i sqrt(2) sigma_i (the incident and the
+    reflected waves, read at different times of one channel) and
+    u(F2) = E_t A_t sigma_t. A force built from separated waves
+    (``waves.noise_gains``) carries each of its stations' noise through the
+    separation: u(F) = E A sqrt(sum (gain sigma_channel)^2), sample by sample
+    (:func:`shpb.separation.noise_gains`).
+    """
+    def sigma(channel):
+        signal, quiet, default = strains.channel(channel)
+        return averaged_noise(signal, quiet, n_avg, default)
+
+    out = []
+    for face, bar, name, classic in (("front", barset.incident, "incident", math.sqrt(2.0)),
+                                     ("back", barset.transmitted, "transmitted", 1.0)):
+        gains = waves.noise_gains.get(face)
+        if gains:
+            out.append(bar.modulus * bar.area * np.sqrt(sum((g * sigma(ch)) ** 2 for ch, g in gains.items())))
+        else:
+            out.append(bar.modulus * bar.area * classic * sigma(name))
+    return tuple(out)
 
 
 def averaged_noise(signal: ArrayLike, quiet: Optional[ArrayLike], n: int, default: float) -> float:
@@ -1141,3 +1178,21 @@ def _region_of(judged: Assessment, time: np.ndarray) -> Optional[tuple]:
     a = int(np.searchsorted(time, res["loading_from_time_us"] * 1e-6 - 1e-12))
     b = int(np.searchsorted(time, res["loading_to_time_us"] * 1e-6 + 1e-12))
     return a, b
+
+
+def separated_flags(flags: list, waves: "FaceWaves") -> list:
+    """The overlaps two-point separation has dealt with become one ``waves_separated`` info flag.
+
+    ``waves_overlap`` goes when the incident bar's waves were separated,
+    ``transmitted_overlap`` when the transmitted bar's were
+    (:class:`shpb.separation.SeparatedWaves`).
+    """
+    bars = list(waves.separated_bars)
+    if not bars:
+        return flags
+    gone = {"waves_overlap"} if "incident" in bars else set()
+    gone |= {"transmitted_overlap"} if "transmitted" in bars else set()
+    kept = [f for f in flags if f.code not in gone]
+    note = Flag("waves_separated", "info", f"the face waves of the {' and '.join(bars)} bar come from two-point "
+                                           f"separation ({waves.separation.get('reason', '')})")
+    return [note] + kept

@@ -39,6 +39,8 @@ __all__ = [
     "truth_table",
     "record_csv_text",
     "record_metadata",
+    "station_gauges",
+    "station_channels",
     "shot_toml_text",
     "write_virtual_shot",
     "plot_virtual_shot",
@@ -52,7 +54,8 @@ SETUP_LAWS = ("elastic", "perfectly-plastic", "johnson-cook")
 SHOT_KINDS = ("specimen", "bars-together", "free-end")
 #: Names of the files ``write_virtual_shot`` writes (``{name}`` is the setup's name).
 OUTPUT_FILES = {"record": "{name}.csv", "shot": "{name}.toml", "truth": "{name}_truth.csv", "figure": "{name}.png"}
-#: Channel columns of a virtual record.
+#: Channel columns of a virtual record: time, the main gauges, then the further stations (``CH3``, ``CH4``, ...)
+#: in the order of :func:`station_channels`.
 RECORD_COLUMNS = ("TIME", "CH1", "CH2")
 #: How the dispersion of a record is described in its metadata and figure.
 DISPERSION_LABELS = {None: "none (non-dispersive bars)",
@@ -253,7 +256,8 @@ def load_simulation(path) -> SimulationSetup:
         shaper_elements = _elements(sh, 10, 4)
 
     rt = top.table("recorder", required=False) or _Table({}, f"{src}: recorder")
-    rt.check_keys({"sample_rate", "duration", "pre_trigger", "trigger", "bits", "range", "noise", "offset", "seed"})
+    rt.check_keys({"sample_rate", "duration", "pre_trigger", "trigger", "bits", "range", "noise", "offset", "seed",
+                   "stations"})
     bits = rt.data.get("bits", 12)
     if bits is not None and (isinstance(bits, bool) or not isinstance(bits, int) or not 2 <= bits <= 24):
         raise InputError(f"expected a whole number of bits from 2 to 24, got {bits!r}", rt._key("bits"))
@@ -277,12 +281,16 @@ def load_simulation(path) -> SimulationSetup:
         raise InputError("expected a time >= 0", rt._key("pre_trigger"))
 
     transmitted = None if kind == "free-end" else bar_rod(bs.transmitted)
+    stations = rt.boolean("stations", True)  # record the bar set's further gauge stations
     spec = VirtualShotSpec(striker=striker, incident=bar_rod(bs.incident), transmitted=transmitted,
                            specimen=specimen, striker_speed=speed,
                            incident_gauge_distance=bs.incident_gauge.distance,
                            transmitted_gauge_distance=bs.transmitted_gauge.distance,
                            duration=1.0, sample_rate=recorder.sample_rate, shaper=shaper,
-                           specimen_elements=elements, shaper_elements=shaper_elements)
+                           specimen_elements=elements, shaper_elements=shaper_elements,
+                           incident_stations=tuple(g.distance for g in bs.incident_stations) if stations else (),
+                           transmitted_stations=tuple(g.distance for g in bs.transmitted_stations)
+                           if stations and transmitted is not None else ())
     try:
         duration = model_duration(trigger_time(spec, recorder), recorder)
     except InputError as exc:  # name the setup file's key, not the dataclass field
@@ -329,8 +337,25 @@ def simulate_setup(setup: SimulationSetup, *, allow_bar_yield=False) -> VirtualS
     result = simulate_shot(run)
     record = virtual_record(result, rec, bs.incident_gauge,
                             None if setup.kind == "free-end" else bs.transmitted_gauge,
-                            incident_poisson_ratio=nu_i, transmitted_poisson_ratio=nu_t, dispersion=mode, trigger=trigger)
+                            incident_poisson_ratio=nu_i, transmitted_poisson_ratio=nu_t, dispersion=mode, trigger=trigger,
+                            station_gauges=station_gauges(bs, spec))
     return VirtualShot(setup=setup, plan=plan, result=result, record=record)
+
+
+def station_gauges(barset, spec: VirtualShotSpec) -> dict:
+    """Station name (:func:`shpb.io.station_name`) -> Gauge of the further stations a virtual shot records."""
+    from .io import station_name
+
+    out = {}
+    for bar in ("incident", "transmitted"):
+        for k, gauge in enumerate(getattr(barset, f"{bar}_stations")[:len(getattr(spec, f"{bar}_stations"))], start=2):
+            out[station_name(bar, k)] = gauge
+    return out
+
+
+def station_channels(record: VirtualRecord) -> dict:
+    """Station name -> its column in the record file: ``CH3``, ``CH4``, ... in the record's order."""
+    return {name: f"CH{k}" for k, name in enumerate(record.volts_stations, start=3)}
 
 
 # =========================================================================== outputs
@@ -355,7 +380,8 @@ def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = Non
 
 
 def record_csv_text(record: VirtualRecord, metadata=()) -> str:
-    """A record as a scope would export it: ``key,value`` metadata lines, then ``TIME,CH1[,CH2]`` and the samples.
+    """A record as a scope would export it: ``key,value`` metadata lines, then ``TIME,CH1[,CH2,CH3...]`` and the
+    samples (the further stations after the main gauges, :func:`station_channels`).
 
     Time in seconds (``%.6e``), volts with five significant digits (below
     the converter's step).
@@ -367,6 +393,9 @@ def record_csv_text(record: VirtualRecord, metadata=()) -> str:
     if record.volts_transmitted is not None:
         cols.append(record.volts_transmitted)
         names.append(RECORD_COLUMNS[2])
+    for name, column in station_channels(record).items():
+        cols.append(record.volts_stations[name])
+        names.append(column)
     buf = _io.StringIO()
     for key, value in metadata:
         buf.write(f"{key},{value}\n")
@@ -401,8 +430,13 @@ def shot_toml_text(shot: VirtualShot, record_file: str, barset_file: str, window
         lines.append(f"temperature = {_q(info['temperature'], 'K', 1.0)}")
     lines += [f"modulus = {_q(info['modulus'], 'GPa', 1e9)}", f"density = {_q(info['density'], 'kg/m^3', 1.0)}",
               "", "[striker]", f"speed = {_q(s.spec.striker_speed, 'm/s', 1.0, '.4g')}",
-              "", "[record]", f'file = "{record_file}"', 'incident = "CH1"', 'transmitted = "CH2"', 'time = "TIME"',
-              "", "[analysis]", "dispersion = true"]
+              "", "[record]", f'file = "{record_file}"', 'incident = "CH1"', 'transmitted = "CH2"', 'time = "TIME"']
+    columns = station_channels(shot.record)
+    for bar in ("incident", "transmitted"):
+        mapped = [f'"{c}"' for name, c in columns.items() if name.startswith(f"{bar}_")]
+        if mapped:
+            lines.append(f"{bar}_stations = [{', '.join(mapped)}]")
+    lines += ["", "[analysis]", "dispersion = true"]
     if window is not None:
         lines.append(f"window = {_q(window, 'us', 1e-6, '.1f')}")
     return "\n".join(lines) + "\n"
@@ -417,7 +451,21 @@ def record_metadata(shot: VirtualShot) -> list:
             ("Sample interval", f"{1 / r.sample_rate:.6g} s"),
             ("Trigger", f"{r.trigger}; record starts {r.pre_trigger * 1e6:.6g} us before it"),
             ("Vertical", f"{r.bits} bit over +/-{r.full_scale[0]:.6g} V" if r.bits else "not quantised"),
-            ("Dispersion", DISPERSION_LABELS[rec.info["dispersion"]])]
+            ("Dispersion", DISPERSION_LABELS[rec.info["dispersion"]])] + _channel_lines(shot)
+
+
+def _channel_lines(shot: VirtualShot) -> list:
+    """A ``Channels`` metadata line saying where each channel's station is (only for a record with further
+    stations; a two-channel record keeps the usual CH1 incident, CH2 transmitted)."""
+    columns = station_channels(shot.record)
+    if not columns:
+        return []
+    bs, res = shot.setup.barset, shot.result
+    parts = [f"CH1 incident gauge at {bs.incident_gauge.distance * 1e3:g} mm",
+             f"CH2 transmitted gauge at {bs.transmitted_gauge.distance * 1e3:g} mm"]
+    parts += [f"{c} {res.stations[n]['bar']} station at {res.stations[n]['distance_m'] * 1e3:g} mm"
+              for n, c in columns.items()]
+    return [("Channels", "; ".join(parts) + " (distances from the specimen faces)")]
 
 
 def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
@@ -467,33 +515,42 @@ def plot_virtual_shot(shot: VirtualShot):
     """
     from matplotlib.figure import Figure  # no pyplot: the user's backend and figure list stay as they are
 
+    from . import style
+    from .report import legend_outside, wrapped_title
+
     rec, res, s = shot.record, shot.result, shot.setup
     has_specimen = s.kind == "specimen"
-    fig = Figure(figsize=(8.3, 9.5 if has_specimen else 3.8), constrained_layout=True)
+    fig = Figure(figsize=(9.0, 9.5 if has_specimen else 3.8), constrained_layout=True)
     axes = fig.subplots(3 if has_specimen else 1, 1, squeeze=False)
     ax = axes[0, 0]
-    ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, label="incident-bar gauge")
+    ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, color=style.INCIDENT, label="incident-bar gauge")
     if rec.strain_transmitted is not None:
-        ax.plot(rec.time * 1e6, rec.strain_transmitted * 1e6, lw=0.8, label="transmitted-bar gauge")
-    ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)",
-           title="Gauge strains in the record (before noise and quantisation)")
-    ax.text(0.01, 0.02, f"dispersion: {DISPERSION_LABELS[rec.info['dispersion']]}", transform=ax.transAxes,
-            fontsize=7, color="0.3")
-    ax.legend(fontsize=7)
+        ax.plot(rec.time * 1e6, rec.strain_transmitted * 1e6, lw=0.8, color=style.TRANSMITTED,
+                label="transmitted-bar gauge")
+    for name, column in station_channels(rec).items():  # further stations: dashed, in their bar's colour
+        station = res.stations[name]
+        ax.plot(rec.time * 1e6, rec.strain_stations[name] * 1e6, lw=0.6, ls="--",
+                color=style.INCIDENT if station["bar"] == "incident" else style.TRANSMITTED,
+                label=f"{station['bar']}-bar station at {station['distance_m'] * 1e3:g} mm ({column})")
+    ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)")
+    wrapped_title(ax, f"Gauge strains in the record (before noise and quantisation; dispersion: "
+                      f"{DISPERSION_LABELS[rec.info['dispersion']]})", fontsize=10, width_inches=6.5)
+    legend_outside(ax)
     if has_specimen:
         tt = truth_table(res, rec)
         ax = axes[1, 0]
-        ax.plot(tt.time_us, tt.force_front_kN, label="front face F1 (incident bar)")
-        ax.plot(tt.time_us, tt.force_back_kN, "--", label="back face F2 (transmitted bar)")
+        ax.plot(tt.time_us, tt.force_front_kN, color=style.INCIDENT, label="front face F1\n(incident bar)")
+        ax.plot(tt.time_us, tt.force_back_kN, "--", color=style.TRANSMITTED, label="back face F2\n(transmitted bar)")
         ax.set(xlabel="time from the incident foot at the specimen [µs]", ylabel="force [kN]",
                title="Face forces (model truth)")
-        ax.legend(fontsize=7)
+        legend_outside(ax)
         ax = axes[2, 0]
         loading = tt.loc[: int(tt.strain.to_numpy().argmax())]
-        ax.plot(loading.strain, loading.stress_MPa, "k", label="engineering (model truth)")
+        ax.plot(loading.strain, loading.stress_MPa, "k", label="engineering\n(model truth)")
         true_strain = -np.log1p(-loading.strain.to_numpy())
-        ax.plot(true_strain, loading.stress_MPa * (1 - loading.strain), "C3", lw=0.8, label="true (volume constant)")
+        ax.plot(true_strain, loading.stress_MPa * (1 - loading.strain), color=style.REFLECTED, lw=0.8,
+                label="true (volume\nconstant)")
         ax.set(xlabel="strain [1]", ylabel="stress [MPa]", title="Specimen stress (model truth)")
-        ax.legend(fontsize=7)
+        legend_outside(ax)
     fig.suptitle(f"Virtual shot {s.name} - SYNTHETIC (shpb simulate)", fontsize=10)
     return fig

@@ -334,7 +334,7 @@ def test_swapped_channels_and_cut_records_are_named(shots, tmp_path, capsys, fau
     if fault == "swapped":  # a setup mistake, named before anything is reduced: bad input
         assert status == 2 and "the channels look swapped" in out.err and len(out.err.splitlines()) == 1
     else:  # the record is read and reduced, and the verdict says why it cannot be used
-        assert status == 1 and "NOT VALID" in out.out and "error: the record ends at" in out.out
+        assert status == 1 and "NOT VALID" in out.out and "detail: the record ends at" in out.out
 
 
 # --------------------------------------------------------------------------- a bug

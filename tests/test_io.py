@@ -71,6 +71,23 @@ def test_per_channel_files_of_unequal_length(tmp_path):
         read_record(RecordSpec(Channel(a, "v"), Channel(b, "v"), time="t"))
 
 
+def test_further_stations_are_read_by_name(tmp_path):
+    # a four-channel scope file: CH3 and CH4 the bar set's further stations ([record] incident_stations,
+    # transmitted_stations; docs/setup-files.md), named incident_2 and transmitted_2 in the record
+    data = np.column_stack([DATA, DATA[:, 1] * 2, DATA[:, 2] * 3])
+    p = _write(tmp_path / "r.csv", [], ",", ["TIME", "CH1", "CH2", "CH3", "CH4"], data)
+    spec = RecordSpec(Channel(p, "CH1"), Channel(p, "CH2"), time="TIME", incident_stations=(Channel(p, "CH3"),),
+                      transmitted_stations=(Channel(p, "CH4"),))
+    rec = read_record(spec)
+    assert sorted(rec.stations) == ["incident_2", "transmitted_2"]
+    np.testing.assert_allclose(rec.stations["incident_2"], 2 * DATA[:, 1], rtol=1e-9)
+    np.testing.assert_allclose(rec.stations["transmitted_2"], 3 * DATA[:, 2], rtol=1e-9)
+    short = _write(tmp_path / "s.csv", [], ",", ["t", "v"], DATA[:40, :2])
+    with pytest.raises(InputError, match="incident_2 channel"):
+        read_record(RecordSpec(Channel(p, "CH1"), Channel(p, "CH2"), time="TIME",
+                               incident_stations=(Channel(short, "v"),)))
+
+
 @pytest.mark.parametrize("mutate, fragment", [
     (lambda lines: lines[:10] + ["1e-6,abc,0.2"] + lines[11:], "'abc' is not a number"),
     (lambda lines: lines[:10] + ["1e-6,nan,0.2"] + lines[11:], "non-finite"),

@@ -121,3 +121,20 @@ def test_a_burst_is_not_a_foot():
     s[400:403] += 0.33
     assert pulses.find_foot(s, 200) < 403                        # fooled without persistence
     assert 1200.4 <= pulses.find_foot(s, 200, persist=10) <= 1203.4
+
+
+def test_rest_level_of_a_record_a_long_pulse_fills():
+    # a channel at 0.01 V before its first wave, then sitting on pulses over 80 % of the record (a long pulse
+    # overlapping its reflection): the record's median lies on the pulse, the level put in is the start's; a
+    # record with a short pulse keeps the median (the level put in, with noise of 1 mV)
+    rng = np.random.default_rng(5)
+    n = 10_000
+    x = np.full(n, 0.01) + rng.normal(0, 1e-3, n)
+    long = x.copy()
+    long[2000:] += np.where(np.arange(n - 2000) < 1000, 0.6, 0.2)
+    level, sigma = pulses.rest_level(long)
+    assert pulses.robust_noise(long)[0] == pytest.approx(0.21, abs=0.01)  # the median: on the pulse
+    assert level == pytest.approx(0.01, abs=5e-4) and sigma == pytest.approx(1e-3, rel=0.1)
+    short = x.copy()
+    short[2000:3000] += 0.6
+    assert pulses.rest_level(short) == pulses.robust_noise(short)

@@ -108,3 +108,42 @@ def test_bad_toml(tmp_path):
     write(tmp_path, shot="name = [unclosed")
     with pytest.raises(InputError, match="not valid TOML"):
         load_shot(tmp_path / "shot.toml")
+
+
+STATION_BARS = BARS.replace('''[incident.gauge]
+distance = "750 mm"''', '''[[incident.gauge]]
+distance = "750 mm"''').replace('''polarity = -1
+[transmitted]''', '''polarity = -1
+[[incident.gauge]]
+distance = "1.2 m"
+gauge_factor = 2.0
+excitation = "5 V"
+[transmitted]''')
+
+
+def test_several_gauge_stations_per_bar(tmp_path):
+    # [[incident.gauge]]: the first station is the main one (the record's incident channel), the others further
+    # stations mapped by [record] incident_stations, in order (docs/setup-files.md)
+    shot_text = SHOT.replace('time_unit = "us"', 'time_unit = "us"\nincident_stations = ["CH3"]')
+    shot = load_shot(write(tmp_path, STATION_BARS, shot_text))
+    bs = shot.barset
+    assert bs.incident_gauge.distance == pytest.approx(0.75) and bs.incident_gauge.bridge == "quarter"
+    (second,) = bs.incident_stations
+    assert second.distance == pytest.approx(1.2) and second.excitation == pytest.approx(5.0)
+    assert bs.stations("incident") == (bs.incident_gauge, second) and bs.transmitted_stations == ()
+    assert [c.column for c in shot.record.incident_stations] == ["CH3"]
+    # a bar set with one [incident.gauge] table still reads as one station
+    assert load_shot(write(tmp_path)).barset.incident_stations == ()
+
+
+@pytest.mark.parametrize("bars, shot_extra, where", [
+    (STATION_BARS.replace('distance = "1.2 m"', 'distance = "0.75 m"'), "", "incident.gauge[2].distance"),
+    (STATION_BARS, 'incident_stations = ["CH3", "CH4"]', "record.incident_stations"),
+    (BARS, 'transmitted_stations = ["CH3"]', "record.transmitted_stations"),
+    (STATION_BARS, 'incident_stations = "CH3"', "record.incident_stations"),
+])
+def test_station_errors_name_the_key(tmp_path, bars, shot_extra, where):
+    # two stations at one distance; more channels than stations; a channel list that is not a list
+    shot_text = SHOT.replace('time_unit = "us"', f'time_unit = "us"\n{shot_extra}')
+    with pytest.raises(InputError, match=where.replace("[", r"\[").replace("]", r"\]")):
+        load_shot(write(tmp_path, bars, shot_text))

@@ -233,7 +233,7 @@ def test_noise_draws_have_the_spectrum_of_an_independent_butterworth_filter(exam
     sos = butter(LOWPASS_ORDER, st.lowpass_cutoff, fs=1 / st.dt, output="sos")
     ours, ref = [], []
     for seed in range(20):  # the same white noise through both (a draw takes its white noise first)
-        ours.append(acf(U._noise_draw(st, "transmitted", np.random.default_rng(seed))))
+        ours.append(acf(U._noise_draw(st, st.noise_transmitted, np.random.default_rng(seed))))
         ref.append(acf(sosfiltfilt(sos, np.random.default_rng(seed).standard_normal(st.time.size))))
     ours, ref = np.mean(ours, axis=0), np.mean(ref, axis=0)
     # the two filters differ only in how they extend the ends (measured 0.015 at most)

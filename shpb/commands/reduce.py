@@ -61,35 +61,11 @@ def register(app: typer.Typer) -> None:
 
 
 def format_result(result, out_dir) -> str:
-    """A few lines a lab engineer reads after a shot."""
-    r = result.summary["results"]
-
-    def g(key, fmt):
-        v = r.get(key)
-        return format(v, fmt) if isinstance(v, (int, float)) else "n/a"
-
-    def pm(key, fmt):  # "+- U" (k = 2) when the uncertainty stage ran
-        return f" +- {g('U95_' + key, fmt)}" if f"U95_{key}" in r else ""
-
-    lines = [
-        f"shot {result.name}: {'VALID' if result.valid else 'NOT VALID'}",
-        f"  mean strain rate   {g('mean_strain_rate_per_s', '.0f')}{pm('mean_strain_rate_per_s', '.0f')} 1/s "
-        f"(spread {g('strain_rate_cv', '.1%')})",
-        f"  peak stress        {g('peak_stress_MPa', '.1f')}{pm('peak_stress_MPa', '.1f')} MPa   max strain "
-        f"{g('max_strain', '.4f')}{pm('max_strain', '.4f')}",
-        f"  yield (offset {g('yield_offset', '.1%')})  {g('yield_stress_MPa', '.1f')}{pm('yield_stress_MPa', '.1f')} "
-        f"MPa at strain {g('yield_strain', '.4f')}{pm('yield_strain', '.4f')}",
-        f"  equilibrium from   {g('equilibrium_from_time_us', '.1f')} us (strain {g('equilibrium_from_strain', '.4f')})",
-    ]
-    unc = result.summary.get("uncertainty")
-    if unc:
-        dom = unc.get("dominant_inputs", {}).get("flow_stress_mean_MPa", [])
-        lines.append(f"  uncertainty        +- U = 2 u (about 95 %); largest contributions to the mean flow "
-                     f"stress: {', '.join(dom[:2]) or 'n/a'} ({result.BUDGET_FILE})")
-    for f in result.flags:
-        lines.append(f"  {f.severity}: {f.message}")
-    lines.append(f"  written to {out_dir}")
+    """What a lab engineer reads after a shot: the verdict with what matters, each flag in plain words."""
+    from ..plain_words import shot_lines
     from ..reduce import DESIGN_CAUTION
 
+    lines = shot_lines(result.name, result.summary, result.curves)
+    lines.append(f"  written to {out_dir}")
     lines.append(f"  note: {DESIGN_CAUTION}")
     return "\n".join(lines)
