@@ -55,6 +55,7 @@ from .io import (is_number, atomic_savefig, atomic_write_bytes, atomic_write_tex
 from .setup import (AnalysisOptions, BarSet, Shot, analysis_from_dict, load_barset, read_toml,
                     shot_from_dict)
 from . import schema
+from .uncertainty import expanded_name
 from .units import DIMENSIONS, to_si
 
 #: Files of a campaign output folder.
@@ -521,11 +522,6 @@ def _flow_column(strain: float) -> str:
     return f"flow_stress_MPa_at_{strain:g}"
 
 
-def _expanded_column(column: str) -> str:
-    """The column of a result's expanded uncertainty (k = 2): ``U95_<column>``."""
-    return f"U95_{column}"
-
-
 def _flow_expanded(summary: dict, strain: float) -> float:
     """U95 of the flow stress at ``strain`` [MPa] from the summary's flow-stress table (linear between its
     strains; NaN outside it or without the uncertainty stage)."""
@@ -571,9 +567,9 @@ def shot_row(summary: dict, curves: pd.DataFrame, flow_strains: Iterable[float])
     strain, stress, valid = (curves[c].to_numpy() for c in ("strain", "stress_MPa", "valid"))
     for e in flow_strains:
         row[_flow_column(e)] = flow_stress_at(strain, stress, valid.astype(bool), e)
-        row[_expanded_column(_flow_column(e))] = _flow_expanded(summary, e)
+        row[expanded_name(_flow_column(e))] = _flow_expanded(summary, e)
     for key in ("mean_strain_rate_per_s", "yield_strain", "yield_stress_MPa"):
-        row[_expanded_column(key)] = num(_expanded_column(key))
+        row[expanded_name(key)] = num(expanded_name(key))
     dominant = ((summary.get("uncertainty") or {}).get("dominant_inputs") or {}).get("flow_stress_mean_MPa") or []
     row["dominant_input"] = dominant[0] if dominant else ""
     row.update({
@@ -1498,11 +1494,11 @@ def _remember(out: Path, campaign: Campaign, figures: bool, report: CampaignRepo
 
 # --------------------------------------------------------------------------- campaign outputs
 def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
-    flow_cols = [c for e in campaign.flow_strains for c in (_flow_column(e), _expanded_column(_flow_column(e)))]
+    flow_cols = [c for e in campaign.flow_strains for c in (_flow_column(e), expanded_name(_flow_column(e)))]
     num_cols = ["temperature_K", "specimen_length_mm", "specimen_diameter_mm", "mean_strain_rate_per_s",
-                _expanded_column("mean_strain_rate_per_s"), "strain_rate_cv", "peak_stress_MPa", *flow_cols,
-                "yield_strain", _expanded_column("yield_strain"), "yield_stress_MPa",
-                _expanded_column("yield_stress_MPa"), "valid_fraction_of_loading", "equilibrium_from_strain",
+                expanded_name("mean_strain_rate_per_s"), "strain_rate_cv", "peak_stress_MPa", *flow_cols,
+                "yield_strain", expanded_name("yield_strain"), "yield_stress_MPa",
+                expanded_name("yield_stress_MPa"), "valid_fraction_of_loading", "equilibrium_from_strain",
                 "max_strain"]
     records = []
     by_row = {r.id: r for r in campaign.rows}

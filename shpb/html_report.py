@@ -270,8 +270,20 @@ def _calibration_text(row: dict, summary: Optional[dict]) -> str:
     return f"{Path(cal['file']).name}" + (f" ({dates[-1]})" if dates else "")
 
 
+def _with_u(value, big_u, fmt: str) -> str:
+    """A number, with ``± U`` (expanded uncertainty, k = 2) when there is one."""
+    text, u = _num(value, fmt), _num(big_u, fmt)
+    return text + (f" ± {u}" if text and u else "")
+
+
+def _has_u(data: ReportData) -> bool:
+    """Whether any shot of the report carries the uncertainty stage's results."""
+    return any((s.summary or {}).get("uncertainty") for s in data.shots)
+
+
 def _shot_rows(data: ReportData) -> str:
     from .plain_words import explain
+    from .uncertainty import expanded_name
 
     out = []
     for i, s in enumerate(data.shots):
@@ -292,10 +304,9 @@ def _shot_rows(data: ReportData) -> str:
                  (_e(row.get("material") or ((summary.get("inputs") or {}).get("specimen") or {}).get("material")),
                   None),
                  (_num(rate, ".0f"), _num(rate, ".6g"))]
-        for col in data.flow_columns:
-            v, u = row.get(col), row.get(f"{col}_uncertainty", row.get(f"{col}_u"))
-            text = _num(v, ".1f") + (f" ± {_num(u, '.1f')}" if _num(u, ".1f") else "")
-            cells.append((text, _num(v, ".6g")))
+        for col in data.flow_columns:  # ± U from the campaign table's U95_ column (the uncertainty stage)
+            v = row.get(col)
+            cells.append((_with_u(v, row.get(expanded_name(col)), ".1f"), _num(v, ".6g")))
         cells += [(_num(peak, ".1f"), _num(peak, ".6g")), (_e(_calibration_text(row, s.summary)), None)]
         numeric = ' class="n"'
         tds = "".join(f'<td{numeric if 4 <= k < len(cells) - 1 else ""} '
@@ -313,7 +324,8 @@ def _strip_tags(text: str) -> str:
 
 def _shot_table(data: ReportData) -> str:
     heads = ["shot", "verdict", "flags", "material", "mean strain rate [1/s]"]
-    heads += [f"flow stress at {c[len('flow_stress_MPa_at_'):]} [MPa]" for c in data.flow_columns]
+    pm = " ± U (k = 2)" if _has_u(data) else ""
+    heads += [f"flow stress at {c[len('flow_stress_MPa_at_'):]}{pm} [MPa]" for c in data.flow_columns]
     heads += ["peak stress [MPa]", "calibration"]
     ths = "".join(f'<th scope="col" aria-sort="none"><button type="button">{_e(h)}</button></th>' for h in heads)
     n = len(data.shots)
@@ -366,8 +378,13 @@ def _shot_section(i: int, s: ShotEntry) -> str:
     summary = s.summary
     res = summary.get("results") or {}
     facts = s.facts
-    rows = "".join(f"<tr><th>{_e(label)}</th><td>{_num(res.get(k), fmt)} {_e(unit)}</td></tr>"
-                   for label, k, fmt, unit in _RESULT_ROWS if _num(res.get(k), fmt))
+    from .uncertainty import expanded_name
+
+    rows = "".join(f"<tr><th>{_e(label)}</th><td>{_with_u(res.get(k), res.get(expanded_name(k)), fmt)} {_e(unit)}"
+                   f"</td></tr>" for label, k, fmt, unit in _RESULT_ROWS if _num(res.get(k), fmt))
+    if summary.get("uncertainty"):
+        rows += ("<tr><th>uncertainty</th><td>± U: expanded uncertainty, k = 2 (about 95 %); budget in "
+                 "<code>uncertainty_budget.csv</code></td></tr>")
     if _num(res.get("valid_strain_to"), ".4f"):
         rows = rows.replace(f"{_num(res.get('valid_strain_from'), '.4f')} </td>",
                             f"{_num(res.get('valid_strain_from'), '.4f')} to {_num(res['valid_strain_to'], '.4f')}"

@@ -236,8 +236,10 @@ def _num(facts: Mapping, key: str, fmt: str) -> Optional[str]:
 def with_u(facts: Mapping, key: str, fmt: str) -> Optional[str]:
     """A result as text, with ``± U`` (its expanded uncertainty ``U95_<key>``, k = 2) when the uncertainty
     stage gave one; None when the result is missing."""
+    from .uncertainty import expanded_name
+
     value = _num(facts, key, fmt)
-    big_u = _num(facts, f"U95_{key}", fmt)
+    big_u = _num(facts, expanded_name(key), fmt)
     return f"{value} ± {big_u}" if value is not None and big_u is not None else value
 
 

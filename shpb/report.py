@@ -303,8 +303,9 @@ def plot_shot(result) -> Figure:
 def _band(ax, c, column, valid):
     """The expanded-uncertainty band (value +- U95, k = 2) of a column over the valid part, against strain."""
     from . import style
+    from .uncertainty import expanded_name
 
-    key = f"U95_{column}"
+    key = expanded_name(column)
     if key not in c or not valid.any():
         return
     x = c["strain"].to_numpy()[valid]

@@ -529,6 +529,12 @@ ROWS = {"stress": ("stress_MPa", 1e-6), "strain": ("strain", 1.0), "strain_rate"
 ROW_COLUMNS = ("stress", "strain", "strain_rate")
 
 
+def expanded_name(name: str) -> str:
+    """The name of a row's or result's expanded uncertainty (k = 2): ``U95_<name>`` (curves.csv, summary,
+    campaign table)."""
+    return f"U95_{name}"
+
+
 def flow_column(strain: float) -> str:
     """The name of the flow stress at a strain, as the campaign table names its column."""
     from .campaign import _flow_column
@@ -869,7 +875,7 @@ class ShotUncertainty:
         for name in ROW_COLUMNS:
             col, scale = ROWS[name]
             out[f"u_{col}"] = self.rows[name] * scale
-            out[f"U95_{col}"] = self.coverage_factor * self.rows[name] * scale
+            out[expanded_name(col)] = self.coverage_factor * self.rows[name] * scale
         col, scale = ROWS["true_stress"]
         out[f"u_{col}"] = self.rows["true_stress"] * scale
         return out
@@ -881,7 +887,7 @@ class ShotUncertainty:
             if name.startswith("flow_stress_MPa_at_") or not math.isfinite(s["value"]):
                 continue
             out[f"u_{name}"] = s["u"]
-            out[f"U95_{name}"] = self.coverage_factor * s["u"]
+            out[expanded_name(name)] = self.coverage_factor * s["u"]
         return out
 
     def flow_table(self) -> dict:

@@ -30,12 +30,18 @@ SHEETS = ("HR-A61-2500-a", "HR-C10-5000-b")
 
 @pytest.fixture(scope="module")
 def campaign_out(tmp_path_factory):
-    """The example campaign reduced (shot sheets for two shots only), its figures drawn, and a fit folder."""
+    """The example campaign reduced (shot sheets for two shots only), its figures drawn, and a fit folder; its
+    uncertainty stage (on in the example) with 10 Monte Carlo draws instead of 100, to keep this cheap."""
+    import dataclasses
+
     from shpb import campaign as C
     from shpb.reduce import reduce_shot
+    from shpb.setup import with_analysis
 
     out = tmp_path_factory.mktemp("report") / "campaign"
     camp = C.load_campaign(CAMPAIGN)
+    camp = dataclasses.replace(camp, rows=tuple(dataclasses.replace(r, shot=with_analysis(r.shot, uncertainty_draws=10))
+                                                for r in camp.rows))
     report = C.run_campaign(camp, out, jobs=1, figures=False)
     for row in camp.rows:
         if row.id in SHEETS:  # the figure sheet of two shots, as a run with figures writes it
@@ -69,6 +75,30 @@ def test_report_is_self_contained_and_lists_every_shot(report_file, campaign_out
     assert "independent validation" in text and "SHA-256" in text
     digest = next(iter(re.findall(r"<code>([0-9a-f]{64})</code>", text)))
     assert len(digest) == 64
+
+
+def test_report_shows_the_flow_stress_with_its_uncertainty(report_file, campaign_out):
+    """The example campaign runs the uncertainty stage: each valid shot's flow stress in the shot table reads
+    "value ± U" with U the campaign table's expanded uncertainty (k = 2, JCGM 100:2008 §6.2), and each shot's
+    section gives its mean flow stress with ± U."""
+    import pandas as pd
+
+    from shpb.campaign import SUMMARY_TABLE
+
+    out, camp = campaign_out
+    text = report_file.read_text(encoding="utf-8")
+    table = pd.read_csv(out / SUMMARY_TABLE)
+    assert "flow stress at 0.05 ± U (k = 2) [MPa]" in text
+    rows = dict(re.findall(r'<a href="#shot-\d+">([^<]+)</a>(.*?)</tr>', text, re.S))
+    shown = 0
+    for _, r in table.iterrows():
+        v, big_u = r["flow_stress_MPa_at_0.05"], r["U95_flow_stress_MPa_at_0.05"]
+        if np.isfinite(v):
+            assert 0 < big_u < 0.1 * v  # a few per cent of the stress, as the budget's inputs give
+            assert f"{v:.1f} ± {big_u:.1f}" in rows[r["id"]]
+            shown += 1
+    assert shown >= 6
+    assert re.search(r"mean flow stress over the valid part</th><td>[0-9.]+ ± [0-9.]+ MPa", text)
 
 
 def test_report_says_flags_in_plain_words_and_escapes_text(tmp_path):
