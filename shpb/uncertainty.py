@@ -33,7 +33,11 @@ Propagation, one output y at a time (a curve row or a scalar):
   :func:`shpb.pulses.plan_analysis`, on the conditioned record of stage 1
   plus a fresh draw of filtered noise; stage 3 with its cached dispersion
   tables; stage 4), u_MC(y) the standard deviation of the M values;
-* combined u² = u_GUM² + u_MC² (the two sets of inputs are independent).
+* the specimen's remaining non-equilibrium, from the curves: the reported
+  stress's distance from the mean of the two face stresses (the 3-wave
+  stress, the mean stress of a specimen whose stress is linear along it),
+  u_eq (:func:`equilibrium_row`);
+* combined u² = u_GUM² + u_MC² + u_eq² (independent inputs).
 
 The budget names each input's contribution c_i u(x_i) to each scalar: exact
 for the GUM inputs, and for the Monte Carlo inputs the least-squares
@@ -626,6 +630,53 @@ class _Evaluator:
                 out[flow_column(e)] = float(v)
         return out
 
+    def along(self, curves, waves, row) -> dict:
+        """A stress-like row [Pa] read as each stress scalar reads the stress [MPa]: its mean over the valid
+        part, its value at the yield strain, at the peak stress and at each strain of the flow table."""
+        from .campaign import flow_stress_at
+
+        strain = curves.strain
+        nominal = self.scalars(curves, waves)
+        out = {"peak_stress_MPa": float(row[int(np.argmax(curves.stress))] / 1e6)}
+        region = self._region(curves, waves)
+        valid = np.zeros(strain.size, dtype=bool)
+        if region is not None and self.onset is not None and region[0] + self.onset < region[1]:
+            valid[region[0] + self.onset:region[1]] = True
+        if valid.any():
+            out["flow_stress_mean_MPa"] = float(np.mean(row[valid]) / 1e6)
+        if region is not None and math.isfinite(nominal["yield_strain"]):
+            a, b = region
+            x = np.maximum.accumulate(strain[a:b])
+            out["yield_stress_MPa"] = float(np.interp(nominal["yield_strain"], x, row[a:b]) / 1e6)
+        if self.flow_strains.size:
+            flow = np.atleast_1d(flow_stress_at(strain, row, valid, self.flow_strains)) / 1e6
+            out.update({flow_column(e): float(v) for e, v in zip(self.flow_strains, flow)})
+        return out
+
+
+#: The stress's model input: how far the reported stress may lie from the specimen's mean stress.
+EQUILIBRIUM_INPUT = Input(
+    "specimen.equilibrium", "non-equilibrium: reported stress against the mean of the two face stresses",
+    float("nan"), float("nan"), "", "specimen",
+    "|3-wave - reported stress| averaged as the verdict averages R(t): the mean stress of a specimen whose "
+    "stress varies linearly along it is the mean of its face stresses (the 3-wave stress; Gray 2000, from memory); "
+    "a standard uncertainty, not a correction", "model (from the curves)")
+
+
+def equilibrium_row(curves, dt: float) -> np.ndarray:
+    """The standard uncertainty of the reported stress from the specimen's remaining non-equilibrium [Pa].
+
+    |sigma_3w - sigma| averaged over :data:`shpb.validity.EQUILIBRIUM_AVERAGING` (as the verdict averages
+    R(t)): the specimen's mean stress, the mean of its two face stresses for a stress linear along it, lies
+    that far from the reported stress (|R| sigma / 2 for the 1-wave or 2-wave stress; zero for the 3-wave
+    stress, whose own error of that kind the face forces' noise carries). Zero in equilibrium.
+    """
+    from .validity import EQUILIBRIUM_AVERAGING, moving_average
+
+    diff = curves.stress_by_form["3-wave"] - curves.stress
+    n = max(1, round(EQUILIBRIUM_AVERAGING / dt))
+    return np.nan_to_num(np.abs(moving_average(diff, n)))
+
 
 def _kolsky(waves, barset, specimen, stress_form, factors):
     """Stage 4 on the face waves with each channel's strain scaled by its factor (the waves are linear in it)."""
@@ -821,7 +872,7 @@ def _regression_contributions(x: np.ndarray, y: np.ndarray, u: np.ndarray) -> tu
 
 @dataclass(frozen=True)
 class ShotUncertainty:
-    """Stage 6 of a reduction: the standard uncertainty of every curve row and summary scalar, and the budget.
+    """Stage 7 of a reduction: the standard uncertainty of every curve row and summary scalar, and the budget.
 
     Attributes
     ----------
@@ -976,7 +1027,7 @@ class ShotUncertainty:
 
 
 def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=SEED) -> ShotUncertainty:
-    """Stage 6: the uncertainty of a reduced shot's curves and scalars (GUM + Monte Carlo, see the module).
+    """Stage 7: the uncertainty of a reduced shot's curves and scalars (GUM + Monte Carlo, see the module).
 
     Parameters
     ----------
@@ -997,12 +1048,15 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
     inputs = shot_inputs(shot, stages.strains)
     ev = _Evaluator(shot, stages)
     nominal = ev.scalars(stages.curves, stages.waves)
+    eq_row = equilibrium_row(stages.curves, stages.waves.dt)
+    eq_scalars = ev.along(stages.curves, stages.waves, eq_row)
     gum = gum_part(shot, stages, inputs)
     mc = monte_carlo_part(shot, stages, inputs, draws, seed)
     rows_gum = {k: combined_uncertainty(gum["rows"][k]) if gum["rows"][k].size else np.zeros(ev.time.size)
                 for k in ROWS}
     rows_mc = {k: _std(mc.rows[k]) if mc.kept >= 2 else np.zeros(ev.time.size) for k in ROWS}
-    rows = {k: np.sqrt(rows_gum[k] ** 2 + np.nan_to_num(rows_mc[k]) ** 2) for k in ROWS}
+    eq_rows = {"stress": eq_row, "true_stress": eq_row * (1.0 - stages.curves.strain)}
+    rows = {k: np.sqrt(rows_gum[k] ** 2 + np.nan_to_num(rows_mc[k]) ** 2 + eq_rows.get(k, 0.0) ** 2) for k in ROWS}
     mc_inputs = [i for i in inputs if i.key in mc.keys]
     u_mc_in = np.array([i.u for i in mc_inputs])
     scalars, contributions = {}, {}
@@ -1012,11 +1066,15 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
         y = mc.scalars.get(name, np.array([]))
         u_mc = float(_std(y)) if y.size >= 2 else 0.0
         u_mc = u_mc if math.isfinite(u_mc) else 0.0
-        u = math.sqrt(u_gum ** 2 + u_mc ** 2) if math.isfinite(u_gum) else float("nan")
+        u_eq = eq_scalars.get(name, 0.0)
+        u_eq = u_eq if math.isfinite(u_eq) else 0.0
+        u = math.sqrt(u_gum ** 2 + u_mc ** 2 + u_eq ** 2) if math.isfinite(u_gum) else float("nan")
         if not math.isfinite(value):
             u = float("nan")
-        scalars[name] = {"value": value, "u": u, "u_gum": u_gum, "u_mc": u_mc}
+        scalars[name] = {"value": value, "u": u, "u_gum": u_gum, "u_mc": u_mc, "u_equilibrium": u_eq}
         c = {k: abs(float(v)) for k, v in zip(gum["keys"], g)}
+        if name in eq_scalars:
+            c[EQUILIBRIUM_INPUT.key] = u_eq
         if y.size >= 2 and mc_inputs:
             b, rest = _regression_contributions(mc.x, y, u_mc_in)
             c.update({i.key: float(v) for i, v in zip(mc_inputs, b)})
@@ -1024,7 +1082,7 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
         elif y.size >= 2:
             c["record.noise"] = u_mc
         contributions[name] = c
-    return ShotUncertainty(inputs=inputs, time=ev.time, rows=rows, rows_gum=rows_gum, rows_mc=rows_mc,
+    return ShotUncertainty(inputs=inputs + (EQUILIBRIUM_INPUT,), time=ev.time, rows=rows, rows_gum=rows_gum, rows_mc=rows_mc,
                            scalars=scalars, contributions=contributions, flow_strains=ev.flow_strains,
                            draws=draws, failed=mc.failed, seed=int(seed), notes=separation_notes(stages.waves))
 

@@ -270,6 +270,24 @@ def test_outputs_carry_u_and_U(example, tmp_path):
     assert not (out / ShotResult.BUDGET_FILE).exists()
 
 
+def test_separated_shot_is_propagated_through_the_separation_and_says_what_it_leaves_out():
+    """A long-pulse shot whose waves are separated from two stations (Lundberg & Henchoz 1977; the example
+    HR-P20-400, SYNTHETIC): the draws rerun the separation, so every valid row keeps a finite u (the classic
+    stages would give a window 2/3 as long and leave the rest without draws) and the Monte Carlo part stays a
+    few per cent of the stress, as the drawn wave speeds and noise give; the summary says the further stations'
+    distances and gauge chains are not inputs."""
+    shot = with_analysis(load_shot(ROOT / "example_data" / "shots" / "HR-P20-400.toml"), uncertainty=True,
+                         uncertainty_draws=10)
+    res = reduce_shot(shot)
+    assert res.stages.waves.separated_bars
+    unc, v = res.stages.uncertainty, res.stages.verdict.valid
+    assert np.isfinite(unc.rows["stress"][v]).all() and np.isfinite(unc.rows_mc["stress"][v]).all()
+    s = unc.scalars["flow_stress_mean_MPa"]
+    assert 0 < s["u_mc"] < 0.03 * s["value"]
+    notes = res.summary["uncertainty"]["notes"]
+    assert len(notes) == 1 and "separated" in notes[0] and "understated" in notes[0]
+
+
 def test_too_few_draws_is_refused(example):
     shot, res = example
     with pytest.raises(InputError, match="at least 10 draws"):
