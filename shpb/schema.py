@@ -160,9 +160,10 @@ ANALYSIS_KEYS = (
        "cutoff of the low-pass [Hz] (automatic when absent: above the incident rise, below the second-mode onset)"),
     _k("analysis", "hum_frequency", "frequency", None,
        "mains frequency [Hz] fitted with the baselines, with its first harmonics (none when absent)"),
-    _k("analysis", "uncertainty", "switch", False,
-       "propagate the inputs' uncertainties to every curve row and scalar (GUM and Monte Carlo; off by default: "
-       "it costs tens of reductions)"),
+    _k("analysis", "uncertainty", "switch", None,
+       "propagate the inputs' uncertainties to every curve row and scalar (GUM and Monte Carlo); when absent, on in "
+       "shpb reduce (about 1.5x the process), off in shpb batch, shpb watch and reduce_shot (a warm process pays "
+       "about 25x per shot)"),
     _k("analysis", "uncertainty_draws", "count", 100, "Monte Carlo draws of the uncertainty propagation (>= 10)"),
 )
 

@@ -335,9 +335,11 @@ class AnalysisOptions:
         second-mode onset) if None.
     hum_frequency : float or None
         Mains frequency [Hz] fitted with the baselines (none if None).
-    uncertainty : bool
+    uncertainty : bool or None
         Propagate the inputs' uncertainties to every curve row and scalar
-        (:mod:`shpb.uncertainty`; default off: it costs tens of reductions).
+        (:mod:`shpb.uncertainty`). None (not stated): the command decides,
+        on in ``shpb reduce``, off in :func:`shpb.reduce.reduce_shot` and so
+        in campaigns, ``shpb watch`` and previews (docs/uncertainty.md, Cost).
     uncertainty_draws : int
         Monte Carlo draws of that propagation (default 100).
     """
@@ -358,7 +360,7 @@ class AnalysisOptions:
     lowpass: bool = True
     lowpass_cutoff: Optional[float] = None
     hum_frequency: Optional[float] = None
-    uncertainty: bool = False
+    uncertainty: Optional[bool] = None
     uncertainty_draws: int = 100
 
 

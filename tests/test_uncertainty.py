@@ -288,6 +288,20 @@ def test_separated_shot_is_propagated_through_the_separation_and_says_what_it_le
     assert len(notes) == 1 and "separated" in notes[0] and "understated" in notes[0]
 
 
+def test_on_by_default_in_shpb_reduce_off_in_reduce_shot(example, tmp_path, capsys):
+    # the default docs/uncertainty.md (Cost) states: a shot file that says nothing gets the uncertainty from
+    # shpb reduce (about 1.5x the process), not from reduce_shot (campaigns, watch: about 25x per shot)
+    from shpb.cli import main
+
+    shot, _ = example
+    assert reduce_shot(with_analysis(shot, uncertainty=None)).stages.uncertainty is None
+    args = ["reduce", str(ROOT / "configs" / "example_shot.toml"), "--no-figure", "--set", "uncertainty_draws=10"]
+    assert main(args + ["--out", str(tmp_path / "on")]) == 0
+    assert (tmp_path / "on" / ShotResult.BUDGET_FILE).is_file() and "± U = 2 u" in capsys.readouterr().out
+    assert main(args + ["--out", str(tmp_path / "off"), "--no-uncertainty"]) == 0
+    assert not (tmp_path / "off" / ShotResult.BUDGET_FILE).exists() and "± U" not in capsys.readouterr().out
+
+
 def test_too_few_draws_is_refused(example):
     shot, res = example
     with pytest.raises(InputError, match="at least 10 draws"):

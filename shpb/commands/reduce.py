@@ -28,7 +28,7 @@ def register(app: typer.Typer) -> None:
         uncertainty: Optional[bool] = typer.Option(None, "--uncertainty/--no-uncertainty",
                                                    help="Standard and expanded uncertainty of every curve row "
                                                         "and result, and the budget [default: as the shot file "
-                                                        "says; off]."),
+                                                        "says; on]."),
         figure: bool = figure_switch("Write the PNG figure sheet."),
         quiet: bool = quiet_option(),
     ):
@@ -51,7 +51,10 @@ def register(app: typer.Typer) -> None:
         if uncertainty is not None:
             changes["uncertainty"] = uncertainty
 
-        name = load_shot(shot).name
+        loaded = load_shot(shot)
+        name = loaded.name
+        if changes.get("uncertainty") is None and loaded.analysis.uncertainty is None:
+            changes["uncertainty"] = True  # on by default here: it costs about 1.5x the process (docs/uncertainty.md)
         out_dir = out or shot.parent / "results" / name
         check_out_dir(out_dir)
         with Progress(f"reducing shot {name}", quiet=quiet).running():
