@@ -11,7 +11,9 @@ of this shared machine hits all alike):
 * the fastest-parser yardstick: the same with ``pyarrow.csv.read_csv``, when
   pyarrow is installed (in the ``test`` extra);
 * ``shpb reduce SHOT --no-figure`` and ``shpb reduce SHOT`` (with the figure
-  sheet), each writing to a temporary folder.
+  sheet), each writing to a temporary folder; both with ``--no-uncertainty``:
+  the reduction itself (``benchmarks/bench_uncertainty.py`` measures what the
+  uncertainty stage, on by default in ``shpb reduce``, adds).
 
 for the example shot (``configs/example_shot.toml``) and, with ``--long``, a
 synthetic record of 5,000,000 samples (made once by ``tests/synth.py``: an
@@ -124,9 +126,13 @@ def cases(shot: Path, out: Path, before=None) -> dict:
                       f"read_options=c.ReadOptions(skip_rows={header}))"]
     out_cases = {name: (argv, None) for name, argv in out_cases.items()}
     for label, env in [("", None)] + ([("before: ", before_env(before))] if before else []):
+        # the reduction without the uncertainty stage, which shpb reduce runs by default since issue 13
+        # (benchmarks/bench_uncertainty.py measures what it adds); a tree from before it has no such option
+        plain = [] if label else ["--no-uncertainty"]
         out_cases[f"{label}shpb reduce --no-figure"] = (
-            shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}a"), "--no-figure"], env)
-        out_cases[f"{label}shpb reduce"] = (shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}b")], env)
+            shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}a"), "--no-figure", *plain], env)
+        out_cases[f"{label}shpb reduce"] = (shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}b"),
+                                                    *plain], env)
     return out_cases
 
 

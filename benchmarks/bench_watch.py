@@ -127,7 +127,8 @@ def main():
                                     f'[record]\nfile = "{root / "inbox" / (name + ".csv")}"\nincident = "CH1"\n'
                                     f'transmitted = "CH2"\ntime = "TIME"\n')
                     yard.append(run_process(shpb + ["reduce", str(shot), "--out", str(root / "cold" / name),
-                                                    "--no-figure", "--quiet"], ok=(0, 1))[0])
+                                                    "--no-figure", "--no-uncertainty", "--quiet"],  # as watch
+                                            ok=(0, 1))[0])
                 time.sleep(0.3)
         finally:
             proc.send_signal(signal.SIGINT)
