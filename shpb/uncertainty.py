@@ -916,7 +916,8 @@ class ShotUncertainty:
     def provenance(self) -> dict:
         return {"step": "uncertainty", "parameters": {
             "method": "GUM law of propagation (JCGM 100:2008 eq. 10) for the linear inputs, Monte Carlo "
-                      "(JCGM 101:2008) through stages 2-4 for wave speeds, gauge distances and record noise",
+                      "(JCGM 101:2008) through stages 2a-4 for wave speeds, gauge distances and record noise, and the "
+                      "specimen's remaining non-equilibrium from the curves",
             "draws": self.draws, "failed_draws": self.failed, "seed": self.seed,
             "coverage_factor": self.coverage_factor}}
 
