@@ -276,7 +276,7 @@ def long_example():
     from shpb.setup import load_shot
 
     root = Path(__file__).resolve().parents[1] / "example_data"
-    shot = load_shot(root / "shots" / "HR-P20-400.toml")
+    shot = load_shot(root / "long_pulse" / "HR-P20-400.toml")
     return shot, read_record(shot.record), pd.read_csv(root / "truth" / "HR-P20-400_truth.csv")
 
 
