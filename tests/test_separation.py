@@ -14,7 +14,6 @@ gives a 370 us pulse, three times 2 d / c0.
 """
 
 import dataclasses
-import math
 
 import numpy as np
 import pytest
