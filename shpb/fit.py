@@ -33,6 +33,7 @@ import pandas as pd
 
 from . import __version__
 from .errors import AnalysisError, InputError
+from .fit_uncertainty import DEFAULT_DRAWS, DEFAULT_SEED, BootstrapResult, bootstrap
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
 from .reduce import ShotResult
 from .io import atomic_savefig, atomic_write_csv, atomic_write_text, to_plain
@@ -803,8 +804,10 @@ class ParameterResult:
     value : float
         Value [SI unit of ``unit``].
     stderr : float or None
-        Standard error from the fit covariance [same unit]; None if fixed or
-        not estimable.
+        Least-squares standard error from the fit covariance [same unit],
+        which assumes independent residuals and shrinks with the grid step:
+        kept for comparison, **not** the reported uncertainty; None if fixed
+        or not estimable.
     unit : str
         SI unit.
     varied : bool
@@ -813,6 +816,11 @@ class ParameterResult:
         Why it is fixed, if it is.
     report_key, report_scale : str, float
         Output key with unit, and SI value per reported unit.
+    u : float or None
+        Standard uncertainty from the bootstrap over whole curves
+        (:mod:`shpb.fit_uncertainty`) [same unit]; None without one.
+    low, high : float or None
+        95 % bootstrap (percentile) interval [same unit].
     """
 
     name: str
@@ -823,6 +831,9 @@ class ParameterResult:
     note: str = ""
     report_key: str = ""
     report_scale: float = 1.0
+    u: float | None = None
+    low: float | None = None
+    high: float | None = None
 
     @property
     def report_value(self) -> float:
@@ -831,6 +842,16 @@ class ParameterResult:
     @property
     def report_stderr(self):
         return None if self.stderr is None else self.stderr / self.report_scale
+
+    @property
+    def report_u(self):
+        return None if self.u is None else self.u / self.report_scale
+
+    @property
+    def report_interval(self):
+        if self.low is None or self.high is None:
+            return None
+        return (self.low / self.report_scale, self.high / self.report_scale)
 
 
 @dataclass
@@ -859,8 +880,9 @@ class FitResult:
         By parameter name.
     correlations : dict
         ``{(name_a, name_b): r}``, correlation coefficients of the varied
-        parameters from the fit covariance (lmfit); ``log10_D`` for
-        parameters fitted on a log scale.
+        parameters: from the bootstrap draws when there is a bootstrap,
+        else from the least-squares covariance (lmfit; ``log10_D`` for
+        parameters fitted on a log scale).
     settings : dict
         Model settings used (``reference_rate`` [1/s], temperatures [K]).
     curves : list of Curve
@@ -883,6 +905,9 @@ class FitResult:
         The staged Johnson–Cook route, when asked for.
     model_spec : ModelSpec or None
         The model's spec (for models not in the registry).
+    bootstrap : BootstrapResult or None
+        The bootstrap over whole curves that gives each parameter's ``u``
+        and interval (:mod:`shpb.fit_uncertainty`).
     """
 
     model: str
@@ -900,6 +925,7 @@ class FitResult:
     message: str = ""
     staged: "FitResult | None" = None
     model_spec: "ModelSpec | None" = None
+    bootstrap: "BootstrapResult | None" = None
 
     @property
     def values(self) -> dict:
@@ -1220,6 +1246,8 @@ def fit_curves(
     staged=False,
     rate_tolerance=1.5,
     temperature_tolerance=5.0,
+    draws=DEFAULT_DRAWS,
+    seed=DEFAULT_SEED,
 ):
     """Fit one constitutive model to all curves at once (global least squares).
 
@@ -1251,6 +1279,12 @@ def fit_curves(
         Rates within this factor count as one rate level [1].
     temperature_tolerance : float
         Temperatures within this many kelvin count as one level [K].
+    draws : int
+        Bootstrap draws for the parameters' uncertainties, intervals and
+        correlations (:mod:`shpb.fit_uncertainty`); 0: none (then only the
+        least-squares standard errors, which are not uncertainties).
+    seed : int
+        Random seed of the bootstrap.
 
     Returns
     -------
@@ -1265,11 +1299,16 @@ def fit_curves(
 
     Notes
     -----
-    Residuals are weighted to MPa, so χ² is in MPa²; standard errors come
-    from the covariance scaled by the reduced χ² (lmfit's default), i.e. they
-    assume independent residuals of equal variance. Residuals of real bar
-    tests are correlated along a curve (wave oscillations, model misfit), so
-    treat the standard errors as lower bounds.
+    Residuals are weighted to MPa (or by 1/u with ``weighting="uncertainty"``).
+    The reported uncertainty of each parameter (``u``, ``low``, ``high``)
+    and the correlations come from a bootstrap over whole curves (shot-level
+    offsets resampled between curves, residuals within a curve by blocks
+    longer than their correlation length; :mod:`shpb.fit_uncertainty`),
+    which does not depend on the grid step. ``stderr`` is lmfit's
+    least-squares standard error (covariance scaled by the reduced χ²): it
+    assumes independent residuals, shrinks as 1/√(points) with the grid step
+    and understates the real error several times on bar-test curves; it is
+    kept only for comparison.
     """
     spec = get_model(model)
     load_notes = list(getattr(curves, "notes", []))
@@ -1300,10 +1339,15 @@ def fit_curves(
         _, temps, _ = _data_levels(curves, rate_tolerance, temperature_tolerance)
         if len(temps) > 1:
             notes.append(f"{spec.name} has no temperature term but the curves span {_fmt_levels(temps, 'K')}")
+    boot = None
+    if draws:
+        boot = _bootstrap(spec, curves, settings, fixed_all, weighting, res, int(draws), seed)
+        params, corr = _with_bootstrap(params, boot), _pairs(boot)
+        notes.append(_bootstrap_note(boot))
     result = FitResult(
         model=spec.name, method="global", parameters=params, correlations=corr, settings=settings,
         curves=curves, curve_stats=per, rms=rms, r_squared=r2, n_points=int(n_pts), notes=notes,
-        success=bool(res.success), message=str(res.message), model_spec=spec,
+        success=bool(res.success), message=str(res.message), model_spec=spec, bootstrap=boot,
     )
     if staged:
         if spec.name != "johnson-cook":
@@ -1311,6 +1355,59 @@ def fit_curves(
         result.staged = _staged_johnson_cook(spec, curves, settings, fixed or {}, weighting, rate_tolerance,
                                              temperature_tolerance)
     return result
+
+
+def _bootstrap(spec, curves, settings, fixed, weighting, res, draws, seed):
+    """The bootstrap over whole curves around the lmfit result ``res`` (:func:`shpb.fit_uncertainty.bootstrap`)."""
+    eps, rate, temp, sig = _arrays(curves)
+    names, theta, lo, hi, logs = [], [], [], [], []
+    for p in spec.parameters:
+        if p.name in fixed:
+            continue
+        lp = res.params[f"log10_{p.name}" if p.log_scale else p.name]
+        names.append(p.name)
+        theta.append(lp.value)
+        lo.append(lp.min)
+        hi.append(lp.max)
+        logs.append(p.log_scale)
+    const = {k: float(v) for k, v in fixed.items()}
+
+    def predict(values):
+        rows = next(iter(values.values())).shape[0]
+        with np.errstate(all="ignore"):
+            out = evaluate(spec, {**const, **values}, eps, rate, temp, **settings)
+        return np.broadcast_to(out, (rows, eps.size))
+
+    return bootstrap(predict, np.array(theta), np.array(lo, float), np.array(hi, float), names, logs, sig,
+                     _weights(curves, weighting), [c.plastic_strain.size for c in curves], eps,
+                     draws=draws, seed=seed)
+
+
+def _with_bootstrap(params, boot):
+    """Parameters with the bootstrap's u and 95 % interval [SI]."""
+    out = {}
+    for name, p in params.items():
+        if name in boot.names:
+            p = replace(p, u=boot.u[name], low=boot.low[name], high=boot.high[name])
+        out[name] = p
+    return out
+
+
+def _pairs(boot):
+    """{(a, b): r} of the bootstrap's correlation matrix (upper triangle)."""
+    n = boot.names
+    return {(n[i], n[j]): float(boot.correlation[i, j]) for i in range(len(n)) for j in range(i + 1, len(n))}
+
+
+def _bootstrap_note(boot):
+    kept = boot.draws - boot.failed
+    shot = (f"shot-to-shot scale scatter {100 * boot.offset_scatter:.2g} % (curve offsets inflated "
+            f"x{boot.offset_inflation:.2f} for what the fit absorbs)" if math.isfinite(boot.offset_scatter)
+            else "shot level left out: too few curves beyond the parameters to estimate the scatter between shots")
+    return (f"uncertainties: bootstrap over whole curves, {kept} of {boot.draws} draws refitted (seed {boot.seed}); "
+            f"residual correlation length {boot.correlation_length:.3g} in plastic strain, blocks of "
+            f"{boot.block_length:.3g}; {shot}; 95 % percentile intervals (Efron & Tibshirani 1993; "
+            "Kuensch 1989). Errors common to every shot are not in them")
 
 
 def _staged_johnson_cook(spec, curves, settings, fixed, weighting, rate_tol, temp_tol):
