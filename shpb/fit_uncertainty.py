@@ -110,10 +110,13 @@ def pooled_autocorrelation(groups, max_lag):
 def correlation_length(groups, step):
     """Correlation length of residuals along the curves [same unit as ``step``].
 
-    The lag of the first zero crossing of the pooled autocorrelation
-    (:func:`pooled_autocorrelation`), times the grid step: beyond it the
-    residuals of a curve no longer move together (a common decorrelation
-    scale; common practice). At least one step.
+    The first lag k at which the pooled autocorrelation
+    (:func:`pooled_autocorrelation`) is no longer significantly positive:
+    ρ(k) ≤ 2·√((1 + 2 Σ_{j<k} ρ(j)²)/N), Bartlett's large-sample standard
+    error of ρ(k) when the correlation stops at lag k − 1 (the test that finds
+    the order of a moving-average process; Bartlett 1946, Box & Jenkins 1976,
+    ch. 6, from memory), times the grid step. A moving average of q + 1 white
+    terms gets q + 1 steps; white noise one step.
 
     Parameters
     ----------
@@ -128,10 +131,14 @@ def correlation_length(groups, step):
         Correlation length [1, plastic strain].
     """
     longest = max(np.asarray(g).size for g in groups)
+    n_total = sum(np.asarray(g).size for g in groups)
     rho = pooled_autocorrelation(groups, max(1, longest // 2))
-    below = np.flatnonzero(rho[1:] <= 0.0)
-    lag = int(below[0]) + 1 if below.size else rho.size - 1
-    return max(lag, 1) * step
+    seen = 0.0
+    for k in range(1, rho.size):
+        if rho[k] <= 2.0 * math.sqrt((1.0 + 2.0 * seen) / n_total):
+            return k * step
+        seen += rho[k] ** 2
+    return (rho.size - 1) * step
 
 
 def circular_block_indices(n, block, draws, rng):

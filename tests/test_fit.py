@@ -544,13 +544,20 @@ def test_write_fit_files(fitted):
     js = json.loads(paths["json"].read_text())
     assert js["model"] == "johnson-cook" and js["settings"]["melt_temperature_K"] == 1356.0
     assert js["parameters"]["A_MPa"]["value"] == pytest.approx(res.parameters["A"].value / 1e6)
-    assert js["parameters"]["A_MPa"]["stderr"] > 0
+    a = js["parameters"]["A_MPa"]
+    assert a["u"] > 0 and a["ls_stderr"] > 0 and a["interval_95"][0] < a["value"] < a["interval_95"][1]
+    cm = js["uncertainty"]["correlation_matrix"]
+    assert cm["parameters"] == ["A_MPa", "B_MPa", "n", "C", "m"] and len(cm["matrix"]) == 5
+    # a correlation matrix: unit diagonal, symmetric (the bootstrap draws' Pearson coefficients)
+    np.testing.assert_allclose(np.diag(cm["matrix"]), 1.0)
+    np.testing.assert_allclose(cm["matrix"], np.transpose(cm["matrix"]))
     assert {c["name"] for c in js["curves"]} == {f"S{i:02d}" for i in range(6)}
     assert {c["temperature_K"] for c in js["curves"]} == {TR, 600.0}
     assert "staged" in js and js["staged"]["method"] == "staged"
     toml = tomllib.loads(paths["toml"].read_text())
     assert toml["parameters"]["A_MPa"] == pytest.approx(js["parameters"]["A_MPa"]["value"])
     assert toml["settings"]["reference_rate_per_s"] == 1.0
+    assert toml["u"]["A_MPa"] == pytest.approx(a["u"]) and toml["interval_95"]["n"][0] < toml["parameters"]["n"]
     table = pd.read_csv(paths["curves"])
     assert list(table.columns) == ["plastic_strain", "true_stress_MPa", "strain_rate_per_s", "temperature_K"]
     assert len(table) == 6
@@ -571,6 +578,8 @@ def test_fit_report_text(fitted):
     _, res = fitted
     text = F.fit_report(res)
     assert "model johnson-cook" in text and "A    =" in text and "MPa" in text and "staged route" in text
+    assert "95 % interval [" in text and "correlation matrix of the parameters (bootstrap)" in text
+    assert "A_MPa" in text and "B_MPa" in text
 
 
 def test_cli_fit(fitted, capsys):
