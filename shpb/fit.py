@@ -1785,8 +1785,13 @@ def plot_fit(result, flow_strain=None):
     ax_rate.set(xlabel="strain rate [1/s]", ylabel="true stress [MPa]",
                 title=f"rate sensitivity at plastic strain {flow_strain:.3g} (dots: data)")
     ax_txt.axis("off")
-    ax_txt.text(0.0, 1.0, fit_report(result, width=70), va="top", ha="left", family="monospace", fontsize=7.5,
-                transform=ax_txt.transAxes)
+    # the report without its notes (they are in the JSON file and on the console), so the legends below stay clear
+    text = fit_report(result, width=70, notes=False)
+    if result.bootstrap is not None:
+        b = result.bootstrap
+        text += (f"\nu and 95 % intervals: bootstrap over whole curves ({b.draws - b.failed} draws),"
+                 f"\n  residual correlation length {b.correlation_length:.2g}, blocks of {b.block_length:.2g}")
+    ax_txt.text(0.0, 1.0, text, va="top", ha="left", family="monospace", fontsize=7.5, transform=ax_txt.transAxes)
     # the legends in the text panel, off the data: the curves (shots) and the model's temperatures
     if len(handles) <= 21:
         leg = ax_txt.legend(handles=handles, loc="lower left", fontsize=7, ncol=1 if len(handles) <= 10 else 2,
@@ -1861,12 +1866,13 @@ def _g(x, digits):
     return f"{x:.{digits}g}"
 
 
-def fit_report(result, width=100):
+def fit_report(result, width=100, notes=True):
     """A short plain-text report: parameters with u and 95 % interval, correlations, quality, notes.
 
     With a bootstrap (:attr:`FitResult.bootstrap`) each varied parameter shows
     its standard uncertainty u and 95 % interval, then the correlation
     matrix; without one, the least-squares standard error, labelled as such.
+    ``notes=False`` leaves the notes out (the figure sheet's panel).
     """
     spec_units = {p.name: p.report_unit or ("" if p.unit == "1" else p.unit) for p in result.spec.parameters}
     lines = [f"model {result.model} ({result.method} fit of {len(result.curves)} curves, "
@@ -1902,7 +1908,7 @@ def fit_report(result, width=100):
         s = result.staged
         vals = ", ".join(f"{p.name}={p.report_value:.4g}" for p in s.parameters.values())
         lines.append(f"staged route: {vals}; RMS {s.rms / 1e6:.3g} MPa, R² {s.r_squared:.4f}")
-    for n in result.notes:
+    for n in result.notes if notes else ():
         text = f"note: {n}"
         while len(text) > width:
             cut = text.rfind(" ", 0, width)
