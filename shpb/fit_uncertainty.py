@@ -190,7 +190,7 @@ def curve_offsets(residuals, model, weights):
     return np.array(out)
 
 
-def offset_inflation(jacobian, model, weights, sizes):
+def offset_inflation(jacobian, model, sizes):
     """Factor that restores the spread of curve offsets the fit absorbed.
 
     A fit absorbs part of every curve's scale error into its parameters (an
@@ -209,8 +209,6 @@ def offset_inflation(jacobian, model, weights, sizes):
         Weighted Jacobian of the model at the fit, (points, parameters) [1].
     model : numpy.ndarray
         Weighted model at the fit, (points,) [1].
-    weights : unused
-        Kept for symmetry with :func:`curve_offsets`.
     sizes : sequence of int
         Points per curve, in order.
 
@@ -452,7 +450,7 @@ def bootstrap(predict, theta_hat, lower, upper, names, log_scale, y, weights, si
         t = theta_hat.copy()
         t[i] += h[i]
         J[:, i] = (fun(t[None, :])[0] - model) * weights / h[i]
-    s = offset_inflation(J, model * weights, None, sizes) if len(sizes) >= 2 else float("nan")
+    s = offset_inflation(J, model * weights, sizes) if len(sizes) >= 2 else float("nan")
     pool = s * (delta - delta.mean()) if math.isfinite(s) else np.zeros_like(delta)
     # within-curve residuals: the usual small inflation for the parameters a fit absorbs
     e_scale = math.sqrt(y.size / max(y.size - theta_hat.size, 1))

@@ -60,8 +60,8 @@ def test_offset_inflation_is_bessels_correction_for_a_scale_parameter():
     # ones less their mean, so their spread is short by (n-1)/n and s^2 = n/(n-1) (Bessel's correction).
     for n in (2, 5, 12):
         g = np.tile(np.linspace(1.0, 2.0, 30), n)
-        s = U.offset_inflation(g[:, None], g, None, [30] * n)
-        assert s == pytest.approx(math.sqrt(n / (n - 1)), rel=1e-9) if n > 2 else math.isfinite(s)
+        s = U.offset_inflation(g[:, None], g, [30] * n)
+        assert s == pytest.approx(math.sqrt(n / (n - 1)), rel=1e-9)
 
 
 def test_batch_least_squares_on_nist_roszman1():
