@@ -597,6 +597,11 @@ def test_cli_fit(fitted, capsys):
     assert rc == 0
     assert (out / "fit_parameters.toml").is_file()
     assert "RMS residual" in capsys.readouterr().out
+    # the help's default number of draws is the library's (shpb.fit_uncertainty owns it)
+    from shpb.fit_uncertainty import DEFAULT_DRAWS
+
+    assert main(["fit", "--help"]) == 0
+    assert f"[default: {DEFAULT_DRAWS}]" in capsys.readouterr().out.replace("\n", " ").replace("  ", " ")
     rc = main(["fit", str(root / "c"), "--out", str(root / "cli2")])
     err = capsys.readouterr().err
     assert rc == 2 and err.startswith("error:") and "melting" in err and len(err.strip().splitlines()) == 1

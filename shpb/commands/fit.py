@@ -57,7 +57,7 @@ def register(app: typer.Typer) -> None:
         draws: Optional[int] = typer.Option(None, "--draws", metavar=NUMBER,
                                             help="Bootstrap draws for the parameters' uncertainties and correlations "
                                                  "(0: none, then only least-squares standard errors) "
-                                                 "[default: shpb.fit_uncertainty.DEFAULT_DRAWS]."),
+                                                 "[default: 1000]."),
         seed: Optional[int] = typer.Option(None, "--seed", metavar=NUMBER, help="Random seed of the bootstrap."),
         grid_step: float = typer.Option(0.005, "--grid-step", metavar=NUMBER, help="Plastic-strain grid step."),
         adiabatic: bool = typer.Option(False, "--adiabatic", help="Add the adiabatic temperature rise to shots."),
