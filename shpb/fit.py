@@ -1431,24 +1431,28 @@ M_SENSITIVITY = (0.5, 1.0, 2.0)
 def _m_sensitivity(spec, curves, settings, fixed, weighting, starts, res):
     """The note on a fixed Johnson–Cook m with adiabatic heating: the other parameters refitted at m = 0.5, 1, 2.
 
-    With every shot at one initial temperature, m could only be read from the heating along the curves, which the
-    fit cannot tell from strain hardening (tests/test_fit_uncertainty.py shows fits at m = 0.5, 1 and 2 describe
-    such data about equally well); so m is an assumption and the note shows what it does to A, B, n and C.
+    With every shot at one initial temperature, m acts only through the heating along the curves, which rests on
+    the assumed Taylor–Quinney coefficient and trades against strain hardening (tests/test_fit_uncertainty.py:
+    with shots' 1 % scale errors, fits at m = 1, 2 and 4 describe such data about equally well). So m is an
+    assumption, and the note shows what it does to A, B, n and C, with each fit's RMS.
     """
     m_fixed = float(fixed["m"])
-    shown = []
+    shown, rms_at = [], {}
     for m in sorted(set(M_SENSITIVITY) | {m_fixed}):
         r = res if m == m_fixed else _run_lmfit(spec, curves, settings, {**fixed, "m": m}, weighting, starts)
         v = {k: float(r.params[k].value) for k in ("A", "B", "n", "C")}
-        rms = float(np.sqrt(np.mean((r.residual / _weights(curves, weighting) / 1e6) ** 2)))
+        rms_at[m] = float(np.sqrt(np.mean((r.residual / _weights(curves, weighting) / 1e6) ** 2)))
         shown.append(f"m = {m:g}: A {v['A'] / 1e6:.4g} MPa, B {v['B'] / 1e6:.4g} MPa, n {v['n']:.3g}, "
-                     f"C {v['C']:.3g} (RMS {rms:.3g} MPa)")
+                     f"C {v['C']:.3g} (RMS {rms_at[m]:.3g} MPa)")
+    best = min(rms_at, key=rms_at.get)
+    hint = (f"; the RMS is lowest at m = {best:g} here, a hint that leans on the same assumptions, not a fit"
+            if best != m_fixed and rms_at[m_fixed] > 1.1 * rms_at[best] else "")
     T0 = sorted({round(c.temperature, 1) for c in curves})
-    return (f"m = {m_fixed:g} is an assumption, not a result: every curve starts at {_fmt_levels(T0, 'K')} and "
-            f"the adiabatic temperature rise along the curves (up to {_max_rise(curves):.3g} K) can hardly be told "
-            "from strain hardening (other m fit almost as well, RMS below; a shot's scale error of 1 % outweighs "
-            "the difference), and the other parameters follow the assumed m: "
-            + "; ".join(shown) + ". Test at a second initial temperature to fit m")
+    return (f"m = {m_fixed:g} is an assumption, not a result: every curve starts at {_fmt_levels(T0, 'K')}, so m "
+            f"acts only through the adiabatic temperature rise along the curves (up to {_max_rise(curves):.3g} K), "
+            "which rests on the assumed Taylor-Quinney coefficient and trades against strain hardening; the other "
+            "parameters follow the assumed m: " + "; ".join(shown) + hint
+            + ". Test at a second initial temperature to fit m")
 
 
 def _bootstrap(spec, curves, settings, fixed, weighting, res, draws, seed):

@@ -186,7 +186,7 @@ def test_uncertainty_weights_without_the_column_fail_in_one_line(tmp_path, capsy
 
 
 # --------------------------------------------------------------------------- Johnson-Cook m with heating
-def test_m_is_not_identifiable_from_heating_at_one_temperature_and_the_note_says_so():
+def test_m_is_not_identifiable_from_heating_at_one_temperature_and_the_note_says_so(tmp_path):
     # Shots all at room temperature with adiabatic heating (Taylor & Quinney 1934, beta 0.9; about 20 K rise):
     # the heating along a curve is the only handle on m. Data made with m = 1 (Johnson & Cook 1983 OFHC copper)
     # and per-shot stress scale errors of 1 %: fits at m = 1, 2 and 4 describe them within 3 % RMS of each other
@@ -220,8 +220,16 @@ def test_m_is_not_identifiable_from_heating_at_one_temperature_and_the_note_says
     res = F.fit_curves(curves, "johnson-cook", melt_temperature=1356.0, draws=0)
     assert not res.parameters["m"].varied and res.parameters["m"].value == 1.0
     text = " ".join(res.notes)
-    assert "thermal term is 1" not in text and "m = 1 is an assumption" in text
+    assert "thermal term is 1" not in text and "m = 1 is an assumption" in text and "Taylor-Quinney" in text
     half = F.fit_curves(curves, "johnson-cook", melt_temperature=1356.0, fixed={"m": 0.5}, draws=0)
     p = half.parameters
     assert (f"m = 0.5: A {p['A'].value / 1e6:.4g} MPa, B {p['B'].value / 1e6:.4g} MPa, n {p['n'].value:.3g}, "
             f"C {p['C'].value:.3g}") in text
+    assert "lowest at" not in text  # RMS within 3 %: no m is favoured
+    # Isothermal curves fitted as if heated: a large m (little softening at T* ~ 0.02) fits clearly better, and
+    # the note says so as a hint while m stays fixed
+    stress = lambda ep, r, T: jc(ep, r, T, **CU, Tm=1356.0)  # noqa: E731
+    iso = F.load_curves(make_campaign(tmp_path / "iso", stress, [1e-3, 1e3, 3e3, 5e3], [TR], noise=0.5e6))
+    res = F.fit_curves(F.with_adiabatic_heating(iso, cp, density=rho, beta=beta), "johnson-cook",
+                       melt_temperature=1356.0, draws=0)
+    assert "the RMS is lowest at m = 2 here" in " ".join(res.notes) and res.parameters["m"].value == 1.0
