@@ -310,7 +310,11 @@ def batch_least_squares(fun, theta0, y, weights, lower, upper, max_iter=60, tol=
         r[idx[better]] = r_t[better]
         cost[idx[better]] = c_t[better]
         lam[idx] = np.where(better, lam[idx] / 10.0, lam[idx] * 10.0)
-        done[idx] = (better & small & gain) | (lam[idx] > 1e12)
+        # at the minimum a tiny step may come out a hair worse by round-off: that is convergence too
+        flat = ~better & small & (np.abs(c_t - cost[act]) <= 1e-10 * np.maximum(cost[act], 1e-300))
+        stop = (better & small & gain) | flat
+        lam[idx[flat]] /= 10.0
+        done[idx] = stop | (lam[idx] > 1e12)
     converged = done & (lam <= 1e12)
     return theta, converged
 
