@@ -24,7 +24,8 @@ from shpb.errors import InputError
 from fit_campaigns import REFERENCE_RATE, TRUTH, campaign
 from test_fit import CU, TR, jc, make_campaign, write_shot
 
-pytestmark = pytest.mark.xdist_group("test_fit")
+# its module-scoped fixture is built once: the whole file runs on one xdist worker (not test_fit's)
+pytestmark = pytest.mark.xdist_group("test_fit_uncertainty")
 
 
 # --------------------------------------------------------------------------- building blocks
