@@ -392,11 +392,11 @@ def quasi_static_text(alloy):
     return "\n".join(lines) + "\n"
 
 
-def write_shot(sid, setup_path, barset="../../configs/example_bars.toml"):
-    """Simulate one specimen shot; write record + shot file into shots/, truth into truth/."""
+def write_shot(sid, setup_path, barset="../../configs/example_bars.toml", folder="shots"):
+    """Simulate one specimen shot; write record + shot file into ``folder`` (shots/), truth into truth/."""
     sim = load_simulation(setup_path)
     shot = simulate_setup(sim)
-    shots = DATA / "shots"
+    shots = DATA / folder
     atomic_write_text(shots / f"{sid}.csv", record_csv_text(shot.record, record_metadata(shot)))
     atomic_write_csv(DATA / "truth" / f"{sid}_truth.csv", truth_table(shot.result, shot.record), float_format="%.6g")
     atomic_write_text(shots / f"{sid}.toml", shot_toml_text(shot, f"{sid}.csv", barset))
@@ -408,7 +408,8 @@ def write_long_pulse():
     atomic_write_text(LONG_BARS, LONG_BARSET_TOML)
     setup_path = DATA / "setups" / f"{LONG_SHOT}.toml"
     atomic_write_text(setup_path, long_pulse_setup())
-    return write_shot(LONG_SHOT, setup_path, "../../configs/example_long_bars.toml")
+    # its own folder, so that example_data/shots holds only the campaign's records (shpb watch's example)
+    return write_shot(LONG_SHOT, setup_path, "../../configs/example_long_bars.toml", folder="long_pulse")
 
 
 def check_long_pulse():
@@ -418,7 +419,7 @@ def check_long_pulse():
     from shpb.reduce import reduce_shot
     from shpb.setup import load_shot, with_analysis
 
-    shot = load_shot(DATA / "shots" / f"{LONG_SHOT}.toml")
+    shot = load_shot(DATA / "long_pulse" / f"{LONG_SHOT}.toml")
     res = reduce_shot(shot)
     row = compare(LONG_SHOT, res, pd.read_csv(DATA / "truth" / f"{LONG_SHOT}_truth.csv"))
     off = reduce_shot(with_analysis(shot, separation="off"))

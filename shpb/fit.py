@@ -33,6 +33,7 @@ import pandas as pd
 
 from . import __version__
 from .errors import AnalysisError, InputError
+from .fit_uncertainty import DEFAULT_DRAWS, DEFAULT_SEED, BootstrapResult, bootstrap
 from .models import ModelSpec, adiabatic_temperature_rise, evaluate, get_model
 from .reduce import ShotResult
 from .io import atomic_savefig, atomic_write_csv, atomic_write_text, to_plain
@@ -116,6 +117,12 @@ class Curve:
         Adiabatic temperature rise along the curve [K], if applied.
     notes : tuple of str
         What was assumed while loading.
+    stress_u : numpy.ndarray or None
+        Standard uncertainty of the stress at each point [Pa], from the
+        file's ``u_<stress column>`` (the reduction's uncertainty columns);
+        None when the file has none.
+    stress_column : str
+        The file's stress column that was read (``"true_stress_MPa"``).
     """
 
     name: str
@@ -131,6 +138,8 @@ class Curve:
     density: float | None = None
     temperature_rise: np.ndarray | None = None
     notes: tuple = ()
+    stress_u: np.ndarray | None = None
+    stress_column: str = ""
 
     @property
     def temperatures(self) -> np.ndarray:
@@ -285,7 +294,13 @@ def resample_curves(curves, step=GRID_STEP):
                 f"{c.name}: plastic-strain range too short for the grid (step {step:g}); curve skipped"
             )
             continue
-        out.append(replace(c, plastic_strain=nodes, stress=sig, temperature_rise=None))
+        u = None
+        if c.stress_u is not None:
+            # the nodes' u: the rows' u interpolated, not divided by the rows per node (a stress uncertainty from
+            # calibration and wave speed is the same error on neighbouring rows, not independent noise)
+            order = np.argsort(c.plastic_strain, kind="stable")
+            u = np.interp(nodes, np.asarray(c.plastic_strain, float)[order], np.asarray(c.stress_u, float)[order])
+        out.append(replace(c, plastic_strain=nodes, stress=sig, temperature_rise=None, stress_u=u))
     return out
 
 
@@ -340,6 +355,14 @@ def with_adiabatic_heating(curves, specific_heat, density=None, beta=0.9):
 _STRESS_SCALES = {"Pa": 1.0, "kPa": 1e3, "MPa": 1e6, "GPa": 1e9}
 
 
+def _stress_uncertainty(df, column, scale):
+    """The standard uncertainty column ``u_<column>`` [Pa] (same unit as the stress column), or None."""
+    name = f"u_{column}"
+    if name not in df.columns:
+        return None
+    return pd.to_numeric(df[name], errors="coerce").to_numpy(float) * scale
+
+
 def _stress_column(df, source, prefer=("true_stress", "stress")):
     """Find a stress column with a unit suffix; return (values [Pa], column, is_true)."""
     for base in prefer:
@@ -359,6 +382,11 @@ def _stress_column(df, source, prefer=("true_stress", "stress")):
     raise InputError(
         "no stress column; expected 'true_stress_MPa' (or 'stress_MPa', or the same with _Pa/_GPa)", source
     )
+
+
+def _scale_of(column):
+    """SI value per unit of a stress column (``true_stress_MPa`` -> 1e6)."""
+    return _STRESS_SCALES[column.rsplit("_", 1)[1]]
 
 
 def _dig(mapping, *keys):
@@ -382,7 +410,7 @@ def _number(value, where):
 
 
 def _finish_curve(name, source, kind, strain, sig, valid, rate, temperature, material, modulus, modulus_source,
-                  notes, elastic=None, density=None):
+                  notes, elastic=None, density=None, u=None, column=""):
     """Common part of shot and quasi-static reading: checks, modulus, plastic strain."""
     if strain.size == 0 or not np.any(valid):
         return None, f"{name}: no rows with valid == 1 in {source}; curve skipped", None
@@ -425,6 +453,8 @@ def _finish_curve(name, source, kind, strain, sig, valid, rate, temperature, mat
         kind=kind,
         density=density,
         notes=tuple(notes),
+        stress_u=None if u is None else u[valid][keep],
+        stress_column=column,
     )
     return curve, None, level
 
@@ -480,7 +510,7 @@ def _read_shot(folder: Path, modulus, room_temperature):
     ok = np.isfinite(strain) & np.isfinite(sig)
     return _finish_curve(
         name, src, "shot", strain, sig, valid & ok, rate, temperature, material, mod, mod_src, notes,
-        elastic=(strain[ok], sig[ok]), density=density,
+        elastic=(strain[ok], sig[ok]), density=density, u=_stress_uncertainty(df, col, _scale_of(col)), column=col,
     )
 
 
@@ -556,6 +586,7 @@ def read_quasi_static(path, *, strain_rate=None, temperature=None, modulus=None,
     mod = None if mod_v is None else to_si(mod_v, "pressure", f"{src}: modulus")
     mod_src = "file header" if "modulus" in meta else "option"
     sig, col, is_true = _stress_column(df, src)
+    u = _stress_uncertainty(df, col, _scale_of(col))
     valid = np.ones(len(df), bool)
     if "valid" in df.columns:
         valid = pd.to_numeric(df["valid"], errors="coerce").fillna(0).to_numpy() == 1
@@ -578,6 +609,7 @@ def read_quasi_static(path, *, strain_rate=None, temperature=None, modulus=None,
             raise InputError("a plastic_strain column needs a true stress column ('true_stress_MPa')", src)
         e = -np.expm1(-eps)  # engineering strain back from true strain (compression)
         sig = sig * (1.0 - e)
+        u = None if u is None else u * (1.0 - e)
         notes.append(f"engineering stress ({col}) converted to true stress, sigma (1 - e) (compression)")
     ok = np.isfinite(eps) & np.isfinite(sig)
     if strain_kind == "plastic":
@@ -587,10 +619,11 @@ def read_quasi_static(path, *, strain_rate=None, temperature=None, modulus=None,
         if np.count_nonzero(keep) < 3:
             raise InputError("fewer than 3 valid rows with plastic strain > 0", src)
         return Curve(name, eps[keep], sig[keep], rate, temp, material=meta.get("material", ""), source=src,
-                     modulus=None, modulus_source="plastic strain given", kind="quasi-static", notes=tuple(notes))
+                     modulus=None, modulus_source="plastic strain given", kind="quasi-static", notes=tuple(notes),
+                     stress_u=None if u is None else np.abs(u[keep]), stress_column=col)
     curve, note, _ = _finish_curve(
         name, src, "quasi-static", eps, sig, valid & ok, rate, temp, meta.get("material", ""), mod, mod_src, notes,
-        elastic=(eps[ok], sig[ok]),
+        elastic=(eps[ok], sig[ok]), u=u, column=col,
     )
     if curve is None:
         raise InputError(note, src)
@@ -803,8 +836,10 @@ class ParameterResult:
     value : float
         Value [SI unit of ``unit``].
     stderr : float or None
-        Standard error from the fit covariance [same unit]; None if fixed or
-        not estimable.
+        Least-squares standard error from the fit covariance [same unit],
+        which assumes independent residuals and shrinks with the grid step:
+        kept for comparison, **not** the reported uncertainty; None if fixed
+        or not estimable.
     unit : str
         SI unit.
     varied : bool
@@ -813,6 +848,11 @@ class ParameterResult:
         Why it is fixed, if it is.
     report_key, report_scale : str, float
         Output key with unit, and SI value per reported unit.
+    u : float or None
+        Standard uncertainty from the bootstrap over whole curves
+        (:mod:`shpb.fit_uncertainty`) [same unit]; None without one.
+    low, high : float or None
+        95 % bootstrap (percentile) interval [same unit].
     """
 
     name: str
@@ -823,6 +863,9 @@ class ParameterResult:
     note: str = ""
     report_key: str = ""
     report_scale: float = 1.0
+    u: float | None = None
+    low: float | None = None
+    high: float | None = None
 
     @property
     def report_value(self) -> float:
@@ -831,6 +874,16 @@ class ParameterResult:
     @property
     def report_stderr(self):
         return None if self.stderr is None else self.stderr / self.report_scale
+
+    @property
+    def report_u(self):
+        return None if self.u is None else self.u / self.report_scale
+
+    @property
+    def report_interval(self):
+        if self.low is None or self.high is None:
+            return None
+        return (self.low / self.report_scale, self.high / self.report_scale)
 
 
 @dataclass
@@ -859,8 +912,9 @@ class FitResult:
         By parameter name.
     correlations : dict
         ``{(name_a, name_b): r}``, correlation coefficients of the varied
-        parameters from the fit covariance (lmfit); ``log10_D`` for
-        parameters fitted on a log scale.
+        parameters: from the bootstrap draws when there is a bootstrap,
+        else from the least-squares covariance (lmfit; ``log10_D`` for
+        parameters fitted on a log scale).
     settings : dict
         Model settings used (``reference_rate`` [1/s], temperatures [K]).
     curves : list of Curve
@@ -883,6 +937,9 @@ class FitResult:
         The staged Johnson–Cook route, when asked for.
     model_spec : ModelSpec or None
         The model's spec (for models not in the registry).
+    bootstrap : BootstrapResult or None
+        The bootstrap over whole curves that gives each parameter's ``u``
+        and interval (:mod:`shpb.fit_uncertainty`).
     """
 
     model: str
@@ -900,6 +957,7 @@ class FitResult:
     message: str = ""
     staged: "FitResult | None" = None
     model_spec: "ModelSpec | None" = None
+    bootstrap: "BootstrapResult | None" = None
 
     @property
     def values(self) -> dict:
@@ -1023,11 +1081,16 @@ def _identify(spec, curves, settings, fixed, vary, rate_tol, temp_tol):
         for p in can_fix[:excess]:
             fixed[p.name] = p.default
             notes.append(f"{head}; {p.name} fixed at {p.default:g}"
-                         + _fixed_consequence(spec, p.name, rates, temps, settings))
+                         + _fixed_consequence(spec, p.name, rates, temps, settings, _max_rise(curves)))
     return fixed, notes
 
 
-def _fixed_consequence(spec, name, rates, temps, settings):
+def _max_rise(curves):
+    """Largest adiabatic temperature rise along any curve [K] (0 without heating)."""
+    return max((float(np.max(c.temperature_rise)) for c in curves if c.temperature_rise is not None), default=0.0)
+
+
+def _fixed_consequence(spec, name, rates, temps, settings, rise=0.0):
     """What a fixed default means for the other parameters (one sentence)."""
     if spec.name in ("johnson-cook", "power-law") and name == "C":
         ref = settings.get("reference_rate", 1.0)
@@ -1035,6 +1098,9 @@ def _fixed_consequence(spec, name, rates, temps, settings):
             return f" (the stress parameters then describe {rates[0]:.3g} 1/s, not the reference rate {ref:g} 1/s)"
         return " (the data are at the reference rate, where the rate term is 1)"
     if spec.name == "johnson-cook" and name == "m":
+        if rise > 1.0:
+            return (f" as an assumption: adiabatic heating raises the temperature by up to {rise:.3g} K along the "
+                    "curves, so the thermal term is not 1 and the other parameters depend on m (see the note on m)")
         if abs(temps[0] - settings.get("room_temperature", ROOM_TEMPERATURE)) > 1.0:
             return f" (A and B assume this m to remove the thermal factor at {temps[0]:.4g} K)"
         return " (the data are at room temperature, where the thermal term is 1)"
@@ -1083,13 +1149,34 @@ def _arrays(curves):
     return eps, rate, temp, sig
 
 
+#: Residual weightings of a fit.
+WEIGHTINGS = ("points", "curves", "uncertainty")
+
+
 def _weights(curves, weighting):
-    """Residual weights: residuals in MPa; ``"curves"`` also gives each curve equal total weight."""
-    if weighting not in ("points", "curves"):
-        raise InputError(f"weighting must be 'points' or 'curves', got {weighting!r}", "weighting")
+    """Residual weights [1/Pa].
+
+    ``"points"``: residuals in MPa; ``"curves"``: also each curve equal total
+    weight; ``"uncertainty"``: residuals divided by the stress's standard
+    uncertainty at each point (weights 1/u², in χ²), from the curves' ``u_``
+    columns (:attr:`Curve.stress_u`).
+    """
+    if weighting not in WEIGHTINGS:
+        raise InputError(f"weighting must be one of {', '.join(WEIGHTINGS)}, got {weighting!r}", "weighting")
     w = []
     mean_n = np.mean([c.plastic_strain.size for c in curves])
     for c in curves:
+        if weighting == "uncertainty":
+            column = f"u_{c.stress_column or 'true_stress_MPa'}"
+            if c.stress_u is None:
+                raise InputError(f"no column {column!r} (the stress's standard uncertainty) for weighting by "
+                                 "uncertainty; reduce with the uncertainty on, or weight by points", c.source)
+            u = np.asarray(c.stress_u, float)
+            if not np.all(np.isfinite(u) & (u > 0)):
+                raise InputError(f"column {column!r} must be > 0 on every valid row for weighting by "
+                                 "uncertainty", c.source)
+            w.append(1.0 / u)
+            continue
         f = math.sqrt(mean_n / c.plastic_strain.size) if weighting == "curves" else 1.0
         w.append(np.full(c.plastic_strain.size, f / 1e6))
     return np.concatenate(w)
@@ -1220,6 +1307,8 @@ def fit_curves(
     staged=False,
     rate_tolerance=1.5,
     temperature_tolerance=5.0,
+    draws=DEFAULT_DRAWS,
+    seed=DEFAULT_SEED,
 ):
     """Fit one constitutive model to all curves at once (global least squares).
 
@@ -1241,8 +1330,11 @@ def fit_curves(
     vary : sequence of str
         Parameters that must be fitted: if the data cannot identify one, fail
         instead of fixing it at its default.
-    weighting : {"points", "curves"}
-        Equal weight per grid point, or per curve.
+    weighting : {"points", "curves", "uncertainty"}
+        Equal weight per grid point, or per curve, or 1/u² from the curves'
+        stress uncertainty columns (``u_true_stress_MPa``; an
+        :class:`~shpb.errors.InputError` naming the file and column when a
+        curve has none).
     staged : bool
         Johnson–Cook only: also run the classic staged route (A, B, n at the
         reference rate and room temperature; then C; then m) and attach it as
@@ -1251,6 +1343,12 @@ def fit_curves(
         Rates within this factor count as one rate level [1].
     temperature_tolerance : float
         Temperatures within this many kelvin count as one level [K].
+    draws : int
+        Bootstrap draws for the parameters' uncertainties, intervals and
+        correlations (:mod:`shpb.fit_uncertainty`); 0: none (then only the
+        least-squares standard errors, which are not uncertainties).
+    seed : int
+        Random seed of the bootstrap.
 
     Returns
     -------
@@ -1265,11 +1363,16 @@ def fit_curves(
 
     Notes
     -----
-    Residuals are weighted to MPa, so χ² is in MPa²; standard errors come
-    from the covariance scaled by the reduced χ² (lmfit's default), i.e. they
-    assume independent residuals of equal variance. Residuals of real bar
-    tests are correlated along a curve (wave oscillations, model misfit), so
-    treat the standard errors as lower bounds.
+    Residuals are weighted to MPa (or by 1/u with ``weighting="uncertainty"``).
+    The reported uncertainty of each parameter (``u``, ``low``, ``high``)
+    and the correlations come from a bootstrap over whole curves (shot-level
+    offsets resampled between curves, residuals within a curve by blocks
+    longer than their correlation length; :mod:`shpb.fit_uncertainty`),
+    which does not depend on the grid step. ``stderr`` is lmfit's
+    least-squares standard error (covariance scaled by the reduced χ²): it
+    assumes independent residuals, shrinks as 1/√(points) with the grid step
+    and understates the real error several times on bar-test curves; it is
+    kept only for comparison.
     """
     spec = get_model(model)
     load_notes = list(getattr(curves, "notes", []))
@@ -1290,20 +1393,28 @@ def fit_curves(
                                     temperature_tolerance)
     fixed_notes = {k: ("fixed by the user" if k in (fixed or {}) else "not identifiable from these data")
                    for k in fixed_all}
-    res = _run_lmfit(spec, curves, settings, fixed_all, weighting, _starts(spec, curves, settings))
+    starts = _starts(spec, curves, settings)
+    res = _run_lmfit(spec, curves, settings, fixed_all, weighting, starts)
     params, corr = _collect(spec, res, fixed_notes)
     per, rms, r2 = _stats(spec, curves, {k: p.value for k, p in params.items()}, settings)
     notes = list(load_notes)
     notes += [f"{c.name}: {n}" for c in curves for n in c.notes]
     notes += id_notes + _bound_notes(res)
+    if spec.name == "johnson-cook" and "m" in fixed_all and _max_rise(curves) > 1.0:
+        notes.append(_m_sensitivity(spec, curves, settings, fixed_all, weighting, starts, res))
     if "temperature" not in spec.variables:
         _, temps, _ = _data_levels(curves, rate_tolerance, temperature_tolerance)
         if len(temps) > 1:
             notes.append(f"{spec.name} has no temperature term but the curves span {_fmt_levels(temps, 'K')}")
+    boot = None
+    if draws:
+        boot = _bootstrap(spec, curves, settings, fixed_all, weighting, res, int(draws), seed)
+        params, corr = _with_bootstrap(params, boot), _pairs(boot)
+        notes.append(_bootstrap_note(boot))
     result = FitResult(
         model=spec.name, method="global", parameters=params, correlations=corr, settings=settings,
         curves=curves, curve_stats=per, rms=rms, r_squared=r2, n_points=int(n_pts), notes=notes,
-        success=bool(res.success), message=str(res.message), model_spec=spec,
+        success=bool(res.success), message=str(res.message), model_spec=spec, bootstrap=boot,
     )
     if staged:
         if spec.name != "johnson-cook":
@@ -1311,6 +1422,90 @@ def fit_curves(
         result.staged = _staged_johnson_cook(spec, curves, settings, fixed or {}, weighting, rate_tolerance,
                                              temperature_tolerance)
     return result
+
+
+#: Johnson–Cook m values of the sensitivity note when m is fixed on heated curves.
+M_SENSITIVITY = (0.5, 1.0, 2.0)
+
+
+def _m_sensitivity(spec, curves, settings, fixed, weighting, starts, res):
+    """The note on a fixed Johnson–Cook m with adiabatic heating: the other parameters refitted at m = 0.5, 1, 2.
+
+    With every shot at one initial temperature, m acts only through the heating along the curves, which rests on
+    the assumed Taylor–Quinney coefficient and trades against strain hardening (tests/test_fit_uncertainty.py:
+    with shots' 1 % scale errors, fits at m = 1, 2 and 4 describe such data about equally well). So m is an
+    assumption, and the note shows what it does to A, B, n and C, with each fit's RMS.
+    """
+    m_fixed = float(fixed["m"])
+    shown, rms_at = [], {}
+    for m in sorted(set(M_SENSITIVITY) | {m_fixed}):
+        r = res if m == m_fixed else _run_lmfit(spec, curves, settings, {**fixed, "m": m}, weighting, starts)
+        v = {k: float(r.params[k].value) for k in ("A", "B", "n", "C")}
+        rms_at[m] = float(np.sqrt(np.mean((r.residual / _weights(curves, weighting) / 1e6) ** 2)))
+        shown.append(f"m = {m:g}: A {v['A'] / 1e6:.4g} MPa, B {v['B'] / 1e6:.4g} MPa, n {v['n']:.3g}, "
+                     f"C {v['C']:.3g} (RMS {rms_at[m]:.3g} MPa)")
+    best = min(rms_at, key=rms_at.get)
+    hint = (f"; the RMS is lowest at m = {best:g} here, a hint that leans on the same assumptions, not a fit"
+            if best != m_fixed and rms_at[m_fixed] > 1.1 * rms_at[best] else "")
+    T0 = sorted({round(c.temperature, 1) for c in curves})
+    return (f"m = {m_fixed:g} is an assumption, not a result: every curve starts at {_fmt_levels(T0, 'K')}, so m "
+            f"acts only through the adiabatic temperature rise along the curves (up to {_max_rise(curves):.3g} K), "
+            "which rests on the assumed Taylor-Quinney coefficient and trades against strain hardening; the other "
+            "parameters follow the assumed m: " + "; ".join(shown) + hint
+            + ". Test at a second initial temperature to fit m")
+
+
+def _bootstrap(spec, curves, settings, fixed, weighting, res, draws, seed):
+    """The bootstrap over whole curves around the lmfit result ``res`` (:func:`shpb.fit_uncertainty.bootstrap`)."""
+    eps, rate, temp, sig = _arrays(curves)
+    names, theta, lo, hi, logs = [], [], [], [], []
+    for p in spec.parameters:
+        if p.name in fixed:
+            continue
+        lp = res.params[f"log10_{p.name}" if p.log_scale else p.name]
+        names.append(p.name)
+        theta.append(lp.value)
+        lo.append(lp.min)
+        hi.append(lp.max)
+        logs.append(p.log_scale)
+    const = {k: float(v) for k, v in fixed.items()}
+
+    def predict(values):
+        rows = next(iter(values.values())).shape[0]
+        with np.errstate(all="ignore"):
+            out = evaluate(spec, {**const, **values}, eps, rate, temp, **settings)
+        return np.broadcast_to(out, (rows, eps.size))
+
+    return bootstrap(predict, np.array(theta), np.array(lo, float), np.array(hi, float), names, logs, sig,
+                     _weights(curves, weighting), [c.plastic_strain.size for c in curves], eps,
+                     draws=draws, seed=seed)
+
+
+def _with_bootstrap(params, boot):
+    """Parameters with the bootstrap's u and 95 % interval [SI]."""
+    out = {}
+    for name, p in params.items():
+        if name in boot.names:
+            p = replace(p, u=boot.u[name], low=boot.low[name], high=boot.high[name])
+        out[name] = p
+    return out
+
+
+def _pairs(boot):
+    """{(a, b): r} of the bootstrap's correlation matrix (upper triangle)."""
+    n = boot.names
+    return {(n[i], n[j]): float(boot.correlation[i, j]) for i in range(len(n)) for j in range(i + 1, len(n))}
+
+
+def _bootstrap_note(boot):
+    kept = boot.draws - boot.failed
+    shot = (f"shot-to-shot scale scatter {100 * boot.offset_scatter:.2g} % (curve offsets inflated "
+            f"x{boot.offset_inflation:.2f} for what the fit absorbs)" if math.isfinite(boot.offset_scatter)
+            else "shot level left out: too few curves beyond the parameters to estimate the scatter between shots")
+    return (f"uncertainties: bootstrap over whole curves, {kept} of {boot.draws} draws refitted (seed {boot.seed}); "
+            f"residual correlation length {boot.correlation_length:.3g} in plastic strain, blocks of "
+            f"{boot.block_length:.3g}; {shot}; 95 % percentile intervals (Efron & Tibshirani 1993; "
+            "Kuensch 1989). Errors common to every shot are not in them")
 
 
 def _staged_johnson_cook(spec, curves, settings, fixed, weighting, rate_tol, temp_tol):
@@ -1425,10 +1620,37 @@ def _settings_out(settings):
     return {keys[k]: v for k, v in settings.items()}
 
 
+def _param_dict(p):
+    d = {"value": p.report_value}
+    if p.u is not None:
+        d["u"] = p.report_u
+        d["interval_95"] = list(p.report_interval)
+    d["ls_stderr"] = p.report_stderr
+    d["varied"] = p.varied
+    if p.note:
+        d["note"] = p.note
+    return d
+
+
+def _uncertainty_dict(boot, key):
+    """The bootstrap's settings and correlation matrix for the output files (names with units)."""
+    return {
+        "method": "bootstrap over whole curves: shot-level relative offsets resampled between curves, residuals "
+                  "within a curve by circular blocks (Efron & Tibshirani 1993; Kuensch 1989)",
+        "draws": boot.draws, "failed_draws": boot.failed, "seed": boot.seed, "level": boot.level,
+        "correlation_length_plastic_strain": boot.correlation_length,
+        "block_length_plastic_strain": boot.block_length,
+        "shot_offset_scatter_percent": 100.0 * boot.offset_scatter,
+        "offset_inflation": boot.offset_inflation,
+        "not_included": "errors common to every shot (shared bar or gauge calibration, a bias of the reduction)",
+        "correlation_matrix": {"parameters": [key[n] for n in boot.names],
+                               "matrix": [[float(x) for x in row] for row in boot.correlation]},
+    }
+
+
 def _result_dict(result):
     spec = result.spec
-    params = {p.report_key: {"value": p.report_value, "stderr": p.report_stderr, "varied": p.varied,
-                             **({"note": p.note} if p.note else {})} for p in result.parameters.values()}
+    params = {p.report_key: _param_dict(p) for p in result.parameters.values()}
     key = {p.name: p.report_key for p in spec.parameters}
     corr = {f"{key.get(a, a)} | {key.get(b, b)}": r for (a, b), r in result.correlations.items()}
     stats = {c.name: c for c in result.curve_stats}
@@ -1446,6 +1668,8 @@ def _result_dict(result):
     return {
         "model": spec.name, "method": result.method, "equation": spec.equation, "reference": spec.reference,
         "parameters": params, "settings": _settings_out(result.settings), "correlations": corr,
+        "correlations_from": "bootstrap" if result.bootstrap is not None else "least-squares covariance",
+        **({"uncertainty": _uncertainty_dict(result.bootstrap, key)} if result.bootstrap is not None else {}),
         "statistics": {"rms_MPa": result.rms / 1e6, "r_squared": result.r_squared, "n_points": result.n_points,
                        "n_curves": len(result.curves)},
         "curves": curves, "notes": list(result.notes),
@@ -1466,11 +1690,15 @@ def _toml_dict(result):
     out = {"model": d["model"], "method": d["method"], "equation": d["equation"], "reference": d["reference"],
            "package_version": __version__,
            "parameters": {k: v["value"] for k, v in d["parameters"].items()},
-           "stderr": {k: v["stderr"] for k, v in d["parameters"].items() if v["stderr"] is not None},
+           "u": {k: v["u"] for k, v in d["parameters"].items() if "u" in v},
+           "interval_95": {k: v["interval_95"] for k, v in d["parameters"].items() if "interval_95" in v},
+           "ls_stderr": {k: v["ls_stderr"] for k, v in d["parameters"].items() if v["ls_stderr"] is not None},
            "fixed": [k for k, v in d["parameters"].items() if not v["varied"]],
            "settings": d["settings"], "statistics": d["statistics"],
            "curves": d["curves"],
            "notes": d["notes"]}
+    if "uncertainty" in d:
+        out["uncertainty"] = d["uncertainty"]
     if result.staged is not None:
         s = _result_dict(result.staged)
         out["staged"] = {"parameters": {k: v["value"] for k, v in s["parameters"].items()},
@@ -1561,8 +1789,13 @@ def plot_fit(result, flow_strain=None):
     ax_rate.set(xlabel="strain rate [1/s]", ylabel="true stress [MPa]",
                 title=f"rate sensitivity at plastic strain {flow_strain:.3g} (dots: data)")
     ax_txt.axis("off")
-    ax_txt.text(0.0, 1.0, fit_report(result, width=70), va="top", ha="left", family="monospace", fontsize=7.5,
-                transform=ax_txt.transAxes)
+    # the report without its notes (they are in the JSON file and on the console), so the legends below stay clear
+    text = fit_report(result, width=70, notes=False)
+    if result.bootstrap is not None:
+        b = result.bootstrap
+        text += (f"\nu and 95 % intervals: bootstrap over whole curves ({b.draws - b.failed} draws),"
+                 f"\n  residual correlation length {b.correlation_length:.2g}, blocks of {b.block_length:.2g}")
+    ax_txt.text(0.0, 1.0, text, va="top", ha="left", family="monospace", fontsize=7.5, transform=ax_txt.transAxes)
     # the legends in the text panel, off the data: the curves (shots) and the model's temperatures
     if len(handles) <= 21:
         leg = ax_txt.legend(handles=handles, loc="lower left", fontsize=7, ncol=1 if len(handles) <= 10 else 2,
@@ -1633,26 +1866,53 @@ def write_fit(result, out_dir, *, strain_rates=None, temperatures=None, plastic_
     return paths
 
 
-def fit_report(result, width=100):
-    """A short plain-text report: parameters ± standard errors, quality, notes."""
+def _g(x, digits):
+    return f"{x:.{digits}g}"
+
+
+def fit_report(result, width=100, notes=True):
+    """A short plain-text report: parameters with u and 95 % interval, correlations, quality, notes.
+
+    With a bootstrap (:attr:`FitResult.bootstrap`) each varied parameter shows
+    its standard uncertainty u and 95 % interval, then the correlation
+    matrix; without one, the least-squares standard error, labelled as such.
+    ``notes=False`` leaves the notes out (the figure sheet's panel).
+    """
     spec_units = {p.name: p.report_unit or ("" if p.unit == "1" else p.unit) for p in result.spec.parameters}
     lines = [f"model {result.model} ({result.method} fit of {len(result.curves)} curves, "
              f"{result.n_points} points)"]
     for p in result.parameters.values():
         unit = spec_units.get(p.name, "")
-        val = f"{p.report_value:.6g}"
-        err = f" ± {p.report_stderr:.2g}" if p.report_stderr is not None else ""
-        tag = "" if p.varied else "  (fixed)"
-        lines.append(f"  {p.name:<4} = {val}{err} {unit}{tag}")
+        head = f"  {p.name:<4} = {p.report_value:.6g}{' ' + unit if unit else ''}"
+        if not p.varied:
+            lines.append(f"{head}  (fixed)")
+        elif p.u is not None:
+            lo, hi = p.report_interval
+            lines.append(f"{head}  u {_g(p.report_u, 2)}, 95 % interval [{_g(lo, 5)}, {_g(hi, 5)}]")
+        elif p.report_stderr is not None:
+            lines.append(f"{head}  (least-squares standard error {_g(p.report_stderr, 2)}: assumes independent "
+                         "residuals, not an uncertainty)")
+        else:
+            lines.append(head)
     lines.append(f"  RMS residual {result.rms / 1e6:.3g} MPa, R² {result.r_squared:.4f}")
-    strong = [(a, b, r) for (a, b), r in result.correlations.items() if abs(r) > 0.95]
-    for a, b, r in strong:
-        lines.append(f"  strong correlation {a}-{b}: {r:+.3f}")
+    boot = result.bootstrap
+    if boot is not None and len(boot.names) > 1:
+        keys = {p.name: p.report_key for p in result.spec.parameters}
+        cols = [keys[n] for n in boot.names]
+        w = max(8, max(len(c) for c in cols) + 1)
+        lines.append("  correlation matrix of the parameters (bootstrap):")
+        lines.append("    " + " " * w + "".join(f"{c:>{w}}" for c in cols))
+        for c, row in zip(cols, boot.correlation):
+            lines.append(f"    {c:<{w}}" + "".join(f"{x:>{w}.3f}" for x in row))
+    elif boot is None:
+        strong = [(a, b, r) for (a, b), r in result.correlations.items() if abs(r) > 0.95]
+        for a, b, r in strong:
+            lines.append(f"  strong correlation {a}-{b}: {r:+.3f} (least-squares covariance)")
     if result.staged is not None:
         s = result.staged
         vals = ", ".join(f"{p.name}={p.report_value:.4g}" for p in s.parameters.values())
         lines.append(f"staged route: {vals}; RMS {s.rms / 1e6:.3g} MPa, R² {s.r_squared:.4f}")
-    for n in result.notes:
+    for n in result.notes if notes else ():
         text = f"note: {n}"
         while len(text) > width:
             cut = text.rfind(" ", 0, width)

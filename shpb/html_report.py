@@ -425,8 +425,9 @@ def _shot_section(i: int, s: ShotEntry) -> str:
 def _fit_section(folder: Path, params: dict, images: dict) -> str:
     rows = []
     for name, p in (params.get("parameters") or {}).items():
-        value, err = p.get("value"), p.get("stderr")
-        text = _num(value, ".6g") + (f" ± {_num(err, '.2g')}" if _num(err, ".2g") else "") + \
+        value, err, ci = p.get("value"), p.get("u"), p.get("interval_95") or (None, None)
+        text = _num(value, ".6g") + (f", u {_num(err, '.2g')}" if _num(err, ".2g") else "") + \
+            (f", 95 % [{_num(ci[0], '.5g')}, {_num(ci[1], '.5g')}]" if _num(ci[0], ".5g") else "") + \
             ("" if p.get("varied", True) else f" (fixed{': ' + _e(p['note']) if p.get('note') else ''})")
         rows.append(f"<tr><th>{_e(name)}</th><td>{text}</td></tr>")
     st = params.get("statistics") or {}

@@ -23,7 +23,6 @@ except ModuleNotFoundError:  # pragma: no cover
 #: Bridge arrangements understood by :mod:`shpb.bridge`.
 from .bridge import BRIDGES  # noqa: E402
 from . import schema  # noqa: E402
-from .schema import STRESS_CHOICES  # noqa: E402,F401  (re-exported)
 
 
 # --------------------------------------------------------------------------- dataclasses

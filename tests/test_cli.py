@@ -122,7 +122,7 @@ def test_every_value_has_a_readable_placeholder(argv, cmd):
 def test_help_lists_the_library_choices(capsys):
     # the choices printed in help are the ones the library accepts (they are owned there)
     from shpb.models import MODELS
-    from shpb.setup import STRESS_CHOICES
+    from shpb.schema import STRESS_CHOICES
 
     fit_help = _squeeze(_help(["fit"], capsys))
     for name in MODELS:

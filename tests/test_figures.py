@@ -170,7 +170,7 @@ def shots(tmp_path_factory):
     work = tmp_path_factory.mktemp("figures")
     out = {"valid": reduce_file(ROOT / "configs" / "example_shot.toml"),
            "valid 3-wave": reduce_file(ROOT / "configs" / "example_shot.toml", stress="3-wave"),
-           "separated": reduce_file(ROOT / "example_data" / "shots" / "HR-P20-400.toml")}
+           "separated": reduce_file(ROOT / "example_data" / "long_pulse" / "HR-P20-400.toml")}
     law = elastic_perfectly_plastic(70e9, 300e6)
     for name, kw in (("no transmitted pulse", dict(kill_transmitted=True)), ("clipped", dict(clip_volts=0.5))):
         path, _ = make_shot(work / name.replace(" ", "-"), law=law, name=name.replace(" ", "-"), **kw)

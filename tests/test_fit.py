@@ -296,7 +296,7 @@ def test_global_fit_recovers_johnson_cook_copper(tmp_path):
     ep = np.linspace(0.0025, 0.3025, 1500, endpoint=False)  # 25 samples per grid bin
     make_campaign(tmp_path / "c", stress, [1e-3, 1.0, 1e3, 3e3], [TR, 500.0, 700.0], noise=noise, seed=1, ep=ep)
     curves = F.load_curves(tmp_path / "c")
-    res = F.fit_curves(curves, "johnson-cook", melt_temperature="1356 K")
+    res = F.fit_curves(curves, "johnson-cook", melt_temperature="1356 K", draws=0)
     assert res.success
     assert_recovered(res, CU, rel=dict(A=0.02, B=0.01, n=0.02, C=0.01, m=0.01))
     # Noise argument: 2 MPa per sample, 25 samples per node's quadratic fit,
@@ -312,7 +312,7 @@ def test_global_fit_recovers_johnson_cook_4340(tmp_path):
     stress = lambda ep, r, T: jc(ep, r, T, **S4340, Tm=1793.0)  # noqa: E731
     make_campaign(tmp_path / "c", stress, [1e-3, 1e3, 5e3], [TR, 600.0], noise=5e6, seed=2,
                   ep=np.linspace(0.002, 0.15, 150), E_summary=205e9)
-    res = F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", melt_temperature=1793.0)
+    res = F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", melt_temperature=1793.0, draws=0)
     assert_recovered(res, S4340, rel=dict(A=0.02, B=0.05, n=0.05, C=0.05, m=0.02))
 
 
@@ -323,7 +323,7 @@ def test_staged_route_on_exact_data(tmp_path):
     # interpolation between samples 0.001 apart: < 1e-4 here, 1e-3 asked).
     stress = lambda ep, r, T: jc(ep, r, T, **CU, Tm=1356.0)  # noqa: E731
     make_campaign(tmp_path / "c", stress, [1.0, 1e3, 3e3], [TR, 600.0])
-    res = F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", melt_temperature=1356.0, staged=True)
+    res = F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", melt_temperature=1356.0, staged=True, draws=0)
     st = res.staged
     assert st.method == "staged"
     for k, v in CU.items():
@@ -332,7 +332,7 @@ def test_staged_route_on_exact_data(tmp_path):
     assert st.rms < 0.5e6 and res.rms <= st.rms * 1.0001
     # no curve at the reference rate -> clear message
     with pytest.raises(AnalysisError, match="reference rate"):
-        F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", melt_temperature=1356.0, staged=True,
+        F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", melt_temperature=1356.0, staged=True, draws=0,
                      reference_rate="100 1/s")
 
 
@@ -341,7 +341,7 @@ def test_global_fit_recovers_zerilli_armstrong_copper(tmp_path):
         return ZA_CU["C0"] + ZA_CU["C2"] * np.sqrt(ep) * np.exp(-ZA_CU["C3"] * T + ZA_CU["C4"] * T * np.log(r))
 
     make_campaign(tmp_path / "c", za, [1e-3, 1.0, 1e3, 5e3], [77.0, 298.0, 500.0], noise=2e6, seed=3)
-    res = F.fit_curves(F.load_curves(tmp_path / "c"), "zerilli-armstrong-fcc")
+    res = F.fit_curves(F.load_curves(tmp_path / "c"), "zerilli-armstrong-fcc", draws=0)
     assert_recovered(res, ZA_CU, rel=dict(C0=0.03, C2=0.01, C3=0.01, C4=0.01))
 
 
@@ -352,9 +352,14 @@ def test_global_fit_recovers_cowper_symonds_mild_steel(tmp_path):
 
     make_campaign(tmp_path / "c", cs, [1e-3, 0.1, 10.0, 500.0, 1e3, 3e3], [TR], noise=3e6, seed=4,
                   E_summary=205e9)
-    res = F.fit_curves(F.load_curves(tmp_path / "c"), "cowper-symonds")
+    res = F.fit_curves(F.load_curves(tmp_path / "c"), "cowper-symonds", draws=300)
     assert_recovered(res, CS_STEEL, rel=dict(A=0.02, B=0.02, n=0.02, D=0.05, q=0.02))
     assert res.parameters["D"].report_key == "D_per_s"
+    # the bootstrap through a parameter fitted as log10 D: every 95 % interval holds the published value
+    # (white noise only here, so the least-squares errors are honest too: u within a factor 2 of them)
+    for k, v in CS_STEEL.items():
+        p = res.parameters[k]
+        assert p.low < v < p.high and 0.5 < p.u / p.stderr < 2.0, (k, p)
 
 
 def test_global_fit_recovers_zerilli_armstrong_armco_and_power_law(tmp_path):
@@ -367,13 +372,13 @@ def test_global_fit_recovers_zerilli_armstrong_armco_and_power_law(tmp_path):
 
     make_campaign(tmp_path / "a", bcc, [1e-3, 1.0, 1e3, 5e3], [298.0, 400.0, 600.0], noise=2e6, seed=5,
                   E_summary=205e9)
-    res = F.fit_curves(F.load_curves(tmp_path / "a"), "zerilli-armstrong-bcc", fixed={"C0": 0.0})
+    res = F.fit_curves(F.load_curves(tmp_path / "a"), "zerilli-armstrong-bcc", fixed={"C0": 0.0}, draws=0)
     assert_recovered(res, za, rel=dict(C1=0.01, C3=0.01, C4=0.01, C5=0.02, n=0.05))
     # power-law hardening with a log rate term; K, n, C made up (fictional alloy)
     pl = dict(K=500e6, n=0.2, C=0.02)
     make_campaign(tmp_path / "b", lambda ep, r, T: pl["K"] * ep ** pl["n"] * (1 + pl["C"] * np.log(r)),
                   [1e-3, 1.0, 1e3, 5e3], [TR], noise=2e6, seed=6)
-    res = F.fit_curves(F.load_curves(tmp_path / "b"), "power-law", weighting="curves")
+    res = F.fit_curves(F.load_curves(tmp_path / "b"), "power-law", weighting="curves", draws=0)
     assert_recovered(res, pl, rel=dict(K=0.01, n=0.01, C=0.01))
 
 
@@ -390,7 +395,7 @@ def test_quasi_static_reference_joins_the_fit(tmp_path):
     curves = F.load_curves(tmp_path / "c", quasi_static=[qs])
     assert [c.kind for c in curves] == ["shot", "shot", "quasi-static"]
     assert curves[2].modulus_source == "file header"
-    res = F.fit_curves(curves, "johnson-cook")
+    res = F.fit_curves(curves, "johnson-cook", draws=0)
     assert res.parameters["C"].varied
     for k in ("A", "B", "n", "C"):
         assert res.parameters[k].value == pytest.approx(CU[k], rel=1e-3), k
@@ -418,10 +423,10 @@ def test_adiabatic_heating_fit_against_ode(tmp_path):
     hot = F.with_adiabatic_heating(curves, "385 J/(kg*K)", beta=beta)
     # rise at the end of the room-temperature 1000 1/s curve: 0.9 * int sigma / (rho cp) ~ 20 K
     assert 15.0 < hot[0].temperature_rise[-1] < 25.0
-    res = F.fit_curves(hot, "johnson-cook", melt_temperature=1356.0)
+    res = F.fit_curves(hot, "johnson-cook", melt_temperature=1356.0, draws=0)
     for k, v in CU.items():
         assert res.parameters[k].value == pytest.approx(v, rel=0.01), k
-    iso = F.fit_curves(curves, "johnson-cook", melt_temperature=1356.0)
+    iso = F.fit_curves(curves, "johnson-cook", melt_temperature=1356.0, draws=0)
     assert res.rms < 0.5 * iso.rms
 
 
@@ -449,7 +454,7 @@ def test_nist_strd_roszman1_through_the_fit_layer(roszman1):
                     ParameterSpec("b3", "1", "", -1e5, 1e5, 1000.0), ParameterSpec("b4", "1", "", -1e4, 1e4, -100.0)),
     )
     curve = F.Curve("roszman1", roszman1["x"].to_numpy(), roszman1["y"].to_numpy(), 1.0, TR)
-    res = F.fit_curves([curve], spec)
+    res = F.fit_curves([curve], spec, draws=0)
     cert = {"b1": (2.0196866396e-01, 1.9172666023e-02), "b2": (-6.1953516256e-06, 3.2058931691e-06),
             "b3": (1.2044556708e03, 7.4050983057e01), "b4": (-1.8134269537e02, 4.9573513849e01)}
     for k, (v, sd) in cert.items():
@@ -472,7 +477,7 @@ def one_rate_room(tmp_path):
 
 
 def test_single_rate_fixes_rate_constant_with_note(one_rate_room):
-    res = F.fit_curves(one_rate_room, "johnson-cook")
+    res = F.fit_curves(one_rate_room, "johnson-cook", draws=0)
     C, m = res.parameters["C"], res.parameters["m"]
     assert not C.varied and C.value == 0.0 and not m.varied
     text = " ".join(res.notes)
@@ -491,7 +496,7 @@ def test_single_rate_refuses_to_fit_rate_constant_when_asked(one_rate_room):
 
 
 def test_user_fixed_value_is_used(one_rate_room):
-    res = F.fit_curves(one_rate_room, "johnson-cook", fixed=F.parse_fixed("johnson-cook", ["C=0.025"]))
+    res = F.fit_curves(one_rate_room, "johnson-cook", fixed=F.parse_fixed("johnson-cook", ["C=0.025"]), draws=0)
     assert res.parameters["C"].value == 0.025 and res.parameters["C"].note == "fixed by the user"
     # with the true C the reference-rate A comes back (data noise 1 MPa)
     assert res.parameters["A"].value == pytest.approx(90e6, rel=0.03)
@@ -505,7 +510,7 @@ def test_models_without_defaults_fail_clearly(tmp_path):
     curves = F.load_curves(make_campaign(tmp_path / "c", stress, [1e-3, 1e3], [TR]))
     with pytest.raises(AnalysisError, match=r"D, q are not identifiable.*2 strain-rate levels.*at least 3"):
         F.fit_curves(curves, "cowper-symonds")
-    res = F.fit_curves(curves, "cowper-symonds", fixed={"q": 5.0})
+    res = F.fit_curves(curves, "cowper-symonds", fixed={"q": 5.0}, draws=0)
     assert res.parameters["D"].value == pytest.approx(40.4, rel=0.02)
     with pytest.raises(AnalysisError, match=r"C3 is not identifiable.*1 temperature level"):
         F.fit_curves(curves, "zerilli-armstrong-fcc")
@@ -530,7 +535,7 @@ def fitted(tmp_path_factory):
     root = tmp_path_factory.mktemp("out")
     stress = lambda ep, r, T: jc(ep, r, T, **CU, Tm=1356.0)  # noqa: E731
     make_campaign(root / "c", stress, [1.0, 1e3, 3e3], [TR, 600.0], noise=1e6, ep=np.linspace(0.002, 0.2, 200))
-    res = F.fit_curves(F.load_curves(root / "c"), "johnson-cook", melt_temperature=1356.0, staged=True)
+    res = F.fit_curves(F.load_curves(root / "c"), "johnson-cook", melt_temperature=1356.0, staged=True, draws=200)
     return root, res
 
 
@@ -544,13 +549,20 @@ def test_write_fit_files(fitted):
     js = json.loads(paths["json"].read_text())
     assert js["model"] == "johnson-cook" and js["settings"]["melt_temperature_K"] == 1356.0
     assert js["parameters"]["A_MPa"]["value"] == pytest.approx(res.parameters["A"].value / 1e6)
-    assert js["parameters"]["A_MPa"]["stderr"] > 0
+    a = js["parameters"]["A_MPa"]
+    assert a["u"] > 0 and a["ls_stderr"] > 0 and a["interval_95"][0] < a["value"] < a["interval_95"][1]
+    cm = js["uncertainty"]["correlation_matrix"]
+    assert cm["parameters"] == ["A_MPa", "B_MPa", "n", "C", "m"] and len(cm["matrix"]) == 5
+    # a correlation matrix: unit diagonal, symmetric (the bootstrap draws' Pearson coefficients)
+    np.testing.assert_allclose(np.diag(cm["matrix"]), 1.0)
+    np.testing.assert_allclose(cm["matrix"], np.transpose(cm["matrix"]))
     assert {c["name"] for c in js["curves"]} == {f"S{i:02d}" for i in range(6)}
     assert {c["temperature_K"] for c in js["curves"]} == {TR, 600.0}
     assert "staged" in js and js["staged"]["method"] == "staged"
     toml = tomllib.loads(paths["toml"].read_text())
     assert toml["parameters"]["A_MPa"] == pytest.approx(js["parameters"]["A_MPa"]["value"])
     assert toml["settings"]["reference_rate_per_s"] == 1.0
+    assert toml["u"]["A_MPa"] == pytest.approx(a["u"]) and toml["interval_95"]["n"][0] < toml["parameters"]["n"]
     table = pd.read_csv(paths["curves"])
     assert list(table.columns) == ["plastic_strain", "true_stress_MPa", "strain_rate_per_s", "temperature_K"]
     assert len(table) == 6
@@ -571,6 +583,8 @@ def test_fit_report_text(fitted):
     _, res = fitted
     text = F.fit_report(res)
     assert "model johnson-cook" in text and "A    =" in text and "MPa" in text and "staged route" in text
+    assert "95 % interval [" in text and "correlation matrix of the parameters (bootstrap)" in text
+    assert "A_MPa" in text and "B_MPa" in text
 
 
 def test_cli_fit(fitted, capsys):
@@ -579,10 +593,15 @@ def test_cli_fit(fitted, capsys):
     root, _ = fitted
     out = root / "cli"
     rc = main(["fit", str(root / "c"), "--model", "johnson-cook", "--melt-temperature", "1356 K",
-               "--reference-rate", "1 1/s", "--out", str(out)])
+               "--reference-rate", "1 1/s", "--draws", "200", "--out", str(out)])
     assert rc == 0
     assert (out / "fit_parameters.toml").is_file()
     assert "RMS residual" in capsys.readouterr().out
+    # the help's default number of draws is the library's (shpb.fit_uncertainty owns it)
+    from shpb.fit_uncertainty import DEFAULT_DRAWS
+
+    assert main(["fit", "--help"]) == 0
+    assert f"[default: {DEFAULT_DRAWS}]" in capsys.readouterr().out.replace("\n", " ").replace("  ", " ")
     rc = main(["fit", str(root / "c"), "--out", str(root / "cli2")])
     err = capsys.readouterr().err
     assert rc == 2 and err.startswith("error:") and "melting" in err and len(err.strip().splitlines()) == 1
@@ -611,7 +630,7 @@ def test_fit_on_the_example_campaign_recovers_the_generating_law(tmp_path):
     assert len(report.ok) == 6
     curves = F.load_curves([tmp_path / "out"],
                            quasi_static=[repo / "example_data" / "quasi_static" / "HR-A61_qs.csv"])
-    res = F.fit_curves(curves, "johnson-cook", reference_rate=1e-3, fixed={"m": 1.0})
+    res = F.fit_curves(curves, "johnson-cook", reference_rate=1e-3, fixed={"m": 1.0}, draws=0)
     p = {k: v.value for k, v in res.parameters.items()}
     assert p["A"] == pytest.approx(300e6, rel=0.05)
     assert p["B"] == pytest.approx(400e6, rel=0.05)

@@ -126,8 +126,9 @@ def test_report_with_a_fit_and_a_pdf(campaign_out, tmp_path):
     fit.mkdir()
     (fit / "fit_parameters.json").write_text(
         '{"model": "johnson-cook", "equation": "sigma = (A + B*eps_p^n) (1 + C ln(rate/reference_rate))", '
-        '"reference": "Johnson & Cook 1983", "parameters": {"A_MPa": {"value": 292.0, "stderr": 0.8, '
-        '"varied": true}, "m": {"value": 1.0, "stderr": null, "varied": false, "note": "fixed by the user"}}, '
+        '"reference": "Johnson & Cook 1983", "parameters": {"A_MPa": {"value": 292.0, "u": 1.2, '
+        '"interval_95": [289.7, 294.5], "ls_stderr": 0.74, "varied": true}, "m": {"value": 1.0, "ls_stderr": null, '
+        '"varied": false, "note": "fixed by the user"}}, '
         '"statistics": {"rms_MPa": 1.29, "r_squared": 0.9997, "n_points": 411, "n_curves": 7}, "notes": []}')
     (fit / "model_curves.csv").write_text("plastic_strain,true_stress_MPa,strain_rate_per_s,temperature_K\n"
                                           + "".join(f"{e},{300 + 400 * e ** 0.4:.3f},{r},293.15\n"
@@ -135,7 +136,7 @@ def test_report_with_a_fit_and_a_pdf(campaign_out, tmp_path):
     pdf = tmp_path / "report.pdf"
     assert main(["report", str(out), "--fit", str(fit), "--html", str(tmp_path / "r.html"), "--pdf", str(pdf)]) == 0
     text = (tmp_path / "r.html").read_text()
-    assert "Fit: johnson-cook" in text and "292 ± 0.8" in text and "fixed: fixed by the user" in text
+    assert "Fit: johnson-cook" in text and "292, u 1.2, 95 % [289.7, 294.5]" in text and "fixed: fixed by the user" in text
     head = pdf.read_bytes()[:5]
     assert head == b"%PDF-"
 

@@ -162,7 +162,9 @@ def test_plan_sheet_is_a_figure(files):
 
 
 # --------------------------------------------------------------------------- end to end on virtual shots
-TARGETS = [(m, r) for m in ("HR-A61", "HR-C10") for r in (1000.0, 2500.0, 5000.0)]
+# Two of the six targets of configs/example_plan.toml run here, one per material, so that the suite stays fast;
+# benchmarks/bench_plan.py previews all six and prints each one's rate, strain and verdict.
+TARGETS = [("HR-A61", 2500.0), ("HR-C10", 5000.0)]
 
 
 @pytest.mark.slow

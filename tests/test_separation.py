@@ -14,7 +14,6 @@ gives a 370 us pulse, three times 2 d / c0.
 """
 
 import dataclasses
-import math
 
 import numpy as np
 import pytest
@@ -276,7 +275,7 @@ def long_example():
     from shpb.setup import load_shot
 
     root = Path(__file__).resolve().parents[1] / "example_data"
-    shot = load_shot(root / "shots" / "HR-P20-400.toml")
+    shot = load_shot(root / "long_pulse" / "HR-P20-400.toml")
     return shot, read_record(shot.record), pd.read_csv(root / "truth" / "HR-P20-400_truth.csv")
 
 

@@ -276,7 +276,7 @@ def test_separated_shot_is_propagated_through_the_separation_and_says_what_it_le
     stages would give a window 2/3 as long and leave the rest without draws) and the Monte Carlo part stays a
     few per cent of the stress, as the drawn wave speeds and noise give; the summary says the further stations'
     distances and gauge chains are not inputs."""
-    shot = with_analysis(load_shot(ROOT / "example_data" / "shots" / "HR-P20-400.toml"), uncertainty=True,
+    shot = with_analysis(load_shot(ROOT / "example_data" / "long_pulse" / "HR-P20-400.toml"), uncertainty=True,
                          uncertainty_draws=10)
     res = reduce_shot(shot)
     assert res.stages.waves.separated_bars

@@ -14,9 +14,8 @@ import time
 from pathlib import Path
 
 import pandas as pd
-import pytest
 
-from shpb.campaign import KEY_FILE, current_key, load_campaign, record_files
+from shpb.campaign import KEY_FILE, current_key, load_campaign
 from shpb.watch import Watcher, content_complete
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -52,7 +52,13 @@ def register(app: typer.Typer) -> None:
                                             "cannot identify it); repeatable."),
         staged: bool = typer.Option(False, "--staged", help="Johnson-Cook: also the staged route, for comparison."),
         weighting: str = typer.Option("points", "--weighting", metavar=NAME,
-                                      help="'points' (equal per grid point) or 'curves'."),
+                                      help="'points' (equal per grid point), 'curves' (equal per curve) or "
+                                           "'uncertainty' (1/u^2 from the curves' u_true_stress_MPa column)."),
+        draws: Optional[int] = typer.Option(None, "--draws", metavar=NUMBER,
+                                            help="Bootstrap draws for the parameters' uncertainties and correlations "
+                                                 "(0: none, then only least-squares standard errors) "
+                                                 "[default: 1000]."),
+        seed: Optional[int] = typer.Option(None, "--seed", metavar=NUMBER, help="Random seed of the bootstrap."),
         grid_step: float = typer.Option(0.005, "--grid-step", metavar=NUMBER, help="Plastic-strain grid step."),
         adiabatic: bool = typer.Option(False, "--adiabatic", help="Add the adiabatic temperature rise to shots."),
         density: Optional[str] = typer.Option(None, "--density", metavar=QUANTITY,
@@ -103,6 +109,7 @@ def register(app: typer.Typer) -> None:
             curves, model, reference_rate=reference_rate, room_temperature=room_temperature,
             melt_temperature=melt_temperature, fixed=F.parse_fixed(model, fix), vary=vary,
             weighting=weighting, staged=staged,
+            **{k: v for k, v in (("draws", draws), ("seed", seed)) if v is not None},
         )
         eps = None
         if max_plastic_strain is not None:
