@@ -705,11 +705,9 @@ def _reduce_task(shot, figures, base_dir, flow_strains, announce=None):
         return _failed(shot.name, "read", _one_line(exc))
     key = shot_key(shot, rec.files, base_dir)
     try:
-        result = reduce_shot(shot, rec)
+        result = reduce_shot(shot, rec, announce=announce)  # announced before the uncertainty stage
     except Exception as exc:  # noqa: BLE001
         return _failed(shot.name, "reduce", _one_line(exc))
-    if announce is not None:
-        announce(result)
     try:
         with tempfile.TemporaryDirectory(prefix=f"shpb-shot-{os.getpid()}-", dir=_scratch_dir()) as tmp:
             result.write(tmp, figure=figures)  # the figure sheet uses no pyplot: thread-safe

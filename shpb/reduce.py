@@ -174,7 +174,7 @@ class ShotResult:
 
 
 # --------------------------------------------------------------------------- the reduction
-def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
+def reduce_shot(shot: Shot, record: Optional[Record] = None, *, announce=None) -> ShotResult:
     """Reduce one shot, stage by stage.
 
     Parameters
@@ -184,6 +184,12 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
     record : Record, optional
         An already-read or in-memory record (:meth:`shpb.io.Record.from_arrays`);
         read from ``shot.record`` when None.
+    announce : callable, optional
+        ``announce(result)`` is called with the verdict's result as soon as the
+        verdict is known, before the uncertainty stage (which costs tens of
+        reductions), so that the verdict at the gun does not wait for it. The
+        result it gets has no uncertainty; the returned one has it when the
+        analysis asks for it.
 
     Returns
     -------
@@ -209,10 +215,16 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None) -> ShotResult:
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt, shot.striker_speed)
         corrections = specimen.specimen_corrections(curves, plan, shot.specimen, opt, verdict.valid, waves.dt)
         stages = Stages(record, strains, plan, waves, curves, verdict, split, corrections)
-        if opt.uncertainty:
-            from .uncertainty import propagate
+        if not opt.uncertainty:
+            result = _result(shot, stages)
+            if announce is not None:
+                announce(result)
+            return result
+        if announce is not None:
+            announce(_result(shot, stages))  # the verdict first: the uncertainty stage costs tens of reductions
+        from .uncertainty import propagate
 
-            stages = replace(stages, uncertainty=propagate(shot, stages))
+        stages = replace(stages, uncertainty=propagate(shot, stages))
     return _result(shot, stages)
 
 
@@ -399,14 +411,15 @@ def _source(source):
     return str(p.resolve()) if p.suffix.lower() == ".toml" and p.exists() else str(source)
 
 
-def reduce_file(shot_path, out_dir=None, figure=True, **analysis_changes) -> ShotResult:
-    """Load a shot file, reduce it and (if ``out_dir``) write the result folder."""
+def reduce_file(shot_path, out_dir=None, figure=True, announce=None, **analysis_changes) -> ShotResult:
+    """Load a shot file, reduce it and (if ``out_dir``) write the result folder (``announce``: as in
+    :func:`reduce_shot`)."""
     from .setup import load_shot, with_analysis
 
     shot = load_shot(shot_path)
     if analysis_changes:
         shot = with_analysis(shot, **analysis_changes)
-    result = reduce_shot(shot)
+    result = reduce_shot(shot, announce=announce)
     if out_dir is not None:
         result.write(out_dir, figure=figure)
     return result

@@ -40,6 +40,7 @@ from __future__ import annotations
 
 import dataclasses
 import fnmatch
+import json
 import os
 import sys
 import time
@@ -280,6 +281,8 @@ class Watcher:
 
     def _reduce(self, camp, row, path: Path, batch: set) -> int:
         from .campaign import SHOTS_DIR, current_key, reduce_task, record_files, store_shot, stored_key
+        from .plain_words import uncertainty_lines
+        from .reduce import ShotResult
 
         if row.error or row.shot is None:
             self._loud(f"{_now()} shot {row.id} ({path.name}): NOT REDUCED: {row.error}")
@@ -311,6 +314,9 @@ class Watcher:
             return 1
         self.out.mkdir(parents=True, exist_ok=True)
         store_shot(folder, res)
+        # the verdict came first (announce); the uncertainty, when the campaign asks for it, follows
+        for line in uncertainty_lines(json.loads(res["files"][ShotResult.SUMMARY_FILE])):
+            self.echo(line)
         if self.figures:
             self.echo(f"  figure sheet: {folder / 'shot.png'}")
         return 1

@@ -173,3 +173,22 @@ def test_public_api_is_light_and_complete():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
     assert out == ["True"], f"loaded on import: {out[0]}"   # no heavy module listed, the registry found
     assert (Path(__file__).resolve().parents[1] / "shpb" / "py.typed").is_file()
+
+
+def test_the_verdict_is_announced_before_the_uncertainty_stage(capsys, tmp_path):
+    # The verdict at the gun must not wait for the uncertainty stage (tens of reductions): reduce_shot hands the
+    # verdict's result to `announce` first, and shpb reduce prints it before the uncertainty lines.
+    from shpb.cli import main
+
+    root = DOCS.parent
+    shot = with_analysis(load_shot(root / "configs" / "example_shot.toml"), uncertainty=True, uncertainty_draws=10)
+    heard = []
+    result = reduce_shot(shot, announce=heard.append)
+    (first,) = heard
+    assert "uncertainty" not in first.summary and result.summary.get("uncertainty")
+    assert first.valid == result.valid
+    assert np.array_equal(first.curves["stress_MPa"], result.curves["stress_MPa"])
+    assert main(["reduce", str(root / "configs" / "example_shot.toml"), "--no-figure", "--quiet",
+                 "--set", "uncertainty_draws=10", "--out", str(tmp_path / "r")]) == 0
+    out = capsys.readouterr().out
+    assert out.index("VALID") < out.index("uncertainty:") < out.index("written to")

@@ -320,6 +320,17 @@ class Progress:
             self._draw()
             self.stream.flush()
 
+    def echo(self, text: str) -> None:
+        """Text on standard output now (a verdict), with the bar cleared first and drawn again after it."""
+        import sys
+
+        with self._lock:
+            self._clear()
+            self.stream.flush()
+            sys.stdout.write(text + "\n")
+            sys.stdout.flush()
+            self._draw()
+
     def close(self) -> None:
         with self._lock:
             if self.tty and self.width:

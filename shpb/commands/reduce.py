@@ -57,18 +57,30 @@ def register(app: typer.Typer) -> None:
             changes["uncertainty"] = True  # on by default here: it costs about 1.5x the process (docs/uncertainty.md)
         out_dir = out or shot.parent / "results" / name
         check_out_dir(out_dir)
-        with Progress(f"reducing shot {name}", quiet=quiet).running():
-            result = reduce_file(shot, out_dir, figure=figure, **changes)
-        typer.echo(format_result(result, out_dir))
+        progress = Progress(f"reducing shot {name}", quiet=quiet)
+
+        def announce(first):  # the verdict as soon as it is known; the uncertainty and the files follow
+            progress.echo(verdict_text(first))
+
+        with progress.running():
+            result = reduce_file(shot, out_dir, figure=figure, announce=announce, **changes)
+        typer.echo(closing_text(result, out_dir))
         raise typer.Exit(0 if result.valid else 1)
 
 
-def format_result(result, out_dir) -> str:
-    """What a lab engineer reads after a shot: the verdict with what matters, each flag in plain words."""
+def verdict_text(result) -> str:
+    """What a lab engineer reads first after a shot: the verdict with what matters, each flag in plain words."""
     from ..plain_words import shot_lines
+
+    return "\n".join(shot_lines(result.name, result.summary, result.curves))
+
+
+def closing_text(result, out_dir) -> str:
+    """What follows the verdict: the uncertainty (when it ran), where the files are, the design caution."""
+    from ..plain_words import uncertainty_lines
     from ..reduce import DESIGN_CAUTION
 
-    lines = shot_lines(result.name, result.summary, result.curves)
+    lines = uncertainty_lines(result.summary)
     lines.append(f"  written to {out_dir}")
     lines.append(f"  note: {DESIGN_CAUTION}")
     return "\n".join(lines)
