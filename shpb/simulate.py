@@ -942,6 +942,13 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
        doi:10.1088/0370-1301/62/11/302.
     .. [2] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2.
     """
+    return _shot(spec)
+
+
+def _shot(spec, incident_wave_only=False):
+    """:func:`simulate_shot`; with ``incident_wave_only`` (for :func:`incident_pulse`) the march stops at the
+    last step the incident gauge's wave travelling toward the specimen needs (the incident bar is a delay line),
+    and only that wave, ``time`` and ``grid`` of the result hold the shot's values."""
     laws = _check_spec(spec)
     dt = _time_step(spec)
     rods = _build_rods(spec, laws, dt)
@@ -949,7 +956,7 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
     t_samples = np.arange(int(math.floor(spec.duration * spec.sample_rate + 1e-9)) + 1) / spec.sample_rate
     lower = np.floor(t_samples / dt + 1e-9).astype(np.int64)
     kept_steps = np.union1d(lower, lower + 1)
-    rec, impact_force, e0, peak, stations = _run(spec, rods, dt, kept_steps)
+    rec, impact_force, e0, peak, stations = _run(spec, rods, dt, kept_steps, incident_wave_only)
     for name, (value, _) in peak.items():
         if value >= 1.0:
             raise AnalysisError(f"the {name} was crushed to zero length (engineering strain {value:.2f}); the "
@@ -1197,7 +1204,7 @@ class _Grid:
         return self.n_nodes + self.links[name].start + index
 
 
-def _run(spec, rods, dt, kept_steps):
+def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     """March the model; return the kept rows, the force entering the incident bar, E0, peak strains.
 
     Per step: the grid's node velocities from its element forces and the
@@ -1209,9 +1216,19 @@ def _run(spec, rods, dt, kept_steps):
     Python floats; the grid is numpy. What the records need is read
     afterwards from the delay lines' histories and from the grid states,
     kept step by step.
+
+    With ``incident_wave_only`` the march stops once the incident bar (a
+    delay line) has sent in every wave its gauge's reading of the wave
+    travelling toward the specimen needs, a bar transit before the last step
+    (:meth:`_DelayLine.node_waves` reads ``R_j(n) = R_0(n - j)``); the other
+    records are then left incomplete.
     """
     by_name = {r.name: r for r in rods}
-    n_steps = int(kept_steps[-1])
+    n_steps = march = int(kept_steps[-1])
+    if incident_wave_only:
+        incident = by_name["incident"]
+        j0 = _directional_weights(incident, spec.incident_gauge_distance, True)[0] - incident.node0
+        march = max(0, n_steps - j0 + 1)
     # elastic rods at Courant 1: the bars and the striker, and the specimen or shaper when it sets the step
     lines = {r.name: _DelayLine(r, n_steps, spec.striker_speed if r.name == "striker" else 0.0) for r in rods
              if r.law is None and (r.name in _COURANT_ONE or abs(r.spec.wave_speed * dt / r.dx - 1.0) < 1e-12)}
@@ -1278,7 +1295,7 @@ def _run(spec, rods, dt, kept_steps):
     resting = on_grid and not drive_on_grid and not state.any()
     grid_ends = [k for k, _ in copies]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # the return mapping brackets its steps
-        for n in range(n_steps + 1):
+        for n in range(march + 1):
             # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
             if on_grid and not resting:
                 np.subtract(F_right, F_left, out=node_force)
@@ -1313,12 +1330,12 @@ def _run(spec, rods, dt, kept_steps):
                     v[node] = u[k]
                 kept[row] = state
                 row += 1
-                if row == _CHUNK or n == n_steps:
+                if row == _CHUNK or n == march:
                     reader.read(kept[:row], n + 1 - row)
                     row = 0
                 for p in plastic:
                     work[n] += p.work
-            if n == n_steps:
+            if n == march:
                 break
             # delay lines: the waves their end nodes send in at n+1
             for R, L, N, inv_c, _, _, first, last in line_steps:
@@ -1334,6 +1351,7 @@ def _run(spec, rods, dt, kept_steps):
                 for p in plastic:
                     p.update(dt)
 
+    history += [history[-1]] * (n_steps - march)  # (incident_wave_only: the steps not marched)
     for line in lines.values():
         line.finish()
     left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
@@ -2403,7 +2421,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
                                sample_rate=1.0 / dt, max_time_step=dt)
     while True:
         duration = min(transit + span, limit)
-        run = simulate_shot(dataclasses.replace(base, duration=duration))
+        run = _shot(dataclasses.replace(base, duration=duration), incident_wave_only=True)
         shift = (run.grid["rods"]["incident"]["length_m"] - station) / bar.wave_speed
         t = np.arange(int(math.floor((run.time[-1] - shift + lead) / dt)) + 1) * dt - lead  # from the impact
         strain = np.interp(t + shift, run.time, run.gauge_waves["incident_toward_specimen"], left=0.0)
