@@ -969,6 +969,8 @@ def _shot(spec, incident_wave_only=False):
 _COURANT_ONE = ("striker", "incident", "transmitted")
 #: Steps of grid state kept at a time before they are reduced to the recorded quantities.
 _CHUNK = 1024
+#: Largest grid state (values) stepped by one matrix product (_Grid.step_matrix) rather than by differences.
+_DENSE_SIZE = 160
 # reductions of the small arrays of the time stepping, called directly (ndarray.max() and the like add a
 # Python layer that costs more than the reduction itself on a specimen's 20 elements)
 _max, _min, _any, _all = np.maximum.reduce, np.minimum.reduce, np.logical_or.reduce, np.logical_and.reduce
@@ -1196,6 +1198,38 @@ class _Grid:
         if "striker" in self.first:
             self.v[self.first["striker"]:self.last["striker"] + 1] = spec.striker_speed
 
+    def step_matrix(self):
+        """The elastic step as one matrix on ``[state, 1]``: from the state after the contacts of step n
+        (``v(n+1/2)``, ``eps(n)``, ``F(n)``) to the state of step n+1 before its contacts (``eps(n+1) = eps(n) +
+        dt/dx (v_(j+1) - v_j)``, ``F(n+1) = EA eps(n+1)``, ``v(n+3/2) = v(n+1/2) + dt/m (F_j - F_(j-1))``); the
+        last column holds the forces' offsets (:meth:`set_offsets`)."""
+        nn, nl = self.n_nodes, self.n_links
+        size = self.state.size
+        M = np.zeros((size + 1, size + 1))
+        links = np.arange(nl)
+        eps_rows, F_rows = nn + links, nn + nl + 1 + links
+        M[eps_rows, eps_rows] = 1.0
+        M[eps_rows, links + 1] += self.dt_over_dx
+        M[eps_rows, links] -= self.dt_over_dx
+        M[F_rows] = self.EA[:, None] * M[eps_rows]
+        F_pad_rows = M[nn + nl:nn + 2 * nl + 2]  # (the pads' rows are zero)
+        M[:nn] = self.dt_over_m[:, None] * (F_pad_rows[1:] - F_pad_rows[:-1])
+        M[np.arange(nn), np.arange(nn)] += 1.0
+        M[size, size] = 1.0
+        return M
+
+    def set_offsets(self, M, plastic):
+        """Write the plastic strains' offsets into the step matrix's last column: ``F = EA (eps - eps_p)``."""
+        nn, nl = self.n_nodes, self.n_links
+        column = M[:, -1]
+        F_pad = column[nn + nl:nn + 2 * nl + 2]
+        for p in plastic:
+            sl = self.links[p.rod.name]
+            np.multiply(self.EA[sl], p.eps_p, out=F_pad[1 + sl.start:1 + sl.stop])
+            F_pad[1 + sl.start:1 + sl.stop] *= -1.0
+        np.subtract(F_pad[1:], F_pad[:-1], out=column[:nn])
+        column[:nn] *= self.dt_over_m
+
     def column(self, kind, name, index):
         """Column of the state array holding node ``index`` (``kind = "v"``) or element ``index``
         (``"eps"``) of rod ``name``."""
@@ -1282,25 +1316,68 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     v, eps, F = grid.v, grid.eps, grid.F
     F_right, F_left, v_right, v_left = grid.F_pad[1:], grid.F_pad[:-1], v[1:], v[:-1]
     dt_over_m, dt_over_dx, EA = grid.dt_over_m, grid.dt_over_dx, grid.EA
-    node_force, dv = np.zeros(grid.n_nodes), np.zeros(grid.n_links)
-    on_grid = grid.n_nodes > 0
+    nn, nl = grid.n_nodes, grid.n_links
+    node_force, dv = np.zeros(nn), np.zeros(nl)
+    on_grid = nn > 0
     drive_on_grid = drive is not None and not drive_on_line
+    i_grid_drive = grid.first.get("incident")
     # the plastic rods set their own forces: the elastic ones are needed only if the grid holds other rods
-    elastic_forces = sum(p.rod.n for p in plastic) < grid.n_links
+    elastic_forces = sum(p.rod.n for p in plastic) < nl
     contacts = [(k,) + c for k, c in enumerate(contacts)]
-    state, kept = grid.state, np.empty((_CHUNK, grid.state.size))
+    state = grid.state
+    # A small grid (a specimen, a shaper) takes its elastic step as one matrix product (Grid.step_matrix) on its
+    # state and a trailing 1, written straight into the kept rows; a plastic rod then checks its forces (the sum
+    # of squares against the smallest flow stress) and, where it may flow, takes the return mapping and the
+    # node velocities are done again from its forces. A large grid (a bar with a plastic law) steps by its
+    # differences, element by element.
+    dense = on_grid and state.size <= _DENSE_SIZE
+    kept = np.empty((_CHUNK, state.size + dense))
     row = 0
+    if dense:
+        M = grid.step_matrix()
+        grid.set_offsets(M, plastic)
+        prev = carry = np.append(state, 1.0)  # the state before the march, with the trailing 1
+        checks = [(p, grid.column("eps", p.rod.name, 0), nn + nl + 1 + grid.links[p.rod.name].start,
+                   grid.links[p.rod.name].stop - grid.links[p.rod.name].start) for p in plastic]
+        F_pad_cols = slice(nn + nl, nn + 2 * nl + 2)
+        if drive_on_grid:
+            grid_kick = (drive * dt_over_m[i_grid_drive]).tolist()
     # A grid at rest (no velocity, no force) stays at rest until a contact on one of its end nodes closes: until
     # then its steps change nothing and are skipped (the reader's rows of those steps are zero already).
     resting = on_grid and not drive_on_grid and not state.any()
     grid_ends = [k for k, _ in copies]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # the return mapping brackets its steps
         for n in range(march + 1):
-            # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
-            if on_grid and not resting:
+            # grid: strains n-1 -> n from v(n-1/2) (element forces, radial return in the plastic rods), then
+            # nodes v(n-1/2) -> v(n+1/2) from the element forces at n
+            if dense and not resting:
+                cur = kept[row]
+                np.dot(M, prev, out=cur)
+                flowed = returned = False
+                for p, e_col, f_col, m in checks:
+                    forces = cur[f_col:f_col + m]
+                    if np.dot(forces, forces) > p.force_squared and \
+                            _max(np.abs(forces, out=p.size)) > p.force_limit:  # (size: a scratch array)
+                        p.eps, p.F = cur[e_col:e_col + m], forces
+                        flowed = p.update(dt) or flowed
+                        returned = True
+                    elif p.aged:
+                        p.settle()
+                if returned:  # the node velocities from the returned forces
+                    F_pad = cur[F_pad_cols]
+                    np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
+                    node_force *= dt_over_m
+                    np.add(prev[:nn], node_force, out=cur[:nn])
+                    if flowed:
+                        grid.set_offsets(M, plastic)
+                if drive_on_grid:
+                    cur[i_grid_drive] += grid_kick[n]
+                for k, node in copies:
+                    u[k] = cur.item(node)
+            elif on_grid and not resting:
                 np.subtract(F_right, F_left, out=node_force)
                 if drive_on_grid:
-                    node_force[grid.first["incident"]] += drive[n]
+                    node_force[i_grid_drive] += drive[n]
                 node_force *= dt_over_m
                 v += node_force
                 for k, node in copies:
@@ -1325,14 +1402,26 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
             history.append(tuple(u))
             if resting and any(u[k] for k in grid_ends):
                 resting = False
+                if dense:
+                    cur = kept[row]
+                    cur[:] = prev
             if on_grid and not resting:
-                for k, node in copies:
-                    v[node] = u[k]
-                kept[row] = state
+                if dense:
+                    for k, node in copies:
+                        cur[node] = u[k]
+                else:
+                    for k, node in copies:
+                        v[node] = u[k]
+                    kept[row] = state
                 row += 1
                 if row == _CHUNK or n == march:
-                    reader.read(kept[:row], n + 1 - row)
+                    reader.read(kept[:row, :state.size], n + 1 - row)
+                    if dense:
+                        prev = carry
+                        prev[:] = kept[row - 1]
                     row = 0
+                elif dense:
+                    prev = cur
                 for p in plastic:
                     work[n] += p.work
             if n == march:
@@ -1341,8 +1430,8 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
             for R, L, N, inv_c, _, _, first, last in line_steps:
                 R[N + n + 1] = L[n] - u[first] * inv_c
                 L[n + N] = R[n + 1] + u[last] * inv_c
-            # grid elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
-            if on_grid and not resting:
+            # grid elements (by differences): strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
+            if on_grid and not resting and not dense:
                 np.subtract(v_right, v_left, out=dv)
                 dv *= dt_over_dx
                 eps += dv
@@ -1590,9 +1679,9 @@ class _PlasticState:
         if np.dot(trial, trial) > self.elastic_squared:
             np.abs(trial, out=size)
             if _max(size) * E > self.quasi_static_min:
-                self._check_flow(trial, size, over, E, dt)
-                return
+                return self._check_flow(trial, size, over, E, dt)
         self._elastic(trial)
+        return False
 
     def _check_flow(self, trial, size, over, E, dt):
         """The step of an element that may flow: the trial stress against each element's flow stress, then
@@ -1601,7 +1690,7 @@ class _PlasticState:
         size *= E
         if not _any(np.greater(size, self.quasi_static, out=over)):
             self._elastic(trial, E)
-            return
+            return False
         every = _all(over)
         if every:  # the common case while the rod flows: no gathering
             flowing, size_f, p_f, quasi_static_f, age = slice(None), size, self.p, self.quasi_static, self.age
@@ -1650,19 +1739,27 @@ class _PlasticState:
         self._set_quasi_static_min()
         np.copysign(returned, trial, out=returned)
         np.multiply(returned, self.A, out=self.F)
+        return True
 
     def _set_quasi_static_min(self):
-        """The smallest quasi-static flow stress [Pa], and the bound on the sum of squared elastic strains
-        [1] below which no element can flow."""
+        """The smallest quasi-static flow stress [Pa], and the bounds on the sums of squared elastic strains
+        [1] and of squared forces [N^2] below which no element can flow."""
         self.quasi_static_min = _min(self.quasi_static)
-        self.elastic_squared = (self.quasi_static_min / self.E) ** 2 if self.quasi_static_min > 0.0 else -1.0
+        positive = self.quasi_static_min > 0.0
+        self.elastic_squared = (self.quasi_static_min / self.E) ** 2 if positive else -1.0
+        self.force_squared = (self.quasi_static_min * self.A) ** 2 if positive else -1.0
+        self.force_limit = self.quasi_static_min * self.A
+
+    def settle(self):
+        """An elastic step after plastic flow: the increments' history restarts."""
+        self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
+        self.age[:] = 0
+        self.aged, self.run = False, 0
 
     def _elastic(self, trial, scale=1.0):
         """An elastic step: the forces from the trial (strain, or stress with ``scale = E``)."""
         if self.aged:
-            self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
-            self.age[:] = 0
-            self.aged, self.run = False, 0
+            self.settle()
         np.multiply(trial, self.E * self.A / scale, out=self.F)
 
     def _newton_from(self, x, size, p, dt):
