@@ -322,7 +322,7 @@ class TrueStressLaw:
 
     def flow_stress(self, plastic_strain, strain_rate):
         """Engineering flow stress [Pa] at engineering plastic strain [1] and rate [1/s]."""
-        p = np.clip(np.asarray(plastic_strain, dtype=float), 0.0, 0.999)
+        p = np.minimum(np.maximum(np.asarray(plastic_strain, dtype=float), 0.0), 0.999)  # (np.clip: slower)
         stretch = 1.0 - p
         true = np.asarray(self.law.flow_stress(-np.log(stretch), np.asarray(strain_rate, dtype=float) / stretch),
                           dtype=float)
@@ -1624,7 +1624,10 @@ def _extrapolate(x1, x2=None, x3=None):
     ratio = x1 / x2
     if x3 is None:
         return x1 * ratio
-    return x1 * ratio ** 3 * (x3 / x1)
+    out = ratio * ratio  # x1 ratio**3 (x3 / x1)
+    out *= ratio
+    out *= x3
+    return out
 
 
 class _PlasticState:
@@ -1688,10 +1691,11 @@ class _PlasticState:
         the return mapping of those that flow."""
         trial *= E
         size *= E
-        if not _any(np.greater(size, self.quasi_static, out=over)):
+        np.greater(size, self.quasi_static, out=over)
+        every = _all(over)
+        if not every and not _any(over):
             self._elastic(trial, E)
             return False
-        every = _all(over)
         if every:  # the common case while the rod flows: no gathering
             flowing, size_f, p_f, quasi_static_f, age = slice(None), size, self.p, self.quasi_static, self.age
             x1, x2, x3 = self.increments
@@ -1772,16 +1776,19 @@ class _PlasticState:
         else:
             points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
         h = 1e-6 * x
-        np.add(p, x, out=points[0])
-        np.add(points[0], h, out=points[1])
+        p0, p1, r0 = points[0], points[1], rates[0]
+        np.add(p, x, out=p0)
+        np.add(p0, h, out=p1)
         points[2:] = points[:2]
-        np.divide(x, dt, out=rates[0])
-        np.multiply(rates[0], 1.0 + 1e-6, out=rates[1])
+        np.divide(x, dt, out=r0)
+        np.multiply(r0, 1.0 + 1e-6, out=rates[1])
         flow = np.asarray(self.flow(points.reshape(-1), rates.reshape(-1)), dtype=float).reshape(4, -1)
-        law_slope = flow[1] - flow[0]
+        f0, f1 = flow[0], flow[1]
+        law_slope = f1 - f0
         law_slope /= h
         self.flat = not _any(law_slope)
-        g = size - self.E * x - flow[0]
+        g = size - self.E * x
+        g -= f0
         slope = law_slope + self.E
         # (floating-point warnings are off here: _run marches under np.errstate)
         if _min(law_slope) > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
