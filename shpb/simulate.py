@@ -165,13 +165,13 @@ References
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 import numbers
 from dataclasses import dataclass, field
 from typing import Callable, Optional
 
 import numpy as np
-import pandas as pd
 
 from .errors import AnalysisError, InputError
 from .io import station_name
@@ -711,7 +711,7 @@ class VirtualShotResult:
         specimen, the specimen starts to load up to ``dt / 2`` earlier (see
         the module notes on bar ends).
     truth : pandas.DataFrame
-        On the shifted time base (t = 0 at ``foot_arrival_time``), one row per
+        (A property, built on first use from ``truth_columns``.) On the shifted time base (t = 0 at ``foot_arrival_time``), one row per
         sample: ``time_us``; ``stress_MPa`` (mean of the specimen element
         stresses, engineering, compression positive); ``strain`` (mean
         engineering strain); ``strain_rate_per_s`` ((v_front - v_back)/L_s);
@@ -719,7 +719,7 @@ class VirtualShotResult:
         and transmitted-bar faces, compression positive). Specimen columns
         are NaN for a bars-together shot.
     energies : pandas.DataFrame
-        ``time_us`` (shifted), ``kinetic_J``, ``strain_J`` (recoverable
+        (A property, built on first use from ``energy_columns``.) ``time_us`` (shifted), ``kinetic_J``, ``strain_J`` (recoverable
         elastic), ``plastic_J`` (work dissipated by plastic flow so far),
         ``total_J``; kinetic energy in the leapfrog-consistent form
         ``sum m v(n-1/2) v(n+1/2) / 2``.
@@ -745,18 +745,35 @@ class VirtualShotResult:
         each a dict of ``bar``, ``distance_m`` (from its specimen face), ``strain``
         (the bar strain there [1], compression positive, on ``time``) and
         its split into ``toward_specimen`` and ``away_from_specimen`` [1].
+    truth_columns, energy_columns : dict
+        The columns of ``truth`` and ``energies`` (name -> array), for a
+        caller that does without pandas (``shpb simulate`` does not import it).
     """
 
     time: np.ndarray
     strain_incident_gauge: np.ndarray
     strain_transmitted_gauge: np.ndarray
     foot_arrival_time: float
-    truth: pd.DataFrame
-    energies: pd.DataFrame
+    truth_columns: dict = field(repr=False)
+    energy_columns: dict = field(repr=False)
     grid: dict
     spec: VirtualShotSpec = field(repr=False)
     gauge_waves: dict = field(default_factory=dict, repr=False)
     stations: dict = field(default_factory=dict, repr=False)
+
+    @functools.cached_property
+    def truth(self):
+        """The specimen truth as a DataFrame (see the class notes)."""
+        import pandas as pd
+
+        return pd.DataFrame(self.truth_columns)
+
+    @functools.cached_property
+    def energies(self):
+        """The energy balance as a DataFrame (see the class notes)."""
+        import pandas as pd
+
+        return pd.DataFrame(self.energy_columns)
 
 
 # --------------------------------------------------------------------------- validation & grid
@@ -1854,21 +1871,21 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
     kept_time = rec[:, 0]
     rec = np.column_stack([time] + [np.interp(time, rec[:, 0], rec[:, k]) for k in range(1, rec.shape[1])])
     t_us = (time - foot) * 1e6
-    truth = pd.DataFrame({
+    truth = {
         "time_us": t_us,
         "stress_MPa": rec[:, 3] * 1e-6,
         "strain": rec[:, 4],
         "strain_rate_per_s": rec[:, 5],
         "force_front_kN": rec[:, 6] * 1e-3,
         "force_back_kN": rec[:, 7] * 1e-3,
-    })
-    energies = pd.DataFrame({
+    }
+    energies = {
         "time_us": t_us,
         "kinetic_J": rec[:, 8],
         "strain_J": rec[:, 9],
         "plastic_J": rec[:, 10],
         "total_J": rec[:, 8] + rec[:, 9] + rec[:, 10],
-    })
+    }
     grid = {
         "dt_s": dt,
         "steps": len(impact_force),
@@ -1895,7 +1912,7 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
                    for name, (bar, d, strain, toward, away) in (stations or {}).items()}
     return VirtualShotResult(time=time, strain_incident_gauge=rec[:, 1].copy(),
                              strain_transmitted_gauge=rec[:, 2].copy(), foot_arrival_time=foot,
-                             truth=truth, energies=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
+                             truth_columns=truth, energy_columns=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
                              stations=station_out)
 
 
