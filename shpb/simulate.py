@@ -1328,7 +1328,7 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
                if r.law is not None]
     work = [0.0] * (n_steps + 1)
     reader = _GridReader(grid, rods, spec, n_steps)
-    history = [tuple(u)]  # end node velocities, v(-1/2) first
+    history = list(u)  # end node velocities, v(-1/2) first, one step after the other
 
     v, eps, F = grid.v, grid.eps, grid.F
     F_right, F_left, v_right, v_left = grid.F_pad[1:], grid.F_pad[:-1], v[1:], v[:-1]
@@ -1416,7 +1416,7 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
                     gaps[k] = 0.0
                 else:
                     gaps[k] = g
-            history.append(tuple(u))
+            history += u
             if resting and any(u[k] for k in grid_ends):
                 resting = False
                 if dense:
@@ -1457,14 +1457,14 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
                 for p in plastic:
                     p.update(dt)
 
-    history += [history[-1]] * (n_steps - march)  # (incident_wave_only: the steps not marched)
+    history += u * (n_steps - march)  # (incident_wave_only: the steps not marched)
     for line in lines.values():
         line.finish()
     left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
     impulses = np.array(impulses).reshape(len(gaps), n_steps + 1)
     impact_force = drive if drive is not None else impulses[left_of["incident"]] / dt
     # kinetic energy of the delay lines' end nodes (leapfrog form m v(n-1/2) v(n+1/2) / 2)
-    history = np.array(history)
+    history = np.array(history).reshape(n_steps + 2, len(u))
     own = np.array([k for name in lines for k in (ends[name, "first"], ends[name, "last"])], dtype=np.int64)
     end_kinetic = 0.5 * (history[:-1, own] * np.array(u_mass)[own] * history[1:, own]).sum(axis=1) if own.size \
         else np.zeros(n_steps + 1)
