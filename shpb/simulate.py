@@ -1665,8 +1665,10 @@ class _PlasticState:
       taken from there with one call of the law (:meth:`_newton_from`); it
       stands if it changes the increment by at most ``1e-5`` of itself (the
       second convergence test of :func:`_solve_increment`), which it
-      usually does. Otherwise, and where an element starts to flow, the
-      general iteration takes over from where the step led.
+      usually does; if not, and where it led lies inside the bracket
+      ``(0, |s_trial| / E)``, a second step is taken from there. Otherwise,
+      and where an element starts to flow, the general iteration takes over
+      from where the steps led.
     """
 
     def __init__(self, rod: _Rod, eps, F):
@@ -1733,6 +1735,8 @@ class _PlasticState:
                 guess = None
         if guess is not None:
             inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)
+            if inc is None and _all(guess > 0.0) and _all(guess * E < size_f):  # still inside the bracket:
+                inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)  # a second Newton step
         if inc is None:  # the general iteration, from where the step led or from the last increments
             if guess is None:
                 with np.errstate(divide="ignore", invalid="ignore"):
