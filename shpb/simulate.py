@@ -65,6 +65,18 @@ and forces in elements at whole steps; lumped nodal masses.
   strains, the two travelling waves at each gauge and the energies are read
   from the wave histories afterwards (the energies' cross term
   ``sum R_j L_j`` for every step at once by FFT, :func:`_band_pair_sums`).
+* **What is marched, and how cheaply.** A small grid (the specimen, the
+  shaper) takes its elastic step as one matrix product on its state
+  (:meth:`_Grid.step_matrix`; plastic strains enter as offsets), and a
+  plastic rod takes the return mapping only in a step where one of its
+  forces reaches its smallest flow stress; a grid at rest (before the wave
+  reaches the specimen) is not stepped until a contact on one of its end
+  nodes closes, since until then a step changes nothing. The same
+  equations as the node-by-node march, in another order of the floating-
+  point operations: elastic results agree to round-off; where a contact
+  chatters after the test (a specimen rattling between the bars once
+  unloaded), round-off decides when it opens and closes, as it did between
+  the node-by-node march and the delay lines.
 * **Recorder clock.** The model keeps the two steps around each sample time
   and interpolates linearly. At Courant 1 a bar element's strain is the
   element average, which varies linearly in time while a front crosses it,
@@ -2532,6 +2544,13 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
     IncidentPulse
         Sampled at the full shot's model time step, from ``lead`` before the
         impact until the pulse has died away (below 1e-4 of its peak for 5 us).
+
+    Notes
+    -----
+    The run stops once the impact face has sent in every wave the reading
+    needs (the bar is a delay line: the reading at the station repeats the
+    impact face's wave a transit later), about half the steps of the whole
+    run, with the same numbers.
 
     Raises
     ------
