@@ -1359,7 +1359,7 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     # of squares against the smallest flow stress) and, where it may flow, takes the return mapping and the
     # node velocities are done again from its forces. A large grid (a bar with a plastic law) steps by its
     # differences, element by element.
-    dense = on_grid and state.size <= _DENSE_SIZE
+    dense = on_grid and not drive_on_grid and state.size <= _DENSE_SIZE  # (a driven bar on the grid is large)
     kept = np.empty((_CHUNK, state.size + dense))
     row = 0
     if dense:
@@ -1369,8 +1369,6 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
         checks = [(p, grid.column("eps", p.rod.name, 0), nn + nl + 1 + grid.links[p.rod.name].start,
                    grid.links[p.rod.name].stop - grid.links[p.rod.name].start) for p in plastic]
         F_pad_cols = slice(nn + nl, nn + 2 * nl + 2)
-        if drive_on_grid:
-            grid_kick = (drive * dt_over_m[i_grid_drive]).tolist()
     # A grid at rest (no velocity, no force) stays at rest until a contact on one of its end nodes closes: until
     # then its steps change nothing and are skipped (the reader's rows of those steps are zero already).
     resting = on_grid and not drive_on_grid and not state.any()
@@ -1399,8 +1397,6 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
                     np.add(prev[:nn], node_force, out=cur[:nn])
                     if flowed:
                         grid.set_offsets(M, plastic)
-                if drive_on_grid:
-                    cur[i_grid_drive] += grid_kick[n]
                 for k, node in copies:
                     u[k] = cur.item(node)
             elif on_grid and not resting:
