@@ -334,12 +334,16 @@ class TrueStressLaw:
 
     def flow_stress(self, plastic_strain, strain_rate):
         """Engineering flow stress [Pa] at engineering plastic strain [1] and rate [1/s]."""
-        p = np.minimum(np.maximum(np.asarray(plastic_strain, dtype=float), 0.0), 0.999)  # (np.clip: slower)
-        stretch = 1.0 - p
-        true = np.asarray(self.law.flow_stress(-np.log(stretch), np.asarray(strain_rate, dtype=float) / stretch),
-                          dtype=float)
-        root = np.sqrt(np.maximum(stretch * stretch - 4.0 * true / self.modulus, 0.0))
-        return 2.0 * true / (stretch + root)
+        stretch = np.array(plastic_strain, dtype=float)  # 1 - p, p clipped to [0, 0.999]
+        np.maximum(stretch, 0.0, out=stretch)
+        np.minimum(stretch, 0.999, out=stretch)
+        np.subtract(1.0, stretch, out=stretch)
+        true = np.asarray(self.law.flow_stress(-np.log(stretch), np.divide(strain_rate, stretch)), dtype=float)
+        root = true * (-4.0 / self.modulus)
+        root += stretch * stretch
+        root = np.sqrt(np.maximum(root, 0.0))
+        root += stretch
+        return 2.0 * true / root
 
 
 def _as_law(law, where):
@@ -1284,7 +1288,7 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     delay line) has sent in every wave its gauge's reading of the wave
     travelling toward the specimen needs, a bar transit before the last step
     (:meth:`_DelayLine.node_waves` reads ``R_j(n) = R_0(n - j)``); the other
-    records are then left incomplete.
+    records are then left incomplete, the energies out.
     """
     by_name = {r.name: r for r in rods}
     n_steps = march = int(kept_steps[-1])
@@ -1478,7 +1482,7 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
         else np.zeros(n_steps + 1)
     faces = {name: (history[:, ends[name, "first"]], history[:, ends[name, "last"]]) for name in lines}
     rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, faces, left_of,
-                         dt, kept_steps)
+                         dt, kept_steps, energies=not incident_wave_only)
     stations = _station_records(spec, by_name, lines, reader, kept_steps)
     return rec, impact_force, e0, peak, stations
 
@@ -1590,10 +1594,12 @@ def _station_records(spec, by_name, lines, reader, kept_steps):
     return out
 
 
-def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps):
+def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps,
+             energies=True):
     """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods.
 
-    ``faces`` holds each delay line's end node velocities, v(-1/2) first.
+    ``faces`` holds each delay line's end node velocities, v(-1/2) first; without ``energies`` the delay lines'
+    energies are left out (NaN).
     """
     ks = kept_steps
     rec = np.full((ks.size, 15), np.nan)
@@ -1632,7 +1638,9 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, fa
         # velocities at n: mean of the half steps on either side (the specimen starts at rest)
         rec[:, 5] = (0.5 * (v_front_before + v_front) - 0.5 * (v_back_before + v_back)) / specimen.spec.length
     kinetic, strain_energy = reader.kinetic + end_kinetic, reader.strain_energy.copy()
-    for line in lines.values():
+    if not energies:
+        kinetic[:] = strain_energy[:] = np.nan
+    for line in lines.values() if energies else ():
         k_line, s_line = line.energies(kinetic.size - 1)
         kinetic += k_line
         strain_energy += s_line
