@@ -1708,6 +1708,7 @@ class _PlasticState:
         self.run = 0  # steps in a row in which every element flowed
         self.work_buffer = np.zeros(m)
         self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments (_newton_from)
+        self.law_args = self.points.reshape(-1), self.rates.reshape(-1)  # (views)
 
     def update(self, dt):
         trial, size, over, E = self.trial, self.size, self.over, self.E
@@ -1818,8 +1819,10 @@ class _PlasticState:
         m = x.size
         if m == self.rod.n:
             points, rates = self.points, self.rates
+            strains, strain_rates = self.law_args
         else:
             points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
+            strains, strain_rates = points.reshape(-1), rates.reshape(-1)
         h = 1e-6 * x
         p0, p1, r0 = points[0], points[1], rates[0]
         np.add(p, x, out=p0)
@@ -1827,7 +1830,7 @@ class _PlasticState:
         points[2:] = points[:2]
         np.divide(x, dt, out=r0)
         np.multiply(r0, 1.0 + 1e-6, out=rates[1])
-        flow = np.asarray(self.flow(points.reshape(-1), rates.reshape(-1)), dtype=float).reshape(4, -1)
+        flow = np.asarray(self.flow(strains, strain_rates), dtype=float).reshape(4, -1)
         f0, f1 = flow[0], flow[1]
         law_slope = f1 - f0
         law_slope /= h
@@ -1837,9 +1840,11 @@ class _PlasticState:
         slope = law_slope + self.E
         # (floating-point warnings are off here: _run marches under np.errstate)
         if _min(law_slope) > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
-            change = np.expm1(g / (slope * x))
+            change = slope * x
+            np.divide(g, change, out=change)
+            np.expm1(change, out=change)
             dx = x * change
-            converged = _max(np.abs(change)) <= 1e-5
+            converged = _max(np.abs(change, out=g)) <= 1e-5  # (g: no longer needed)
         else:
             dx = g / slope
             if _max(law_slope) > self.E:
