@@ -1376,7 +1376,9 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     # A grid at rest (no velocity, no force) stays at rest until a contact on one of its end nodes closes: until
     # then its steps change nothing and are skipped (the reader's rows of those steps are zero already).
     resting = on_grid and not drive_on_grid and not state.any()
-    grid_ends = [k for k, _ in copies]
+    grid_ends = {k for k, _ in copies}
+    contacts = [c + (c[1] in grid_ends or c[2] in grid_ends,) for c in contacts]  # ... touches the grid
+    woken = False  # an impulse on a grid end node
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # the return mapping brackets its steps
         for n in range(march + 1):
             # grid: strains n-1 -> n from v(n-1/2) (element forces, radial return in the plastic rods), then
@@ -1417,7 +1419,7 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
             if drive_on_line:
                 u[i_drive] += drive_kick[n]
             # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
-            for k, a, b, inv_a, inv_b, inv_w in contacts:
+            for k, a, b, inv_a, inv_b, inv_w, on_grid_end in contacts:
                 va, vb = u[a], u[b]
                 g = gaps[k] + dt * (vb - va)
                 if g < 0.0:
@@ -1426,10 +1428,11 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
                     u[b] = vb + impulse * inv_b
                     impulses[k][n] = impulse
                     gaps[k] = 0.0
+                    woken = woken or on_grid_end
                 else:
                     gaps[k] = g
             history += u
-            if resting and any(u[k] for k in grid_ends):
+            if resting and woken and any(u[k] for k in grid_ends):
                 resting = False
                 if dense:
                     cur = kept[row]
