@@ -542,16 +542,24 @@ def atomic_write_csv(path, df, float_format="%.6g") -> None:
     An all-numeric table (the curves of a shot) is formatted by numpy, several
     times faster than pandas' per-value formatting; NaN is written ``nan``.
     """
-    buf = _io.StringIO()
     import pandas as pd
 
     numeric = len(df.columns) > 0 and all(pd.api.types.is_numeric_dtype(t) and not pd.api.types.is_bool_dtype(t)
                                           for t in df.dtypes)
     if numeric:
-        buf.write(",".join(str(c) for c in df.columns) + "\n")
-        np.savetxt(buf, df.to_numpy(dtype=float), fmt=float_format, delimiter=",")
-    else:
-        df.to_csv(buf, index=False, float_format=float_format)
+        atomic_write_table(path, df.columns, df.to_numpy(dtype=float), float_format)
+        return
+    buf = _io.StringIO()
+    df.to_csv(buf, index=False, float_format=float_format)
+    atomic_write_text(path, buf.getvalue())
+
+
+def atomic_write_table(path, columns, values, float_format="%.6g") -> None:
+    """Write a numeric table (column names, 2-D float array) as CSV atomically, without pandas: a header line,
+    then the rows formatted by numpy (NaN written ``nan``); :func:`atomic_write_csv` writes numeric frames so."""
+    buf = _io.StringIO()
+    buf.write(",".join(str(c) for c in columns) + "\n")
+    np.savetxt(buf, values, fmt=float_format, delimiter=",")
     atomic_write_text(path, buf.getvalue())
 
 

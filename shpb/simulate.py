@@ -65,6 +65,18 @@ and forces in elements at whole steps; lumped nodal masses.
   strains, the two travelling waves at each gauge and the energies are read
   from the wave histories afterwards (the energies' cross term
   ``sum R_j L_j`` for every step at once by FFT, :func:`_band_pair_sums`).
+* **What is marched, and how cheaply.** A small grid (the specimen, the
+  shaper) takes its elastic step as one matrix product on its state
+  (:meth:`_Grid.step_matrix`; plastic strains enter as offsets), and a
+  plastic rod takes the return mapping only in a step where one of its
+  forces reaches its smallest flow stress; a grid at rest (before the wave
+  reaches the specimen) is not stepped until a contact on one of its end
+  nodes closes, since until then a step changes nothing. The same
+  equations as the node-by-node march, in another order of the floating-
+  point operations: elastic results agree to round-off; where a contact
+  chatters after the test (a specimen rattling between the bars once
+  unloaded), round-off decides when it opens and closes, as it did between
+  the node-by-node march and the delay lines.
 * **Recorder clock.** The model keeps the two steps around each sample time
   and interpolates linearly. At Courant 1 a bar element's strain is the
   element average, which varies linearly in time while a front crosses it,
@@ -165,13 +177,13 @@ References
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 import numbers
 from dataclasses import dataclass, field
 from typing import Callable, Optional
 
 import numpy as np
-import pandas as pd
 
 from .errors import AnalysisError, InputError
 from .io import station_name
@@ -322,12 +334,16 @@ class TrueStressLaw:
 
     def flow_stress(self, plastic_strain, strain_rate):
         """Engineering flow stress [Pa] at engineering plastic strain [1] and rate [1/s]."""
-        p = np.clip(np.asarray(plastic_strain, dtype=float), 0.0, 0.999)
-        stretch = 1.0 - p
-        true = np.asarray(self.law.flow_stress(-np.log(stretch), np.asarray(strain_rate, dtype=float) / stretch),
-                          dtype=float)
-        root = np.sqrt(np.maximum(stretch * stretch - 4.0 * true / self.modulus, 0.0))
-        return 2.0 * true / (stretch + root)
+        stretch = np.array(plastic_strain, dtype=float)  # 1 - p, p clipped to [0, 0.999]
+        np.maximum(stretch, 0.0, out=stretch)
+        np.minimum(stretch, 0.999, out=stretch)
+        np.subtract(1.0, stretch, out=stretch)
+        true = np.asarray(self.law.flow_stress(-np.log(stretch), np.divide(strain_rate, stretch)), dtype=float)
+        root = true * (-4.0 / self.modulus)
+        root += stretch * stretch
+        root = np.sqrt(np.maximum(root, 0.0))
+        root += stretch
+        return 2.0 * true / root
 
 
 def _as_law(law, where):
@@ -711,7 +727,7 @@ class VirtualShotResult:
         specimen, the specimen starts to load up to ``dt / 2`` earlier (see
         the module notes on bar ends).
     truth : pandas.DataFrame
-        On the shifted time base (t = 0 at ``foot_arrival_time``), one row per
+        (A property, built on first use from ``truth_columns``.) On the shifted time base (t = 0 at ``foot_arrival_time``), one row per
         sample: ``time_us``; ``stress_MPa`` (mean of the specimen element
         stresses, engineering, compression positive); ``strain`` (mean
         engineering strain); ``strain_rate_per_s`` ((v_front - v_back)/L_s);
@@ -719,7 +735,7 @@ class VirtualShotResult:
         and transmitted-bar faces, compression positive). Specimen columns
         are NaN for a bars-together shot.
     energies : pandas.DataFrame
-        ``time_us`` (shifted), ``kinetic_J``, ``strain_J`` (recoverable
+        (A property, built on first use from ``energy_columns``.) ``time_us`` (shifted), ``kinetic_J``, ``strain_J`` (recoverable
         elastic), ``plastic_J`` (work dissipated by plastic flow so far),
         ``total_J``; kinetic energy in the leapfrog-consistent form
         ``sum m v(n-1/2) v(n+1/2) / 2``.
@@ -745,18 +761,35 @@ class VirtualShotResult:
         each a dict of ``bar``, ``distance_m`` (from its specimen face), ``strain``
         (the bar strain there [1], compression positive, on ``time``) and
         its split into ``toward_specimen`` and ``away_from_specimen`` [1].
+    truth_columns, energy_columns : dict
+        The columns of ``truth`` and ``energies`` (name -> array), for a
+        caller that does without pandas (``shpb simulate`` does not import it).
     """
 
     time: np.ndarray
     strain_incident_gauge: np.ndarray
     strain_transmitted_gauge: np.ndarray
     foot_arrival_time: float
-    truth: pd.DataFrame
-    energies: pd.DataFrame
+    truth_columns: dict = field(repr=False)
+    energy_columns: dict = field(repr=False)
     grid: dict
     spec: VirtualShotSpec = field(repr=False)
     gauge_waves: dict = field(default_factory=dict, repr=False)
     stations: dict = field(default_factory=dict, repr=False)
+
+    @functools.cached_property
+    def truth(self):
+        """The specimen truth as a DataFrame (see the class notes)."""
+        import pandas as pd
+
+        return pd.DataFrame(self.truth_columns)
+
+    @functools.cached_property
+    def energies(self):
+        """The energy balance as a DataFrame (see the class notes)."""
+        import pandas as pd
+
+        return pd.DataFrame(self.energy_columns)
 
 
 # --------------------------------------------------------------------------- validation & grid
@@ -942,6 +975,13 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
        doi:10.1088/0370-1301/62/11/302.
     .. [2] K. F. Graff, Wave Motion in Elastic Solids, 1975, ch. 2.
     """
+    return _shot(spec)
+
+
+def _shot(spec, incident_wave_only=False):
+    """:func:`simulate_shot`; with ``incident_wave_only`` (for :func:`incident_pulse`) the march stops at the
+    last step the incident gauge's wave travelling toward the specimen needs (the incident bar is a delay line),
+    and only that wave, ``time`` and ``grid`` of the result hold the shot's values."""
     laws = _check_spec(spec)
     dt = _time_step(spec)
     rods = _build_rods(spec, laws, dt)
@@ -949,7 +989,7 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
     t_samples = np.arange(int(math.floor(spec.duration * spec.sample_rate + 1e-9)) + 1) / spec.sample_rate
     lower = np.floor(t_samples / dt + 1e-9).astype(np.int64)
     kept_steps = np.union1d(lower, lower + 1)
-    rec, impact_force, e0, peak, stations = _run(spec, rods, dt, kept_steps)
+    rec, impact_force, e0, peak, stations = _run(spec, rods, dt, kept_steps, incident_wave_only)
     for name, (value, _) in peak.items():
         if value >= 1.0:
             raise AnalysisError(f"the {name} was crushed to zero length (engineering strain {value:.2f}); the "
@@ -962,6 +1002,11 @@ def simulate_shot(spec: VirtualShotSpec) -> VirtualShotResult:
 _COURANT_ONE = ("striker", "incident", "transmitted")
 #: Steps of grid state kept at a time before they are reduced to the recorded quantities.
 _CHUNK = 1024
+#: Largest grid state (values) stepped by one matrix product (_Grid.step_matrix) rather than by differences.
+_DENSE_SIZE = 160
+# reductions of the small arrays of the time stepping, called directly (ndarray.max() and the like add a
+# Python layer that costs more than the reduction itself on a specimen's 20 elements)
+_max, _min, _any, _all = np.maximum.reduce, np.minimum.reduce, np.logical_or.reduce, np.logical_and.reduce
 
 
 class _DelayLine:
@@ -1176,6 +1221,7 @@ class _Grid:
         self.mass = np.array(mass)
         self.dt_over_m = dt / self.mass if mass else self.mass
         self.EA, self.dt_over_dx, self.dx_over_EA = np.array(EA), np.array(dt_over_dx), np.array(dx_over_EA)
+        self.minus_EA = -self.EA
         self.n_nodes, self.n_links = len(mass), len(EA)
         nn, nl = self.n_nodes, self.n_links
         self.state = np.zeros(nn + 2 * nl + 2)
@@ -1186,6 +1232,37 @@ class _Grid:
         if "striker" in self.first:
             self.v[self.first["striker"]:self.last["striker"] + 1] = spec.striker_speed
 
+    def step_matrix(self):
+        """The elastic step as one matrix on ``[state, 1]``: from the state after the contacts of step n
+        (``v(n+1/2)``, ``eps(n)``, ``F(n)``) to the state of step n+1 before its contacts (``eps(n+1) = eps(n) +
+        dt/dx (v_(j+1) - v_j)``, ``F(n+1) = EA eps(n+1)``, ``v(n+3/2) = v(n+1/2) + dt/m (F_j - F_(j-1))``); the
+        last column holds the forces' offsets (:meth:`set_offsets`)."""
+        nn, nl = self.n_nodes, self.n_links
+        size = self.state.size
+        M = np.zeros((size + 1, size + 1))
+        links = np.arange(nl)
+        eps_rows, F_rows = nn + links, nn + nl + 1 + links
+        M[eps_rows, eps_rows] = 1.0
+        M[eps_rows, links + 1] += self.dt_over_dx
+        M[eps_rows, links] -= self.dt_over_dx
+        M[F_rows] = self.EA[:, None] * M[eps_rows]
+        F_pad_rows = M[nn + nl:nn + 2 * nl + 2]  # (the pads' rows are zero)
+        M[:nn] = self.dt_over_m[:, None] * (F_pad_rows[1:] - F_pad_rows[:-1])
+        M[np.arange(nn), np.arange(nn)] += 1.0
+        M[size, size] = 1.0
+        return M
+
+    def set_offsets(self, M, plastic):
+        """Write the plastic strains' offsets into the step matrix's last column: ``F = EA (eps - eps_p)``."""
+        nn, nl = self.n_nodes, self.n_links
+        column = M[:, -1]
+        F_pad = column[nn + nl:nn + 2 * nl + 2]
+        for p in plastic:
+            sl = self.links[p.rod.name]
+            np.multiply(self.minus_EA[sl], p.eps_p, out=F_pad[1 + sl.start:1 + sl.stop])
+        np.subtract(F_pad[1:], F_pad[:-1], out=column[:nn])
+        column[:nn] *= self.dt_over_m
+
     def column(self, kind, name, index):
         """Column of the state array holding node ``index`` (``kind = "v"``) or element ``index``
         (``"eps"``) of rod ``name``."""
@@ -1194,7 +1271,7 @@ class _Grid:
         return self.n_nodes + self.links[name].start + index
 
 
-def _run(spec, rods, dt, kept_steps):
+def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     """March the model; return the kept rows, the force entering the incident bar, E0, peak strains.
 
     Per step: the grid's node velocities from its element forces and the
@@ -1206,9 +1283,19 @@ def _run(spec, rods, dt, kept_steps):
     Python floats; the grid is numpy. What the records need is read
     afterwards from the delay lines' histories and from the grid states,
     kept step by step.
+
+    With ``incident_wave_only`` the march stops once the incident bar (a
+    delay line) has sent in every wave its gauge's reading of the wave
+    travelling toward the specimen needs, a bar transit before the last step
+    (:meth:`_DelayLine.node_waves` reads ``R_j(n) = R_0(n - j)``); the other
+    records are then left incomplete, the energies out.
     """
     by_name = {r.name: r for r in rods}
-    n_steps = int(kept_steps[-1])
+    n_steps = march = int(kept_steps[-1])
+    if incident_wave_only:
+        incident = by_name["incident"]
+        j0 = _directional_weights(incident, spec.incident_gauge_distance, True)[0] - incident.node0
+        march = max(0, n_steps - j0 + 1)
     # elastic rods at Courant 1: the bars and the striker, and the specimen or shaper when it sets the step
     lines = {r.name: _DelayLine(r, n_steps, spec.striker_speed if r.name == "striker" else 0.0) for r in rods
              if r.law is None and (r.name in _COURANT_ONE or abs(r.spec.wave_speed * dt / r.dx - 1.0) < 1e-12)}
@@ -1257,86 +1344,148 @@ def _run(spec, rods, dt, kept_steps):
                if r.law is not None]
     work = [0.0] * (n_steps + 1)
     reader = _GridReader(grid, rods, spec, n_steps)
-    history = [tuple(u)]  # end node velocities, v(-1/2) first
+    history = list(u)  # end node velocities, v(-1/2) first, one step after the other
 
     v, eps, F = grid.v, grid.eps, grid.F
     F_right, F_left, v_right, v_left = grid.F_pad[1:], grid.F_pad[:-1], v[1:], v[:-1]
     dt_over_m, dt_over_dx, EA = grid.dt_over_m, grid.dt_over_dx, grid.EA
-    node_force, dv = np.zeros(grid.n_nodes), np.zeros(grid.n_links)
-    on_grid = grid.n_nodes > 0
+    nn, nl = grid.n_nodes, grid.n_links
+    node_force, dv = np.zeros(nn), np.zeros(nl)
+    on_grid = nn > 0
     drive_on_grid = drive is not None and not drive_on_line
+    i_grid_drive = grid.first.get("incident")
     # the plastic rods set their own forces: the elastic ones are needed only if the grid holds other rods
-    elastic_forces = sum(p.rod.n for p in plastic) < grid.n_links
+    elastic_forces = sum(p.rod.n for p in plastic) < nl
     contacts = [(k,) + c for k, c in enumerate(contacts)]
-    state, kept = grid.state, np.empty((_CHUNK, grid.state.size))
+    state = grid.state
+    # A small grid (a specimen, a shaper) takes its elastic step as one matrix product (Grid.step_matrix) on its
+    # state and a trailing 1, written straight into the kept rows; a plastic rod then checks its forces (the sum
+    # of squares against the smallest flow stress) and, where it may flow, takes the return mapping and the
+    # node velocities are done again from its forces. A large grid (a bar with a plastic law) steps by its
+    # differences, element by element.
+    dense = on_grid and not drive_on_grid and state.size <= _DENSE_SIZE  # (a driven bar on the grid is large)
+    kept = np.empty((_CHUNK, state.size + dense))
     row = 0
-    for n in range(n_steps + 1):
-        # nodes: v(n-1/2) -> v(n+1/2) from the element forces at n
-        if on_grid:
-            np.subtract(F_right, F_left, out=node_force)
-            if drive_on_grid:
-                node_force[grid.first["incident"]] += drive[n]
-            node_force *= dt_over_m
-            v += node_force
-            for k, node in copies:
-                u[k] = v.item(node)
-        for R, L, N, _, kick_first, kick_last, first, last in line_steps:
-            u[first] += kick_first * (R[N + n] + L[n])
-            u[last] -= kick_last * (R[n + 1] + L[n + N - 1])
-        if drive_on_line:
-            u[i_drive] += drive_kick[n]
-        # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
-        for k, a, b, inv_a, inv_b, inv_w in contacts:
-            va, vb = u[a], u[b]
-            g = gaps[k] + dt * (vb - va)
-            if g < 0.0:
-                impulse = -g * inv_w
-                u[a] = va - impulse * inv_a
-                u[b] = vb + impulse * inv_b
-                impulses[k][n] = impulse
-                gaps[k] = 0.0
-            else:
-                gaps[k] = g
-        history.append(tuple(u))
-        if on_grid:
-            for k, node in copies:
-                v[node] = u[k]
-            kept[row] = state
-            row += 1
-            if row == _CHUNK or n == n_steps:
-                reader.read(kept[:row], n + 1 - row)
-                row = 0
-        for p in plastic:
-            work[n] += p.work
-        if n == n_steps:
-            break
-        # delay lines: the waves their end nodes send in at n+1
-        for R, L, N, inv_c, _, _, first, last in line_steps:
-            R[N + n + 1] = L[n] - u[first] * inv_c
-            L[n + N] = R[n + 1] + u[last] * inv_c
-        # grid elements: strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
-        if on_grid:
-            np.subtract(v_right, v_left, out=dv)
-            dv *= dt_over_dx
-            eps += dv
-            if elastic_forces:
-                np.multiply(EA, eps, out=F)
-            for p in plastic:
-                p.update(dt)
+    if dense:
+        M = grid.step_matrix()
+        grid.set_offsets(M, plastic)
+        prev = carry = np.append(state, 1.0)  # the state before the march, with the trailing 1
+        checks = [(p, grid.column("eps", p.rod.name, 0), nn + nl + 1 + grid.links[p.rod.name].start,
+                   grid.links[p.rod.name].stop - grid.links[p.rod.name].start) for p in plastic]
+        F_pad_cols = slice(nn + nl, nn + 2 * nl + 2)
+    # A grid at rest (no velocity, no force) stays at rest until a contact on one of its end nodes closes: until
+    # then its steps change nothing and are skipped (the reader's rows of those steps are zero already).
+    resting = on_grid and not drive_on_grid and not state.any()
+    grid_ends = {k for k, _ in copies}
+    contacts = [c + (c[1] in grid_ends or c[2] in grid_ends,) for c in contacts]  # ... touches the grid
+    woken = False  # an impulse on a grid end node
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # the return mapping brackets its steps
+        for n in range(march + 1):
+            # grid: strains n-1 -> n from v(n-1/2) (element forces, radial return in the plastic rods), then
+            # nodes v(n-1/2) -> v(n+1/2) from the element forces at n
+            if dense and not resting:
+                cur = kept[row]
+                np.dot(M, prev, out=cur)
+                flowed = returned = False
+                for p, e_col, f_col, m in checks:
+                    forces = cur[f_col:f_col + m]
+                    if np.dot(forces, forces) > p.force_squared and \
+                            _max(np.abs(forces, out=p.size)) > p.force_limit:  # (size: a scratch array)
+                        p.eps, p.F = cur[e_col:e_col + m], forces
+                        flowed = p.flow_step(dt) or flowed
+                        returned = True
+                    elif p.aged:
+                        p.settle()
+                if returned:  # the node velocities from the returned forces
+                    F_pad = cur[F_pad_cols]
+                    np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
+                    node_force *= dt_over_m
+                    np.add(prev[:nn], node_force, out=cur[:nn])
+                    if flowed:
+                        grid.set_offsets(M, plastic)
+                for k, node in copies:
+                    u[k] = cur.item(node)
+            elif on_grid and not resting:
+                np.subtract(F_right, F_left, out=node_force)
+                if drive_on_grid:
+                    node_force[i_grid_drive] += drive[n]
+                node_force *= dt_over_m
+                v += node_force
+                for k, node in copies:
+                    u[k] = v.item(node)
+            for R, L, N, _, kick_first, kick_last, first, last in line_steps:
+                u[first] += kick_first * (R[N + n] + L[n])
+                u[last] -= kick_last * (R[n + 1] + L[n + N - 1])
+            if drive_on_line:
+                u[i_drive] += drive_kick[n]
+            # compression-only contacts: the impulse that stops the end nodes overlapping at n+1
+            for k, a, b, inv_a, inv_b, inv_w, on_grid_end in contacts:
+                va, vb = u[a], u[b]
+                g = gaps[k] + dt * (vb - va)
+                if g < 0.0:
+                    impulse = -g * inv_w
+                    u[a] = va - impulse * inv_a
+                    u[b] = vb + impulse * inv_b
+                    impulses[k][n] = impulse
+                    gaps[k] = 0.0
+                    woken = woken or on_grid_end
+                else:
+                    gaps[k] = g
+            history += u
+            if resting and woken and any(u[k] for k in grid_ends):
+                resting = False
+                if dense:
+                    cur = kept[row]
+                    cur[:] = prev
+            if on_grid and not resting:
+                if dense:
+                    for k, node in copies:
+                        cur[node] = u[k]
+                else:
+                    for k, node in copies:
+                        v[node] = u[k]
+                    kept[row] = state
+                row += 1
+                if row == _CHUNK or n == march:
+                    reader.read(kept[:row, :state.size], n + 1 - row)
+                    if dense:
+                        prev = carry
+                        prev[:] = kept[row - 1]
+                    row = 0
+                elif dense:
+                    prev = cur
+                for p in plastic:
+                    work[n] += p.work
+            if n == march:
+                break
+            # delay lines: the waves their end nodes send in at n+1
+            for R, L, N, inv_c, _, _, first, last in line_steps:
+                R[N + n + 1] = L[n] - u[first] * inv_c
+                L[n + N] = R[n + 1] + u[last] * inv_c
+            # grid elements (by differences): strain n -> n+1 from v(n+1/2); elastic forces, then the plastic rods
+            if on_grid and not resting and not dense:
+                np.subtract(v_right, v_left, out=dv)
+                dv *= dt_over_dx
+                eps += dv
+                if elastic_forces:
+                    np.multiply(EA, eps, out=F)
+                for p in plastic:
+                    p.update(dt)
 
+    history += u * (n_steps - march)  # (incident_wave_only: the steps not marched)
     for line in lines.values():
         line.finish()
     left_of = {rods[i + 1].name: i for i in range(len(rods) - 1)}  # contact on the left of each rod
     impulses = np.array(impulses).reshape(len(gaps), n_steps + 1)
     impact_force = drive if drive is not None else impulses[left_of["incident"]] / dt
     # kinetic energy of the delay lines' end nodes (leapfrog form m v(n-1/2) v(n+1/2) / 2)
-    history = np.array(history)
+    history = np.array(history).reshape(n_steps + 2, len(u))
     own = np.array([k for name in lines for k in (ends[name, "first"], ends[name, "last"])], dtype=np.int64)
     end_kinetic = 0.5 * (history[:-1, own] * np.array(u_mass)[own] * history[1:, own]).sum(axis=1) if own.size \
         else np.zeros(n_steps + 1)
     faces = {name: (history[:, ends[name, "first"]], history[:, ends[name, "last"]]) for name in lines}
     rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, faces, left_of,
-                         dt, kept_steps)
+                         dt, kept_steps, energies=not incident_wave_only)
     stations = _station_records(spec, by_name, lines, reader, kept_steps)
     return rec, impact_force, e0, peak, stations
 
@@ -1448,10 +1597,12 @@ def _station_records(spec, by_name, lines, reader, kept_steps):
     return out
 
 
-def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps):
+def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, faces, left_of, dt, kept_steps,
+             energies=True):
     """The kept rows (time, gauges, truth, forces, energies, waves) and the peak strains of the resolved rods.
 
-    ``faces`` holds each delay line's end node velocities, v(-1/2) first.
+    ``faces`` holds each delay line's end node velocities, v(-1/2) first; without ``energies`` the delay lines'
+    energies are left out (NaN).
     """
     ks = kept_steps
     rec = np.full((ks.size, 15), np.nan)
@@ -1490,7 +1641,9 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, fa
         # velocities at n: mean of the half steps on either side (the specimen starts at rest)
         rec[:, 5] = (0.5 * (v_front_before + v_front) - 0.5 * (v_back_before + v_back)) / specimen.spec.length
     kinetic, strain_energy = reader.kinetic + end_kinetic, reader.strain_energy.copy()
-    for line in lines.values():
+    if not energies:
+        kinetic[:] = strain_energy[:] = np.nan
+    for line in lines.values() if energies else ():
         k_line, s_line = line.energies(kinetic.size - 1)
         kinetic += k_line
         strain_energy += s_line
@@ -1507,7 +1660,10 @@ def _extrapolate(x1, x2=None, x3=None):
     ratio = x1 / x2
     if x3 is None:
         return x1 * ratio
-    return x1 * ratio ** 3 * (x3 / x1)
+    out = ratio * ratio  # x1 ratio**3 (x3 / x1)
+    out *= ratio
+    out *= x3
+    return out
 
 
 class _PlasticState:
@@ -1528,8 +1684,10 @@ class _PlasticState:
       taken from there with one call of the law (:meth:`_newton_from`); it
       stands if it changes the increment by at most ``1e-5`` of itself (the
       second convergence test of :func:`_solve_increment`), which it
-      usually does. Otherwise, and where an element starts to flow, the
-      general iteration takes over from where the step led.
+      usually does; if not, and where it led lies inside the bracket
+      ``(0, |s_trial| / E)``, a second step is taken from there. Otherwise,
+      and where an element starts to flow, the general iteration takes over
+      from where the steps led.
     """
 
     def __init__(self, rod: _Rod, eps, F):
@@ -1546,27 +1704,44 @@ class _PlasticState:
         self.flat = False  # the law's slope was zero in the last Newton step (perfect plasticity)
         self.flow = rod.law.flow_stress
         self.quasi_static = np.array(self.flow(self.p, np.zeros(m)), dtype=float)  # flow_stress(p, 0)
-        self.quasi_static_min = self.quasi_static.min()
+        self._set_quasi_static_min()
         self.vol = rod.spec.area * rod.dx
         self.trial, self.size, self.over = np.zeros(m), np.zeros(m), np.zeros(m, dtype=bool)
         self.aged = False  # some element flowed in the last step
         self.run = 0  # steps in a row in which every element flowed
         self.work_buffer = np.zeros(m)
         self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments (_newton_from)
+        self.law_args = self.points.reshape(-1), self.rates.reshape(-1)  # (views)
 
     def update(self, dt):
         trial, size, over, E = self.trial, self.size, self.over, self.E
         np.subtract(self.eps, self.eps_p, out=trial)  # the elastic strain, for now
+        # elastic step, surely, if every |E trial| <= the smallest quasi-static flow stress: first by the sum of
+        # squares (one call), then element by element
+        if np.dot(trial, trial) > self.elastic_squared:
+            np.abs(trial, out=size)
+            if _max(size) * E > self.quasi_static_min:
+                return self._check_flow(trial, size, over, E, dt)
+        self._elastic(trial)
+        return False
+
+    def flow_step(self, dt):
+        """:meth:`update` for a step the caller has found may flow (a force beyond the smallest flow stress)."""
+        trial, size = self.trial, self.size
+        np.subtract(self.eps, self.eps_p, out=trial)
         np.abs(trial, out=size)
-        if size.max() * E <= self.quasi_static_min:  # elastic step, surely: the trial stress stands
-            self._elastic(trial)
-            return
+        return self._check_flow(trial, size, self.over, self.E, dt)
+
+    def _check_flow(self, trial, size, over, E, dt):
+        """The step of an element that may flow: the trial stress against each element's flow stress, then
+        the return mapping of those that flow."""
         trial *= E
         size *= E
-        if not np.greater(size, self.quasi_static, out=over).any():
+        np.greater(size, self.quasi_static, out=over)
+        every = _all(over)
+        if not every and not _any(over):
             self._elastic(trial, E)
-            return
-        every = over.all()
+            return False
         if every:  # the common case while the rod flows: no gathering
             flowing, size_f, p_f, quasi_static_f, age = slice(None), size, self.p, self.quasi_static, self.age
             x1, x2, x3 = self.increments
@@ -1578,21 +1753,24 @@ class _PlasticState:
         guess = inc = None
         if self.flat:  # the rate-independent estimate is exact
             guess = (size_f - quasi_static_f) / E
-        elif self.run >= 3 or (not every and age.min() >= 3):
+        elif self.run >= 3 or (not every and _min(age) >= 3):
             guess = _extrapolate(x1, x2, x3)
-        elif age.max() >= 1:
+        elif _max(age) >= 1:
             with np.errstate(divide="ignore", invalid="ignore"):
                 guess = np.where(age >= 3, _extrapolate(x1, x2, x3), np.where(age == 2, _extrapolate(x1, x2), x1))
-            if age.min() == 0:
+            if _min(age) == 0:
                 guess = None
         if guess is not None:
             inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)
+            if inc is None and _all(guess > 0.0) and _all(guess * E < size_f):  # still inside the bracket:
+                inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)  # a second Newton step
         if inc is None:  # the general iteration, from where the step led or from the last increments
             if guess is None:
                 with np.errstate(divide="ignore", invalid="ignore"):
                     guess = np.where(x2 > 0.0, np.where(x3 > 0.0, _extrapolate(x1, x2, x3), _extrapolate(x1, x2)), x1)
             inc, quasi_static = _solve_increment(size_f, p_f, E, self.flow, dt, guess, 1e-10, 60, quasi_static_f)
-        self.age += 1
+        if not every or self.run < 3:  # (after three steps of flow everywhere, every age is >= 3: all the
+            self.age += 1  # tests above ask of it)
         if every:
             self.quasi_static = quasi_static
             self.run += 1
@@ -1611,16 +1789,30 @@ class _PlasticState:
         self.work += float(returned @ inc) * self.vol
         self.eps_p += np.copysign(inc, trial)
         self.p += inc
-        self.quasi_static_min = self.quasi_static.min()
+        self._set_quasi_static_min()
         np.copysign(returned, trial, out=returned)
         np.multiply(returned, self.A, out=self.F)
+        return True
+
+    def _set_quasi_static_min(self):
+        """The smallest quasi-static flow stress [Pa], and the bounds on the sums of squared elastic strains
+        [1] and of squared forces [N^2] below which no element can flow."""
+        self.quasi_static_min = _min(self.quasi_static)
+        positive = self.quasi_static_min > 0.0
+        self.elastic_squared = (self.quasi_static_min / self.E) ** 2 if positive else -1.0
+        self.force_squared = (self.quasi_static_min * self.A) ** 2 if positive else -1.0
+        self.force_limit = self.quasi_static_min * self.A
+
+    def settle(self):
+        """An elastic step after plastic flow: the increments' history restarts."""
+        self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
+        self.age[:] = 0
+        self.aged, self.run = False, 0
 
     def _elastic(self, trial, scale=1.0):
         """An elastic step: the forces from the trial (strain, or stress with ``scale = E``)."""
         if self.aged:
-            self.increments = [np.zeros(self.rod.n)] + self.increments[:2]
-            self.age[:] = 0
-            self.aged, self.run = False, 0
+            self.settle()
         np.multiply(trial, self.E * self.A / scale, out=self.F)
 
     def _newton_from(self, x, size, p, dt):
@@ -1630,30 +1822,37 @@ class _PlasticState:
         m = x.size
         if m == self.rod.n:
             points, rates = self.points, self.rates
+            strains, strain_rates = self.law_args
         else:
             points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
+            strains, strain_rates = points.reshape(-1), rates.reshape(-1)
         h = 1e-6 * x
-        np.add(p, x, out=points[0])
-        np.add(points[0], h, out=points[1])
+        p0, p1, r0 = points[0], points[1], rates[0]
+        np.add(p, x, out=p0)
+        np.add(p0, h, out=p1)
         points[2:] = points[:2]
-        np.divide(x, dt, out=rates[0])
-        np.multiply(rates[0], 1.0 + 1e-6, out=rates[1])
-        flow = np.asarray(self.flow(points.reshape(-1), rates.reshape(-1)), dtype=float).reshape(4, -1)
-        law_slope = flow[1] - flow[0]
+        np.divide(x, dt, out=r0)
+        np.multiply(r0, 1.0 + 1e-6, out=rates[1])
+        flow = np.asarray(self.flow(strains, strain_rates), dtype=float).reshape(4, -1)
+        f0, f1 = flow[0], flow[1]
+        law_slope = f1 - f0
         law_slope /= h
-        self.flat = not law_slope.any()
-        g = size - self.E * x - flow[0]
+        self.flat = not _any(law_slope)
+        g = size - self.E * x
+        g -= f0
         slope = law_slope + self.E
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            if law_slope.min() > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
-                change = np.expm1(g / (slope * x))
-                dx = x * change
-                converged = np.abs(change).max() <= 1e-5
-            else:
-                dx = g / slope
-                if law_slope.max() > self.E:
-                    dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
-                converged = (np.abs(dx) <= 1e-5 * x).all()
+        # (floating-point warnings are off here: _run marches under np.errstate)
+        if _min(law_slope) > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
+            change = slope * x
+            np.divide(g, change, out=change)
+            np.expm1(change, out=change)
+            dx = x * change
+            converged = _max(np.abs(change, out=g)) <= 1e-5  # (g: no longer needed)
+        else:
+            dx = g / slope
+            if _max(law_slope) > self.E:
+                dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
+            converged = _all(np.abs(dx) <= 1e-5 * x)
         if not converged:
             return None, None, x + dx
         quasi_static = flow[3] - flow[2]
@@ -1708,21 +1907,21 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
     kept_time = rec[:, 0]
     rec = np.column_stack([time] + [np.interp(time, rec[:, 0], rec[:, k]) for k in range(1, rec.shape[1])])
     t_us = (time - foot) * 1e6
-    truth = pd.DataFrame({
+    truth = {
         "time_us": t_us,
         "stress_MPa": rec[:, 3] * 1e-6,
         "strain": rec[:, 4],
         "strain_rate_per_s": rec[:, 5],
         "force_front_kN": rec[:, 6] * 1e-3,
         "force_back_kN": rec[:, 7] * 1e-3,
-    })
-    energies = pd.DataFrame({
+    }
+    energies = {
         "time_us": t_us,
         "kinetic_J": rec[:, 8],
         "strain_J": rec[:, 9],
         "plastic_J": rec[:, 10],
         "total_J": rec[:, 8] + rec[:, 9] + rec[:, 10],
-    })
+    }
     grid = {
         "dt_s": dt,
         "steps": len(impact_force),
@@ -1749,7 +1948,7 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
                    for name, (bar, d, strain, toward, away) in (stations or {}).items()}
     return VirtualShotResult(time=time, strain_incident_gauge=rec[:, 1].copy(),
                              strain_transmitted_gauge=rec[:, 2].copy(), foot_arrival_time=foot,
-                             truth=truth, energies=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
+                             truth_columns=truth, energy_columns=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
                              stations=station_out)
 
 
@@ -2358,6 +2557,13 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
         Sampled at the full shot's model time step, from ``lead`` before the
         impact until the pulse has died away (below 1e-4 of its peak for 5 us).
 
+    Notes
+    -----
+    The run stops once the impact face has sent in every wave the reading
+    needs (the bar is a delay line: the reading at the station repeats the
+    impact face's wave a transit later), about half the steps of the whole
+    run, with the same numbers.
+
     Raises
     ------
     AnalysisError
@@ -2379,7 +2585,7 @@ def incident_pulse(spec: VirtualShotSpec, *, station=0.01, lead=20e-6) -> Incide
                                sample_rate=1.0 / dt, max_time_step=dt)
     while True:
         duration = min(transit + span, limit)
-        run = simulate_shot(dataclasses.replace(base, duration=duration))
+        run = _shot(dataclasses.replace(base, duration=duration), incident_wave_only=True)
         shift = (run.grid["rods"]["incident"]["length_m"] - station) / bar.wave_speed
         t = np.arange(int(math.floor((run.time[-1] - shift + lead) / dt)) + 1) * dt - lead  # from the impact
         strain = np.interp(t + shift, run.time, run.gauge_waves["incident_toward_specimen"], left=0.0)

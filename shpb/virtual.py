@@ -36,6 +36,7 @@ __all__ = [
     "VirtualShot",
     "load_simulation",
     "simulate_setup",
+    "TRUTH_COLUMNS",
     "truth_table",
     "record_csv_text",
     "record_metadata",
@@ -359,6 +360,10 @@ def station_channels(record: VirtualRecord) -> dict:
 
 
 # =========================================================================== outputs
+#: Columns of the truth table (:func:`truth_table`).
+TRUTH_COLUMNS = ("time_us", "stress_MPa", "strain", "strain_rate_per_s", "force_front_kN", "force_back_kN")
+
+
 def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = None, *, before=20e-6, after=20e-6):
     """The specimen truth over its loading: from ``before`` [s] ahead of the incident foot's arrival to
     ``after`` [s] past the last time a face force exceeds 1 % of its peak (within the record).
@@ -367,16 +372,23 @@ def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = Non
     ``stress_MPa``, ``strain``, ``strain_rate_per_s``, ``force_front_kN``,
     ``force_back_kN``; engineering values, compression positive.
     """
-    truth = result.truth
-    force = np.maximum(np.abs(truth.force_front_kN.to_numpy()), np.abs(truth.force_back_kN.to_numpy()))
+    import pandas as pd
+
+    return pd.DataFrame(_truth_rows(result, record, before, after), columns=list(TRUTH_COLUMNS))
+
+
+
+def _truth_rows(result, record, before, after):
+    """The rows of :func:`truth_table` as one array (columns :data:`TRUTH_COLUMNS`), without pandas."""
+    truth = result.truth_columns
+    force = np.maximum(np.abs(truth["force_front_kN"]), np.abs(truth["force_back_kN"]))
     loaded = np.flatnonzero(force > 0.01 * np.nanmax(force))
-    t = truth.time_us.to_numpy()
+    t = truth["time_us"]
     end = t[loaded[-1]] + after * 1e6 if loaded.size else t[-1]
     if record is not None:  # the record's last sample on the reduction's time origin
         end = min(end, (record.time[-1] + record.trigger_time - result.foot_arrival_time) * 1e6)
     keep = (t >= -before * 1e6) & (t <= end)
-    return truth.loc[keep, ["time_us", "stress_MPa", "strain", "strain_rate_per_s", "force_front_kN",
-                            "force_back_kN"]].reset_index(drop=True)
+    return np.column_stack([np.asarray(truth[name], dtype=float)[keep] for name in TRUTH_COLUMNS])
 
 
 def record_csv_text(record: VirtualRecord, metadata=()) -> str:
@@ -485,7 +497,7 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
     """
     import os
 
-    from .io import atomic_savefig, atomic_write_csv, atomic_write_text
+    from .io import atomic_savefig, atomic_write_table, atomic_write_text
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -495,7 +507,8 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
     atomic_write_text(paths["record"], record_csv_text(shot.record, record_metadata(shot)))
     written["record"] = paths["record"]
     if shot.setup.kind == "specimen":
-        atomic_write_csv(paths["truth"], truth_table(shot.result, shot.record), float_format="%.6g")
+        atomic_write_table(paths["truth"], TRUTH_COLUMNS, _truth_rows(shot.result, shot.record, 20e-6, 20e-6),
+                           float_format="%.6g")  # truth_table's rows, written without pandas
         written["truth"] = paths["truth"]
         rel = Path(os.path.relpath(Path(shot.setup.barset_path).resolve(), out.resolve())).as_posix()
         atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel))

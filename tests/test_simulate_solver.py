@@ -215,3 +215,19 @@ def test_specimen_crushed_in_either_solver_is_an_analysis_error():
     for solver in (simulate_shot, simulate_shot_reference):
         with pytest.raises(AnalysisError, match="shaper was crushed"):
             solver(spec)
+
+
+
+def test_pulse_run_stopped_early_reads_what_the_whole_run_records():
+    # Regression of the short run behind incident_pulse. d'Alembert (Graff 1975 ch. 2): the wave travelling
+    # away from the impact reaches a station a transit after it leaves the face, unchanged, so a run that only
+    # reads that wave at a station may stop a transit early. Its reading must be the whole run's to the last
+    # sample, here taken while the pulse (2 x 0.1 m / c0 = 40 us long) is still passing the station.
+    from shpb.simulate import _shot
+
+    spec = rig(transmitted=None, incident_gauge_distance=0.01, duration=(0.6 - 0.01) / C0 + 20e-6)
+    whole, short = simulate_shot(spec), _shot(spec, incident_wave_only=True)
+    wave, read = whole.gauge_waves["incident_toward_specimen"], short.gauge_waves["incident_toward_specimen"]
+    assert wave[-1] > 0.5 * 10.0 / (2 * C0)  # mid-pulse at the last sample (matched striker: v / (2 c0))
+    assert np.array_equal(short.time, whole.time)
+    assert np.allclose(read, wave, rtol=0, atol=1e-12 * wave.max())
