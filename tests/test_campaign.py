@@ -32,8 +32,6 @@ from shpb.setup import load_shot
 
 from synth import elastic_perfectly_plastic, linear_hardening, make_shot
 
-# its module-scoped fixtures are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_campaign")
 E_SPEC, SY, ET = 70e9, 300e6, 2e9
 EPP = elastic_perfectly_plastic(E_SPEC, SY)
 HARD = linear_hardening(E_SPEC, SY, ET)

@@ -39,7 +39,6 @@ from shpb.setup import load_shot
 
 from synth import elastic_perfectly_plastic, make_shot
 
-pytestmark = pytest.mark.xdist_group("test_faults")
 EPP = elastic_perfectly_plastic(70e9, 300e6)
 IDS = ["F-1", "F-2", "F-3"]
 FILES = ("curves.csv", "summary.json")

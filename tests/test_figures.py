@@ -24,8 +24,6 @@ from matplotlib.text import Text
 from synth import elastic_perfectly_plastic, make_shot
 
 ROOT = Path(__file__).resolve().parents[1]
-# the reduced shots are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_figures")
 
 #: Slack of the containment checks [pixels]: anti-aliasing and rounding of text extents.
 TOL = 1.5

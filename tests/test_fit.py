@@ -23,8 +23,6 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-# its module-scoped fixtures are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_fit")
 MPa = 1e6
 TR = 293.15
 

@@ -9,7 +9,6 @@ depend on the grid step. The full coverage count is
 benchmarks/bench_fit_coverage.py.
 """
 
-import json
 import math
 from pathlib import Path
 
@@ -23,9 +22,6 @@ from shpb.errors import InputError
 
 from fit_campaigns import REFERENCE_RATE, TRUTH, campaign
 from test_fit import CU, TR, jc, make_campaign, write_shot
-
-# its module-scoped fixture is built once: the whole file runs on one xdist worker (not test_fit's)
-pytestmark = pytest.mark.xdist_group("test_fit_uncertainty")
 
 
 # --------------------------------------------------------------------------- building blocks

@@ -23,8 +23,6 @@ from shpb.cli import main
 
 ROOT = Path(__file__).resolve().parents[1]
 CAMPAIGN = ROOT / "example_data" / "campaign" / "campaign.toml"
-# the reduced campaign is built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_html_report")
 SHEETS = ("HR-A61-2500-a", "HR-C10-5000-b")
 
 

@@ -20,9 +20,6 @@ from shpb.setup import with_analysis
 from robustness import (BASES, OWN_SHOTS, TRIALS, add_drift, add_noise, add_spikes, example_base, judge_trial,
                         own_base, plastic_stress_error)
 
-# the base shots are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_robustness")
-
 
 @pytest.fixture(scope="module")
 def bases(tmp_path_factory):

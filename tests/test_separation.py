@@ -25,8 +25,6 @@ from shpb.setup import AnalysisOptions, Shot, Specimen, with_analysis
 from two_station_rig import (BARSET, C0, D_BAR, FAR_GAUGE, FS, NEAR_GAUGE, NU_BAR, RECORDER, barset_toml, record_of,
                              separation_errors, virtual_shot)
 
-pytestmark = pytest.mark.xdist_group("test_separation")
-
 
 @pytest.fixture(scope="module")
 def long_shot():

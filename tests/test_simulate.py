@@ -22,8 +22,6 @@ from shpb.simulate import (
     simulate_shot,
 )
 
-# its module-scoped fixtures are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_simulate")
 
 # A generic steel bar, round values (common practice): E = 200 GPa, rho = 7850 kg/m^3, so
 # c0 = sqrt(E/rho) = 5047.54 m/s (computed from Kolsky 1949).

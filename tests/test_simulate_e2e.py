@@ -35,8 +35,6 @@ from shpb.simulate import (IncidentPulse, JohnsonCookLaw, PerfectlyPlastic, Reco
 from shpb.simulate import _fourier_delay
 from shpb.virtual import load_simulation
 
-# its module-scoped fixtures are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_simulate_e2e")
 REPO = Path(__file__).resolve().parents[1]
 E_BAR, RHO_BAR, NU_BAR, YIELD_BAR, D_BAR = 190e9, 8000.0, 0.30, 1900e6, 0.01905
 C0 = math.sqrt(E_BAR / RHO_BAR)

@@ -22,8 +22,6 @@ from shpb.setup import barset_from_dict, load_shot, read_toml, with_analysis
 
 import coverage as cov
 
-# its module-scoped fixtures are built once: the whole file runs on one xdist worker
-pytestmark = pytest.mark.xdist_group("test_uncertainty")
 ROOT = cov.ROOT
 
 
