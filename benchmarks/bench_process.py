@@ -13,7 +13,9 @@ of this shared machine hits all alike):
 * ``shpb reduce SHOT --no-figure`` and ``shpb reduce SHOT`` (with the figure
   sheet), each writing to a temporary folder; both with ``--no-uncertainty``:
   the reduction itself (``benchmarks/bench_uncertainty.py`` measures what the
-  uncertainty stage, on by default in ``shpb reduce``, adds).
+  uncertainty stage, on by default in ``shpb reduce``, adds);
+* ``shpb reduce SHOT`` with its defaults, the uncertainty stage included
+  (what a user runs; its verdict is printed before that stage starts).
 
 for the example shot (``configs/example_shot.toml``) and, with ``--long``, a
 synthetic record of 5,000,000 samples (made once by ``tests/synth.py``: an
@@ -26,6 +28,9 @@ pandas yardstick and to the fastest parser of the same round
 Targets (issue 17): on the example, with the figure at most
 2x the pandas yardstick, without at most 1.5x; the long record with the figure
 at most 1.5x, its peak memory at most 2x the record's file size.
+
+Then the time from the start of ``shpb reduce SHOT`` (defaults) to its verdict
+line on stdout, beside the pandas yardstick: what a lab waits for at the gun.
 
 Last, the in-process breakdown: a fresh process runs the steps of
 ``shpb reduce`` one by one and prints the time of each (imports, set-up files,
@@ -133,6 +138,8 @@ def cases(shot: Path, out: Path, before=None) -> dict:
             shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}a"), "--no-figure", *plain], env)
         out_cases[f"{label}shpb reduce"] = (shpb + ["reduce", str(shot), "--out", str(out / f"{label[:6]}b"),
                                                     *plain], env)
+    # what a user runs: the defaults, the uncertainty stage included (its verdict is printed before that stage)
+    out_cases["shpb reduce (defaults)"] = (shpb + ["reduce", str(shot), "--out", str(out / "c")], None)
     return out_cases
 
 
@@ -254,6 +261,36 @@ def _breakdown_child(shot_path: str, out: str, figure: bool = True) -> None:
     print(json.dumps(steps))
 
 
+def verdict_latency(shot: Path, out: Path, rounds: int) -> list:
+    """Time from the start of ``shpb reduce SHOT`` (its defaults) to its verdict line on stdout, beside the pandas
+    yardstick of the same round: lines ``name | min median max [s] | ratio min median max``."""
+    import time
+
+    shpb, _ = shpb_command()
+    record, header = record_layout(shot)
+    yard = [sys.executable, "-c", f"import pandas; pandas.read_csv({str(record)!r}, skiprows={header})"]
+    verdict, ratio = [], []
+    for k in range(rounds):
+        t0 = time.perf_counter()
+        subprocess.run(yard, check=True, capture_output=True)
+        base = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        with subprocess.Popen(shpb + ["reduce", str(shot), "--out", str(out / f"v{k}")], stdout=subprocess.PIPE,
+                              stderr=subprocess.DEVNULL, text=True) as p:
+            first = p.stdout.readline()  # the verdict line, printed before the uncertainty stage and the files
+            verdict.append(time.perf_counter() - t0)
+            p.stdout.read()
+        if "VALID" not in first:
+            raise SystemExit(f"no verdict line from shpb reduce: {first!r}")
+        ratio.append(verdict[-1] / base)
+
+    def three(xs):
+        return " ".join(f"{x:5.2f}" for x in (min(xs), statistics.median(xs), max(xs)))
+
+    return [f"time to the verdict line of shpb reduce (defaults), {rounds} round(s): {three(verdict)} s; "
+            f"/ pandas yardstick {three(ratio)}"]
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--rounds", type=int, default=5, help="rounds of the processes [default: 5]")
@@ -284,6 +321,8 @@ def main(argv=None) -> int:
             results[name] = (runs, size)
             print("\n".join(report(f"{name} ({shot.name})", runs, size)))
     print("\n".join(verdicts(results)))
+    with tempfile.TemporaryDirectory() as tmp:
+        print("\n".join(verdict_latency(EXAMPLE, Path(tmp), rounds)))
     repeats = 1 if args.quick else 3  # quick: one breakdown, without the figure steps (timed above already)
     if args.before:
         print("\n".join(breakdown(EXAMPLE, args.before, repeats, figure=not args.quick)))

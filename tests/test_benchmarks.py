@@ -23,7 +23,8 @@ def test_process_benchmark_quick_mode_runs():
     assert p.returncode == 0, p.stderr
     out = p.stdout
     for name in ("python -c pass", "pandas yardstick", "shpb reduce --no-figure", "shpb reduce ",
-                 "target: example shpb reduce <= 2.0", "in-process breakdown", "write curves.csv"):
+                 "target: example shpb reduce <= 2.0", "in-process breakdown",
+                 "time to the verdict line", "write curves.csv"):
         assert name in out, (name, out)
     # every row of the table has its three ratios (min, median, max) of a positive number
     row = next(line for line in out.splitlines() if line.startswith("shpb reduce --no-figure"))
