@@ -494,7 +494,7 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     from .errors import AnalysisError, InputError
 
     dt, n, t0 = record.dt, record.time.size, float(record.time[0])
-    n_pre = None
+    n_pre: Optional[int] = None  # samples before the trigger, when the analysis gives pre_trigger
     gauges = {"incident": barset.incident_gauge, "transmitted": barset.transmitted_gauge}
     info: dict = {"incident": {}, "transmitted": {}}
     raw = {"incident": record.incident, "transmitted": record.transmitted}
@@ -512,8 +512,8 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
                              f"({t0 * 1e6:g} to {record.time[-1] * 1e6:g} us)", "analysis.incident_start")
     else:  # first pass: on the sign-corrected volts (the bridge is monotonic), level and noise record-wide
         x = gauges["incident"].polarity * raw["incident"]
-        level = noise_floor(x, n_pre)[0] if analysis.pre_trigger else gauges["incident"].polarity * noise["incident"][0]
-        found, source = find_foot(x - level, n_pre if analysis.pre_trigger else None, persist=persist), "found"
+        level = noise_floor(x, n_pre)[0] if n_pre is not None else gauges["incident"].polarity * noise["incident"][0]
+        found, source = find_foot(x - level, n_pre, persist=persist), "found"
         if found is None:
             raise AnalysisError("no incident pulse found on the incident channel (nothing rises above 8x its "
                                 "noise)")
@@ -525,7 +525,7 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
     n = min(n, int(math.ceil(foot0 + _analysis_reach(barset, analysis) / dt)))
     time = record.time[:n]
     info["samples_used"] = n
-    n_base = n_pre if analysis.pre_trigger else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
+    n_base = n_pre if n_pre is not None else max(MIN_BASELINE_SAMPLES, int(0.9 * foot0))
     volts, bases, quiet = {}, {}, {}
     for name in ("incident", "transmitted"):
         clean, info[name] = _repaired(raw[name][:n], *noise[name], t0, dt)
@@ -552,16 +552,16 @@ def condition_record(record: "Record", barset: "BarSet", analysis: "AnalysisOpti
         foot = float(foot0)
     strain = {k: _bar_strain(volts[k], g, getattr(barset, k)) for k, g in gauges.items()}
     strain.update({k: _bar_strain(volts[k], g, getattr(barset, b)) for k, (b, g, *_) in stations.items()})
-    noise = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0 for k, v in strain.items()}
-    for k in noise:
-        info[k]["noise_strain"] = noise[k]
-    extra = {k: StationStrain(b, g, strain[k], record.stations[k][:n], bases[k], quiet[k], noise[k])
+    sigma = {k: float(np.std(v[quiet[k]])) if quiet[k].any() else 0.0 for k, v in strain.items()}  # [1]
+    for k in sigma:
+        info[k]["noise_strain"] = sigma[k]
+    extra = {k: StationStrain(b, g, strain[k], record.stations[k][:n], bases[k], quiet[k], sigma[k])
              for k, (b, g, *_) in stations.items()}
     return GaugeStrains(time=time, dt=dt, incident=strain["incident"], transmitted=strain["transmitted"],
                         volts_incident=raw["incident"][:n], volts_transmitted=raw["transmitted"][:n],
                         baseline_incident=bases["incident"], baseline_transmitted=bases["transmitted"],
-                        baseline_samples=int(n_base), noise_incident=noise["incident"],
-                        noise_transmitted=noise["transmitted"], foot=foot, foot_source=source,
+                        baseline_samples=int(n_base), noise_incident=sigma["incident"],
+                        noise_transmitted=sigma["transmitted"], foot=foot, foot_source=source,
                         quiet_incident=quiet["incident"], quiet_transmitted=quiet["transmitted"], pulses=pulses,
                         conditioning=info, stations=extra, unusable_stations=unusable)
 
@@ -888,15 +888,15 @@ def plan_analysis(strains: GaugeStrains, barset: "BarSet", analysis: "AnalysisOp
     dt, foot = strains.dt, strains.foot
     end = None if duration else pulse_end(strains.incident, foot, fraction=0.05)
     if duration:
-        duration, source = duration
+        pulse, source = duration
     elif end is not None:
-        duration, source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
+        pulse, source = (end - foot) * dt, "measured (incident pulse down to 5 % of its peak)"
     elif barset.striker is not None:
-        duration, source = barset.striker.pulse_duration, "striker 2L/c0"
+        pulse, source = barset.striker.pulse_duration, "striker 2L/c0"
     else:
         raise AnalysisError("the incident pulse does not end before the record does")
     bi, bt = barset.incident, barset.transmitted
-    plan = plan_window(foot, duration, dt, float(strains.time[0]), float(strains.time[-1]),
+    plan = plan_window(foot, pulse, dt, float(strains.time[0]), float(strains.time[-1]),
                        incident_gauge_distance=barset.incident_gauge.distance, incident_wave_speed=bi.wave_speed,
                        incident_length=bi.length, transmitted_gauge_distance=barset.transmitted_gauge.distance,
                        transmitted_wave_speed=bt.wave_speed, transmitted_length=bt.length,
@@ -1008,7 +1008,8 @@ def waves_at_faces(strains: GaugeStrains, plan: WindowPlan, barset: "BarSet", an
             plain = np.pad(plain, (0, max(k1, kc) - plain.size))
         faces[name], plains[name] = face[k0:k1], plain[k0:k1]
     time = float(strains.time[0]) + np.arange(k0, k1) * dt - plan.t_face0
-    return FaceWaves(time=time, dt=dt, **faces, plain=plains,
+    return FaceWaves(time=time, dt=dt, incident=faces["incident"], reflected=faces["reflected"],
+                     transmitted=faces["transmitted"], plain=plains,
                      dispersion=_dispersion_record(use_disp, barset, analysis, dt, plan, faces, plains),
                      weight=taper_window(kc - k0, 0.0, float(kc - k0), plan.ramp)[: k1 - k0])
 

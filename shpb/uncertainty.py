@@ -60,7 +60,7 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Callable, Mapping, Optional
 
 import numpy as np

@@ -138,7 +138,8 @@ def moving_average(values: ArrayLike, n: int) -> np.ndarray:
     return out
 
 
-def equilibrium_onset(ratio: ArrayLike, region: tuple[int, int], threshold: float = EQUILIBRIUM_THRESHOLD) -> Optional[int]:
+def equilibrium_onset(ratio: ArrayLike, region: tuple[int, int],
+                      threshold: "float | ArrayLike" = EQUILIBRIUM_THRESHOLD) -> Optional[int]:
     """First index of ``region`` from which |R| stays at or below ``threshold`` to the region's end.
 
     Parameters
@@ -761,7 +762,8 @@ def alignment_flags(curves: "KolskyCurves", dt: float, specimen_transit: Optiona
     results : dict
         ``force_lag_us`` and ``reflected_lead_us``.
     """
-    flags, results = [], {}
+    flags: list = []
+    results: dict = {}
     t, f1, f2 = curves.time, curves.force_front, curves.force_back
     fm = 0.5 * (f1 + f2)
     i0 = int(np.searchsorted(t, 0.0))
@@ -1194,5 +1196,5 @@ def separated_flags(flags: list, waves: "FaceWaves") -> list:
     gone |= {"transmitted_overlap"} if "transmitted" in bars else set()
     kept = [f for f in flags if f.code not in gone]
     note = Flag("waves_separated", "info", f"the face waves of the {' and '.join(bars)} bar come from two-point "
-                                           f"separation ({waves.separation.get('reason', '')})")
+                                           f"separation ({getattr(waves, 'separation', {}).get('reason', '')})")
     return [note] + kept
