@@ -8,7 +8,8 @@ offline) and every request the page makes is recorded, so a check can show
 that none leaves the machine.
 
 The browser is Debian's ``chromium`` package (``.ci/run`` installs it when
-missing); :func:`find_chromium` returns None where there is none.
+missing); :func:`find_chromium` returns None where there is none. A test tool, not a check: checking a report in
+a real browser is common practice; the protocol is Chromium's published DevTools protocol.
 """
 
 from __future__ import annotations

@@ -3,7 +3,9 @@
 The tables read back must be the very floats the solver gives (bit for bit,
 so every result downstream is unchanged); the interpolant and FFT length that
 replace scipy's on that path are checked against scipy itself (the reference
-library: ``scipy.interpolate.CubicHermiteSpline``, ``scipy.fft.next_fast_len``).
+library: ``scipy.interpolate.CubicHermiteSpline``, ``scipy.fft.next_fast_len``; SciPy 1.0, Virtanen et al.
+2020, Nature Methods 17:261-272). The cache's own behaviour (relocation, damaged files, concurrent writers) is
+checked as behaviour: common practice, no published source.
 """
 
 from __future__ import annotations
