@@ -116,6 +116,11 @@ def before_env(before):
     return {**os.environ, "PYTHONPATH": os.pathsep.join([str(before), os.environ.get("PYTHONPATH", "")])}
 
 
+def pandas_yardstick(record: Path, header: int) -> list:
+    """The yardstick process: import pandas and read the record's columns after its header lines."""
+    return [sys.executable, "-c", f"import pandas; pandas.read_csv({str(record)!r}, skiprows={header})"]
+
+
 def cases(shot: Path, out: Path, before=None) -> dict:
     """Name -> (argv, environment) of each timed process of a round (the interpreter alone first)."""
     record, header = record_layout(shot)
@@ -123,7 +128,7 @@ def cases(shot: Path, out: Path, before=None) -> dict:
     py = sys.executable
     out_cases = {
         "python -c pass": [py, "-c", "pass"],
-        "pandas yardstick": [py, "-c", f"import pandas; pandas.read_csv({str(record)!r}, skiprows={header})"],
+        "pandas yardstick": pandas_yardstick(record, header),
     }
     if importlib.util.find_spec("pyarrow") is not None:  # not imported here: this process stays small
         out_cases["pyarrow yardstick"] = [
@@ -268,7 +273,7 @@ def verdict_latency(shot: Path, out: Path, rounds: int) -> list:
 
     shpb, _ = shpb_command()
     record, header = record_layout(shot)
-    yard = [sys.executable, "-c", f"import pandas; pandas.read_csv({str(record)!r}, skiprows={header})"]
+    yard = pandas_yardstick(record, header)
     verdict, ratio = [], []
     for k in range(rounds):
         t0 = time.perf_counter()

@@ -357,7 +357,9 @@ _STRESS_SCALES = {"Pa": 1.0, "kPa": 1e3, "MPa": 1e6, "GPa": 1e9}
 
 def _stress_uncertainty(df, column, scale):
     """The standard uncertainty column ``u_<column>`` [Pa] (same unit as the stress column), or None."""
-    name = f"u_{column}"
+    from .uncertainty import standard_name
+
+    name = standard_name(column)
     if name not in df.columns:
         return None
     return pd.to_numeric(df[name], errors="coerce").to_numpy(float) * scale
@@ -1163,11 +1165,13 @@ def _weights(curves, weighting):
     """
     if weighting not in WEIGHTINGS:
         raise InputError(f"weighting must be one of {', '.join(WEIGHTINGS)}, got {weighting!r}", "weighting")
+    from .uncertainty import standard_name
+
     w = []
     mean_n = np.mean([c.plastic_strain.size for c in curves])
     for c in curves:
         if weighting == "uncertainty":
-            column = f"u_{c.stress_column or 'true_stress_MPa'}"
+            column = standard_name(c.stress_column or "true_stress_MPa")
             if c.stress_u is None:
                 raise InputError(f"no column {column!r} (the stress's standard uncertainty) for weighting by "
                                  "uncertainty; reduce with the uncertainty on, or weight by points", c.source)

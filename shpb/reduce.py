@@ -215,13 +215,11 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None, *, announce=None) -
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt, shot.striker_speed)
         corrections = specimen.specimen_corrections(curves, plan, shot.specimen, opt, verdict.valid, waves.dt)
         stages = Stages(record, strains, plan, waves, curves, verdict, split, corrections)
-        if not opt.uncertainty:
-            result = _result(shot, stages)
-            if announce is not None:
-                announce(result)
-            return result
+        result = _result(shot, stages)
         if announce is not None:
-            announce(_result(shot, stages))  # the verdict first: the uncertainty stage costs tens of reductions
+            announce(result)  # the verdict first: the uncertainty stage costs tens of reductions
+        if not opt.uncertainty:
+            return result
         from .uncertainty import propagate
 
         stages = replace(stages, uncertainty=propagate(shot, stages))

@@ -183,6 +183,7 @@ def plot_shot(result) -> Figure:
     grow with the record's length.
     """
     from . import style
+    from .uncertainty import expanded_name
 
     tr, c, summary = result.traces, result.curves, result.summary
     analysis = (summary.get("inputs") or {}).get("analysis") or {}
@@ -267,7 +268,7 @@ def plot_shot(result) -> Figure:
     _line(ax, c["strain"], c["strain_rate_per_s"], color=style.NEUTRAL, lw=0.8, label="three-wave")
     _line(ax, c["strain"], c["strain_rate_reflected_per_s"], color=style.REFLECTED, lw=0.6, alpha=0.8,
           label="reflected wave only")
-    _line(ax, c["strain"][valid], c["strain_rate_per_s"][valid], "k", lw=1.2 if "U95_strain_rate_per_s" in c else 1.5,
+    _line(ax, c["strain"][valid], c["strain_rate_per_s"][valid], "k", lw=1.2 if expanded_name("strain_rate_per_s") in c else 1.5,
           label="valid part")
     ax.set(xlabel="engineering strain [1]", ylabel="strain rate [1/s]", title="Strain rate")
     if valid.any():
@@ -283,7 +284,7 @@ def plot_shot(result) -> Figure:
         if col in c:
             _line(ax, c["strain"], c[col], lw=0.8, color=colour, label=name)
     _band(ax, c, "stress_MPa", valid)
-    _line(ax, c["strain"][valid], c["stress_MPa"][valid], "k", lw=1.2 if "U95_stress_MPa" in c else 2,
+    _line(ax, c["strain"][valid], c["stress_MPa"][valid], "k", lw=1.2 if expanded_name("stress_MPa") in c else 2,
           label=f"reported ({form}), valid part")
     ys, ysig = tr.get("yield", (None, None))
     if ys is not None and ysig is not None:
@@ -326,6 +327,7 @@ def _sheet_lines(result) -> list:
     import textwrap
 
     from .plain_words import flag_lines, shot_facts, verdict_line, with_u
+    from .uncertainty import expanded_name
 
     facts = shot_facts(result.summary, result.curves)
 
@@ -343,7 +345,7 @@ def _sheet_lines(result) -> list:
         numbers.append(f"peak stress {pm('peak_stress_MPa', '.0f')} MPa")
     if num("yield_stress_MPa", ".0f") != "n/a":
         numbers.append(f"yield {pm('yield_stress_MPa', '.0f')} MPa at strain {pm('yield_strain', '.4f')}")
-    if "U95_mean_strain_rate_per_s" in facts:
+    if expanded_name("mean_strain_rate_per_s") in facts:
         numbers.append("± U: expanded uncertainty, k = 2 (about 95 %)")
     numbers.append(f"equilibrium from {num('equilibrium_from_time_us', '.1f')} µs"
                    if num("equilibrium_from_time_us", ".1f") != "n/a" else "no force equilibrium")

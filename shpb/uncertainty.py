@@ -533,6 +533,11 @@ ROWS = {"stress": ("stress_MPa", 1e-6), "strain": ("strain", 1.0), "strain_rate"
 ROW_COLUMNS = ("stress", "strain", "strain_rate")
 
 
+def standard_name(name: str) -> str:
+    """The name of a row's or result's standard uncertainty: ``u_<name>`` (curves.csv, summary, budget)."""
+    return f"u_{name}"
+
+
 def expanded_name(name: str) -> str:
     """The name of a row's or result's expanded uncertainty (k = 2): ``U95_<name>`` (curves.csv, summary,
     campaign table)."""
@@ -926,10 +931,10 @@ class ShotUncertainty:
         out = {}
         for name in ROW_COLUMNS:
             col, scale = ROWS[name]
-            out[f"u_{col}"] = self.rows[name] * scale
+            out[standard_name(col)] = self.rows[name] * scale
             out[expanded_name(col)] = self.coverage_factor * self.rows[name] * scale
         col, scale = ROWS["true_stress"]
-        out[f"u_{col}"] = self.rows["true_stress"] * scale
+        out[standard_name(col)] = self.rows["true_stress"] * scale
         return out
 
     def results(self) -> dict:
@@ -938,7 +943,7 @@ class ShotUncertainty:
         for name, s in self.scalars.items():
             if name.startswith("flow_stress_MPa_at_") or not math.isfinite(s["value"]):
                 continue
-            out[f"u_{name}"] = s["u"]
+            out[standard_name(name)] = s["u"]
             out[expanded_name(name)] = self.coverage_factor * s["u"]
         return out
 
@@ -1016,13 +1021,13 @@ class ShotUncertainty:
                    "relative_standard_uncertainty_percent": 100 * i.relative if i.unit else float("nan"),
                    "source": i.source}
             for k in names:
-                row[f"u_{k}"] = self.contributions.get(k, {}).get(i.key, float("nan"))
+                row[standard_name(k)] = self.contributions.get(k, {}).get(i.key, float("nan"))
             rows.append(row)
         comb = {"input": "combined standard uncertainty", "key": "combined", "group": "", "method": "",
                 "value": float("nan"), "unit": "", "standard_uncertainty": float("nan"),
                 "relative_standard_uncertainty_percent": float("nan"), "source": ""}
         for k in names:
-            comb[f"u_{k}"] = self.scalars[k]["u"]
+            comb[standard_name(k)] = self.scalars[k]["u"]
         rows.append(comb)
         return pd.DataFrame(rows)
 
