@@ -648,8 +648,3 @@ def to_plain(obj, *, nonfinite="null", none="keep", path=str, skip_fields=()):
 
     out = plain(obj)
     return None if out is _OMIT else out
-
-
-def jsonable(obj):
-    """JSON-ready values: :func:`to_plain` with NaN and infinity as null."""
-    return to_plain(obj)
