@@ -123,6 +123,19 @@ class Curve:
         None when the file has none.
     stress_column : str
         The file's stress column that was read (``"true_stress_MPa"``).
+    shared_group : str
+        The bar set the shot was reduced with (its file and name): curves of
+        one group share its calibration errors ("" for a reference curve).
+    shared_stress_u, shared_strain_u : float or None
+        Relative standard uncertainty [1] of the stress and of the strain
+        (and strain rate) that the bar set's inputs cause, from the shot's
+        uncertainty budget (``uncertainty.relative_by_group`` of its
+        summary); None when the shot was reduced without it.
+    node_weight : numpy.ndarray or None
+        Quadrature weight of each point [1, grid steps of plastic strain it
+        stands for], set by :func:`resample_curves`: 1 inside the curve,
+        less at its ends, so that a fit's sum of squares is the same integral
+        over the curve on any grid; None: every point 1 (raw samples).
     """
 
     name: str
@@ -140,6 +153,10 @@ class Curve:
     notes: tuple = ()
     stress_u: np.ndarray | None = None
     stress_column: str = ""
+    shared_group: str = ""
+    shared_stress_u: float | None = None
+    shared_strain_u: float | None = None
+    node_weight: np.ndarray | None = None
 
     @property
     def temperatures(self) -> np.ndarray:
@@ -234,39 +251,81 @@ def plastic_strain_from_total(true_strain, true_stress, modulus):
     return np.asarray(true_strain, float) - np.asarray(true_stress, float) / modulus
 
 
-def _resample_one(eps, sig, step):
-    """Stress at the nodes k·step inside the data's plastic-strain range.
+def _node_values(eps, sig, nodes, step, width):
+    """Each node's stress: the intercept of a least-squares quadratic through the samples within ±width/2.
 
-    Each node's value is the intercept of a least-squares quadratic through
-    the samples of its bin (|ε_p − node| ≤ step/2): it averages noise like a
-    bin mean but, unlike a mean, has no bias from the curve's curvature (a
-    mean is off by σ''·step²/24, which pulls a fitted yield stress). Bins
-    with fewer than 6 samples, or not spanning the node, take linear
-    interpolation between neighbouring samples.
+    Windows with fewer than 6 samples, or with no sample beyond a quarter
+    step on one side of the node, take linear interpolation between
+    neighbouring samples (no extrapolation).
     """
-    order = np.argsort(eps, kind="stable")
-    eps, sig = eps[order], sig[order]
-    lo, hi = math.ceil(eps[0] / step - 1e-9), math.floor(eps[-1] / step + 1e-9)
-    nodes = np.arange(max(lo, 1), hi + 1) * step
-    if nodes.size == 0:
-        return nodes, nodes.copy()
     out = np.interp(nodes, eps, sig)
-    bins = np.rint(eps / step).astype(int)
-    first = np.searchsorted(bins, np.rint(nodes / step).astype(int), side="left")
-    last = np.searchsorted(bins, np.rint(nodes / step).astype(int), side="right")
+    first = np.searchsorted(eps, nodes - width / 2.0 * (1 + 1e-12), side="left")
+    last = np.searchsorted(eps, nodes + width / 2.0 * (1 + 1e-12), side="right")
     for i, (a, b) in enumerate(zip(first, last)):
         if b - a < 6:
             continue
-        x = (eps[a:b] - nodes[i]) / step
-        if x.min() > -0.25 or x.max() < 0.25:  # samples on one side only: do not extrapolate
+        x = (eps[a:b] - nodes[i]) / width
+        if x.min() > -0.25 * step / width or x.max() < 0.25 * step / width:
             continue
         coef, *_ = np.linalg.lstsq(np.column_stack([np.ones_like(x), x, x * x]), sig[a:b], rcond=None)
         out[i] = coef[0]
-    return nodes, out
+    return out
 
 
-def resample_curves(curves, step=GRID_STEP):
-    """Put every curve on the common plastic-strain grid k·step, k = 1, 2, …
+def _resample_one(eps, sig, step, window=None):
+    """Stress at the grid nodes k·step inside the data's plastic-strain range, and at its two ends.
+
+    Each node stands for its cell of the curve, [node − step/2, node + step/2]
+    cut to the data's range [ε_first, ε_last] (ε_first at least half the
+    ``window``: plastic strains below it are the yield transition, left out
+    on every grid as the default grid always did), and weighs by the cell's
+    length in steps (1 inside, 0.5 to 1 at the first and last grid node).
+    Where the range reaches more than half a step beyond the first (last)
+    grid node, that end piece gets a node of its own at its middle, weighing
+    by its length: the cells tile the whole range, so a fit's weighted sum of
+    squares is the midpoint rule for the same integral on any grid (the grid
+    step no longer decides how much of the curve's start, where the yield
+    knee pins A and n, enters the fit).
+
+    Each node's value is the intercept of a least-squares quadratic through
+    the samples within half a window of it (|ε_p − node| ≤ w/2, w the larger
+    of ``window`` and ``step``): it averages noise like a bin mean but, unlike
+    a mean, has no bias from the curve's curvature (a mean is off by
+    σ''·w²/24, which pulls a fitted yield stress). With the window fixed and
+    the step made finer, every node still averages the same stretch of
+    samples: a finer grid samples the curve more densely without making its
+    nodes noisier.
+
+    Returns
+    -------
+    nodes, values, weights : numpy.ndarray
+        Plastic strain [1], stress [Pa] and quadrature weight [steps] of each
+        node, in order of strain.
+    grid_nodes : int
+        How many of them are grid nodes k·step (the end pieces' nodes are not).
+    """
+    order = np.argsort(eps, kind="stable")
+    eps, sig = eps[order], sig[order]
+    width = max(step, window or step)
+    first, last = max(float(eps[0]), (window or step) / 2.0), float(eps[-1])  # (below: the yield transition)
+    lo, hi = math.ceil(first / step - 1e-9), math.floor(last / step + 1e-9)
+    grid = np.arange(max(lo, 1), hi + 1) * step
+    if grid.size == 0 or last <= first:
+        return grid, grid.copy(), grid.copy(), 0
+    cell_lo = np.maximum(grid - step / 2.0, first)
+    cell_hi = np.minimum(grid + step / 2.0, last)
+    weights = (cell_hi - cell_lo) / step
+    head, tail = cell_lo[0] - first, last - cell_hi[-1]
+    tol = 1e-9 * step
+    nodes = np.concatenate(([first + head / 2.0] if head > tol else [], grid,
+                            [last - tail / 2.0] if tail > tol else []))
+    weights = np.concatenate(([head / step] if head > tol else [], weights, [tail / step] if tail > tol else []))
+    inside = eps >= first - tol  # (the nodes at the start see none of the transition's samples)
+    return nodes, _node_values(eps[inside], sig[inside], nodes, step, width), weights, int(grid.size)
+
+
+def resample_curves(curves, step=GRID_STEP, window=GRID_STEP):
+    """Put every curve on the common plastic-strain grid k·step, k = 1, 2, …, plus a node for each end piece.
 
     Parameters
     ----------
@@ -274,22 +333,32 @@ def resample_curves(curves, step=GRID_STEP):
         Curves with raw (sample-wise) plastic strain [1] and stress [Pa].
     step : float
         Grid step [1].
+    window : float, optional
+        Plastic-strain width [1] of the samples averaged into each node, at
+        least ``step`` (default the default step, 0.005): a grid finer than
+        the window samples the curve more densely without making its nodes
+        noisier, so the fit and its bootstrap intervals do not depend on the
+        step. None: the step.
 
     Returns
     -------
     CurveList
-        Curves sampled at the grid nodes each one covers, so every curve
-        weighs by the plastic-strain range it spans, not by its sample count.
-        Each node takes a local quadratic fit to the samples within half a
-        step (noise down, no curvature bias, no extrapolation). Curves with
+        Curves sampled at the grid nodes each one covers and at the middle of
+        its end pieces, each node with its quadrature weight
+        (:attr:`Curve.node_weight`, see :func:`_resample_one`), so every
+        curve weighs by the plastic-strain range it spans, not by its sample
+        count, on any grid. Each node takes a local quadratic fit to the
+        samples within half a window (noise down, no curvature bias, no
+        extrapolation). Curves with
         fewer than 3 nodes are dropped with a note.
     """
     if not step > 0:
         raise InputError(f"grid step must be > 0, got {step!r}", "grid_step")
     out = CurveList(notes=getattr(curves, "notes", []))
     for c in curves:
-        nodes, sig = _resample_one(np.asarray(c.plastic_strain, float), np.asarray(c.stress, float), step)
-        if nodes.size < 3:
+        nodes, sig, weight, on_grid = _resample_one(np.asarray(c.plastic_strain, float), np.asarray(c.stress, float),
+                                                    step, window)
+        if on_grid < 3:
             out.notes.append(
                 f"{c.name}: plastic-strain range too short for the grid (step {step:g}); curve skipped"
             )
@@ -300,7 +369,8 @@ def resample_curves(curves, step=GRID_STEP):
             # calibration and wave speed is the same error on neighbouring rows, not independent noise)
             order = np.argsort(c.plastic_strain, kind="stable")
             u = np.interp(nodes, np.asarray(c.plastic_strain, float)[order], np.asarray(c.stress_u, float)[order])
-        out.append(replace(c, plastic_strain=nodes, stress=sig, temperature_rise=None, stress_u=u))
+        out.append(replace(c, plastic_strain=nodes, stress=sig, temperature_rise=None, stress_u=u,
+                           node_weight=weight))
     return out
 
 
@@ -510,10 +580,25 @@ def _read_shot(folder: Path, modulus, room_temperature):
     material = str(spec.get("material") or "")
     density = _number(spec.get("density_kg_per_m3"), f"{where}.density_kg_per_m3")
     ok = np.isfinite(strain) & np.isfinite(sig)
-    return _finish_curve(
+    curve, note, level = _finish_curve(
         name, src, "shot", strain, sig, valid & ok, rate, temperature, material, mod, mod_src, notes,
         elastic=(strain[ok], sig[ok]), density=density, u=_stress_uncertainty(df, col, _scale_of(col)), column=col,
     )
+    if curve is not None:
+        curve = replace(curve, **_shared_budget(summary))
+    return curve, note, level
+
+
+def _shared_budget(summary):
+    """The bar set's share of a shot's relative stress and strain uncertainty, and the bar set's identity."""
+    bars = _dig(summary, "inputs", "barset") or {}
+    group = f"{bars.get('source') or ''} | {bars.get('name') or ''}" if isinstance(bars, dict) else ""
+    out = {"shared_group": group.strip(" |")}
+    for key, what in (("shared_stress_u", "stress"), ("shared_strain_u", "strain")):
+        v = _dig(summary, "uncertainty", "relative_by_group", what, "bar set")
+        out[key] = float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) \
+            and v >= 0 else None
+    return out
 
 
 def _header(path: Path):
@@ -1161,15 +1246,22 @@ def _weights(curves, weighting):
     ``"points"``: residuals in MPa; ``"curves"``: also each curve equal total
     weight; ``"uncertainty"``: residuals divided by the stress's standard
     uncertainty at each point (weights 1/u², in χ²), from the curves' ``u_``
-    columns (:attr:`Curve.stress_u`).
+    columns (:attr:`Curve.stress_u`). Each point's weight is also scaled by
+    the square root of its quadrature weight (:attr:`Curve.node_weight`, the
+    length of curve it stands for), so that the sum of squares is the same
+    integral on any grid.
     """
     if weighting not in WEIGHTINGS:
         raise InputError(f"weighting must be one of {', '.join(WEIGHTINGS)}, got {weighting!r}", "weighting")
     from .uncertainty import standard_name
 
+    def quadrature(c):
+        return np.ones(c.plastic_strain.size) if c.node_weight is None else np.asarray(c.node_weight, float)
+
     w = []
-    mean_n = np.mean([c.plastic_strain.size for c in curves])
+    mean_q = np.mean([quadrature(c).sum() for c in curves])
     for c in curves:
+        q = np.sqrt(quadrature(c))
         if weighting == "uncertainty":
             column = standard_name(c.stress_column or "true_stress_MPa")
             if c.stress_u is None:
@@ -1179,10 +1271,10 @@ def _weights(curves, weighting):
             if not np.all(np.isfinite(u) & (u > 0)):
                 raise InputError(f"column {column!r} must be > 0 on every valid row for weighting by "
                                  "uncertainty", c.source)
-            w.append(1.0 / u)
+            w.append(q / u)
             continue
-        f = math.sqrt(mean_n / c.plastic_strain.size) if weighting == "curves" else 1.0
-        w.append(np.full(c.plastic_strain.size, f / 1e6))
+        f = math.sqrt(mean_q / quadrature(c).sum()) if weighting == "curves" else 1.0
+        w.append(q * (f / 1e6))
     return np.concatenate(w)
 
 
@@ -1313,6 +1405,7 @@ def fit_curves(
     temperature_tolerance=5.0,
     draws=DEFAULT_DRAWS,
     seed=DEFAULT_SEED,
+    shared_errors=True,
 ):
     """Fit one constitutive model to all curves at once (global least squares).
 
@@ -1353,6 +1446,12 @@ def fit_curves(
         least-squares standard errors, which are not uncertainties).
     seed : int
         Random seed of the bootstrap.
+    shared_errors : bool
+        Draw each bar set's calibration errors, shared by all its shots, with
+        every bootstrap draw (from the shots' uncertainty budgets; shots
+        reduced without the uncertainty carry none). False: the scatter
+        between and along the curves only, e.g. to compare the rate
+        sensitivity of shots from one rig.
 
     Returns
     -------
@@ -1412,7 +1511,7 @@ def fit_curves(
             notes.append(f"{spec.name} has no temperature term but the curves span {_fmt_levels(temps, 'K')}")
     boot = None
     if draws:
-        boot = _bootstrap(spec, curves, settings, fixed_all, weighting, res, int(draws), seed)
+        boot = _bootstrap(spec, curves, settings, fixed_all, weighting, res, int(draws), seed, shared_errors)
         params, corr = _with_bootstrap(params, boot), _pairs(boot)
         notes.append(_bootstrap_note(boot))
     result = FitResult(
@@ -1459,7 +1558,7 @@ def _m_sensitivity(spec, curves, settings, fixed, weighting, starts, res):
             + ". Test at a second initial temperature to fit m")
 
 
-def _bootstrap(spec, curves, settings, fixed, weighting, res, draws, seed):
+def _bootstrap(spec, curves, settings, fixed, weighting, res, draws, seed, shared_errors=True):
     """The bootstrap over whole curves around the lmfit result ``res`` (:func:`shpb.fit_uncertainty.bootstrap`)."""
     eps, rate, temp, sig = _arrays(curves)
     names, theta, lo, hi, logs = [], [], [], [], []
@@ -1480,9 +1579,62 @@ def _bootstrap(spec, curves, settings, fixed, weighting, res, draws, seed):
             out = evaluate(spec, {**const, **values}, eps, rate, temp, **settings)
         return np.broadcast_to(out, (rows, eps.size))
 
+    terms, labels = _shared_terms(spec, curves, settings, {p.name: res.params[p.name].value for p in spec.parameters}
+                                  ) if shared_errors else (None, ())
     return bootstrap(predict, np.array(theta), np.array(lo, float), np.array(hi, float), names, logs, sig,
                      _weights(curves, weighting), [c.plastic_strain.size for c in curves], eps,
-                     draws=draws, seed=seed)
+                     draws=draws, seed=seed, shared=terms, shared_labels=labels)
+
+
+def _shared_terms(spec, curves, settings, values):
+    """Shared terms of the bootstrap (:func:`shpb.fit_uncertainty.bootstrap`): each bar set's calibration errors.
+
+    Per bar set (:attr:`Curve.shared_group`) two terms, each one standard
+    normal draw shared by all its curves: a stress scale, a_i = σ_i·u_σ
+    (u_σ each curve's own bar-set share of its relative stress uncertainty),
+    and a strain scale, which moves the plastic strain and the strain rate
+    together (both come from the reflected wave): the data then stand
+    −(∂σ/∂ln ε_p + ∂σ/∂ln ε̇)·u_ε off the law (first-order sensitivities by
+    forward differences, as JCGM 100:2008 §5.1.3 allows). The two are drawn
+    independent (the budget does not give their correlation).
+
+    Returns
+    -------
+    terms : numpy.ndarray or None
+        (K, N) [Pa]; None when no curve carries a budget.
+    labels : tuple of str
+        The terms in words.
+    """
+    groups = {}
+    for j, c in enumerate(curves):
+        if c.shared_group and (c.shared_stress_u or c.shared_strain_u):
+            groups.setdefault(c.shared_group, []).append(j)
+    if not groups:
+        return None, ()
+    eps, rate, temp, _ = _arrays(curves)
+    h = 1e-6
+    with np.errstate(all="ignore"):
+        model = evaluate(spec, values, eps, rate, temp, **settings)
+        slope = (evaluate(spec, values, eps * (1 + h), rate, temp, **settings) - model) / h
+        slope += (evaluate(spec, values, eps, rate * (1 + h), temp, **settings) - model) / h
+    edges = np.concatenate(([0], np.cumsum([c.plastic_strain.size for c in curves])))
+    terms, labels = [], []
+    for group, members in groups.items():
+        bars = group.split(" | ")[-1] or group
+        for attr, what, sens in (("shared_stress_u", "stress", model), ("shared_strain_u", "strain", -slope)):
+            a = np.zeros(eps.size)
+            us = []
+            for j in members:
+                u = getattr(curves[j], attr)
+                if u:
+                    a[edges[j]:edges[j + 1]] = sens[edges[j]:edges[j + 1]] * u
+                    us.append(u)
+            if us and np.all(np.isfinite(a)):
+                terms.append(a)
+                span = (f"{100 * min(us):.2g}" if f"{100 * min(us):.2g}" == f"{100 * max(us):.2g}" else
+                        f"{100 * min(us):.2g}-{100 * max(us):.2g}")
+                labels.append(f"{what} scale of bar set {bars} ({span} %, {len(members)} shots)")
+    return (np.array(terms), tuple(labels)) if terms else (None, ())
 
 
 def _with_bootstrap(params, boot):
@@ -1506,10 +1658,14 @@ def _bootstrap_note(boot):
     shot = (f"shot-to-shot scale scatter {100 * boot.offset_scatter:.2g} % (curve offsets inflated "
             f"x{boot.offset_inflation:.2f} for what the fit absorbs)" if math.isfinite(boot.offset_scatter)
             else "shot level left out: too few curves beyond the parameters to estimate the scatter between shots")
+    shared = (f"; with each draw the errors shared by the shots of a bar set, from their uncertainty budgets: "
+              f"{'; '.join(boot.shared)} (JCGM 101:2008)" if boot.shared else
+              "; errors shared by every shot (a bar set's calibration) are not in them: the curves carry no "
+              "uncertainty budget (reduce with the uncertainty on)")
     return (f"uncertainties: bootstrap over whole curves, {kept} of {boot.draws} draws refitted (seed {boot.seed}); "
             f"residual correlation length {boot.correlation_length:.3g} in plastic strain, blocks of "
             f"{boot.block_length:.3g}; {shot}; 95 % percentile intervals (Efron & Tibshirani 1993; "
-            "Kuensch 1989). Errors common to every shot are not in them")
+            f"Kuensch 1989){shared}. A bias of the reduction shared by every shot is in no interval")
 
 
 def _staged_johnson_cook(spec, curves, settings, fixed, weighting, rate_tol, temp_tol):
@@ -1646,7 +1802,9 @@ def _uncertainty_dict(boot, key):
         "block_length_plastic_strain": boot.block_length,
         "shot_offset_scatter_percent": 100.0 * boot.offset_scatter,
         "offset_inflation": boot.offset_inflation,
-        "not_included": "errors common to every shot (shared bar or gauge calibration, a bias of the reduction)",
+        "shared_terms": list(boot.shared),
+        "not_included": ("a bias of the reduction common to every shot" if boot.shared else
+                         "errors common to every shot (shared bar or gauge calibration, a bias of the reduction)"),
         "correlation_matrix": {"parameters": [key[n] for n in boot.names],
                                "matrix": [[float(x) for x in row] for row in boot.correlation]},
     }
@@ -1798,7 +1956,9 @@ def plot_fit(result, flow_strain=None):
     if result.bootstrap is not None:
         b = result.bootstrap
         text += (f"\nu and 95 % intervals: bootstrap over whole curves ({b.draws - b.failed} draws),"
-                 f"\n  residual correlation length {b.correlation_length:.2g}, blocks of {b.block_length:.2g}")
+                 f"\n  residual correlation length {b.correlation_length:.2g}, blocks of {b.block_length:.2g}"
+                 + (",\n  with the bar sets' shared calibration errors" if b.shared else
+                    ";\n  no shared calibration errors (no uncertainty budget)"))
     ax_txt.text(0.0, 1.0, text, va="top", ha="left", family="monospace", fontsize=7.5, transform=ax_txt.transAxes)
     # the legends in the text panel, off the data: the curves (shots) and the model's temperatures
     if len(handles) <= 21:

@@ -22,8 +22,11 @@ Tibshirani 1993; Davison & Hinkley 1997, §3.8 on hierarchical data):
 2. **Within a curve.** e_j is resampled by circular blocks (Künsch 1989;
    Politis & Romano 1992) whose length in plastic strain is twice the
    residuals' correlation length (:func:`correlation_length`), so that
-   correlated stretches stay together and the result does not depend on the
-   grid step.
+   correlated stretches stay together. The blocks are laid out in strain and
+   drawn from common random numbers (:func:`circular_block_indices`): on a
+   grid 10× finer a draw resamples the same stretches of the same curves, so
+   the intervals do not depend on the grid step (with the grid's quadrature
+   weights, :func:`shpb.fit.resample_curves`).
 
 Each draw y* = model(θ̂) + δ*·model(θ̂) + e* is refitted from θ̂ by a
 Levenberg–Marquardt iteration run on all draws at once
@@ -33,10 +36,15 @@ percentile method, Efron & Tibshirani 1993, ch. 13), their standard
 deviation the standard uncertainty, their correlation matrix the
 correlations.
 
-What it cannot see: an error common to every shot (a bar modulus or gauge
-factor shared by the whole campaign, a bias of the reduction method at the
-yield knee) moves all curves together and leaves no scatter to resample; the
-per-shot uncertainties of the reduction (``u_`` columns) carry those.
+An error common to every shot of one bar set (its modulus, gauge factors,
+gains: the shots' uncertainty budget, group "bar set") moves all its curves
+together and leaves no scatter to resample. Where the curves carry that
+budget, it enters as **shared terms**: each draw adds Σ_k a_k z_k with z_k
+standard normal, one per term and draw, a_k the change of the data for one
+standard uncertainty of a shared stress or strain scale (propagation of
+distributions by sampling, JCGM 101:2008 §5.9 and §7, combined here with
+the resampling). What no term carries: a bias of the reduction method (at
+the yield knee, say) that is the same on every shot.
 
 References
 ----------
@@ -52,6 +60,9 @@ References
 .. [4] A. C. Davison and D. V. Hinkley, Bootstrap Methods and their
    Application. Cambridge: Cambridge University Press, 1997 (§3.8, hierarchical
    data; from memory).
+.. [5] JCGM 101:2008, Evaluation of measurement data — Supplement 1 to the
+   "Guide to the expression of uncertainty in measurement" — Propagation of
+   distributions using a Monte Carlo method. BIPM, 2008.
 """
 
 from __future__ import annotations
@@ -110,13 +121,16 @@ def pooled_autocorrelation(groups, max_lag):
 def correlation_length(groups, step):
     """Correlation length of residuals along the curves [same unit as ``step``].
 
-    The first lag k at which the pooled autocorrelation
-    (:func:`pooled_autocorrelation`) is no longer significantly positive:
+    Where the pooled autocorrelation (:func:`pooled_autocorrelation`) stops
+    being significantly positive: the first lag k with
     ρ(k) ≤ 2·√((1 + 2 Σ_{j<k} ρ(j)²)/N), Bartlett's large-sample standard
     error of ρ(k) when the correlation stops at lag k − 1 (the test that finds
     the order of a moving-average process; Bartlett 1946, Box & Jenkins 1976,
-    ch. 6, from memory), times the grid step. A moving average of q + 1 white
-    terms gets q + 1 steps; white noise one step.
+    ch. 6, from memory), placed between lags k − 1 and k where ρ minus that
+    bound crosses zero (linear interpolation), times the grid step. A moving
+    average of q + 1 white terms gets about q + 1 steps, white noise about one
+    step; the interpolation keeps the length from jumping by whole grid steps,
+    so that two grids of the same curves give about the same length in strain.
 
     Parameters
     ----------
@@ -134,40 +148,56 @@ def correlation_length(groups, step):
     n_total = sum(np.asarray(g).size for g in groups)
     rho = pooled_autocorrelation(groups, max(1, longest // 2))
     seen = 0.0
+    above = rho[0] - 2.0 * math.sqrt(1.0 / n_total)
     for k in range(1, rho.size):
-        if rho[k] <= 2.0 * math.sqrt((1.0 + 2.0 * seen) / n_total):
-            return k * step
+        margin = rho[k] - 2.0 * math.sqrt((1.0 + 2.0 * seen) / n_total)
+        if margin <= 0.0:
+            return (k - 1 + above / (above - margin)) * step
         seen += rho[k] ** 2
+        above = margin
     return (rho.size - 1) * step
 
 
-def circular_block_indices(n, block, draws, rng):
+def circular_block_indices(n, block, draws, rng, min_blocks=256):
     """Indices of a circular block bootstrap of a sequence of length n.
+
+    Blocks are laid out in the sequence's own coordinate (points, a real
+    number): output point i lies in block m = ⌊i/block⌋ at offset
+    i − m·block, and takes the point nearest to u_m·n + i − m·block (mod n),
+    u_m uniform on [0, 1). With block and n scaled together (the same curve
+    on a grid 10× finer, the block the same length in strain) and the same
+    random numbers, a draw picks the same stretches of the curve on either
+    grid: the bootstrap does not depend on the grid step beyond the
+    sampling itself. Random numbers are drawn ``max(blocks, min_blocks)``
+    per row, so that grids needing a different count of blocks still share
+    them.
 
     Parameters
     ----------
     n : int
         Sequence length [points].
-    block : int
-        Block length [points], 1 ≤ block; blocks wrap around the end
+    block : float
+        Block length [points], clipped to [1, n]; blocks wrap around the end
         (Politis & Romano 1992).
     draws : int
         Number of resampled sequences.
     rng : numpy.random.Generator
+    min_blocks : int
+        Uniform numbers drawn per row at least.
 
     Returns
     -------
     numpy.ndarray
-        Shape (draws, n): each row concatenates ceil(n/block) blocks of
-        consecutive indices (mod n) starting at uniform random points,
-        cut to n.
+        Shape (draws, n), int: each row concatenates ⌈n/block⌉ blocks of
+        consecutive indices (mod n), cut to n.
     """
-    block = int(max(1, min(block, n)))
-    k = -(-n // block)
-    # starts as fractions of the curve: the same random numbers pick the same stretches of strain on any grid
-    starts = np.floor(rng.random((draws, k)) * n).astype(int)
-    idx = (starts[:, :, None] + np.arange(block)[None, None, :]) % n
-    return idx.reshape(draws, k * block)[:, :n]
+    block = float(max(1.0, min(float(block), n)))
+    k = int(math.ceil(n / block - 1e-9))
+    u = rng.random((draws, max(k, int(min_blocks))))[:, :k]
+    i = np.arange(n)
+    m = np.minimum((i / block + 1e-9).astype(int), k - 1)
+    pos = u[:, m] * n + (i - m * block)[None, :]
+    return np.floor(pos + 0.5).astype(int) % n
 
 
 def curve_offsets(residuals, model, weights):
@@ -364,6 +394,8 @@ class BootstrapResult:
         Random seed.
     level : float
         Interval probability (0.95).
+    shared : tuple of str
+        The shared terms drawn with every draw, in words (empty: none).
     """
 
     names: tuple
@@ -380,10 +412,11 @@ class BootstrapResult:
     offset_inflation: float
     seed: int
     level: float = 0.95
+    shared: tuple = ()
 
 
 def bootstrap(predict, theta_hat, lower, upper, names, log_scale, y, weights, sizes, strain, *, draws=DEFAULT_DRAWS,
-              seed=DEFAULT_SEED, step=None, chunk=250, level=0.95):
+              seed=DEFAULT_SEED, step=None, chunk=250, level=0.95, shared=None, shared_labels=()):
     """The two-level bootstrap of a fitted model (module docstring), all draws refitted at once.
 
     Parameters
@@ -419,6 +452,13 @@ def bootstrap(predict, theta_hat, lower, upper, names, log_scale, y, weights, si
         Draws refitted together (memory: chunk × N × p floats).
     level : float
         Interval probability.
+    shared : numpy.ndarray, optional
+        (K, N) shared terms a_k [Pa]: each draw adds Σ_k a_k z_k to its data,
+        z_k independent standard normal (module docstring). Drawn from a
+        stream of their own, so the resampling's draws are the same with or
+        without them.
+    shared_labels : sequence of str
+        The K terms in words, for the result.
 
     Returns
     -------
@@ -462,6 +502,8 @@ def bootstrap(predict, theta_hat, lower, upper, names, log_scale, y, weights, si
     # stretches of strain whatever the grid (common random numbers), so grids differ only by what they change
     rng_off = np.random.default_rng([seed, 0])
     rng_blk = [np.random.default_rng([seed, 1, j]) for j in range(len(sizes))]
+    rng_shared = np.random.default_rng([seed, 2])
+    shared = None if shared is None or not np.size(shared) else np.atleast_2d(np.asarray(shared, float))
     kept, failed = [], 0
     for start in range(0, draws, chunk):
         b = min(chunk, draws - start)
@@ -469,8 +511,10 @@ def bootstrap(predict, theta_hat, lower, upper, names, log_scale, y, weights, si
         picks = rng_off.integers(0, len(sizes), size=(b, len(sizes)))
         for j, sl in enumerate(parts):
             n = sizes[j]
-            idx = circular_block_indices(n, int(round(block / step)), b, rng_blk[j])
+            idx = circular_block_indices(n, block / step, b, rng_blk[j])
             ystar[:, sl] = model[sl] * (1.0 + pool[picks[:, j]][:, None]) + e_scale * within[j][idx]
+        if shared is not None:
+            ystar += rng_shared.standard_normal((b, shared.shape[0])) @ shared
         theta, ok = batch_least_squares(fun, theta_hat, ystar, weights, lower, upper)
         failed += int(np.count_nonzero(~ok))
         kept.append(theta[ok])
@@ -489,4 +533,5 @@ def bootstrap(predict, theta_hat, lower, upper, names, log_scale, y, weights, si
         high=dict(zip(names, map(float, hi))), correlation=corr, draws=int(draws), failed=failed,
         correlation_length=float(ell), block_length=float(block), offset_scatter=scatter,
         offset_inflation=float(s), seed=int(seed), level=float(level),
+        shared=tuple(shared_labels) if shared is not None else (),
     )

@@ -52,6 +52,21 @@ def test_circular_blocks_wrap_and_keep_runs():
     assert np.any(steps[:, 4] != 1)  # between blocks: new starts
 
 
+def test_grid_cells_tile_each_curve_on_any_grid():
+    # The nodes' quadrature weights are the lengths of the cells they stand for: on any grid they add up to the
+    # curve's plastic-strain range from half the window (0.0025) to its last sample, so a curve weighs by the range
+    # it spans (the weights of a composite midpoint rule, Press et al. 2007, Numerical Recipes, 3rd ed., sect. 4.1;
+    # from memory). A power law's integral over the range comes out within the midpoint rule's O(step^2).
+    ep = np.arange(0.0012, 0.1437, 1e-4)
+    exact = (ep[-1] ** 1.3 - 0.0025 ** 1.3) / 1.3 * 1e9  # integral of 1e9 eps^0.3
+    for step in (0.01, 0.005, 0.001, 0.0005):
+        c = F.resample_curves([F.Curve("c", ep, 1e9 * ep**0.3, 1e3, TR)], step)[0]
+        assert c.node_weight.sum() * step == pytest.approx(ep[-1] - 0.0025, rel=1e-9)
+        assert c.plastic_strain.min() >= 0.0025 and c.plastic_strain.max() <= ep[-1]
+        assert np.all(np.diff(c.plastic_strain) > 0)
+        assert np.sum(c.node_weight * c.stress) * step == pytest.approx(exact, rel=2e-3), step
+
+
 def test_offset_inflation_is_bessels_correction_for_a_scale_parameter():
     # One free scale (model A g(x)) absorbs the mean offset of n equal curves: the fitted offsets are the true
     # ones less their mean, so their spread is short by (n-1)/n and s^2 = n/(n-1) (Bessel's correction).
@@ -145,7 +160,9 @@ def test_no_draws_keeps_only_labelled_least_squares_errors(tmp_path):
 def test_uncertainty_weights_are_weighted_least_squares(tmp_path):
     # curves.csv with the reduction's u_true_stress_MPa column: one curve's u twice the others'. The fit with
     # weighting="uncertainty" is the weighted least-squares fit with weights 1/u^2, as scipy's curve_fit computes
-    # it (sigma = u); points on the grid nodes, so the grid leaves the data as they are.
+    # it (sigma = u); points on the grid nodes, so the grid leaves the data as they are, and each node weighs by
+    # the length of curve it stands for: the trapezoidal rule's weights, 1/2 at the two ends (Press et al. 2007,
+    # Numerical Recipes, 3rd ed., eq. 4.1.11; from memory), i.e. sigma = u / sqrt(weight).
     from scipy.optimize import curve_fit
 
     rng = np.random.default_rng(5)
@@ -157,7 +174,9 @@ def test_uncertainty_weights_are_weighted_least_squares(tmp_path):
         df = pd.read_csv(folder / "curves.csv")
         df["u_true_stress_MPa"] = u
         df.to_csv(folder / "curves.csv", index=False)
-        data.append((np.full(ep.size, r), sig, np.full(ep.size, u * 1e6)))
+        trapezoid = np.ones(ep.size)
+        trapezoid[[0, -1]] = 0.5
+        data.append((np.full(ep.size, r), sig, u * 1e6 / np.sqrt(trapezoid)))
     res = F.fit_curves(F.load_curves(tmp_path / "c"), "johnson-cook", weighting="uncertainty", draws=0)
     rate, sig, u = (np.concatenate(a) for a in zip(*data))
     x = np.vstack([np.tile(ep, 3), rate])
@@ -230,3 +249,36 @@ def test_m_is_not_identifiable_from_heating_at_one_temperature_and_the_note_says
     res = F.fit_curves(F.with_adiabatic_heating(iso, cp, density=rho, beta=beta), "johnson-cook",
                        melt_temperature=1356.0, draws=0)
     assert "the RMS is lowest at m = 2 here" in " ".join(res.notes) and res.parameters["m"].value == 1.0
+
+
+# --------------------------------------------------------------------------- errors shared by the shots of a bar set
+def _shared_rig_curves(stress_u, strain_u, K=800e6, n=0.3):
+    """Three exact power-law curves (Hollomon 1945; one rate) of one bar set with the given shared budget."""
+    rng = np.random.default_rng(11)
+    out = F.CurveList()
+    for i, (lo, hi) in enumerate(((0.01, 0.15), (0.012, 0.18), (0.015, 0.2))):
+        ep = np.arange(lo, hi, 1e-4)
+        sig = K * ep**n + rng.normal(0.0, 1e4, ep.size)  # 0.01 MPa of noise: the scatter is all but nil
+        out.append(F.Curve(name=f"S{i}", plastic_strain=ep, stress=sig, strain_rate=1000.0, temperature=TR,
+                           shared_group="rig.toml | bars", shared_stress_u=stress_u, shared_strain_u=strain_u))
+    return F.resample_curves(out)
+
+
+def test_shared_bar_set_errors_reach_the_parameters_by_the_gum_law():
+    # sigma = K eps_p^n from one bar set whose stress scale is off by d_s and strain scale by d_e (the same on
+    # every shot): the data are K (1 + d_s) (eps_m / (1 + d_e))^n, so the fit finds K (1 + d_s)(1 + d_e)^-n and the
+    # same n. By the GUM law of propagation (JCGM 100:2008, eq. 10) u(K)/K = sqrt(u_s^2 + (n u_e)^2) and u(n) = 0;
+    # the bootstrap's shared terms (Monte Carlo, JCGM 101:2008) must give that within their sampling error
+    # (2000 draws: about 1.6 % on a standard deviation, so 6 % allowed).
+    n, us, ue = 0.3, 0.01, 0.02
+    res = F.fit_curves(_shared_rig_curves(us, ue, n=n), "power-law", fixed={"C": 0.0}, draws=2000)
+    K = res.parameters["K"]
+    assert K.u / K.value == pytest.approx(math.hypot(us, n * ue), rel=0.06)
+    assert res.parameters["n"].u < 1e-3 * n
+    assert len(res.bootstrap.shared) == 2 and "bar set bars" in res.bootstrap.shared[0]
+    # without the shared terms (or with no budget) only the scatter is left: a hundred times smaller here
+    off = F.fit_curves(_shared_rig_curves(us, ue, n=n), "power-law", fixed={"C": 0.0}, draws=300,
+                       shared_errors=False)
+    assert off.parameters["K"].u / off.parameters["K"].value < 0.1 * us and off.bootstrap.shared == ()
+    bare = F.fit_curves(_shared_rig_curves(None, None, n=n), "power-law", fixed={"C": 0.0}, draws=300)
+    assert bare.bootstrap.shared == () and "carry no uncertainty budget" in " ".join(bare.notes)

@@ -59,6 +59,9 @@ def register(app: typer.Typer) -> None:
                                                  "(0: none, then only least-squares standard errors) "
                                                  "[default: 1000]."),
         seed: Optional[int] = typer.Option(None, "--seed", metavar=NUMBER, help="Random seed of the bootstrap."),
+        shared_errors: bool = typer.Option(True, "--shared-errors/--no-shared-errors",
+                                           help="Draw each bar set's calibration errors, shared by its shots (from "
+                                                "their uncertainty budgets), with every bootstrap draw."),
         grid_step: float = typer.Option(0.005, "--grid-step", metavar=NUMBER, help="Plastic-strain grid step."),
         adiabatic: bool = typer.Option(False, "--adiabatic", help="Add the adiabatic temperature rise to shots."),
         density: Optional[str] = typer.Option(None, "--density", metavar=QUANTITY,
@@ -108,7 +111,7 @@ def register(app: typer.Typer) -> None:
         result = F.fit_curves(
             curves, model, reference_rate=reference_rate, room_temperature=room_temperature,
             melt_temperature=melt_temperature, fixed=F.parse_fixed(model, fix), vary=vary,
-            weighting=weighting, staged=staged,
+            weighting=weighting, staged=staged, shared_errors=shared_errors,
             **{k: v for k, v in (("draws", draws), ("seed", seed)) if v is not None},
         )
         eps = None
