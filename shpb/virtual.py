@@ -524,7 +524,9 @@ def plot_virtual_shot(shot: VirtualShot):
     """Figure of a virtual shot: bar strains at the gauges, face forces, specimen stress.
 
     Returns a ``matplotlib.figure.Figure`` built without pyplot (no backend
-    or global state touched); :func:`write_virtual_shot` saves it.
+    or global state touched); :func:`write_virtual_shot` saves it. The panels
+    sit on a fixed layout with room on the right for the widest legend, so
+    that saving draws the figure once (a constrained layout draws it twice).
     """
     from matplotlib.figure import Figure  # no pyplot: the user's backend and figure list stay as they are
 
@@ -533,7 +535,8 @@ def plot_virtual_shot(shot: VirtualShot):
 
     rec, res, s = shot.record, shot.result, shot.setup
     has_specimen = s.kind == "specimen"
-    fig = Figure(figsize=(9.0, 9.5 if has_specimen else 3.8), constrained_layout=True)
+    width, height = 9.0, (9.5 if has_specimen else 3.8)
+    fig = Figure(figsize=(width, height))
     axes = fig.subplots(3 if has_specimen else 1, 1, squeeze=False)
     ax = axes[0, 0]
     ax.plot(rec.time * 1e6, rec.strain_incident * 1e6, lw=0.8, color=style.INCIDENT, label="incident-bar gauge")
@@ -546,24 +549,38 @@ def plot_virtual_shot(shot: VirtualShot):
                 color=style.INCIDENT if station["bar"] == "incident" else style.TRANSMITTED,
                 label=f"{station['bar']}-bar station at {station['distance_m'] * 1e3:g} mm ({column})")
     ax.set(xlabel="record time [µs]", ylabel="bar strain [µε] (compression +)")
-    wrapped_title(ax, f"Gauge strains in the record (before noise and quantisation; dispersion: "
-                      f"{DISPERSION_LABELS[rec.info['dispersion']]})", fontsize=10, width_inches=6.5)
     legend_outside(ax)
     if has_specimen:
-        tt = truth_table(res, rec)
+        # the model truth over the loading, from its arrays (no table library: pandas costs a fresh process 0.2 s)
+        tt = dict(zip(TRUTH_COLUMNS, _truth_rows(res, rec, 20e-6, 20e-6).T))
         ax = axes[1, 0]
-        ax.plot(tt.time_us, tt.force_front_kN, color=style.INCIDENT, label="front face F1\n(incident bar)")
-        ax.plot(tt.time_us, tt.force_back_kN, "--", color=style.TRANSMITTED, label="back face F2\n(transmitted bar)")
+        ax.plot(tt["time_us"], tt["force_front_kN"], color=style.INCIDENT, label="front face F1\n(incident bar)")
+        ax.plot(tt["time_us"], tt["force_back_kN"], "--", color=style.TRANSMITTED,
+                label="back face F2\n(transmitted bar)")
         ax.set(xlabel="time from the incident foot at the specimen [µs]", ylabel="force [kN]",
                title="Face forces (model truth)")
         legend_outside(ax)
         ax = axes[2, 0]
-        loading = tt.loc[: int(tt.strain.to_numpy().argmax())]
-        ax.plot(loading.strain, loading.stress_MPa, "k", label="engineering\n(model truth)")
-        true_strain = -np.log1p(-loading.strain.to_numpy())
-        ax.plot(true_strain, loading.stress_MPa * (1 - loading.strain), color=style.REFLECTED, lw=0.8,
+        upto = int(np.argmax(tt["strain"])) + 1
+        strain, stress = tt["strain"][:upto], tt["stress_MPa"][:upto]
+        ax.plot(strain, stress, "k", label="engineering\n(model truth)")
+        ax.plot(-np.log1p(-strain), stress * (1 - strain), color=style.REFLECTED, lw=0.8,
                 label="true (volume\nconstant)")
         ax.set(xlabel="strain [1]", ylabel="stress [MPa]", title="Specimen stress (model truth)")
         legend_outside(ax)
-    fig.suptitle(f"Virtual shot {s.name} - SYNTHETIC (shpb simulate)", fontsize=10)
+    # the fixed layout [inches]: the widest legend line at 7 pt (about 0.55 em a character) with its handle and
+    # frame on the right; the y labels on the left; the titles above and the x labels below each panel
+    lines = [line for a in axes.flat if a.get_legend() for t in a.get_legend().get_texts()
+             for line in t.get_text().split("\n")]
+    legend = max((len(line) for line in lines), default=0) * 7 * 0.55 / 72 + 0.55
+    left, right, bottom, gap = 0.85, legend + 0.2, 0.55, 0.8
+    title = wrapped_title(axes[0, 0], f"Gauge strains in the record (before noise and quantisation; dispersion: "
+                                      f"{DISPERSION_LABELS[rec.info['dispersion']]})", fontsize=10,
+                          width_inches=width - left - right)
+    top = 0.42 + 0.17 * (title.get_text().count("\n") + 1)  # the figure's title, then the panel's lines of 10 pt
+    rows = axes.shape[0]
+    panel = (height - top - bottom - gap * (rows - 1)) / rows
+    fig.subplots_adjust(left=left / width, right=1 - right / width, top=1 - top / height, bottom=bottom / height,
+                        hspace=gap / panel)
+    fig.suptitle(f"Virtual shot {s.name} - SYNTHETIC (shpb simulate)", fontsize=10, y=1 - 0.08 / height, va="top")
     return fig

@@ -304,3 +304,14 @@ def test_dispersion_figure_is_clean():
     fig = report.plot_dispersion(table, "HRB-350 incident bar, 19.05 mm, a title long enough to need wrapping "
                                         "on this figure", 2.5e5)
     assert layout_problems(fig) == []
+
+
+@pytest.mark.parametrize("setup", ["HR-C10-1000-a", "HR-P20-400", "bars_together"])
+def test_virtual_shot_figure_is_clean(setup):
+    # The sheet of shpb simulate on its fixed layout (one draw, no constrained layout): a specimen shot, one with
+    # further gauge stations (the widest legend) and a bars-together shot (one panel)
+    from shpb.virtual import load_simulation, plot_virtual_shot, simulate_setup
+
+    fig = plot_virtual_shot(simulate_setup(load_simulation(ROOT / "example_data" / "setups" / f"{setup}.toml")))
+    assert not fig.get_constrained_layout()
+    assert layout_problems(fig) == []
