@@ -1513,7 +1513,7 @@ def fit_curves(
     if draws:
         boot = _bootstrap(spec, curves, settings, fixed_all, weighting, res, int(draws), seed, shared_errors)
         params, corr = _with_bootstrap(params, boot), _pairs(boot)
-        notes.append(_bootstrap_note(boot))
+        notes.append(_bootstrap_note(boot, shared_errors))
     result = FitResult(
         model=spec.name, method="global", parameters=params, correlations=corr, settings=settings,
         curves=curves, curve_stats=per, rms=rms, r_squared=r2, n_points=int(n_pts), notes=notes,
@@ -1653,15 +1653,16 @@ def _pairs(boot):
     return {(n[i], n[j]): float(boot.correlation[i, j]) for i in range(len(n)) for j in range(i + 1, len(n))}
 
 
-def _bootstrap_note(boot):
+def _bootstrap_note(boot, shared_errors=True):
     kept = boot.draws - boot.failed
     shot = (f"shot-to-shot scale scatter {100 * boot.offset_scatter:.2g} % (curve offsets inflated "
             f"x{boot.offset_inflation:.2f} for what the fit absorbs)" if math.isfinite(boot.offset_scatter)
             else "shot level left out: too few curves beyond the parameters to estimate the scatter between shots")
     shared = (f"; with each draw the errors shared by the shots of a bar set, from their uncertainty budgets: "
               f"{'; '.join(boot.shared)} (JCGM 101:2008)" if boot.shared else
-              "; errors shared by every shot (a bar set's calibration) are not in them: the curves carry no "
-              "uncertainty budget (reduce with the uncertainty on)")
+              "; errors shared by every shot (a bar set's calibration) are not in them: "
+              + ("the curves carry no uncertainty budget (reduce with the uncertainty on)" if shared_errors else
+                 "left out on request (--no-shared-errors)"))
     return (f"uncertainties: bootstrap over whole curves, {kept} of {boot.draws} draws refitted (seed {boot.seed}); "
             f"residual correlation length {boot.correlation_length:.3g} in plastic strain, blocks of "
             f"{boot.block_length:.3g}; {shot}; 95 % percentile intervals (Efron & Tibshirani 1993; "

@@ -282,3 +282,34 @@ def test_shared_bar_set_errors_reach_the_parameters_by_the_gum_law():
     assert off.parameters["K"].u / off.parameters["K"].value < 0.1 * us and off.bootstrap.shared == ()
     bare = F.fit_curves(_shared_rig_curves(None, None, n=n), "power-law", fixed={"C": 0.0}, draws=300)
     assert bare.bootstrap.shared == () and "carry no uncertainty budget" in " ".join(bare.notes)
+
+
+def test_shared_errors_are_read_from_the_shots_summaries_and_can_be_left_out(tmp_path):
+    # The wiring from the reduction's summary (uncertainty.relative_by_group, inputs.barset) through shpb fit to its
+    # files: with the terms a stress scale of 1 % shared by every shot must widen A well beyond the scatter-only u
+    # (the GUM law above gives u(A)/A of about 1 % for a scale common to all curves; common practice that shots of
+    # one bar set share its calibration), and --no-shared-errors must leave them out.
+    import json
+
+    from shpb.cli import main
+
+    stress = lambda ep, r, T: jc(ep, r, T, **CU, Tm=1356.0)  # noqa: E731
+    root = make_campaign(tmp_path / "c", stress, [1.0, 1e3, 3e3], [TR], noise=2e5)
+    for summary in (root / "shots").glob("*/summary.json"):
+        data = json.loads(summary.read_text())
+        data["inputs"]["barset"] = {"name": "CU-X bars (fictional)", "source": "bars.toml"}
+        data["uncertainty"] = {"relative_by_group": {"stress": {"bar set": 0.01, "specimen": 0.002},
+                                                     "strain": {"bar set": 0.0, "specimen": 0.002}}}
+        summary.write_text(json.dumps(data))
+    runs = {}
+    for flag in ("--shared-errors", "--no-shared-errors"):
+        out = tmp_path / flag.strip("-")
+        assert main(["fit", str(root), "--model", "johnson-cook", "--draws", "300", flag, "--no-figure",
+                     "--out", str(out)]) == 0
+        runs[flag] = json.loads((out / "fit_parameters.json").read_text())
+    on, off = runs["--shared-errors"], runs["--no-shared-errors"]
+    assert on["uncertainty"]["shared_terms"] == ["stress scale of bar set CU-X bars (fictional) (1 %, 3 shots)"]
+    assert off["uncertainty"]["shared_terms"] == []
+    assert any("left out on request" in n for n in off["notes"])
+    a_on, a_off = on["parameters"]["A_MPa"], off["parameters"]["A_MPa"]
+    assert a_on["u"] > 3 * a_off["u"] and a_on["u"] == pytest.approx(0.01 * a_on["value"], rel=0.25)
