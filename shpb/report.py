@@ -99,15 +99,28 @@ def legend_on_top(ax, handles=None, ncol=2, extra_inches=0.0, data_axes=None, **
                      handlelength=1.6, columnspacing=1.0, framealpha=0.9, **kwargs)
 
 
+#: Width of an average character of sans-serif text [em], for layouts decided before anything is drawn.
+_CHAR_EM = 0.55
+
+
 def legend_outside(ax, handles=None, **kwargs):
     """A legend to the right of a panel, outside it: for figures laid out by matplotlib's constrained layout,
-    which makes room for it. It never sits on the data."""
+    which makes room for it, or on a fixed layout that keeps :func:`outside_legend_width` free on the right.
+    It never sits on the data."""
     if handles is None:
         handles, labels = ax.get_legend_handles_labels()
     else:
         labels = [h.get_label() for h in handles]
     kwargs.setdefault("fontsize", 7)
     return ax.legend(handles, labels, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0, **kwargs)
+
+
+def outside_legend_width(axes) -> float:
+    """Room [inch] the widest :func:`legend_outside` legend of ``axes`` needs right of its panel: its longest
+    line at 7 pt (about 0.55 em a character), the handle, the frame and the gap."""
+    lines = [line for ax in axes if ax.get_legend() for t in ax.get_legend().get_texts()
+             for line in t.get_text().split("\n")]
+    return max((len(line) for line in lines), default=0) * 7 * _CHAR_EM / 72 + 0.55
 
 
 def plain_log_axis(axis) -> None:
@@ -141,7 +154,7 @@ def wrapped_title(fig_or_ax, text: str, fontsize: float = 10.0, width_inches=Non
     if width_inches is None:
         fig = fig_or_ax if isinstance(fig_or_ax, _Figure) else fig_or_ax.figure
         width_inches = fig.get_figwidth() * (1.0 if isinstance(fig_or_ax, _Figure) else 0.8)
-    chars = max(20, int(width_inches * 72 / (0.55 * fontsize)))  # about 0.55 em per character of sans-serif
+    chars = max(20, int(width_inches * 72 / (_CHAR_EM * fontsize)))
     text = "\n".join(textwrap.wrap(text, chars)) or text
     if isinstance(fig_or_ax, _Figure):
         return fig_or_ax.suptitle(text, fontsize=fontsize, **kwargs)

@@ -531,7 +531,7 @@ def plot_virtual_shot(shot: VirtualShot):
     from matplotlib.figure import Figure  # no pyplot: the user's backend and figure list stay as they are
 
     from . import style
-    from .report import legend_outside, wrapped_title
+    from .report import legend_outside, outside_legend_width, wrapped_title
 
     rec, res, s = shot.record, shot.result, shot.setup
     has_specimen = s.kind == "specimen"
@@ -568,11 +568,9 @@ def plot_virtual_shot(shot: VirtualShot):
                 label="true (volume\nconstant)")
         ax.set(xlabel="strain [1]", ylabel="stress [MPa]", title="Specimen stress (model truth)")
         legend_outside(ax)
-    # the fixed layout [inches]: the widest legend line at 7 pt (about 0.55 em a character) with its handle and
-    # frame on the right; the y labels on the left; the titles above and the x labels below each panel
-    lines = [line for a in axes.flat if a.get_legend() for t in a.get_legend().get_texts()
-             for line in t.get_text().split("\n")]
-    legend = max((len(line) for line in lines), default=0) * 7 * 0.55 / 72 + 0.55
+    # the fixed layout [inches]: the widest legend on the right, the y labels on the left, the titles above and
+    # the x labels below each panel
+    legend = outside_legend_width(axes.flat)
     left, right, bottom, gap = 0.85, legend + 0.2, 0.55, 0.8
     title = wrapped_title(axes[0, 0], f"Gauge strains in the record (before noise and quantisation; dispersion: "
                                       f"{DISPERSION_LABELS[rec.info['dispersion']]})", fontsize=10,
