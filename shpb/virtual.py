@@ -364,7 +364,12 @@ def station_channels(record: VirtualRecord) -> dict:
 TRUTH_COLUMNS = ("time_us", "stress_MPa", "strain", "strain_rate_per_s", "force_front_kN", "force_back_kN")
 
 
-def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = None, *, before=20e-6, after=20e-6):
+#: Time [s] the truth table keeps ahead of the incident foot and past the loading (:func:`truth_table`).
+TRUTH_MARGIN = 20e-6
+
+
+def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = None, *, before=TRUTH_MARGIN,
+                after=TRUTH_MARGIN):
     """The specimen truth over its loading: from ``before`` [s] ahead of the incident foot's arrival to
     ``after`` [s] past the last time a face force exceeds 1 % of its peak (within the record).
 
@@ -507,8 +512,8 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
     atomic_write_text(paths["record"], record_csv_text(shot.record, record_metadata(shot)))
     written["record"] = paths["record"]
     if shot.setup.kind == "specimen":
-        atomic_write_table(paths["truth"], TRUTH_COLUMNS, _truth_rows(shot.result, shot.record, 20e-6, 20e-6),
-                           float_format="%.6g")  # truth_table's rows, written without pandas
+        atomic_write_table(paths["truth"], TRUTH_COLUMNS,
+                           _truth_rows(shot.result, shot.record, TRUTH_MARGIN, TRUTH_MARGIN), float_format="%.6g")  # truth_table's rows, written without pandas
         written["truth"] = paths["truth"]
         rel = Path(os.path.relpath(Path(shot.setup.barset_path).resolve(), out.resolve())).as_posix()
         atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel))
@@ -552,7 +557,7 @@ def plot_virtual_shot(shot: VirtualShot):
     legend_outside(ax)
     if has_specimen:
         # the model truth over the loading, from its arrays (no table library: pandas costs a fresh process 0.2 s)
-        tt = dict(zip(TRUTH_COLUMNS, _truth_rows(res, rec, 20e-6, 20e-6).T))
+        tt = dict(zip(TRUTH_COLUMNS, _truth_rows(res, rec, TRUTH_MARGIN, TRUTH_MARGIN).T))
         ax = axes[1, 0]
         ax.plot(tt["time_us"], tt["force_front_kN"], color=style.INCIDENT, label="front face F1\n(incident bar)")
         ax.plot(tt["time_us"], tt["force_back_kN"], "--", color=style.TRANSMITTED,
