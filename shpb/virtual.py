@@ -512,8 +512,9 @@ def write_virtual_shot(shot: VirtualShot, out_dir, *, figure=True) -> dict:
     atomic_write_text(paths["record"], record_csv_text(shot.record, record_metadata(shot)))
     written["record"] = paths["record"]
     if shot.setup.kind == "specimen":
+        # truth_table's rows, written without pandas
         atomic_write_table(paths["truth"], TRUTH_COLUMNS,
-                           _truth_rows(shot.result, shot.record, TRUTH_MARGIN, TRUTH_MARGIN), float_format="%.6g")  # truth_table's rows, written without pandas
+                           _truth_rows(shot.result, shot.record, TRUTH_MARGIN, TRUTH_MARGIN), float_format="%.6g")
         written["truth"] = paths["truth"]
         rel = Path(os.path.relpath(Path(shot.setup.barset_path).resolve(), out.resolve())).as_posix()
         atomic_write_text(paths["shot"], shot_toml_text(shot, paths["record"].name, rel))
