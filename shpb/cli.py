@@ -77,6 +77,8 @@ def main(argv=None) -> int:
     if threading.current_thread() is threading.main_thread():
         # SIGTERM (a scheduler's stop, kill) ends a command as Ctrl-C does: cleanly, with a message
         old_term = signal.signal(signal.SIGTERM, _terminated)
+    stdout = sys.stdout
+    sys.stdout = _ReaderMayLeave(stdout)  # `shpb reduce ... | head -1`: the exit status still tells the verdict
     try:
         app(args=argv, standalone_mode=True)
     except SystemExit as exc:  # normal end, typer.Exit and usage errors
@@ -99,9 +101,53 @@ def main(argv=None) -> int:
     except Exception as exc:  # noqa: BLE001 - a bug: one line here, the traceback in a log file
         return _internal_error(exc, argv)
     finally:
+        sys.stdout = stdout
         if old_term is not None:
             signal.signal(signal.SIGTERM, old_term)
     return 0
+
+
+class _ReaderMayLeave:
+    """Standard output that stops writing once its reader has gone (a pipe closed early, ``| head -1``).
+
+    Without it the parser library turns the broken pipe into exit status 1,
+    which means "not valid", for a shot that was reduced valid and whose files
+    were all written. Output after the reader left is dropped; the work and
+    the exit status are as they would have been.
+    """
+
+    def __init__(self, stream):
+        self._stream = stream
+        self.gone = False
+
+    def write(self, text):
+        if not self.gone:
+            try:
+                return self._stream.write(text)
+            except BrokenPipeError:
+                self._left()
+        return len(text)
+
+    def flush(self):
+        if not self.gone:
+            try:
+                self._stream.flush()
+            except BrokenPipeError:
+                self._left()
+
+    def _left(self):
+        self.gone = True
+        try:  # the interpreter flushes what is still buffered when it exits: let that go nowhere, quietly
+            import os
+
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, self._stream.fileno())
+            os.close(devnull)
+        except (OSError, ValueError, AttributeError):  # no descriptor (a captured stream): nothing is flushed later
+            pass
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
 
 
 def _interrupt_behind(exc: BaseException):

@@ -161,3 +161,17 @@ def test_usage_errors_exit_2_with_one_message(argv, fragment):
     assert p.returncode == 2
     assert "Traceback" not in p.stderr and fragment in p.stderr
     assert p.stderr.strip().splitlines()[-1].startswith("Error:")
+
+
+def test_a_reader_that_leaves_early_does_not_change_the_exit_status(tmp_path):
+    # `shpb reduce SHOT | head -1`: the reader closes the pipe, the next write fails with EPIPE (POSIX write(2):
+    # the pipe has no reader). The exit status must still say VALID (0, common practice: a status means one
+    # thing), and every file must be written; the parser library alone would turn the broken pipe into 1.
+    proc = subprocess.Popen([sys.executable, "-m", "shpb.cli", "reduce", "configs/example_shot.toml", "--no-figure",
+                             "--no-uncertainty", "--out", str(tmp_path / "r")], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE)
+    proc.stdout.close()  # gone before the first line
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=120) == 0, err
+    assert (tmp_path / "r" / "curves.csv").is_file() and (tmp_path / "r" / "summary.json").is_file()
+    assert "Traceback" not in err
