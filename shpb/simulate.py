@@ -334,16 +334,19 @@ class TrueStressLaw:
 
     def flow_stress(self, plastic_strain, strain_rate):
         """Engineering flow stress [Pa] at engineering plastic strain [1] and rate [1/s]."""
-        stretch = np.array(plastic_strain, dtype=float)  # 1 - p, p clipped to [0, 0.999]
-        np.maximum(stretch, 0.0, out=stretch)
-        np.minimum(stretch, 0.999, out=stretch)
-        np.subtract(1.0, stretch, out=stretch)
-        true = np.asarray(self.law.flow_stress(-np.log(stretch), np.divide(strain_rate, stretch)), dtype=float)
-        root = true * (-4.0 / self.modulus)
-        root += stretch * stretch
-        root = np.sqrt(np.maximum(root, 0.0))
+        stretch = np.subtract(1.0, plastic_strain, dtype=float)  # 1 - p, p clipped to [0, 0.999]
+        np.maximum(stretch, 0.001, out=stretch)
+        np.minimum(stretch, 1.0, out=stretch)
+        true_strain = np.log(stretch)
+        np.negative(true_strain, out=true_strain)
+        true = np.asarray(self.law.flow_stress(true_strain, np.divide(strain_rate, stretch)), dtype=float)
+        root = np.multiply(stretch, stretch)
+        root -= true * (4.0 / self.modulus)
+        np.maximum(root, 0.0, out=root)
+        np.sqrt(root, out=root)
         root += stretch
-        return 2.0 * true / root
+        root *= 0.5
+        return np.divide(true, root, out=root)
 
 
 def _as_law(law, where):
@@ -764,6 +767,11 @@ class VirtualShotResult:
     truth_columns, energy_columns : dict
         The columns of ``truth`` and ``energies`` (name -> array), for a
         caller that does without pandas (``shpb simulate`` does not import it).
+        ``energy_columns`` is a property, computed on first use by
+        ``energy_source`` (the delay lines' energies cost more than a virtual
+        record needs).
+    energy_source : callable
+        Returns ``energy_columns``.
     """
 
     time: np.ndarray
@@ -771,7 +779,7 @@ class VirtualShotResult:
     strain_transmitted_gauge: np.ndarray
     foot_arrival_time: float
     truth_columns: dict = field(repr=False)
-    energy_columns: dict = field(repr=False)
+    energy_source: Callable[[], dict] = field(repr=False)
     grid: dict
     spec: VirtualShotSpec = field(repr=False)
     gauge_waves: dict = field(default_factory=dict, repr=False)
@@ -783,6 +791,11 @@ class VirtualShotResult:
         import pandas as pd
 
         return pd.DataFrame(self.truth_columns)
+
+    @functools.cached_property
+    def energy_columns(self):
+        """The columns of ``energies`` (see the class notes), computed on first use."""
+        return self.energy_source()
 
     @functools.cached_property
     def energies(self):
@@ -989,12 +1002,12 @@ def _shot(spec, incident_wave_only=False):
     t_samples = np.arange(int(math.floor(spec.duration * spec.sample_rate + 1e-9)) + 1) / spec.sample_rate
     lower = np.floor(t_samples / dt + 1e-9).astype(np.int64)
     kept_steps = np.union1d(lower, lower + 1)
-    rec, impact_force, e0, peak, stations = _run(spec, rods, dt, kept_steps, incident_wave_only)
+    rec, impact_force, e0, peak, stations, line_energies = _run(spec, rods, dt, kept_steps, incident_wave_only)
     for name, (value, _) in peak.items():
         if value >= 1.0:
             raise AnalysisError(f"the {name} was crushed to zero length (engineering strain {value:.2f}); the "
                                 f"small-strain model does not hold: shorten the record or soften the impact")
-    return _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations)
+    return _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations, line_energies)
 
 
 # --------------------------------------------------------------------------- the solver
@@ -1004,6 +1017,13 @@ _COURANT_ONE = ("striker", "incident", "transmitted")
 _CHUNK = 1024
 #: Largest grid state (values) stepped by one matrix product (_Grid.step_matrix) rather than by differences.
 _DENSE_SIZE = 160
+#: Newton steps a flowing element may take after the first before the general iteration takes over
+#: (_PlasticState; a virtual shot's stress relaxation after unloading needs two or three where the load turns).
+_EXTRA_NEWTON = 3
+# _PlasticState._newton_from: the law's arguments as multiples of the increment x, rows (x, x + h) at the
+# plastic rate x / dt and at zero rate, h = 1e-6 x
+_STEP_FACTORS = np.array([1.0, 1.0 + 1e-6, 1.0, 1.0 + 1e-6])[:, None]
+_RATE_FACTORS = np.array([1.0, 1.0 + 1e-6, 0.0, 0.0])[:, None]
 # reductions of the small arrays of the time stepping, called directly (ndarray.max() and the like add a
 # Python layer that costs more than the reduction itself on a specimen's 20 elements)
 _max, _min, _any, _all = np.maximum.reduce, np.minimum.reduce, np.logical_or.reduce, np.logical_and.reduce
@@ -1236,7 +1256,8 @@ class _Grid:
         """The elastic step as one matrix on ``[state, 1]``: from the state after the contacts of step n
         (``v(n+1/2)``, ``eps(n)``, ``F(n)``) to the state of step n+1 before its contacts (``eps(n+1) = eps(n) +
         dt/dx (v_(j+1) - v_j)``, ``F(n+1) = EA eps(n+1)``, ``v(n+3/2) = v(n+1/2) + dt/m (F_j - F_(j-1))``); the
-        last column holds the forces' offsets (:meth:`set_offsets`)."""
+        last column holds the forces' offsets (:meth:`offset_setter`). Stored column by column, so that the
+        last column is one contiguous array."""
         nn, nl = self.n_nodes, self.n_links
         size = self.state.size
         M = np.zeros((size + 1, size + 1))
@@ -1246,22 +1267,36 @@ class _Grid:
         M[eps_rows, links + 1] += self.dt_over_dx
         M[eps_rows, links] -= self.dt_over_dx
         M[F_rows] = self.EA[:, None] * M[eps_rows]
-        F_pad_rows = M[nn + nl:nn + 2 * nl + 2]  # (the pads' rows are zero)
-        M[:nn] = self.dt_over_m[:, None] * (F_pad_rows[1:] - F_pad_rows[:-1])
+        M[:nn] = self.node_kicks() @ M[nn + nl:nn + 2 * nl + 2]  # (the pads' rows are zero)
         M[np.arange(nn), np.arange(nn)] += 1.0
         M[size, size] = 1.0
-        return M
+        return np.asfortranarray(M)
 
-    def set_offsets(self, M, plastic):
-        """Write the plastic strains' offsets into the step matrix's last column: ``F = EA (eps - eps_p)``."""
+    def node_kicks(self):
+        """The matrix from the padded forces ``F_pad`` [N] to the node velocity changes over a step [m/s]:
+        ``dt/m_j (F_j - F_(j-1))``."""
+        nn = self.n_nodes
+        K = np.zeros((nn, nn + 1 if nn else 0))
+        K[np.arange(nn), np.arange(nn) + 1] = self.dt_over_m
+        K[np.arange(nn), np.arange(nn)] = -self.dt_over_m
+        return K
+
+    def offset_setter(self, M, plastic):
+        """A function that writes the plastic strains' offsets into the step matrix's last column:
+        ``F = EA (eps - eps_p)``, and the node velocity changes they make."""
         nn, nl = self.n_nodes, self.n_links
         column = M[:, -1]
-        F_pad = column[nn + nl:nn + 2 * nl + 2]
-        for p in plastic:
-            sl = self.links[p.rod.name]
-            np.multiply(self.minus_EA[sl], p.eps_p, out=F_pad[1 + sl.start:1 + sl.stop])
-        np.subtract(F_pad[1:], F_pad[:-1], out=column[:nn])
-        column[:nn] *= self.dt_over_m
+        F_pad, nodes = column[nn + nl:nn + 2 * nl + 2], column[:nn]
+        kicks = self.node_kicks()
+        rods = [(p, self.minus_EA[self.links[p.rod.name]],
+                 F_pad[1 + self.links[p.rod.name].start:1 + self.links[p.rod.name].stop]) for p in plastic]
+
+        def set_offsets():
+            for p, minus_EA, out in rods:
+                np.multiply(minus_EA, p.eps_p, out=out)
+            np.dot(kicks, F_pad, out=nodes)
+
+        return set_offsets
 
     def column(self, kind, name, index):
         """Column of the state array holding node ``index`` (``kind = "v"``) or element ``index``
@@ -1368,7 +1403,9 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     row = 0
     if dense:
         M = grid.step_matrix()
-        grid.set_offsets(M, plastic)
+        set_offsets = grid.offset_setter(M, plastic)
+        set_offsets()
+        kicks = grid.node_kicks()
         prev = carry = np.append(state, 1.0)  # the state before the march, with the trailing 1
         checks = [(p, grid.column("eps", p.rod.name, 0), nn + nl + 1 + grid.links[p.rod.name].start,
                    grid.links[p.rod.name].stop - grid.links[p.rod.name].start) for p in plastic]
@@ -1397,12 +1434,10 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
                     elif p.aged:
                         p.settle()
                 if returned:  # the node velocities from the returned forces
-                    F_pad = cur[F_pad_cols]
-                    np.subtract(F_pad[1:], F_pad[:-1], out=node_force)
-                    node_force *= dt_over_m
+                    np.dot(kicks, cur[F_pad_cols], out=node_force)
                     np.add(prev[:nn], node_force, out=cur[:nn])
                     if flowed:
-                        grid.set_offsets(M, plastic)
+                        set_offsets()
                 for k, node in copies:
                     u[k] = cur.item(node)
             elif on_grid and not resting:
@@ -1484,10 +1519,11 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     end_kinetic = 0.5 * (history[:-1, own] * np.array(u_mass)[own] * history[1:, own]).sum(axis=1) if own.size \
         else np.zeros(n_steps + 1)
     faces = {name: (history[:, ends[name, "first"]], history[:, ends[name, "last"]]) for name in lines}
-    rec, peak = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic, faces, left_of,
-                         dt, kept_steps, energies=not incident_wave_only)
+    rec, peak, line_energies = _records(spec, by_name, lines, grid, reader, impulses, np.array(work), end_kinetic,
+                                        faces, left_of,
+                                        dt, kept_steps, energies=not incident_wave_only)
     stations = _station_records(spec, by_name, lines, reader, kept_steps)
-    return rec, impact_force, e0, peak, stations
+    return rec, impact_force, e0, peak, stations, line_energies
 
 
 class _GridReader:
@@ -1643,12 +1679,19 @@ def _records(spec, by_name, lines, grid, reader, impulses, work, end_kinetic, fa
     kinetic, strain_energy = reader.kinetic + end_kinetic, reader.strain_energy.copy()
     if not energies:
         kinetic[:] = strain_energy[:] = np.nan
-    for line in lines.values() if energies else ():
-        k_line, s_line = line.energies(kinetic.size - 1)
-        kinetic += k_line
-        strain_energy += s_line
     rec[:, 8], rec[:, 9], rec[:, 10] = kinetic[ks], strain_energy[ks], work[ks]
-    return rec, peak
+
+    def line_energies():
+        """Columns 8 and 9 with the delay lines' kinetic and strain energies [J] added (done on first use of
+        :attr:`VirtualShotResult.energy_columns`: a virtual record does not need them)."""
+        k_all, s_all = kinetic.copy(), strain_energy.copy()
+        for line in lines.values():
+            k_line, s_line = line.energies(k_all.size - 1)
+            k_all += k_line
+            s_all += s_line
+        return k_all[ks], s_all[ks]
+
+    return rec, peak, (line_energies if energies and lines else None)
 
 
 def _extrapolate(x1, x2=None, x3=None):
@@ -1684,10 +1727,12 @@ class _PlasticState:
       taken from there with one call of the law (:meth:`_newton_from`); it
       stands if it changes the increment by at most ``1e-5`` of itself (the
       second convergence test of :func:`_solve_increment`), which it
-      usually does; if not, and where it led lies inside the bracket
-      ``(0, |s_trial| / E)``, a second step is taken from there. Otherwise,
-      and where an element starts to flow, the general iteration takes over
-      from where the steps led.
+      usually does; if not, further steps are taken, up to
+      ``_EXTRA_NEWTON``, while where they lead lies inside the bracket
+      ``(0, |s_trial| / E)`` (each costs one call of the law; one round of
+      the general iteration, which tries two starting points and keeps a
+      bracket, costs several times more). Otherwise, and where an element starts to flow, the general
+      iteration takes over from where the steps led.
     """
 
     def __init__(self, rod: _Rod, eps, F):
@@ -1696,6 +1741,7 @@ class _PlasticState:
         self.eps, self.F = eps, F
         self.E = rod.spec.modulus
         self.A = rod.spec.area
+        self.inverse_area = 1.0 / self.A
         self.eps_p = np.zeros(m)  # signed plastic strain
         self.p = np.zeros(m)  # accumulated equivalent plastic strain
         self.work = 0.0  # plastic work [J]
@@ -1710,8 +1756,9 @@ class _PlasticState:
         self.aged = False  # some element flowed in the last step
         self.run = 0  # steps in a row in which every element flowed
         self.work_buffer = np.zeros(m)
-        self.points, self.rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments (_newton_from)
+        self.points, self.rates = np.empty((4, m)), np.empty((4, m))  # the law's arguments (_newton_from)
         self.law_args = self.points.reshape(-1), self.rates.reshape(-1)  # (views)
+        self.h = np.empty(m)
 
     def update(self, dt):
         trial, size, over, E = self.trial, self.size, self.over, self.E
@@ -1721,22 +1768,23 @@ class _PlasticState:
         if np.dot(trial, trial) > self.elastic_squared:
             np.abs(trial, out=size)
             if _max(size) * E > self.quasi_static_min:
+                trial *= E
+                size *= E
                 return self._check_flow(trial, size, over, E, dt)
         self._elastic(trial)
         return False
 
     def flow_step(self, dt):
-        """:meth:`update` for a step the caller has found may flow (a force beyond the smallest flow stress)."""
+        """:meth:`update` for a step the caller has found may flow (a force beyond the smallest flow stress),
+        with ``F`` holding the trial forces ``EA (eps - eps_p)``."""
         trial, size = self.trial, self.size
-        np.subtract(self.eps, self.eps_p, out=trial)
+        np.multiply(self.F, self.inverse_area, out=trial)  # the trial stress
         np.abs(trial, out=size)
         return self._check_flow(trial, size, self.over, self.E, dt)
 
     def _check_flow(self, trial, size, over, E, dt):
-        """The step of an element that may flow: the trial stress against each element's flow stress, then
-        the return mapping of those that flow."""
-        trial *= E
-        size *= E
+        """The step of an element that may flow: the trial stress ``trial`` [Pa] (``size`` its magnitude)
+        against each element's flow stress, then the return mapping of those that flow."""
         np.greater(size, self.quasi_static, out=over)
         every = _all(over)
         if not every and not _any(over):
@@ -1762,8 +1810,10 @@ class _PlasticState:
                 guess = None
         if guess is not None:
             inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)
-            if inc is None and _all(guess > 0.0) and _all(guess * E < size_f):  # still inside the bracket:
-                inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)  # a second Newton step
+            for _ in range(_EXTRA_NEWTON):  # further steps while they stay inside the bracket
+                if inc is not None or not (_all(guess > 0.0) and _all(guess * E < size_f)):
+                    break
+                inc, quasi_static, guess = self._newton_from(guess, size_f, p_f, dt)
         if inc is None:  # the general iteration, from where the step led or from the last increments
             if guess is None:
                 with np.errstate(divide="ignore", invalid="ignore"):
@@ -1821,28 +1871,29 @@ class _PlasticState:
         else ``(None, None, where it led)``."""
         m = x.size
         if m == self.rod.n:
-            points, rates = self.points, self.rates
+            points, rates, h = self.points, self.rates, self.h
             strains, strain_rates = self.law_args
         else:
-            points, rates = np.empty((4, m)), np.zeros((4, m))  # the law's arguments, as in _flow_points
+            points, rates, h = np.empty((4, m)), np.empty((4, m)), np.empty(m)  # as in _flow_points
             strains, strain_rates = points.reshape(-1), rates.reshape(-1)
-        h = 1e-6 * x
-        p0, p1, r0 = points[0], points[1], rates[0]
-        np.add(p, x, out=p0)
-        np.add(p0, h, out=p1)
-        points[2:] = points[:2]
-        np.divide(x, dt, out=r0)
-        np.multiply(r0, 1.0 + 1e-6, out=rates[1])
+        # the law's arguments in two calls each: rows x and x + h, at the plastic rate, then at zero rate
+        np.multiply(_STEP_FACTORS, x, out=points)
+        points += p
+        np.multiply(_RATE_FACTORS / dt, x, out=rates)
+        np.multiply(x, 1e-6, out=h)
         flow = np.asarray(self.flow(strains, strain_rates), dtype=float).reshape(4, -1)
-        f0, f1 = flow[0], flow[1]
-        law_slope = f1 - f0
+        f0 = flow[0]
+        law_slope = flow[1] - f0
         law_slope /= h
-        self.flat = not _any(law_slope)
-        g = size - self.E * x
+        E = self.E
+        g = x * -E
+        g += size
         g -= f0
-        slope = law_slope + self.E
+        slope = law_slope + E
         # (floating-point warnings are off here: _run marches under np.errstate)
-        if _min(law_slope) > self.E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
+        lowest = _min(law_slope)
+        if lowest > E:  # Newton on ln x (see _solve_increment): dx / x = expm1(dg / g')
+            self.flat = False
             change = slope * x
             np.divide(g, change, out=change)
             np.expm1(change, out=change)
@@ -1850,9 +1901,11 @@ class _PlasticState:
             converged = _max(np.abs(change, out=g)) <= 1e-5  # (g: no longer needed)
         else:
             dx = g / slope
-            if _max(law_slope) > self.E:
-                dx = np.where(law_slope > self.E, x * np.expm1(g / (slope * x)), dx)
-            converged = _all(np.abs(dx) <= 1e-5 * x)
+            highest = _max(law_slope)
+            self.flat = lowest == 0.0 and highest == 0.0
+            if highest > E:
+                dx = np.where(law_slope > E, x * np.expm1(g / (slope * x)), dx)
+            converged = _max(np.abs(dx) / x) <= 1e-5
         if not converged:
             return None, None, x + dx
         quasi_static = flow[3] - flow[2]
@@ -1895,7 +1948,7 @@ def _gauge_weights(rod, distance, from_end):
     return rod.node0 + i, rod.node0 + j, 1.0 - w, w
 
 
-def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=None):
+def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=None, line_energies=None):
     by_name = {r.name: r for r in rods}
     inc = by_name["incident"]
     n_enter = int(np.argmax(impact_force > spec.foot_fraction * impact_force.max()))
@@ -1904,8 +1957,12 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
     # linear interpolation in time onto the recorder clock; at Courant 1 a bar element's strain is the
     # element average, which varies linearly in time while a front crosses it, so this adds no error there
     time = t_samples
-    kept_time = rec[:, 0]
-    rec = np.column_stack([time] + [np.interp(time, rec[:, 0], rec[:, k]) for k in range(1, rec.shape[1])])
+    kept, kept_time = rec, rec[:, 0]
+    # (the energies, columns 8 to 10, on first use: energy_source below)
+    rec = np.full((time.size, kept.shape[1]), np.nan)
+    rec[:, 0] = time
+    for k in (*range(1, 8), *range(11, kept.shape[1])):
+        rec[:, k] = np.interp(time, kept_time, kept[:, k])
     t_us = (time - foot) * 1e6
     truth = {
         "time_us": t_us,
@@ -1915,13 +1972,17 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
         "force_front_kN": rec[:, 6] * 1e-3,
         "force_back_kN": rec[:, 7] * 1e-3,
     }
-    energies = {
-        "time_us": t_us,
-        "kinetic_J": rec[:, 8],
-        "strain_J": rec[:, 9],
-        "plastic_J": rec[:, 10],
-        "total_J": rec[:, 8] + rec[:, 9] + rec[:, 10],
-    }
+    kept_energies = kept[:, 8:11]
+
+    def energies():
+        """The energy columns, the delay lines' part added now (see :func:`_records`)."""
+        columns = kept_energies.copy()
+        if line_energies is not None:
+            columns[:, 0], columns[:, 1] = line_energies()
+        kinetic, strain, plastic = (np.interp(time, kept_time, columns[:, k]) for k in range(3))
+        return {"time_us": t_us, "kinetic_J": kinetic, "strain_J": strain, "plastic_J": plastic,
+                "total_J": kinetic + strain + plastic}
+
     grid = {
         "dt_s": dt,
         "steps": len(impact_force),
@@ -1948,7 +2009,7 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
                    for name, (bar, d, strain, toward, away) in (stations or {}).items()}
     return VirtualShotResult(time=time, strain_incident_gauge=rec[:, 1].copy(),
                              strain_transmitted_gauge=rec[:, 2].copy(), foot_arrival_time=foot,
-                             truth_columns=truth, energy_columns=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
+                             truth_columns=truth, energy_source=energies, grid=grid, spec=spec, gauge_waves=gauge_waves,
                              stations=station_out)
 
 
