@@ -10,7 +10,9 @@ min / median / max over the rounds.
    0.3 m striker at 15 m/s, 1.5 m steel bars of 20 mm, a 5 mm x 8 mm copper-like specimen (20 elements;
    Johnson-Cook, perfectly plastic, elastic), a bars-together shot, 1 ms at 10 MHz; and the whole
    virtual shot of an example setup (striker pulse run, dispersed drive, run, dispersed record) with either
-   solver. Printed: the speed-up old / new per round (target: at least 10).
+   solver. The rigs' shots ask for the energy balance, which the old march always computes and the new solver
+   on first use; the whole virtual shot, like ``shpb simulate``, does not need it. Printed: the speed-up
+   old / new per round (target: at least 10, for the whole virtual shot).
 2. **Whole process**: ``shpb simulate example_data/setups/HR-C10-1000-a.toml --out TMP`` (with and without
    the figure) beside ``python -c pass`` and a process that only imports ``shpb.simulate``; times and
    ratios (target: the whole command at most 1 s).
