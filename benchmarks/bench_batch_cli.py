@@ -26,6 +26,8 @@ import tempfile
 import time
 from pathlib import Path
 
+from timing import cache_bytecode  # (benchmarks/timing.py)
+
 ROOT = Path(__file__).resolve().parents[1]
 SHPB = [sys.executable, "-m", "shpb.cli"]
 
@@ -48,6 +50,7 @@ def main(argv=None) -> int:
     ap.add_argument("--rounds", type=int, default=5)
     ap.add_argument("--quick", action="store_true")
     args = ap.parse_args(argv)
+    print(cache_bytecode())
     rounds = 3 if args.quick else args.rounds
     full_rounds = 1 if args.quick else max(2, rounds // 2)
     with tempfile.TemporaryDirectory(prefix="shpb-bench-batch-") as tmp:

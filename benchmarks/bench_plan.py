@@ -29,6 +29,8 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from timing import cache_bytecode  # noqa: E402  (benchmarks/timing.py)
+
 from shpb.planning import flow_tables, load_plan, plan_target, with_targets  # noqa: E402
 from shpb.setup import load_barset  # noqa: E402
 
@@ -77,6 +79,7 @@ def main(argv=None):
     args = ap.parse_args(argv)
 
     print(f"machine: {os.cpu_count()} CPUs; plan {PLAN.relative_to(ROOT)} on {BARS.relative_to(ROOT)}")
+    print(cache_bytecode())
     rows = in_process(args.quick)
     print("\n1. in process, one target after the other (design + previews + adjustments)")
     print("| target | rate target / reached [1/s] | strain target / reached | verdict | previews | wall / CPU [s] |")

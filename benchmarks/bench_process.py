@@ -59,7 +59,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from timing import mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
+from timing import cache_bytecode, mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLE = ROOT / "configs" / "example_shot.toml"
@@ -313,6 +313,7 @@ def main(argv=None) -> int:
     rounds = 1 if args.quick else max(1, args.rounds)
     _, label = shpb_command()
     print(f"shpb = {label}; python {sys.version.split()[0]}; {os.cpu_count()} CPUs")
+    print(cache_bytecode(ROOT, *([args.before] if args.before else [])))
     results = {}
     with tempfile.TemporaryDirectory() as tmp:
         records = {"example": EXAMPLE}

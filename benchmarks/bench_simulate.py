@@ -38,6 +38,8 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from reference_leapfrog import simulate_shot_reference  # noqa: E402  (the old solver, tests/ only)
 
+from timing import cache_bytecode  # noqa: E402  (benchmarks/timing.py)
+
 import shpb.simulate as simulate  # noqa: E402
 import shpb.virtual as virtual  # noqa: E402
 from shpb.simulate import JohnsonCookLaw, PerfectlyPlastic, RodSpec, VirtualShotSpec  # noqa: E402
@@ -163,6 +165,7 @@ def main(argv=None):
     ap.add_argument("--rounds", type=int, default=None, help="rounds of each comparison (default 5, quick 2)")
     a = ap.parse_args(argv)
     rounds = a.rounds or (2 if a.quick else 5)
+    print(cache_bytecode())
     in_process(rounds, 0.3e-3 if a.quick else 1e-3)
     whole_process(rounds)
 

@@ -28,7 +28,7 @@ import argparse
 import statistics
 import sys
 
-from timing import mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
+from timing import cache_bytecode, mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
 
 #: The target: at most this much more than the yardstick (median over the rounds) [s].
 TARGET_DIFFERENCE_S = 0.3
@@ -81,6 +81,7 @@ def main(argv=None) -> int:
     ap.add_argument("--rounds", type=int, default=10, help="rounds of the four processes [default: 10]")
     ap.add_argument("--quick", action="store_true", help="one round, no warm-up: shows the script works")
     args = ap.parse_args(argv)
+    print(cache_bytecode())
     commands, label = cases()
     times = measure(commands, 1 if args.quick else max(1, args.rounds), warm_up=not args.quick)
     print("\n".join(report(times, label)))

@@ -41,7 +41,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from timing import mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
+from timing import cache_bytecode, mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLE = ROOT / "configs" / "example_shot.toml"
@@ -152,6 +152,7 @@ def main(argv=None) -> int:
     if a.quick:
         a.rounds, a.repeats, a.coverage = 1, 1, 2
     if not a.no_cost:
+        print(cache_bytecode())
         cost(a.rounds)
         breakdown(a.repeats)
     if a.coverage:

@@ -35,7 +35,7 @@ import threading
 import time
 from pathlib import Path
 
-from timing import mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
+from timing import cache_bytecode, mmm, run_process, shpb_command  # noqa: E402  (benchmarks/timing.py)
 
 ROOT = Path(__file__).resolve().parents[1]
 RECORDS = sorted((ROOT / "example_data" / "shots").glob("HR-A61-*.csv"))
@@ -97,6 +97,7 @@ def main():
     ap.add_argument("--quick", action="store_true", help="two rounds, no yardstick")
     args = ap.parse_args()
     rounds = 2 if args.quick else args.rounds
+    print(cache_bytecode())
     shpb, label = shpb_command()
     with tempfile.TemporaryDirectory(prefix="shpb-bench-watch-") as tmp:
         root = Path(tmp)
