@@ -13,7 +13,7 @@ each wave's path, bridge, noise, offset, 12-bit quantisation), from the
 simulation setup files it writes into ``example_data/setups/``; any one of
 them can be rerun with ``shpb simulate``. The noise generator is seeded, so
 the output is the same on every run of one version (the shipped files predate
-the solver's last round-off-level change: example_data/README.md says by how
+later round-off-level changes to the solver: example_data/README.md says by how
 much a rerun differs from them). Takes about half a minute (the reduction check
 included).
 """
