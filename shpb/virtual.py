@@ -371,7 +371,12 @@ TRUTH_MARGIN = 20e-6
 def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = None, *, before=TRUTH_MARGIN,
                 after=TRUTH_MARGIN):
     """The specimen truth over its loading: from ``before`` [s] ahead of the incident foot's arrival to
-    ``after`` [s] past the last time a face force exceeds 1 % of its peak (within the record).
+    ``after`` [s] past the last face force above 1 % of its peak before the forces are first back at 1 %
+    after the peak (within the record).
+
+    The first return, not the last time a force exceeds 1 % in the whole record: after unloading, the specimen rattles between the
+    bars' faces in contact blips of a few tenths of a percent of the peak, now and then above 1 %, whose timing
+    changes with round-off; the table would end wherever the last of them fell.
 
     Columns (units in the names, reduction time origin): ``time_us``,
     ``stress_MPa``, ``strain``, ``strain_rate_per_s``, ``force_front_kN``,
@@ -387,9 +392,13 @@ def _truth_rows(result, record, before, after):
     """The rows of :func:`truth_table` as one array (columns :data:`TRUTH_COLUMNS`), without pandas."""
     truth = result.truth_columns
     force = np.maximum(np.abs(truth["force_front_kN"]), np.abs(truth["force_back_kN"]))
-    loaded = np.flatnonzero(force > 0.01 * np.nanmax(force))
     t = truth["time_us"]
-    end = t[loaded[-1]] + after * 1e6 if loaded.size else t[-1]
+    end = t[-1]
+    if np.isfinite(force).any():  # (a bars-together shot has no specimen forces)
+        peak = int(np.nanargmax(force))
+        back = np.flatnonzero(force[peak:] <= 0.01 * force[peak])
+        if back.size:  # the last sample above 1 % before that
+            end = t[peak + max(back[0] - 1, 0)] + after * 1e6
     if record is not None:  # the record's last sample on the reduction's time origin
         end = min(end, (record.time[-1] + record.trigger_time - result.foot_arrival_time) * 1e6)
     keep = (t >= -before * 1e6) & (t <= end)

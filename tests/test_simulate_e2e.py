@@ -519,3 +519,26 @@ def test_example_shot_reduces_valid_with_dispersion_correction():
     assert shot.analysis.dispersion
     reduced = reduce_shot(shot)
     assert reduced.valid, [f.message for f in reduced.flags]
+
+
+def test_truth_table_ends_after_the_loading_not_at_a_late_contact_blip():
+    # The truth table covers the specimen's loading (common practice: a reduction is compared with the first
+    # loading only). After unloading, the model's specimen rattles between the bar faces in contact blips, now and
+    # then above 1 % of the peak force, whose timing changes with round-off; the table must end 20 us after the
+    # forces first fall back to 1 % of their peak, whatever blips follow.
+    from types import SimpleNamespace
+
+    from shpb.virtual import TRUTH_COLUMNS, TRUTH_MARGIN, _truth_rows
+
+    t = np.arange(-50.0, 600.0, 0.1)  # us
+    force = np.where((t > 0) & (t < 200), 30.0 * np.sin(np.pi * np.clip(t, 0, 200) / 200) ** 2, 0.0)  # kN
+    last_above = t[(force > 0.3) & (t > 100)].max()  # the last sample above 1 % of the 30 kN peak
+    for blip_at in (None, 350.0, 480.0):
+        f = force.copy()
+        if blip_at is not None:
+            f[np.abs(t - blip_at) < 0.5] = 1.2  # 4 % of the peak, after the specimen has unloaded
+        columns = {name: np.zeros_like(t) for name in TRUTH_COLUMNS}
+        columns.update(time_us=t, force_front_kN=f, force_back_kN=f)
+        rows = _truth_rows(SimpleNamespace(truth_columns=columns), None, TRUTH_MARGIN, TRUTH_MARGIN)
+        assert rows[0, 0] == pytest.approx(-TRUTH_MARGIN * 1e6, abs=0.1)
+        assert rows[-1, 0] == pytest.approx(last_above + TRUTH_MARGIN * 1e6, abs=0.1), blip_at
