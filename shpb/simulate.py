@@ -797,6 +797,15 @@ class VirtualShotResult:
         """The columns of ``energies`` (see the class notes), computed on first use."""
         return self.energy_source()
 
+    def __getstate__(self):
+        """Pickled (a process pool's result, a saved sweep) with the energy columns computed: the source is a
+        closure over the run, which does not pickle."""
+        state = self.__dict__.copy()
+        columns = self.energy_columns
+        state["energy_columns"] = columns
+        state["energy_source"] = functools.partial(dict, columns)
+        return state
+
     @functools.cached_property
     def energies(self):
         """The energy balance as a DataFrame (see the class notes)."""

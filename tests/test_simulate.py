@@ -185,6 +185,22 @@ def test_energy_is_conserved_in_an_elastic_run():
     assert loss / e0 == pytest.approx(dx / (4 * 0.1), rel=0.01)  # the documented ~dx/(4 L) fraction
 
 
+def test_result_pickled_before_its_energies_still_conserves_energy():
+    # The energy balance is computed on first use; a result sent through a process pool (pickled) before that
+    # must carry it. Checked against the same conservation law as above (Graff 1975 ch. 2; the inelastic loss
+    # of the two impacting end nodes, elementary mechanics), on the copy.
+    import pickle
+
+    res = simulate_shot(shot(striker=steel(0.1), incident=steel(0.5), transmitted=steel(0.5),
+                             specimen=RodSpec(0.005, 0.01, 70e9, 2700.0), incident_gauge_distance=0.25,
+                             duration=0.2e-3))
+    copy = pickle.loads(pickle.dumps(res))
+    energy, e0 = copy.energies, copy.grid["initial_kinetic_J"]
+    half_node = 0.5 * RHO_STEEL * steel(0.1).area * copy.grid["rods"]["striker"]["element_length_m"]
+    loading = energy.total_J[(energy.time_us > -99) & (energy.time_us < 30)]
+    assert np.allclose(loading, e0 - 0.5 * (half_node / 2) * 10.0**2, rtol=1e-11, atol=0)
+
+
 # --------------------------------------------------------------------------- specimen behaviour
 @pytest.fixture(scope="module")
 def perfectly_plastic_shot():
