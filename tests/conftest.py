@@ -1,4 +1,8 @@
-"""Test-session set-up shared by every test file."""
+"""Test-session set-up shared by every test file.
+
+No checks here, so no outside source: a fresh cache of solved tables per test process, so that no test
+reads or fills the user's (common practice: tests do not touch user state).
+"""
 
 import atexit
 import os

@@ -10,7 +10,10 @@ its recorder adds its own noise) and reduced with the *stated* ones. The 95 %
 interval of the flow stress at a fixed strain, y +- U95, covers the
 simulator's truth (the mean stress of the specimen's elements at that mean
 strain, ``VirtualShotResult.truth``) in about 95 % of the trials when the
-uncertainties are honest (JCGM 101:2008 §8, validation by coverage).
+uncertainties are honest. Source: JCGM 101:2008, Evaluation of measurement
+data - Propagation of distributions using a Monte Carlo method, §8
+(validation by coverage); the simulator's truth is the wave model of
+tests/test_simulate.py (d'Alembert bars, Graff 1975, ch. 2).
 
 Two ways to run a trial:
 

@@ -20,6 +20,9 @@ overlapping pulse (its reflected wave returns 7 us after the incident one
 ends), the same shot's sharp rise with noise, and a soft specimen that never
 reaches equilibrium.
 
+Sources: as tests/test_robustness.py (the wave model after Graff 1975, ch. 2, and Bancroft 1941; the
+Kolsky relations, Kolsky 1949); the faults and the verdicts they deserve are common practice.
+
 Used by tests/test_robustness.py (one test per trial) and by
 scripts/robustness_report.py (the confusion table and the accuracy figures in
 docs/verdicts.md).

@@ -7,6 +7,11 @@ its truth table, and each fault is one a lab's records or setups have (noise, dr
 wrong distances, gains, bridges, polarities, channels, lengths, wave speeds). A sound shot must come out valid
 (zero false rejections); a wrong setup or spoilt record must not come out valid without a warning or an error
 naming its likely cause (zero false acceptances).
+
+Sources: the wave model's bars follow d'Alembert's solution (Graff 1975, Wave Motion in Elastic Solids, ch. 2)
+and the Pochhammer-Chree dispersion (Bancroft 1941), checked in tests/test_simulate*.py; the Kolsky relations
+that the truth is compared through (Kolsky 1949; Gray 2000, ASM Handbook Vol. 8). The faults and the verdict each
+deserves are common practice.
 """
 
 import dataclasses

@@ -1,7 +1,7 @@
 """A two-station pressure-bar rig in the wave model, for the separation and specimen tests.
 
-The wave model's bars are delay lines of their two travelling waves (d'Alembert,
-Graff 1975, Wave Motion in Elastic Solids, ch. 2), so a station anywhere on a
+Source: the wave model's bars are delay lines of their two travelling waves
+(d'Alembert; Graff 1975, Wave Motion in Elastic Solids, ch. 2), so a station anywhere on a
 bar is read for free: besides the gauges, each bar has a station 1 us from the
 specimen face, whose waves, moved those 1 us, are the truth at the face.
 
