@@ -712,6 +712,10 @@ class IncidentPulse:
     impact_time: float = 0.0
 
 
+#: The columns of ``VirtualShotResult.truth`` (units in the names), in order.
+TRUTH_COLUMNS = ("time_us", "stress_MPa", "strain", "strain_rate_per_s", "force_front_kN", "force_back_kN")
+
+
 @dataclass
 class VirtualShotResult:
     """What a virtual shot returns.
@@ -730,7 +734,8 @@ class VirtualShotResult:
         specimen, the specimen starts to load up to ``dt / 2`` earlier (see
         the module notes on bar ends).
     truth : pandas.DataFrame
-        (A property, built on first use from ``truth_columns``.) On the shifted time base (t = 0 at ``foot_arrival_time``), one row per
+        (A property, built on first use from ``truth_columns``.) On the
+        shifted time base (t = 0 at ``foot_arrival_time``), one row per
         sample: ``time_us``; ``stress_MPa`` (mean of the specimen element
         stresses, engineering, compression positive); ``strain`` (mean
         engineering strain); ``strain_rate_per_s`` ((v_front - v_back)/L_s);
@@ -738,7 +743,8 @@ class VirtualShotResult:
         and transmitted-bar faces, compression positive). Specimen columns
         are NaN for a bars-together shot.
     energies : pandas.DataFrame
-        (A property, built on first use from ``energy_columns``.) ``time_us`` (shifted), ``kinetic_J``, ``strain_J`` (recoverable
+        (A property, built on first use from ``energy_columns``.)
+        ``time_us`` (shifted), ``kinetic_J``, ``strain_J`` (recoverable
         elastic), ``plastic_J`` (work dissipated by plastic flow so far),
         ``total_J``; kinetic energy in the leapfrog-consistent form
         ``sum m v(n-1/2) v(n+1/2) / 2``.
@@ -1973,14 +1979,8 @@ def _assemble(spec, rods, dt, t_samples, rec, impact_force, e0, peak, stations=N
     for k in (*range(1, 8), *range(11, kept.shape[1])):
         rec[:, k] = np.interp(time, kept_time, kept[:, k])
     t_us = (time - foot) * 1e6
-    truth = {
-        "time_us": t_us,
-        "stress_MPa": rec[:, 3] * 1e-6,
-        "strain": rec[:, 4],
-        "strain_rate_per_s": rec[:, 5],
-        "force_front_kN": rec[:, 6] * 1e-3,
-        "force_back_kN": rec[:, 7] * 1e-3,
-    }
+    truth = dict(zip(TRUTH_COLUMNS, (t_us, rec[:, 3] * 1e-6, rec[:, 4], rec[:, 5], rec[:, 6] * 1e-3,
+                                     rec[:, 7] * 1e-3)))
     kept_energies = kept[:, 8:11]
 
     def energies():

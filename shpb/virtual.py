@@ -21,7 +21,7 @@ import numpy as np
 
 from .errors import InputError
 from .setup import _Table, load_barset, read_toml
-from .simulate import (TRIGGERS, JohnsonCookLaw, PerfectlyPlastic, RecorderSpec, RodSpec, TrueStressLaw,
+from .simulate import (TRIGGERS, TRUTH_COLUMNS, JohnsonCookLaw, PerfectlyPlastic, RecorderSpec, RodSpec, TrueStressLaw,
                        VirtualRecord, VirtualShotResult, VirtualShotSpec, bar_rod, check_plan, dispersed_drive,
                        model_duration, plan_shot, simulate_shot, trigger_time, virtual_record)
 from .units import to_si
@@ -360,10 +360,6 @@ def station_channels(record: VirtualRecord) -> dict:
 
 
 # =========================================================================== outputs
-#: Columns of the truth table (:func:`truth_table`).
-TRUTH_COLUMNS = ("time_us", "stress_MPa", "strain", "strain_rate_per_s", "force_front_kN", "force_back_kN")
-
-
 #: Time [s] the truth table keeps ahead of the incident foot and past the loading (:func:`truth_table`).
 TRUTH_MARGIN = 20e-6
 
@@ -374,9 +370,9 @@ def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = Non
     ``after`` [s] past the last face force above 1 % of its peak before the forces are first back at 1 %
     after the peak (within the record).
 
-    The first return, not the last time a force exceeds 1 % in the whole record: after unloading, the specimen rattles between the
-    bars' faces in contact blips of a few tenths of a percent of the peak, now and then above 1 %, whose timing
-    changes with round-off; the table would end wherever the last of them fell.
+    The first return, not the last time a force exceeds 1 % in the whole record: after unloading, the specimen
+    rattles between the bars' faces in contact blips of a few tenths of a percent of the peak, now and then above
+    1 %, whose timing changes with round-off; the table would end wherever the last of them fell.
 
     Columns (units in the names, reduction time origin): ``time_us``,
     ``stress_MPa``, ``strain``, ``strain_rate_per_s``, ``force_front_kN``,
@@ -387,14 +383,13 @@ def truth_table(result: VirtualShotResult, record: Optional[VirtualRecord] = Non
     return pd.DataFrame(_truth_rows(result, record, before, after), columns=list(TRUTH_COLUMNS))
 
 
-
 def _truth_rows(result, record, before, after):
     """The rows of :func:`truth_table` as one array (columns :data:`TRUTH_COLUMNS`), without pandas."""
     truth = result.truth_columns
     force = np.maximum(np.abs(truth["force_front_kN"]), np.abs(truth["force_back_kN"]))
     t = truth["time_us"]
     end = t[-1]
-    if np.isfinite(force).any():  # (a bars-together shot has no specimen forces)
+    if np.isfinite(force).any():  # (a free-end shot has no face forces)
         peak = int(np.nanargmax(force))
         back = np.flatnonzero(force[peak:] <= 0.01 * force[peak])
         if back.size:  # the last sample above 1 % before that
