@@ -269,8 +269,6 @@ def _breakdown_child(shot_path: str, out: str, figure: bool = True) -> None:
 def verdict_latency(shot: Path, out: Path, rounds: int) -> list:
     """Time from the start of ``shpb reduce SHOT`` (its defaults) to its verdict line on stdout, beside the pandas
     yardstick of the same round: lines ``name | min median max [s] | ratio min median max``."""
-    import time
-
     shpb, _ = shpb_command()
     record, header = record_layout(shot)
     yard = pandas_yardstick(record, header)

@@ -1256,7 +1256,6 @@ class _Grid:
         self.mass = np.array(mass)
         self.dt_over_m = dt / self.mass if mass else self.mass
         self.EA, self.dt_over_dx, self.dx_over_EA = np.array(EA), np.array(dt_over_dx), np.array(dx_over_EA)
-        self.minus_EA = -self.EA
         self.n_nodes, self.n_links = len(mass), len(EA)
         nn, nl = self.n_nodes, self.n_links
         self.state = np.zeros(nn + 2 * nl + 2)
@@ -1267,12 +1266,12 @@ class _Grid:
         if "striker" in self.first:
             self.v[self.first["striker"]:self.last["striker"] + 1] = spec.striker_speed
 
-    def step_matrix(self):
+    def step_matrix(self, kicks):
         """The elastic step as one matrix on ``[state, 1]``: from the state after the contacts of step n
         (``v(n+1/2)``, ``eps(n)``, ``F(n)``) to the state of step n+1 before its contacts (``eps(n+1) = eps(n) +
         dt/dx (v_(j+1) - v_j)``, ``F(n+1) = EA eps(n+1)``, ``v(n+3/2) = v(n+1/2) + dt/m (F_j - F_(j-1))``); the
         last column holds the forces' offsets (:meth:`offset_setter`). Stored column by column, so that the
-        last column is one contiguous array."""
+        last column is one contiguous array. ``kicks``: :meth:`node_kicks`."""
         nn, nl = self.n_nodes, self.n_links
         size = self.state.size
         M = np.zeros((size + 1, size + 1))
@@ -1282,7 +1281,7 @@ class _Grid:
         M[eps_rows, links + 1] += self.dt_over_dx
         M[eps_rows, links] -= self.dt_over_dx
         M[F_rows] = self.EA[:, None] * M[eps_rows]
-        M[:nn] = self.node_kicks() @ M[nn + nl:nn + 2 * nl + 2]  # (the pads' rows are zero)
+        M[:nn] = kicks @ M[nn + nl:nn + 2 * nl + 2]  # (the pads' rows are zero)
         M[np.arange(nn), np.arange(nn)] += 1.0
         M[size, size] = 1.0
         return np.asfortranarray(M)
@@ -1296,15 +1295,16 @@ class _Grid:
         K[np.arange(nn), np.arange(nn)] = -self.dt_over_m
         return K
 
-    def offset_setter(self, M, plastic):
+    def offset_setter(self, M, kicks, plastic):
         """A function that writes the plastic strains' offsets into the step matrix's last column:
-        ``F = EA (eps - eps_p)``, and the node velocity changes they make."""
+        ``F = EA (eps - eps_p)``, and the node velocity changes they make (``kicks``: :meth:`node_kicks`)."""
         nn, nl = self.n_nodes, self.n_links
         column = M[:, -1]
         F_pad, nodes = column[nn + nl:nn + 2 * nl + 2], column[:nn]
-        kicks = self.node_kicks()
-        rods = [(p, self.minus_EA[self.links[p.rod.name]],
-                 F_pad[1 + self.links[p.rod.name].start:1 + self.links[p.rod.name].stop]) for p in plastic]
+        rods = []
+        for p in plastic:
+            links = self.links[p.rod.name]
+            rods.append((p, -self.EA[links], F_pad[1 + links.start:1 + links.stop]))
 
         def set_offsets():
             for p, minus_EA, out in rods:
@@ -1417,10 +1417,10 @@ def _run(spec, rods, dt, kept_steps, incident_wave_only=False):
     kept = np.empty((_CHUNK, state.size + dense))
     row = 0
     if dense:
-        M = grid.step_matrix()
-        set_offsets = grid.offset_setter(M, plastic)
-        set_offsets()
         kicks = grid.node_kicks()
+        M = grid.step_matrix(kicks)
+        set_offsets = grid.offset_setter(M, kicks, plastic)
+        set_offsets()
         prev = carry = np.append(state, 1.0)  # the state before the march, with the trailing 1
         checks = [(p, grid.column("eps", p.rod.name, 0), nn + nl + 1 + grid.links[p.rod.name].start,
                    grid.links[p.rod.name].stop - grid.links[p.rod.name].start) for p in plastic]
