@@ -270,20 +270,13 @@ def _calibration_text(row: dict, summary: Optional[dict]) -> str:
     return f"{Path(cal['file']).name}" + (f" ({dates[-1]})" if dates else "")
 
 
-def _with_u(value, big_u, fmt: str) -> str:
-    """A number, with ``± U`` (expanded uncertainty, k = 2) when there is one."""
-    text, u = _num(value, fmt), _num(big_u, fmt)
-    return text + (f" ± {u}" if text and u else "")
-
-
 def _has_u(data: ReportData) -> bool:
     """Whether any shot of the report carries the uncertainty stage's results."""
     return any((s.summary or {}).get("uncertainty") for s in data.shots)
 
 
 def _shot_rows(data: ReportData) -> str:
-    from .plain_words import explain
-    from .uncertainty import expanded_name
+    from .plain_words import explain, with_u
 
     out = []
     for i, s in enumerate(data.shots):
@@ -306,7 +299,7 @@ def _shot_rows(data: ReportData) -> str:
                  (_num(rate, ".0f"), _num(rate, ".6g"))]
         for col in data.flow_columns:  # ± U from the campaign table's U95_ column (the uncertainty stage)
             v = row.get(col)
-            cells.append((_with_u(v, row.get(expanded_name(col)), ".1f"), _num(v, ".6g")))
+            cells.append((with_u(row, col, ".1f") or "", _num(v, ".6g")))
         cells += [(_num(peak, ".1f"), _num(peak, ".6g")), (_e(_calibration_text(row, s.summary)), None)]
         numeric = ' class="n"'
         tds = "".join(f'<td{numeric if 4 <= k < len(cells) - 1 else ""} '
@@ -369,7 +362,8 @@ _RESULT_ROWS = (("mean strain rate", "mean_strain_rate_per_s", ".0f", "1/s"),
 
 
 def _shot_section(i: int, s: ShotEntry) -> str:
-    from .plain_words import verdict_line
+    from .plain_words import verdict_line, with_u
+    from .reduce import ShotResult
 
     head = f'<section class="shot" id="shot-{i}"><h3>Shot {_e(s.id)} <span class="verdict {s.status}">' \
            f'{_VERDICT.get(s.status, s.status)}</span></h3>'
@@ -378,13 +372,11 @@ def _shot_section(i: int, s: ShotEntry) -> str:
     summary = s.summary
     res = summary.get("results") or {}
     facts = s.facts
-    from .uncertainty import expanded_name
-
-    rows = "".join(f"<tr><th>{_e(label)}</th><td>{_with_u(res.get(k), res.get(expanded_name(k)), fmt)} {_e(unit)}"
+    rows = "".join(f"<tr><th>{_e(label)}</th><td>{with_u(res, k, fmt) or ''} {_e(unit)}"
                    f"</td></tr>" for label, k, fmt, unit in _RESULT_ROWS if _num(res.get(k), fmt))
     if summary.get("uncertainty"):
         rows += ("<tr><th>uncertainty</th><td>± U: expanded uncertainty, k = 2 (about 95 %); budget in "
-                 "<code>uncertainty_budget.csv</code></td></tr>")
+                 f"<code>{ShotResult.BUDGET_FILE}</code></td></tr>")
     if _num(res.get("valid_strain_to"), ".4f"):
         rows = rows.replace(f"{_num(res.get('valid_strain_from'), '.4f')} </td>",
                             f"{_num(res.get('valid_strain_from'), '.4f')} to {_num(res['valid_strain_to'], '.4f')}"

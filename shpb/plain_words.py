@@ -315,21 +315,24 @@ def shot_lines(name: str, summary: Mapping, curves=None, flow: Optional[tuple] =
     inertia = _num(facts, "inertia_gorham_max_fraction", ".1%")  # with the specimen's density
     extra = [f"  inertia: the specimen's own inertia changes the stress by at most {inertia} (Davies & Hunter "
              f"{_num(facts, 'inertia_dh_max_fraction', '.1%')}; beside it, not applied)"] if inertia else []
-    return [first] + extra + uncertainty_lines(summary, facts) + flag_lines(summary, facts, said=said)
+    return [first] + extra + flag_lines(summary, facts, said=said)
 
 
-def uncertainty_lines(summary: Mapping, facts: Optional[Mapping] = None) -> list:
+def uncertainty_lines(summary: Mapping) -> list:
     """What the console says of the uncertainty stage (none when it did not run): the results with ± U,
-    what ± means and the inputs that dominate."""
+    what ± means and the inputs that dominate. Said after the verdict (:func:`shot_lines`), which is announced
+    before the stage runs."""
+    from .reduce import ShotResult
+
     unc = summary.get("uncertainty") or {}
     if not unc:
         return []
-    facts = shot_facts(summary) if facts is None else facts
+    facts = shot_facts(summary)
     dom = (unc.get("dominant_inputs") or {}).get("flow_stress_mean_MPa") or []
     numbers = [f"{v} {unit}" for v, unit in ((with_u(facts, "mean_strain_rate_per_s", ".0f"), "1/s"),
                                              (with_u(facts, "yield_stress_MPa", ".0f"), "MPa yield"),
                                              (with_u(facts, "flow_stress_mean_MPa", ".0f"), "MPa mean flow stress"))
                if v and "±" in v]
     lines = [f"  uncertainty: {', '.join(numbers) or 'n/a'} (± U = 2 u, about 95 %); largest contributions: "
-             f"{', '.join(dom[:2]) or 'n/a'} (uncertainty_budget.csv)"]
+             f"{', '.join(dom[:2]) or 'n/a'} ({ShotResult.BUDGET_FILE})"]
     return lines + [f"  uncertainty: {note}" for note in unc.get("notes") or ()]
