@@ -231,7 +231,7 @@ def _row_dict(cols, cells, where_row: str, barsets: Callable[[str, str], BarSet]
             tags[header] = text
             continue
         key = _SETUP_COLUMNS[name] if name in _SETUP_COLUMNS else None
-        if unit and (key is None or key.kind in ("switch", "count", "choice", "text")):
+        if unit and (key is None or key.kind not in DIMENSIONS):
             raise InputError(f"column {name!r} takes no unit in its header", where)
         if text == "":
             continue  # empty cell: the campaign default
@@ -522,16 +522,13 @@ def _flow_column(strain: float) -> str:
     return f"flow_stress_MPa_at_{strain:g}"
 
 
-def _flow_expanded(summary: dict, strain: float) -> float:
-    """U95 of the flow stress at ``strain`` [MPa] from the summary's flow-stress table (linear between its
-    strains; NaN outside it or without the uncertainty stage)."""
-    table = (summary.get("uncertainty") or {}).get("flow_stress") or {}
-    x, y = np.asarray(table.get("strain", []), float), np.asarray(table.get("U95_MPa", []), float)
-    ok = np.isfinite(x) & np.isfinite(y)
-    x, y = x[ok], y[ok]
-    if x.size == 0 or not x.min() - 1e-12 <= strain <= x.max() + 1e-12:
-        return float("nan")
-    return float(np.interp(strain, x, y))
+#: Summary results that the campaign table gives with their expanded uncertainty (``U95_`` column beside).
+U_RESULTS = ("mean_strain_rate_per_s", "yield_strain", "yield_stress_MPa")
+
+
+def _and_u(columns) -> list:
+    """The columns, each of :data:`U_RESULTS` followed by its ``U95_`` column."""
+    return [c for col in columns for c in ((col, expanded_name(col)) if col in U_RESULTS else (col,))]
 
 
 def shot_row(summary: dict, curves: pd.DataFrame, flow_strains: Iterable[float]) -> dict:
@@ -565,10 +562,15 @@ def shot_row(summary: dict, curves: pd.DataFrame, flow_strains: Iterable[float])
         "peak_stress_MPa": num("peak_stress_MPa"),
     }
     strain, stress, valid = (curves[c].to_numpy() for c in ("strain", "stress_MPa", "valid"))
+    # U95 of the flow stress from the summary's table of it (linear between its strains; NaN outside it, or
+    # without the uncertainty stage)
+    table = (summary.get("uncertainty") or {}).get("flow_stress") or {}
+    table_strain = table.get("strain", [])
     for e in flow_strains:
         row[_flow_column(e)] = flow_stress_at(strain, stress, valid.astype(bool), e)
-        row[expanded_name(_flow_column(e))] = _flow_expanded(summary, e)
-    for key in ("mean_strain_rate_per_s", "yield_strain", "yield_stress_MPa"):
+        row[expanded_name(_flow_column(e))] = flow_stress_at(table_strain, table.get("U95_MPa", []),
+                                                             np.ones(len(table_strain), bool), e)
+    for key in U_RESULTS:
         row[expanded_name(key)] = num(expanded_name(key))
     dominant = ((summary.get("uncertainty") or {}).get("dominant_inputs") or {}).get("flow_stress_mean_MPa") or []
     row["dominant_input"] = dominant[0] if dominant else ""
@@ -1493,11 +1495,9 @@ def _remember(out: Path, campaign: Campaign, figures: bool, report: CampaignRepo
 # --------------------------------------------------------------------------- campaign outputs
 def _campaign_table(campaign: Campaign, outcomes, rows: dict) -> pd.DataFrame:
     flow_cols = [c for e in campaign.flow_strains for c in (_flow_column(e), expanded_name(_flow_column(e)))]
-    num_cols = ["temperature_K", "specimen_length_mm", "specimen_diameter_mm", "mean_strain_rate_per_s",
-                expanded_name("mean_strain_rate_per_s"), "strain_rate_cv", "peak_stress_MPa", *flow_cols,
-                "yield_strain", expanded_name("yield_strain"), "yield_stress_MPa",
-                expanded_name("yield_stress_MPa"), "valid_fraction_of_loading", "equilibrium_from_strain",
-                "max_strain"]
+    num_cols = _and_u(["temperature_K", "specimen_length_mm", "specimen_diameter_mm", "mean_strain_rate_per_s",
+                       "strain_rate_cv", "peak_stress_MPa", *flow_cols, "yield_strain", "yield_stress_MPa",
+                       "valid_fraction_of_loading", "equilibrium_from_strain", "max_strain"])
     records = []
     by_row = {r.id: r for r in campaign.rows}
     for o in outcomes:
