@@ -306,8 +306,9 @@ def _resample_one(eps, sig, step, window=None):
     """
     order = np.argsort(eps, kind="stable")
     eps, sig = eps[order], sig[order]
-    width = max(step, window or step)
-    first, last = max(float(eps[0]), (window or step) / 2.0), float(eps[-1])  # (below: the yield transition)
+    window = window or step
+    width = max(step, window)
+    first, last = max(float(eps[0]), window / 2.0), float(eps[-1])  # (below: the yield transition)
     lo, hi = math.ceil(first / step - 1e-9), math.floor(last / step + 1e-9)
     grid = np.arange(max(lo, 1), hi + 1) * step
     if grid.size == 0 or last <= first:

@@ -149,8 +149,7 @@ def read_results(results, fit_dirs=()) -> ReportData:
         for sub in sorted((folder / SHOTS_DIR).glob("*")) if (folder / SHOTS_DIR).is_dir() else []:
             if sub.name not in seen and ShotResult.is_result_folder(sub):  # a table not yet written (a run stopped)
                 shots.append(_shot_entry(sub))
-        flow = [c for c in (rows[0] if rows else {}) if c.startswith("flow_stress_MPa_at_")
-                and not c.endswith(("_uncertainty", "_u"))]
+        flow = [c for c in (rows[0] if rows else {}) if c.startswith("flow_stress_MPa_at_")]
         figures = {n: b for n in CAMPAIGN_FIGURES if (b := _read_png(folder / FIGURES_DIR / n)) is not None}
         state = read_state(folder) or {}
         data = ReportData(title=_campaign_title(folder, shots), kind="campaign", folder=folder, shots=shots,
