@@ -1256,13 +1256,12 @@ def _weights(curves, weighting):
         raise InputError(f"weighting must be one of {', '.join(WEIGHTINGS)}, got {weighting!r}", "weighting")
     from .uncertainty import standard_name
 
-    def quadrature(c):
-        return np.ones(c.plastic_strain.size) if c.node_weight is None else np.asarray(c.node_weight, float)
-
+    quadrature = [np.ones(c.plastic_strain.size) if c.node_weight is None else np.asarray(c.node_weight, float)
+                  for c in curves]
     w = []
-    mean_q = np.mean([quadrature(c).sum() for c in curves])
-    for c in curves:
-        q = np.sqrt(quadrature(c))
+    mean_q = np.mean([q.sum() for q in quadrature])
+    for c, q_c in zip(curves, quadrature):
+        q = np.sqrt(q_c)
         if weighting == "uncertainty":
             column = standard_name(c.stress_column or "true_stress_MPa")
             if c.stress_u is None:
@@ -1274,7 +1273,7 @@ def _weights(curves, weighting):
                                  "uncertainty", c.source)
             w.append(q / u)
             continue
-        f = math.sqrt(mean_q / quadrature(c).sum()) if weighting == "curves" else 1.0
+        f = math.sqrt(mean_q / q_c.sum()) if weighting == "curves" else 1.0
         w.append(q * (f / 1e6))
     return np.concatenate(w)
 
@@ -1542,10 +1541,11 @@ def _m_sensitivity(spec, curves, settings, fixed, weighting, starts, res):
     """
     m_fixed = float(fixed["m"])
     shown, rms_at = [], {}
+    weights = _weights(curves, weighting)
     for m in sorted(set(M_SENSITIVITY) | {m_fixed}):
         r = res if m == m_fixed else _run_lmfit(spec, curves, settings, {**fixed, "m": m}, weighting, starts)
         v = {k: float(r.params[k].value) for k in ("A", "B", "n", "C")}
-        rms_at[m] = float(np.sqrt(np.mean((r.residual / _weights(curves, weighting) / 1e6) ** 2)))
+        rms_at[m] = float(np.sqrt(np.mean((r.residual / weights / 1e6) ** 2)))
         shown.append(f"m = {m:g}: A {v['A'] / 1e6:.4g} MPa, B {v['B'] / 1e6:.4g} MPa, n {v['n']:.3g}, "
                      f"C {v['C']:.3g} (RMS {rms_at[m]:.3g} MPa)")
     best = min(rms_at, key=rms_at.get)
