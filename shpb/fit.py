@@ -1634,7 +1634,7 @@ def _shared_terms(spec, curves, settings, values):
                 terms.append(a)
                 span = (f"{100 * min(us):.2g}" if f"{100 * min(us):.2g}" == f"{100 * max(us):.2g}" else
                         f"{100 * min(us):.2g}-{100 * max(us):.2g}")
-                labels.append(f"{what} scale of bar set {bars} ({span} %, {len(members)} shots)")
+                labels.append(f"{what} scale of bar set {bars} ({span} %, {len(us)} shots)")
     return (np.array(terms), tuple(labels)) if terms else (None, ())
 
 
