@@ -44,8 +44,8 @@ class Key:
         The key in that table (and the dataclass field it fills).
     kind : str
         A dimension of :data:`shpb.units.DIMENSIONS` (``length``, ``time``,
-        ...), or ``switch`` (true/false), ``count`` (a whole number >= 1),
-        ``choice`` or ``text``.
+        ...), or ``switch`` (true/false), ``count`` (a whole number >=
+        ``minimum``), ``choice`` or ``text``.
     default : Any
         SI value when the key is absent (None: no value).
     meaning : str
@@ -58,6 +58,8 @@ class Key:
         A quantity that may be zero or negative (time offsets).
     fraction : bool
         A quantity that must lie strictly between 0 and 1.
+    minimum : int
+        The smallest value of a ``count``.
     """
 
     section: str
@@ -69,6 +71,7 @@ class Key:
     choices: tuple = ()
     signed: bool = False
     fraction: bool = False
+    minimum: int = 1
 
     @property
     def column_name(self) -> str:
@@ -87,8 +90,8 @@ class Key:
             text = value.strip() if isinstance(value, str) else value
             if isinstance(text, str) and text.isdigit():
                 text = int(text)
-            if isinstance(text, bool) or not isinstance(text, int) or text < 1:
-                raise InputError(f"expected a whole number >= 1, got {value!r}", where)
+            if isinstance(text, bool) or not isinstance(text, int) or text < self.minimum:
+                raise InputError(f"expected a whole number >= {self.minimum}, got {value!r}", where)
             return text
         if self.kind in ("choice", "text"):
             if not isinstance(value, str):
@@ -164,7 +167,8 @@ ANALYSIS_KEYS = (
        "propagate the inputs' uncertainties to every curve row and scalar (GUM and Monte Carlo); when absent, on in "
        "shpb reduce (about 1.5x the process), off in shpb batch, shpb watch and reduce_shot (a warm process pays "
        "about 25x per shot)"),
-    _k("analysis", "uncertainty_draws", "count", 100, "Monte Carlo draws of the uncertainty propagation (>= 10)"),
+    _k("analysis", "uncertainty_draws", "count", 100, "Monte Carlo draws of the uncertainty propagation (>= 10)",
+       minimum=10),
 )
 
 #: Keys of a shot file's ``[striker]`` table: what changes from shot to shot (the striker's length, diameter

@@ -306,6 +306,19 @@ def test_too_few_draws_is_refused(example):
         U.propagate(with_analysis(shot, uncertainty_draws=5), res.stages)
 
 
+def test_too_few_draws_on_the_command_line_are_refused_before_the_verdict(tmp_path, capsys):
+    # Bad input is refused before anything is computed or said (common practice): one line naming the key,
+    # exit 2, no verdict, no files.
+    from shpb.cli import main
+
+    args = ["reduce", str(ROOT / "configs" / "example_shot.toml"), "--no-figure", "--set", "uncertainty_draws=5",
+            "--out", str(tmp_path / "r")]
+    assert main(args) == 2
+    out, err = capsys.readouterr()
+    assert "VALID" not in out and "uncertainty_draws" in err and ">= 10" in err
+    assert not (tmp_path / "r").exists() or not any((tmp_path / "r").iterdir())
+
+
 # --------------------------------------------------------------------------- coverage on virtual shots
 @pytest.fixture(scope="module")
 def truth():
