@@ -410,11 +410,11 @@ def _source(source):
 
 
 def reduce_file(shot_path, out_dir=None, figure=True, announce=None, **analysis_changes) -> ShotResult:
-    """Load a shot file, reduce it and (if ``out_dir``) write the result folder (``announce``: as in
-    :func:`reduce_shot`)."""
+    """Load a shot file (or take a :class:`Shot` already loaded), reduce it and (if ``out_dir``) write the result
+    folder (``announce``: as in :func:`reduce_shot`)."""
     from .setup import load_shot, with_analysis
 
-    shot = load_shot(shot_path)
+    shot = shot_path if isinstance(shot_path, Shot) else load_shot(shot_path)
     if analysis_changes:
         shot = with_analysis(shot, **analysis_changes)
     result = reduce_shot(shot, announce=announce)

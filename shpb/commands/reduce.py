@@ -63,7 +63,7 @@ def register(app: typer.Typer) -> None:
             progress.echo(verdict_text(first))
 
         with progress.running():
-            result = reduce_file(shot, out_dir, figure=figure, announce=announce, **changes)
+            result = reduce_file(loaded, out_dir, figure=figure, announce=announce, **changes)
         typer.echo(closing_text(result, out_dir))
         raise typer.Exit(0 if result.valid else 1)
 
