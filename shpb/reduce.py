@@ -215,11 +215,13 @@ def reduce_shot(shot: Shot, record: Optional[Record] = None, *, announce=None) -
         verdict = validity.judge(strains, plan, waves, curves, bs, shot.specimen, opt, shot.striker_speed)
         corrections = specimen.specimen_corrections(curves, plan, shot.specimen, opt, verdict.valid, waves.dt)
         stages = Stages(record, strains, plan, waves, curves, verdict, split, corrections)
-        verdict = _result(shot, stages) if announce is not None or not opt.uncertainty else None
+        if not opt.uncertainty:
+            result = _result(shot, stages)
+            if announce is not None:
+                announce(result)
+            return result
         if announce is not None:
-            announce(verdict)  # the verdict first: the uncertainty stage costs tens of reductions
-        if verdict is not None and not opt.uncertainty:
-            return verdict
+            announce(_result(shot, stages))  # the verdict first: the uncertainty stage costs tens of reductions
         from .uncertainty import propagate
 
         stages = replace(stages, uncertainty=propagate(shot, stages))
