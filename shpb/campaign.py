@@ -678,8 +678,9 @@ def reduce_task(shot: Shot, figures: bool, base_dir: str, flow_strains: tuple, a
     exactly those of ``shpb reduce``.
 
     ``announce(result)``, when given (in this process only), is called
-    with the :class:`shpb.reduce.ShotResult` as soon as the shot is reduced,
-    before its figure is drawn: ``shpb watch`` prints the verdict from it.
+    with the :class:`shpb.reduce.ShotResult` as soon as the shot is judged,
+    before its uncertainty stage (so without its results) and before its
+    figure is drawn: ``shpb watch`` prints the verdict from it.
 
     Returns
     -------

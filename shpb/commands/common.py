@@ -312,11 +312,15 @@ class Progress:
             self.done, self.total = done, total
             self._draw(force_line=False)
 
-    def note(self, text: str) -> None:
-        """A line of its own (a shot that is not valid), kept above the bar; printed even when quiet."""
+    def note(self, text: str, stream=None) -> None:
+        """A line of its own (a shot that is not valid), kept above the bar; printed even when quiet. On
+        ``stream`` if given (standard output: a verdict), else on the bar's own stream."""
+        out = stream or self.stream
         with self._lock:
             self._clear()
-            self.stream.write(text + "\n")
+            self.stream.flush()  # (the bar cleared before the text, whichever stream it goes to)
+            out.write(text + "\n")
+            out.flush()
             self._draw()
             self.stream.flush()
 
@@ -324,12 +328,7 @@ class Progress:
         """Text on standard output now (a verdict), with the bar cleared first and drawn again after it."""
         import sys
 
-        with self._lock:
-            self._clear()
-            self.stream.flush()
-            sys.stdout.write(text + "\n")
-            sys.stdout.flush()
-            self._draw()
+        self.note(text, sys.stdout)
 
     def close(self) -> None:
         with self._lock:
