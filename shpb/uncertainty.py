@@ -66,6 +66,7 @@ from typing import TYPE_CHECKING, Callable, Mapping, Optional
 import numpy as np
 
 from .errors import InputError
+from .units import DIMENSIONS
 
 if TYPE_CHECKING:  # pragma: no cover
     from .reduce import Stages
@@ -375,7 +376,6 @@ class Input:
         return self.u / abs(self.value) if self.value else float("nan")
 
 
-_UNITS = {"pressure": "Pa", "length": "m", "velocity": "m/s", "dimensionless": "1", "voltage": "V"}
 _GAUGE_KEYS = ("gauge_factor", "gain", "excitation", "scale")
 
 
@@ -438,7 +438,7 @@ def shot_inputs(shot: "Shot", strains=None) -> tuple:
         name = "bar Young's modulus" + ("" if scope == "bars" else f", {scope} bar")
         if any(derived[b] for b in owners):
             name += " (and the wave speed sqrt(E/rho))"
-        out.append(Input(f"{scope}.modulus", name, value, u, "Pa", "bar set", source, method))
+        out.append(Input(f"{scope}.modulus", name, value, u, DIMENSIONS[spec.dimension], "bar set", source, method))
     for b in BARS:
         bar, gauge = bars[b], gauges[b]
         items = [("diameter", bar.diameter, "GUM"), ("gauge_distance", gauge.distance, "Monte Carlo")]
@@ -453,13 +453,15 @@ def shot_inputs(shot: "Shot", strains=None) -> tuple:
             spec = _BARSET_SPECS[key]
             u, source = _resolve(bs, b, spec, value)
             label = f"{spec.label}, {b} {'bar' if key in ('diameter', 'wave_speed') else 'gauge'}"
-            out.append(Input(f"{b}.{key}", label, value, u, _UNITS[spec.dimension], "bar set", source, method))
+            unit = DIMENSIONS[spec.dimension] or "1"  # dimensionless: "1"
+            out.append(Input(f"{b}.{key}", label, value, u, unit, "bar set", source, method))
     sp = shot.specimen
     for spec in SPECIMEN_INPUTS:
         value = getattr(sp, spec.key)
         given = getattr(sp, f"{spec.key}_uncertainty", None)
         u, source = (given, "shot file [specimen]") if given is not None else (spec.absolute, spec.source)
-        out.append(Input(f"specimen.{spec.key}", spec.label, value, u, "m", "specimen", source, "GUM"))
+        out.append(Input(f"specimen.{spec.key}", spec.label, value, u, DIMENSIONS[spec.dimension], "specimen", source,
+                         "GUM"))
     if strains is not None:
         for b in BARS:
             sigma = float(getattr(strains, f"noise_{b}"))
@@ -573,6 +575,8 @@ class _Evaluator:
             e0, e1 = float(c.strain[valid].min()), float(c.strain[valid].max())
             k = np.arange(math.ceil(e0 / FLOW_STRAIN_STEP - 1e-9), math.floor(e1 / FLOW_STRAIN_STEP + 1e-9) + 1)
             self.flow_strains = np.round(k[k > 0] * FLOW_STRAIN_STEP, 10)
+        self.flow_keys = [flow_column(e) for e in self.flow_strains]
+        self.peaks = {b: float(np.max(np.abs(getattr(stages.strains, b)))) for b in BARS}  # stage 1's peak strains
 
     @staticmethod
     def _region(curves, waves):
@@ -581,7 +585,25 @@ class _Evaluator:
         usable = waves.weight >= 1.0 - 1e-9 if waves.weight is not None else None
         return usable_loading_region(curves.strain_rate, 0.5 * (curves.force_front + curves.force_back), usable)
 
-    def rows(self, curves, waves) -> dict:
+    def changed(self, values: Mapping) -> tuple["BarSet", "Specimen", tuple]:
+        """(bar set, specimen, channel factors) with some inputs changed (:func:`_with_inputs`,
+        :func:`_channel_factor`)."""
+        barset, specimen = _with_inputs(self.shot.barset, self.shot.specimen, values)
+        return barset, specimen, tuple(_channel_factor(self.shot.barset, b, values, self.peaks[b]) for b in BARS)
+
+    def _valid(self, size: int, region) -> np.ndarray:
+        """The valid part of an evaluation: from the nominal onset (samples into its loading part) to its end."""
+        valid = np.zeros(size, dtype=bool)
+        if region is not None and self.onset is not None and region[0] + self.onset < region[1]:
+            valid[region[0] + self.onset:region[1]] = True
+        return valid
+
+    def evaluate(self, curves, waves, scalars: bool = True) -> tuple:
+        """(rows, scalars or None) of a (re)computed stage 4, its loading part found once for both."""
+        region = self._region(curves, waves)
+        return self.rows(curves, region), (self.scalars(curves, region) if scalars else None)
+
+    def rows(self, curves, region) -> dict:
         """The rows of a (re)computed stage 4 on the nominal rows.
 
         The strain at the row's time (t from the incident foot at the front face, as the reduction places
@@ -595,12 +617,11 @@ class _Evaluator:
         same = curves.time.size == t0.size and np.allclose(curves.time, t0, rtol=0, atol=1e-3 * self.dt)
         out = dict(series) if same else \
             {k: np.interp(t0, curves.time, y, left=np.nan, right=np.nan) for k, y in series.items()}
-        region, region0 = self._region(curves, waves), self.region
-        if region is None or region0 is None:
+        if region is None or self.region is None:
             return out
         b = int(np.argmax(curves.strain)) + 1  # to the largest strain: past the loading's end the strain still rises
         x = np.maximum.accumulate(curves.strain[:b])  # strain rises while loading (a flat wobble stays put)
-        a0, b0 = region0
+        a0, b0 = self.region
         for k in ("stress", "strain_rate", "true_stress"):  # the 1-wave stress stays at the row's time
             row = np.array(out[k], dtype=float)
             at_strain = np.interp(strain0[a0:b0], x, series[k][:b], left=np.nan, right=np.nan)
@@ -608,7 +629,7 @@ class _Evaluator:
             out[k] = row
         return out
 
-    def scalars(self, curves, waves) -> dict:
+    def scalars(self, curves, region) -> dict:
         """The summary scalars of a (re)computed stage 4 (as :func:`shpb.validity.assess_curve` defines them)."""
         from .campaign import flow_stress_at
         from .validity import offset_yield
@@ -617,12 +638,9 @@ class _Evaluator:
         out = {k: float("nan") for k in SCALARS}
         out["peak_stress_MPa"] = float(np.max(stress) / 1e6)
         out["max_strain"] = float(np.max(strain))
-        region = self._region(curves, waves)
-        valid = np.zeros(strain.size, dtype=bool)
+        valid = self._valid(strain.size, region)
         if region is not None:
             a, b = region
-            if self.onset is not None and a + self.onset < b:
-                valid[a + self.onset:b] = True
             y = offset_yield(strain[a:b], stress[a:b], self.shot.analysis.yield_offset, self.shot.specimen.modulus)
             if y is not None:
                 out["yield_stress_MPa"], out["yield_strain"] = y["yield_stress"] / 1e6, y["yield_strain"]
@@ -631,31 +649,28 @@ class _Evaluator:
             out["mean_strain_rate_per_s"] = float(np.mean(rate[valid]))
         if self.flow_strains.size:
             flow = np.atleast_1d(flow_stress_at(strain, stress, valid, self.flow_strains)) / 1e6
-            for e, v in zip(self.flow_strains, flow):
-                out[flow_column(e)] = float(v)
+            out.update({k: float(v) for k, v in zip(self.flow_keys, flow)})
         return out
 
-    def along(self, curves, waves, row) -> dict:
-        """A stress-like row [Pa] read as each stress scalar reads the stress [MPa]: its mean over the valid
-        part, its value at the yield strain, at the peak stress and at each strain of the flow table."""
+    def along(self, row, yield_strain: float) -> dict:
+        """A stress-like row [Pa] on the nominal curves read as each stress scalar reads the stress [MPa]: its
+        mean over the valid part, its value at the (nominal) yield strain, at the peak stress and at each strain
+        of the flow table."""
         from .campaign import flow_stress_at
 
+        curves, region = self.st.curves, self.region
         strain = curves.strain
-        nominal = self.scalars(curves, waves)
         out = {"peak_stress_MPa": float(row[int(np.argmax(curves.stress))] / 1e6)}
-        region = self._region(curves, waves)
-        valid = np.zeros(strain.size, dtype=bool)
-        if region is not None and self.onset is not None and region[0] + self.onset < region[1]:
-            valid[region[0] + self.onset:region[1]] = True
+        valid = self._valid(strain.size, region)
         if valid.any():
             out["flow_stress_mean_MPa"] = float(np.mean(row[valid]) / 1e6)
-        if region is not None and math.isfinite(nominal["yield_strain"]):
+        if region is not None and math.isfinite(yield_strain):
             a, b = region
             x = np.maximum.accumulate(strain[a:b])
-            out["yield_stress_MPa"] = float(np.interp(nominal["yield_strain"], x, row[a:b]) / 1e6)
+            out["yield_stress_MPa"] = float(np.interp(yield_strain, x, row[a:b]) / 1e6)
         if self.flow_strains.size:
             flow = np.atleast_1d(flow_stress_at(strain, row, valid, self.flow_strains)) / 1e6
-            out.update({flow_column(e): float(v) for e, v in zip(self.flow_strains, flow)})
+            out.update({k: float(v) for k, v in zip(self.flow_keys, flow)})
         return out
 
 
@@ -694,8 +709,8 @@ def _kolsky(waves, barset, specimen, stress_form, factors):
     return kolsky_curves(waves, barset, specimen, stress_form)
 
 
-def gum_part(shot: "Shot", stages: "Stages", inputs) -> dict:
-    """Contributions c_i u(x_i) of the GUM inputs to every row and scalar.
+def gum_part(shot: "Shot", stages: "Stages", inputs, ev: Optional[_Evaluator] = None) -> dict:
+    """Contributions c_i u(x_i) of the GUM inputs to every row and scalar (``ev``: the caller's evaluator, if any).
 
     Returns
     -------
@@ -703,20 +718,15 @@ def gum_part(shot: "Shot", stages: "Stages", inputs) -> dict:
         ``{"rows": {row: ndarray (inputs x samples)}, "scalars": {name: ndarray (inputs,)}, "keys": [...]}``
         in SI (stress in Pa, strain rate in 1/s) for the rows, the summary's units for the scalars.
     """
-    ev = _Evaluator(shot, stages)
+    ev = ev if ev is not None else _Evaluator(shot, stages)
     gum = [i for i in inputs if i.method == "GUM"]
-    bs, sp, waves, form = shot.barset, shot.specimen, stages.waves, shot.analysis.stress
-    peaks = {"incident": float(np.max(np.abs(stages.strains.incident))),
-             "transmitted": float(np.max(np.abs(stages.strains.transmitted)))}
+    waves, form = stages.waves, shot.analysis.stress
     rows, scal = {k: [] for k in ROWS}, {}
     for inp in gum:
         got = []
         for sign in (+1.0, -1.0):
-            values = {inp.key: inp.value + sign * inp.u}
-            b2, s2 = _with_inputs(bs, sp, values)
-            factors = tuple(_channel_factor(bs, b, values, peaks[b]) for b in BARS)
-            curves = _kolsky(waves, b2, s2, form, factors)
-            got.append((ev.rows(curves, waves), ev.scalars(curves, waves)))
+            b2, s2, factors = ev.changed({inp.key: inp.value + sign * inp.u})
+            got.append(ev.evaluate(_kolsky(waves, b2, s2, form, factors), waves))
         for k in ROWS:
             rows[k].append(0.5 * (got[0][0][k] - got[1][0][k]))
         for k, v in got[0][1].items():
@@ -788,7 +798,8 @@ class MonteCarloDraws:
 
 
 def monte_carlo_part(shot: "Shot", stages: "Stages", inputs, draws: int = DEFAULT_DRAWS, seed=SEED,
-                     methods=("Monte Carlo",), scalars: bool = True) -> MonteCarloDraws:
+                     methods=("Monte Carlo",), scalars: bool = True,
+                     ev: Optional[_Evaluator] = None) -> MonteCarloDraws:
     """Draws of the inputs whose ``method`` is in ``methods``, each rerun through the stages it changes.
 
     A draw that changes a wave speed, a gauge distance or the noise reruns
@@ -807,25 +818,24 @@ def monte_carlo_part(shot: "Shot", stages: "Stages", inputs, draws: int = DEFAUL
         law against Monte Carlo); both for everything.
     scalars : bool
         Also evaluate the summary scalars of every draw (off: rows only).
+    ev : _Evaluator, optional
+        The caller's evaluator of this shot and stages.
     """
     from .errors import AnalysisError
     from .reduce import face_stages
 
     rng = np.random.default_rng(seed)
-    ev = _Evaluator(shot, stages)
+    ev = ev if ev is not None else _Evaluator(shot, stages)
     drawn = [i for i in inputs if i.method in methods and not i.key.startswith("record.")]
     noise = any(i.key.startswith("record.") and i.method in methods for i in inputs)
-    bs, sp, opt, st = shot.barset, shot.specimen, shot.analysis, stages.strains
+    opt, st = shot.analysis, stages.strains
     restage = noise or any(k.split(".", 1)[1] in ("wave_speed", "gauge_distance") or
                            (k.endswith("modulus") and i.method == "Monte Carlo")
                            for i in drawn for k in [i.key])
-    peaks = {"incident": float(np.max(np.abs(st.incident))), "transmitted": float(np.max(np.abs(st.transmitted)))}
     xs, rows, scal, failed = [], {k: [] for k in ROWS}, {}, 0
     for _ in range(int(draws)):
         x = np.array([i.value + i.u * rng.standard_normal() for i in drawn])
-        values = dict(zip((i.key for i in drawn), x))
-        b2, s2 = _with_inputs(bs, sp, values)
-        factors = tuple(_channel_factor(bs, b, values, peaks[b]) for b in BARS)
+        b2, s2, factors = ev.changed(dict(zip((i.key for i in drawn), x)))
         try:
             if restage:
                 strains = _with_noise(st, rng) if noise else st
@@ -837,9 +847,10 @@ def monte_carlo_part(shot: "Shot", stages: "Stages", inputs, draws: int = DEFAUL
             failed += 1
             continue
         xs.append(x)
-        for k, y in ev.rows(curves, waves).items():
+        got_rows, got_scalars = ev.evaluate(curves, waves, scalars)
+        for k, y in got_rows.items():
             rows[k].append(y)
-        for k, v in (ev.scalars(curves, waves).items() if scalars else ()):
+        for k, v in (got_scalars.items() if scalars else ()):
             scal.setdefault(k, []).append(v)
     n = len(xs)
     return MonteCarloDraws(keys=[i.key for i in drawn], x=np.array(xs).reshape(n, len(drawn)),
@@ -882,14 +893,13 @@ class ShotUncertainty:
     Attributes
     ----------
     inputs : tuple of Input
-    time : ndarray
-        The curves' time [s].
     rows : dict
         Row name (:data:`ROWS`) -> combined standard uncertainty per sample [SI].
-    rows_gum, rows_mc : dict
-        The GUM and Monte Carlo parts of ``rows``.
+    rows_mc : dict
+        The Monte Carlo part of ``rows``.
     scalars : dict
-        Scalar name -> ``{"value", "u", "u_gum", "u_mc"}`` (summary units).
+        Scalar name (:data:`SCALARS`, then :func:`flow_column` of each strain of the flow table) ->
+        ``{"value", "u", "u_gum", "u_mc"}`` (summary units).
     contributions : dict
         Scalar name -> input key -> contribution c_i u(x_i) (summary units); ``record.noise`` for what the
         Monte Carlo draws leave to the noise.
@@ -904,9 +914,7 @@ class ShotUncertainty:
     """
 
     inputs: tuple
-    time: np.ndarray
     rows: dict
-    rows_gum: dict
     rows_mc: dict
     scalars: dict
     contributions: dict
@@ -941,7 +949,7 @@ class ShotUncertainty:
         """Flat summary results: ``u_<scalar>`` and ``U95_<scalar>`` for every scalar with a value."""
         out = {}
         for name, s in self.scalars.items():
-            if name.startswith("flow_stress_MPa_at_") or not math.isfinite(s["value"]):
+            if name not in SCALARS or not math.isfinite(s["value"]):  # the flow table's: flow_table()
                 continue
             out[standard_name(name)] = s["u"]
             out[expanded_name(name)] = self.coverage_factor * s["u"]
@@ -989,7 +997,7 @@ class ShotUncertainty:
                         "group": i.group, "method": i.method, "source": i.source} for i in self.inputs],
             "results": {k: {"value": s["value"], "u": s["u"], "U95": self.coverage_factor * s["u"],
                             "u_gum": s["u_gum"], "u_monte_carlo": s["u_mc"]}
-                        for k, s in self.scalars.items() if not k.startswith("flow_stress_MPa_at_")},
+                        for k, s in self.scalars.items() if k in SCALARS},
             "flow_stress": self.flow_table(),
             "dominant_inputs": {k: self.dominant(k) for k in budget_of if k in self.scalars},
             "relative_by_group": {"stress": self.relative_by_group("flow_stress_mean_MPa"),
@@ -1048,16 +1056,16 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
     -------
     ShotUncertainty
     """
-    draws = int(draws if draws is not None else getattr(shot.analysis, "uncertainty_draws", DEFAULT_DRAWS))
+    draws = int(draws if draws is not None else shot.analysis.uncertainty_draws)
     if draws < MIN_DRAWS:
         raise InputError(f"expected at least {MIN_DRAWS} draws, got {draws}", "analysis.uncertainty_draws")
     inputs = shot_inputs(shot, stages.strains)
     ev = _Evaluator(shot, stages)
-    nominal = ev.scalars(stages.curves, stages.waves)
+    nominal = ev.scalars(stages.curves, ev.region)
     eq_row = equilibrium_row(stages.curves, stages.waves.dt)
-    eq_scalars = ev.along(stages.curves, stages.waves, eq_row)
-    gum = gum_part(shot, stages, inputs)
-    mc = monte_carlo_part(shot, stages, inputs, draws, seed)
+    eq_scalars = ev.along(eq_row, nominal["yield_strain"])
+    gum = gum_part(shot, stages, inputs, ev)
+    mc = monte_carlo_part(shot, stages, inputs, draws, seed, ev=ev)
     rows_gum = {k: combined_uncertainty(gum["rows"][k]) if gum["rows"][k].size else np.zeros(ev.time.size)
                 for k in ROWS}
     rows_mc = {k: _std(mc.rows[k]) if mc.kept >= 2 else np.zeros(ev.time.size) for k in ROWS}
@@ -1077,7 +1085,7 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
         u = math.sqrt(u_gum ** 2 + u_mc ** 2 + u_eq ** 2) if math.isfinite(u_gum) else float("nan")
         if not math.isfinite(value):
             u = float("nan")
-        scalars[name] = {"value": value, "u": u, "u_gum": u_gum, "u_mc": u_mc, "u_equilibrium": u_eq}
+        scalars[name] = {"value": value, "u": u, "u_gum": u_gum, "u_mc": u_mc}
         c = {k: abs(float(v)) for k, v in zip(gum["keys"], g)}
         if name in eq_scalars:
             c[EQUILIBRIUM_INPUT.key] = u_eq
@@ -1088,9 +1096,9 @@ def propagate(shot: "Shot", stages: "Stages", draws: Optional[int] = None, seed=
         elif y.size >= 2:
             c["record.noise"] = u_mc
         contributions[name] = c
-    return ShotUncertainty(inputs=inputs + (EQUILIBRIUM_INPUT,), time=ev.time, rows=rows, rows_gum=rows_gum, rows_mc=rows_mc,
-                           scalars=scalars, contributions=contributions, flow_strains=ev.flow_strains,
-                           draws=draws, failed=mc.failed, seed=int(seed), notes=separation_notes(stages.waves))
+    return ShotUncertainty(inputs=inputs + (EQUILIBRIUM_INPUT,), rows=rows, rows_mc=rows_mc, scalars=scalars,
+                           contributions=contributions, flow_strains=ev.flow_strains, draws=draws, failed=mc.failed,
+                           seed=int(seed), notes=separation_notes(stages.waves))
 
 
 def separation_notes(waves) -> tuple:
@@ -1101,7 +1109,7 @@ def separation_notes(waves) -> tuple:
     gauge chains are not inputs, and a main station's gauge-chain change scales that bar's separated waves as
     a whole (exact only if both stations share the error).
     """
-    bars = tuple(getattr(waves, "separated_bars", ()) or ())
+    bars = waves.separated_bars
     if not bars:
         return ()
     whose = "bars'" if len(bars) > 1 else "bar's"
