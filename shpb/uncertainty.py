@@ -66,6 +66,7 @@ from typing import TYPE_CHECKING, Callable, Mapping, Optional
 import numpy as np
 
 from .errors import InputError
+from .schema import find_key
 from .units import DIMENSIONS
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -74,11 +75,11 @@ if TYPE_CHECKING:  # pragma: no cover
 
 #: Coverage factor of the expanded uncertainty U = k u (JCGM 100 §6.2; about 95 % for a near-normal output).
 COVERAGE_FACTOR = 2.0
-#: Monte Carlo draws per shot by default (the analysis key ``uncertainty_draws``): the Monte Carlo part of u is
-#: then known to about 1/sqrt(2 M) = 7 % of itself (JCGM 101 §7.2 asks M large enough for the digits reported).
-DEFAULT_DRAWS = 100
-#: Fewest draws accepted.
-MIN_DRAWS = 10
+#: Monte Carlo draws per shot by default, and the fewest accepted: the analysis key ``uncertainty_draws``
+#: (:mod:`shpb.schema` owns both numbers). With 100 draws the Monte Carlo part of u is known to about
+#: 1/sqrt(2 M) = 7 % of itself (JCGM 101 §7.2 asks M large enough for the digits reported).
+DEFAULT_DRAWS = find_key("analysis", "uncertainty_draws").default
+MIN_DRAWS = find_key("analysis", "uncertainty_draws").minimum
 #: Seed of the draws (fixed: a rerun gives the same numbers).
 SEED = 101
 #: Strain step of the table of flow stress with its uncertainty in the summary [1].
@@ -691,11 +692,10 @@ def equilibrium_row(curves, dt: float) -> np.ndarray:
     that far from the reported stress (|R| sigma / 2 for the 1-wave or 2-wave stress; zero for the 3-wave
     stress, whose own error of that kind the face forces' noise carries). Zero in equilibrium.
     """
-    from .validity import EQUILIBRIUM_AVERAGING, moving_average
+    from .validity import averaging_samples, moving_average
 
     diff = curves.stress_by_form["3-wave"] - curves.stress
-    n = max(1, round(EQUILIBRIUM_AVERAGING / dt))
-    return np.nan_to_num(np.abs(moving_average(diff, n)))
+    return np.nan_to_num(np.abs(moving_average(diff, averaging_samples(dt))))
 
 
 def _kolsky(waves, barset, specimen, stress_form, factors):

@@ -122,6 +122,11 @@ def usable_loading_region(strain_rate: ArrayLike, force_mean: ArrayLike,
     return region
 
 
+def averaging_samples(dt: float, averaging: float = EQUILIBRIUM_AVERAGING) -> int:
+    """Samples of the moving average over ``averaging`` [s] at time step ``dt`` [s] (at least one)."""
+    return max(1, round(averaging / dt))
+
+
 def moving_average(values: ArrayLike, n: int) -> np.ndarray:
     """Centred moving average over ``n`` samples, NaN-aware (NaN where the window holds no number)."""
     x = np.asarray(values, dtype=float)
@@ -522,7 +527,7 @@ def assess_curve(time: ArrayLike, strain_rate: ArrayLike, force_front: ArrayLike
 
     fmean = 0.5 * (f1 + f2)
     ratio = equilibrium_ratio(f1, f2, floor=0.05 * max(float(np.max(fmean)), 1e-30) if fmean.size else 0.0)
-    n_avg = max(1, round(averaging / dt))
+    n_avg = averaging_samples(dt, averaging)
     ratio_avg = moving_average(ratio, n_avg)
     u_ratio = equilibrium_ratio_uncertainty(moving_average(f1, n_avg), moving_average(f2, n_avg), *force_noise)
     out = Assessment(valid=np.zeros(tau.size, dtype=bool), equilibrium_ratio=ratio_avg)
@@ -1101,7 +1106,7 @@ def judge(strains: "GaugeStrains", plan: "WindowPlan", waves: "FaceWaves", curve
     -------
     Verdict
     """
-    n_avg = max(1, round(EQUILIBRIUM_AVERAGING / waves.dt))
+    n_avg = averaging_samples(waves.dt)
     u1, u2 = force_noise(strains, waves, barset, n_avg)
     cutoff = strains.lowpass_cutoff
     usable = waves.weight >= 1.0 - 1e-9 if waves.weight is not None else None
