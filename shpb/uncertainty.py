@@ -128,19 +128,16 @@ class Rectangular:
         return rng.uniform(self.low, self.high, n)
 
 
-def combined_uncertainty(contributions, correlation=None) -> np.ndarray:
-    """Combined standard uncertainty from the contributions c_i u(x_i) of each input.
+def combined_uncertainty(contributions) -> np.ndarray:
+    """Combined standard uncertainty of uncorrelated inputs from their contributions c_i u(x_i).
 
-    u_c² = sum_i sum_j c_i u(x_i) r(x_i, x_j) c_j u(x_j) (JCGM 100 eq. 13),
-    which is sum_i (c_i u(x_i))² (eq. 10) for uncorrelated inputs.
+    u_c² = sum_i (c_i u(x_i))² (JCGM 100 eq. 10).
 
     Parameters
     ----------
     contributions : array_like
         c_i u(x_i), inputs along axis 0 (any further axes: one output each),
         in the output's unit.
-    correlation : array_like, optional
-        Correlation matrix r(x_i, x_j) of the inputs [1]; None: uncorrelated.
 
     Returns
     -------
@@ -148,10 +145,7 @@ def combined_uncertainty(contributions, correlation=None) -> np.ndarray:
         u_c, in the output's unit.
     """
     c = np.asarray(contributions, dtype=float)
-    if correlation is None:
-        return np.sqrt(np.sum(c * c, axis=0))
-    r = np.asarray(correlation, dtype=float)
-    return np.sqrt(np.maximum(np.einsum("i...,ij,j...->...", c, r, c), 0.0))
+    return np.sqrt(np.sum(c * c, axis=0))
 
 
 def gum_contributions(model: Callable, x, u) -> np.ndarray:
